@@ -1,0 +1,27 @@
+# Two commands set everything up on a fresh machine: `make demo` and `make test`.
+PYTHON ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed-stamp
+
+.PHONY: demo test bench venv clean
+
+$(STAMP): pyproject.toml
+	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+venv: $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/suitability run configs/demo.yaml --overwrite
+
+test: $(STAMP)
+	$(BIN)/python -m pytest -q -n 2 --timeout=900
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/run.py
+
+clean:
+	rm -rf out/ .pytest_cache .hypothesis
