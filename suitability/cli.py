@@ -1,0 +1,213 @@
+"""Command line: parses arguments, calls the public API, renders results, maps errors to exit codes.
+
+Exit codes: 0 success, 1 unexpected internal error, 2 config error, 3 input-data error, 4 output error,
+130 interrupted.
+"""
+
+from __future__ import annotations
+
+import functools
+import sys
+from pathlib import Path
+from typing import List, Optional
+
+import typer
+from rich.console import Console
+from rich.panel import Panel
+from rich.table import Table
+
+from .errors import SuitabilityError
+
+app = typer.Typer(
+    add_completion=False,
+    no_args_is_help=True,
+    help="Map where C4 plants out-assimilate C3 plants, today and under climate scenarios.",
+)
+console = Console(stderr=False)
+errors = Console(stderr=True)
+
+CAUTION_SHORT = (
+    "Potential, model-based estimates, not yield forecasts. Confirm with local agronomic advice, "
+    "field trials and local regulations before acting."
+)
+
+
+def _handle_errors(command):
+    @functools.wraps(command)
+    def wrapper(*args, debug: bool = False, **kwargs):
+        try:
+            return command(*args, **kwargs)
+        except SuitabilityError as error:
+            if debug:
+                raise
+            errors.print(f"[bold red]error:[/] {error}", highlight=False, soft_wrap=True)
+            raise typer.Exit(error.exit_code)
+        except KeyboardInterrupt:
+            errors.print("[bold red]interrupted[/]: no finished-looking partial outputs were left behind.")
+            raise typer.Exit(130)
+        except Exception as error:  # noqa: BLE001 - the last line of defence for a GIS user
+            if debug:
+                raise
+            errors.print(f"[bold red]internal error:[/] {type(error).__name__}: {error}", highlight=False)
+            errors.print("Run again with --debug for the traceback, and report it.")
+            raise typer.Exit(1)
+
+    return wrapper
+
+
+DebugOption = typer.Option(False, "--debug", help="Show the full traceback on errors.")
+
+
+@app.command()
+def run(
+    config: Path = typer.Argument(..., help="YAML config file."),
+    overwrite: Optional[bool] = typer.Option(None, "--overwrite/--no-overwrite", help="Replace existing outputs."),
+    scheduler: Optional[str] = typer.Option(None, help="threads | processes | local-cluster | tcp://host:port"),
+    workers: Optional[int] = typer.Option(None, help="Threads or worker processes."),
+    memory_limit: Optional[str] = typer.Option(None, help="Memory limit per worker, e.g. 2GiB."),
+    progress: bool = typer.Option(True, "--progress/--no-progress", help="Show progress bars."),
+    debug: bool = DebugOption,
+):
+    """Compute every scenario of CONFIG and write the maps, tables, manifest (and briefs)."""
+    _run(config, overwrite, scheduler, workers, memory_limit, progress, debug=debug)
+
+
+@_handle_errors
+def _run(config, overwrite, scheduler, workers, memory_limit, progress):
+    from . import pipeline
+
+    _print_caution()
+    result = pipeline.run(
+        config, overwrite=overwrite, scheduler=scheduler, workers=workers, memory_limit=memory_limit, progress=progress
+    )
+    table = Table(title="Share of valid cells by favoured pathway (%)")
+    for column in result.summary.columns:
+        table.add_column(str(column), justify="left" if column == "scenario" else "right")
+    for row in result.summary.itertuples(index=False):
+        table.add_row(*[f"{v:.1f}" if isinstance(v, float) else str(v) for v in row])
+    console.print(table)
+    console.print(f"Outputs: {result.output_folder}")
+    console.print(f"Manifest: {result.manifest_path}")
+    for name, path in result.briefs.items():
+        console.print(f"Brief ({name}): {path}")
+    console.print(f"Run time: {result.manifest['timings']['total_s']:.1f} s")
+
+
+@app.command()
+def check(config: Path = typer.Argument(..., help="YAML config file."), debug: bool = DebugOption):
+    """Validate CONFIG and open every input (exists, CRS, units, overlap, nodata) without computing."""
+    _check(config, debug=debug)
+
+
+@_handle_errors
+def _check(config):
+    from .config import load_config
+    from .errors import InputDataError
+    from .inputs import inspect_inputs
+
+    cfg = load_config(config)
+    reports = inspect_inputs(cfg)
+    table = Table(title=f"Inputs of {config}")
+    for column in ("layer", "file", "CRS", "units", "overlap %", "nodata %", "problems"):
+        table.add_column(column)
+    problems = 0
+    for report in reports:
+        issues = list(getattr(report, "problems", []) or [])
+        problems += len(issues)
+        table.add_row(
+            str(report.layer), Path(str(report.path)).name, str(report.crs), _units_text(report),
+            _percent(getattr(report, "overlap_share", None)), _percent(getattr(report, "nodata_share", None)),
+            "; ".join(issues) or "ok",
+        )
+    console.print(table)
+    console.print(f"{len(cfg.scenarios)} scenarios: {', '.join(s.name for s in cfg.scenarios)}")
+    if problems:
+        raise InputDataError(f"{problems} problem(s) found in the inputs of {config}; see the table above")
+    console.print("[green]Config and inputs look usable.[/]")
+
+
+@app.command()
+def brief(config: Path = typer.Argument(..., help="YAML config file of a finished run."), debug: bool = DebugOption):
+    """Write the district statistics and HTML/PDF briefs from the outputs of a finished run."""
+    _brief(config, debug=debug)
+
+
+@_handle_errors
+def _brief(config):
+    from . import pipeline
+    from .config import load_config
+    from .errors import ConfigError
+
+    cfg = load_config(config)
+    if getattr(cfg, "brief", None) is None:
+        raise ConfigError(f"{config}: the config has no 'brief' section (zones, name_field)")
+    folder = Path(cfg.output.folder)
+    paths = pipeline.make_briefs(cfg, {s.name: folder / s.name for s in cfg.scenarios})
+    _print_caution()
+    for name, path in paths.items():
+        console.print(f"{name}: {path}")
+
+
+@app.command()
+def curves(
+    co2: List[float] = typer.Option([280.0, 420.0, 700.0], "--co2", help="CO2 in ppm; repeat for several."),
+    absorbed_par: float = typer.Option(1500.0, help="Absorbed PAR of the leaf [µmol m-2 s-1]."),
+    out: Path = typer.Option(Path("curves"), help="Output folder for the CSV and PNG."),
+    debug: bool = DebugOption,
+):
+    """Leaf net assimilation of C3 and C4 versus leaf temperature, and the crossover temperature."""
+    _curves(co2, absorbed_par, out, debug=debug)
+
+
+@_handle_errors
+def _curves(co2, absorbed_par, out):
+    from .curves import write_curves
+
+    paths = write_curves(co2, out, absorbed_par=absorbed_par)
+    for path in paths.values():
+        console.print(f"Wrote {path}")
+
+
+@app.command()
+def init(
+    path: Path = typer.Argument(Path("suitability.yaml"), help="Where to write the starter config."),
+    force: bool = typer.Option(False, "--force", help="Replace an existing file."),
+    debug: bool = DebugOption,
+):
+    """Write a commented starter config to edit."""
+    _init(path, force, debug=debug)
+
+
+@_handle_errors
+def _init(path, force):
+    from importlib import resources
+
+    from .errors import OutputError
+
+    if path.exists() and not force:
+        raise OutputError(f"{path} exists; use --force to replace it")
+    text = resources.files("suitability").joinpath("templates/starter.yaml").read_text(encoding="utf-8")
+    path.write_text(text, encoding="utf-8")
+    console.print(f"Wrote {path}. Edit the paths and units, then run: suitability check {path}")
+
+
+def _print_caution() -> None:
+    console.print(Panel(CAUTION_SHORT, title="caution", border_style="yellow"))
+
+
+def _percent(share) -> str:
+    return "-" if share is None else f"{100 * share:.1f}"
+
+
+def _units_text(report) -> str:
+    declared = getattr(report, "declared_units", None)
+    canonical = getattr(report, "canonical_units", None)
+    return f"{declared} -> {canonical}" if declared and canonical and declared != canonical else str(canonical or declared)
+
+
+def main() -> None:  # pragma: no cover - console entry point
+    app()
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())

@@ -1,0 +1,85 @@
+"""Indicators derived from the C3 and C4 potential assimilation: advantage, classes, months, change.
+
+Pure array functions (numpy in, numpy out; they also work on xarray objects). No physiology here: the
+inputs are assimilation totals already computed by :mod:`suitability.model`.
+
+Decisions (documented in the README "Science" section):
+- The advantage index is the normalised difference of the seasonal NET canopy assimilation,
+  ``(A4 - A3) / (A4 + A3)``, with negative totals (respiration exceeding assimilation, e.g. a frozen or
+  completely dry season) counted as zero: a pathway that cannot gain carbon has no potential, but a
+  larger loss is not an "advantage" of the other. Where both are zero the index is 0 (neither favoured).
+- Class boundaries: ``advantage > margin`` C4 favoured, ``advantage < -margin`` C3 favoured, otherwise
+  contested; margin defaults to 0.05 (our choice, configurable as ``classes.contested_margin``).
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NODATA
+
+
+def advantage_index(c3_total, c4_total):
+    """Normalised pathway advantage (A4 - A3) / (A4 + A3), in [-1, 1].
+
+    c3_total, c4_total: net assimilation of each pathway over the same period [g C m-2]; negative totals
+    count as zero. NaN in either gives NaN.
+    """
+    a3 = np.maximum(c3_total, 0.0)
+    a4 = np.maximum(c4_total, 0.0)
+    total = a3 + a4
+    with np.errstate(invalid="ignore", divide="ignore"):
+        index = np.where(total > 0, (a4 - a3) / np.where(total > 0, total, 1.0), 0.0)
+    return np.where(np.isnan(c3_total) | np.isnan(c4_total), np.nan, index)
+
+
+def pathway_class(advantage, margin: float = 0.05):
+    """Class codes from the advantage index: 1 C3 favoured, 2 contested, 3 C4 favoured, 255 nodata (uint8)."""
+    if not 0.0 <= margin < 1.0:
+        raise ValueError(f"contested margin must be in [0, 1), got {margin}")
+    classes = np.where(advantage > margin, CLASS_C4, np.where(advantage < -margin, CLASS_C3, CLASS_CONTESTED))
+    return np.where(np.isnan(advantage), CLASS_NODATA, classes).astype(np.uint8)
+
+
+def c4_favoured_months(monthly_c3, monthly_c4, in_season, margin: float = 0.05):
+    """Number of season months whose own advantage index exceeds the margin.
+
+    monthly_c3, monthly_c4: net assimilation per month [g C m-2], leading axis = month.
+    in_season: boolean array broadcastable to them, True for months that belong to the season.
+    Returns float32 counts; NaN where any season month has no data.
+    """
+    monthly_advantage = advantage_index(monthly_c3, monthly_c4)
+    favoured = (monthly_advantage > margin) & in_season
+    count = favoured.sum(axis=0).astype(np.float32)
+    missing = (np.isnan(monthly_advantage) & in_season).any(axis=0)
+    return np.where(missing, np.float32(np.nan), count)
+
+
+def photorespiration_share(c3_gross_total, c3_photorespiration_total):
+    """Share of C3 gross carboxylation released again by photorespiration, in [0, 1].
+
+    Gross carboxylation vc = A_gross + 0.5 vo (von Caemmerer 2000, eq. 2.1 rearranged), so the share is
+    R_photo / (A_gross + R_photo). Inputs [g C m-2] over the same period; NaN where the sum is zero.
+    """
+    carboxylation = c3_gross_total + c3_photorespiration_total
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(carboxylation > 0, c3_photorespiration_total / np.where(carboxylation > 0, carboxylation, 1.0), np.nan)
+
+
+def advantage_change(baseline_advantage, scenario_advantage):
+    """Scenario minus baseline advantage index, in [-2, 2]; NaN where either is NaN."""
+    return scenario_advantage - baseline_advantage
+
+
+def class_transition(baseline_class, scenario_class):
+    """Transition code baseline*10 + scenario (e.g. 13 = C3 favoured -> C4 favoured); 255 where either is nodata."""
+    base = _as_uint16(baseline_class)
+    scen = _as_uint16(scenario_class)
+    code = base * 10 + scen
+    nodata = (base == CLASS_NODATA) | (scen == CLASS_NODATA)
+    return np.where(nodata, CLASS_NODATA, code).astype(np.uint8)
+
+
+def _as_uint16(values):
+    # .astype keeps xarray and dask objects lazy; plain scalars become numpy scalars.
+    return values.astype(np.uint16) if hasattr(values, "astype") else np.uint16(values)

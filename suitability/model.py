@@ -1,0 +1,305 @@
+"""Compose the physiology into per-cell seasonal C3 and C4 potential assimilation and the indicators.
+
+For every cell and month the daily canopy model (:func:`suitability.physiology.daily_canopy_assimilation`)
+is evaluated for a representative day, the 15th of the month, and multiplied by the days in the month
+(a non-leap year). Season totals add the months of the season. The work is done block by block: on dask
+data each block of cells goes through :func:`_evaluate_block` once, which returns every output layer at
+the same time, so the physiology runs once per cell and month whatever the number of layers written.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+from typing import Any, Mapping, Sequence
+
+import numpy as np
+import xarray as xr
+
+from . import indicators
+from .physiology import crossover_temperature, daily_canopy_assimilation
+from .physiology.atmosphere import air_pressure_kpa
+from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario
+from .variables import CLASS_NODATA
+
+#: Day of year of the 15th of each month in a non-leap year; the representative day of the month.
+REPRESENTATIVE_DAY = np.array([15, 46, 74, 105, 135, 166, 196, 227, 258, 288, 319, 349])
+DAYS_IN_MONTH = np.array([31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.float64)
+
+SEASONAL_LAYERS = (
+    "c3_assimilation",
+    "c4_assimilation",
+    "pathway_advantage",
+    "pathway_class",
+    "c4_favoured_months",
+    "photorespiration_share",
+    "crossover_temperature",
+)
+MONTHLY_LAYERS = ("c3_monthly_assimilation", "c4_monthly_assimilation")
+_N_STACKED = len(SEASONAL_LAYERS) + 12 * len(MONTHLY_LAYERS)
+_MONTHLY_INPUTS = ("tmin", "tmax", "shortwave", "par", "water_availability", "vpd", "humidity")
+_STATIC_INPUTS = ("elevation", "lai", "latitude")
+DEFAULT_LAI = 3.0
+
+
+@dataclass(frozen=True)
+class ModelSettings:
+    """Everything the block function needs besides the data; hashable and picklable for dask.
+
+    c3_params, c4_params: what :func:`suitability.physiology.resolve_params` accepts.
+    season_months: fixed months (1..12) of the season, or None to use ``season_min_temperature_c``.
+    season_min_temperature_c: per-cell rule, months whose mean of tmin and tmax is at least this [°C].
+    contested_margin: half-width of the contested class on the advantage index [-].
+    lai: leaf area index used where the data have no ``lai`` layer [m2 m-2].
+    """
+
+    scenario: ScenarioSettings
+    c3_params: Any = None
+    c4_params: Any = None
+    season_months: tuple[int, ...] | None = tuple(range(1, 13))
+    season_min_temperature_c: float | None = None
+    contested_margin: float = 0.05
+    lai: float = DEFAULT_LAI
+
+
+def evaluate(
+    dataset: xr.Dataset,
+    scenario: Any = None,
+    *,
+    physiology: Any = None,
+    season: Any = None,
+    classes: Any = None,
+    scenario_layers: xr.Dataset | None = None,
+) -> xr.Dataset:
+    """Evaluate both pathways on a climate dataset and return every per-scenario output layer.
+
+    dataset: monthly layers with dims (month, y, x) (month = 1..12): ``tmin`` and ``tmax`` (or ``tmean``)
+        [°C], ``shortwave`` [MJ m-2 d-1] or ``par`` [mol m-2 d-1], ``water_availability`` [0-1], optional
+        ``vpd`` [kPa] or ``humidity`` [0-1]; static (y, x): ``latitude`` [degrees north] (data variable or
+        coordinate), optional ``elevation`` [m] (sea level if absent) and ``lai`` [m2 m-2]. numpy- or
+        dask-backed; dask input stays lazy.
+    scenario: a config scenario, a mapping (co2_ppm, o2_percent, temperature_offset_c, shortwave_factor,
+        water_availability_factor) or None (420 ppm, present climate).
+    physiology: config ``physiology`` section or mapping {"c3": {...}, "c4": {...}, "lai": ...}.
+    season: config ``season`` section or mapping {"months": [...]} / {"min_mean_temperature_c": t}.
+    classes: config ``classes`` section or mapping {"contested_margin": m}.
+
+    Returns a Dataset with the layers of ``SEASONAL_LAYERS`` (y, x) and ``MONTHLY_LAYERS`` (month, y, x),
+    assimilation in g C m-2 per season or month; ``pathway_class`` is uint8 with 255 as nodata.
+    """
+    settings = model_settings(scenario, physiology=physiology, season=season, classes=classes)
+    diurnal_range = _get(physiology, "diurnal_range_c", DEFAULT_DIURNAL_RANGE_C)
+    climate = apply_scenario(dataset, settings.scenario, scenario_layers, diurnal_range_c=diurnal_range)
+    climate = _with_latitude(climate)
+    names = tuple(n for n in _MONTHLY_INPUTS + _STATIC_INPUTS if n in climate)
+    _check_inputs(names)
+    arrays, core_dims = [], []
+    for name in names:
+        layer = climate[name]
+        if "month" in layer.dims:
+            layer = layer.sel(month=list(range(1, 13)))
+            if layer.chunks is not None:
+                layer = layer.chunk({"month": -1})
+            core_dims.append(["month"])
+        else:
+            core_dims.append([])
+        arrays.append(layer.astype(np.float32))
+    stacked = xr.apply_ufunc(
+        _evaluate_block,
+        *arrays,
+        input_core_dims=core_dims,
+        output_core_dims=[["layer"]],
+        kwargs={"names": names, "settings": settings},
+        dask="parallelized",
+        output_dtypes=[np.float32],
+        dask_gufunc_kwargs={"output_sizes": {"layer": _N_STACKED}},
+    )
+    return _unstack(stacked, settings)
+
+
+def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None) -> ModelSettings:
+    """Collect the model's settings from config sections or plain mappings (see :func:`evaluate`)."""
+    months = _get(season, "months", None)
+    threshold = _get(season, "min_mean_temperature_c", None)
+    if months is None and threshold is None:
+        months = list(range(1, 13))
+    return ModelSettings(
+        scenario=ScenarioSettings.from_any(scenario),
+        c3_params=_pathway_params(physiology, "c3"),
+        c4_params=_pathway_params(physiology, "c4"),
+        season_months=tuple(int(m) for m in months) if months is not None and threshold is None else None,
+        season_min_temperature_c=None if threshold is None else float(threshold),
+        contested_margin=float(_get(classes, "contested_margin", 0.05)),
+        lai=float(_get(physiology, "lai", DEFAULT_LAI) or DEFAULT_LAI),
+    )
+
+
+def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSettings) -> np.ndarray:
+    """Evaluate one block of cells. Monthly arrays arrive as (..., 12), static ones as (...).
+
+    Returns (..., n_layers) float32: the seasonal layers, then 12 monthly C3 and 12 monthly C4 totals.
+    """
+    data = dict(zip(names, arrays))
+    shape = data["latitude"].shape
+    scenario = settings.scenario
+    elevation = data.get("elevation", np.zeros(shape, np.float32))
+    lai = data.get("lai", np.full(shape, settings.lai, np.float32))
+    in_season = _season_mask(data, settings, shape)
+    monthly = {p: np.full(shape + (12,), np.nan, np.float64) for p in ("C3", "C4")}
+    c3_gross = np.zeros(shape, np.float64)
+    c3_photorespiration = np.zeros(shape, np.float64)
+    for index in range(12):
+        if not in_season[..., index].any():
+            continue
+        month_inputs = _month_inputs(data, index)
+        for pathway, params in (("C3", settings.c3_params), ("C4", settings.c4_params)):
+            with np.errstate(all="ignore"):
+                day = daily_canopy_assimilation(
+                    pathway,
+                    day_of_year=int(REPRESENTATIVE_DAY[index]),
+                    latitude_deg=data["latitude"],
+                    co2_ppm=scenario.co2_ppm,
+                    o2_percent=scenario.o2_percent,
+                    elevation_m=elevation,
+                    lai=lai,
+                    params=params,
+                    **month_inputs,
+                )
+            monthly[pathway][..., index] = np.asarray(day.net) * DAYS_IN_MONTH[index]
+            if pathway == "C3":
+                season_weight = np.where(in_season[..., index], DAYS_IN_MONTH[index], 0.0)
+                c3_gross += np.asarray(day.gross) * season_weight
+                c3_photorespiration += np.asarray(day.photorespiration) * season_weight
+    for pathway in monthly:
+        monthly[pathway] = np.where(in_season, monthly[pathway], np.nan)  # NaN = month not in the season
+    valid = _valid_cells(data)
+    season_c3 = np.where(in_season, monthly["C3"], 0.0).sum(axis=-1)
+    season_c4 = np.where(in_season, monthly["C4"], 0.0).sum(axis=-1)
+    has_season = in_season.any(axis=-1)
+    nodata = ~valid | ~has_season | np.isnan(season_c3) | np.isnan(season_c4)
+    season_c3 = np.where(nodata, np.nan, season_c3)
+    season_c4 = np.where(nodata, np.nan, season_c4)
+    advantage = indicators.advantage_index(season_c3, season_c4)
+    classes = indicators.pathway_class(advantage, settings.contested_margin)
+    months_favoured = indicators.c4_favoured_months(
+        np.moveaxis(monthly["C3"], -1, 0), np.moveaxis(monthly["C4"], -1, 0), np.moveaxis(in_season, -1, 0),
+        settings.contested_margin,
+    )
+    share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        warnings.simplefilter("ignore", UserWarning)
+        crossover = crossover_temperature(
+            scenario.co2_ppm, o2_percent=scenario.o2_percent, pressure_kpa=air_pressure_kpa(elevation),
+            params=settings.c3_params and None,
+        )
+    crossover = np.broadcast_to(crossover, shape)
+    seasonal = [season_c3, season_c4, advantage, classes, months_favoured, share, crossover]
+    out = np.empty(shape + (_N_STACKED,), np.float32)
+    for i, layer in enumerate(seasonal):
+        values = np.asarray(layer, dtype=np.float64)
+        if SEASONAL_LAYERS[i] != "pathway_class":
+            values = np.where(nodata, np.nan, values)
+        out[..., i] = values
+    first = len(SEASONAL_LAYERS)
+    out[..., first:first + 12] = np.where(valid[..., None], monthly["C3"], np.nan)
+    out[..., first + 12:first + 24] = np.where(valid[..., None], monthly["C4"], np.nan)
+    return out
+
+
+def _month_inputs(data: Mapping[str, np.ndarray], index: int) -> dict[str, np.ndarray]:
+    from .physiology import light
+
+    inputs = {
+        "tmin_c": data["tmin"][..., index],
+        "tmax_c": data["tmax"][..., index],
+        "water_availability": data["water_availability"][..., index],
+    }
+    if "shortwave" in data:
+        inputs["shortwave_mj"] = data["shortwave"][..., index]
+    else:
+        inputs["shortwave_mj"] = light.shortwave_from_par(data["par"][..., index])
+    if "vpd" in data:
+        inputs["vpd_kpa"] = data["vpd"][..., index]
+    elif "humidity" in data:
+        from .physiology import atmosphere
+
+        inputs["actual_vapour_pressure_kpa"] = atmosphere.actual_vapour_pressure_from_humidity(
+            data["humidity"][..., index], inputs["tmin_c"], inputs["tmax_c"]
+        )
+    return inputs
+
+
+def _season_mask(data: Mapping[str, np.ndarray], settings: ModelSettings, shape: tuple[int, ...]) -> np.ndarray:
+    if settings.season_min_temperature_c is not None:
+        mean_temperature = 0.5 * (data["tmin"] + data["tmax"])
+        return mean_temperature >= settings.season_min_temperature_c
+    months = np.zeros(12, bool)
+    months[[m - 1 for m in settings.season_months]] = True
+    return np.broadcast_to(months, shape + (12,))
+
+
+def _valid_cells(data: Mapping[str, np.ndarray]) -> np.ndarray:
+    valid = np.ones(data["latitude"].shape, bool)
+    for name, values in data.items():
+        finite = np.isfinite(values)
+        valid &= finite.all(axis=-1) if values.ndim == len(valid.shape) + 1 else finite
+    return valid
+
+
+def _unstack(stacked: xr.DataArray, settings: ModelSettings) -> xr.Dataset:
+    layers = {}
+    for i, name in enumerate(SEASONAL_LAYERS):
+        layer = stacked.isel(layer=i)
+        if name == "pathway_class":
+            layer = layer.fillna(CLASS_NODATA).astype(np.uint8)
+        layers[name] = layer
+    first = len(SEASONAL_LAYERS)
+    for j, name in enumerate(MONTHLY_LAYERS):
+        block = stacked.isel(layer=slice(first + 12 * j, first + 12 * (j + 1)))
+        block = block.rename(layer="month").assign_coords(month=np.arange(1, 13)).transpose("month", ...)
+        layers[name] = block
+    result = xr.Dataset(layers)
+    scenario = settings.scenario
+    result.attrs.update(
+        scenario=scenario.name, co2_ppm=scenario.co2_ppm, o2_percent=scenario.o2_percent,
+        temperature_offset_c=scenario.temperature_offset_c,
+    )
+    return result
+
+
+def _with_latitude(climate: xr.Dataset) -> xr.Dataset:
+    if "latitude" in climate.data_vars:
+        return climate
+    if "latitude" in climate.coords:
+        latitude = climate.coords["latitude"]
+        return climate.drop_vars("latitude").assign(latitude=latitude)
+    raise ValueError("the dataset needs a 'latitude' layer (degrees north of each cell), as data variable or coordinate")
+
+
+def _check_inputs(names: Sequence[str]) -> None:
+    missing = [n for n in ("tmin", "tmax", "water_availability") if n not in names]
+    if not any(n in names for n in ("shortwave", "par")):
+        missing.append("shortwave (or par)")
+    if missing:
+        raise ValueError(f"the climate dataset lacks {', '.join(missing)}")
+
+
+def _pathway_params(physiology: Any, key: str):
+    section = _get(physiology, key, None)
+    if section is None:
+        return None
+    if isinstance(section, str):
+        return section
+    name = _get(section, "parameter_set", None)
+    overrides = dict(_get(section, "overrides", None) or {})
+    params = {"parameter_set": name, **overrides} if name else overrides
+    return params or None
+
+
+def _get(section: Any, key: str, default: Any) -> Any:
+    if section is None:
+        return default
+    if isinstance(section, Mapping):
+        return section.get(key, default)
+    return getattr(section, key, default)

@@ -1,0 +1,297 @@
+"""The whole run, in order: config -> inputs -> scenarios -> model -> indicators -> outputs -> reports.
+
+This is the only module that knows the order. Each step is a call into the module that owns it.
+"""
+
+from __future__ import annotations
+
+import json
+import platform
+import time
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from importlib import metadata
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+import xarray as xr
+
+from . import __version__
+from .config import RunConfig, load_config
+from .errors import ConfigError, InputDataError
+from .grid import TargetGrid
+from .indicators import advantage_change, class_transition
+from .inputs import load_climate
+from .model import MONTHLY_LAYERS, SEASONAL_LAYERS, evaluate
+from .outputs import check_output_folder, file_checksum, write_datacube, write_layers, write_manifest
+from .runtime import compute_context
+from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA
+
+CAUTION = (
+    "Results are potential, model-based estimates of where C4 or C3 plants have the physiological "
+    "advantage; they are not yield forecasts. Local soils, irrigation, pests, markets and farmer knowledge "
+    "are not represented. Confirm with local agronomic advice, field trials and local regulations before acting."
+)
+CHANGE_LAYERS = ("advantage_change", "class_transition")
+#: Always written: the change layers and the briefs are computed from them.
+REQUIRED_LAYERS = ("pathway_advantage", "pathway_class")
+MANIFEST_NAME = "manifest.json"
+SUMMARY_NAME = "class_summary.csv"
+DATACUBE_NAME = "monthly_assimilation.nc"
+
+_PACKAGES = ("numpy", "xarray", "dask", "distributed", "rasterio", "rioxarray", "rio-cogeo", "pyproj",
+             "odc-geo", "pydantic", "numba", "geopandas", "exactextract")
+
+
+@dataclass
+class RunResult:
+    """What :func:`run` produced.
+
+    output_folder: the run's output folder. scenario_folders: scenario name -> its folder.
+    layers: scenario name -> {layer name -> COG path}. summary: class shares per scenario (one row per
+    scenario: share of valid cells in each class, in percent, and the valid cell count).
+    manifest_path / manifest: the run manifest (config, inputs with checksums, versions, timings, outputs).
+    briefs: brief file paths (empty without a ``brief`` section). caution: the text every output carries.
+    """
+
+    output_folder: Path
+    scenario_folders: dict[str, Path]
+    layers: dict[str, dict[str, Path]]
+    summary: pd.DataFrame
+    manifest_path: Path
+    manifest: dict[str, Any]
+    briefs: dict[str, Path] = field(default_factory=dict)
+    caution: str = CAUTION
+
+
+def run(
+    config: RunConfig | str | Path,
+    *,
+    overwrite: bool | None = None,
+    scheduler: str | None = None,
+    workers: int | None = None,
+    memory_limit: str | None = None,
+    progress: bool = False,
+) -> RunResult:
+    """Run every scenario of ``config`` (a RunConfig or a path to a YAML file) and write its outputs.
+
+    overwrite, scheduler, workers, memory_limit override the config's values when given.
+    progress: show a progress bar on stderr (the CLI turns it on; the library default is silent).
+    """
+    cfg = load_config(config) if isinstance(config, (str, Path)) else config
+    cfg = _with_overrides(cfg, overwrite=overwrite, scheduler=scheduler, workers=workers, memory_limit=memory_limit)
+    started = time.perf_counter()
+    timings: dict[str, float] = {}
+    grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
+    folder = Path(cfg.output.folder)
+    scenarios = _ordered_scenarios(cfg)
+    layer_names = selected_layers(cfg)
+    check_output_folder(folder, [f"{s.name}/{n}.tif" for s in scenarios for n in layer_names(s)], cfg.output.overwrite)
+    chunk = cfg.compute.chunk_size
+    written: dict[str, dict[str, Path]] = {}
+    with compute_context(cfg.compute) as runtime:
+        tick = time.perf_counter()
+        climate = load_climate(cfg.climate, grid, cfg.config_dir, chunk)
+        climate = climate.assign(latitude=grid.latitude(chunk))
+        timings["open_inputs_s"] = time.perf_counter() - tick
+        config_hash = cfg.config_hash()
+        for scenario in scenarios:
+            tick = time.perf_counter()
+            own_layers = None
+            if getattr(scenario, "climate", None):
+                own_layers = load_climate(scenario.climate, grid, cfg.config_dir, chunk)
+            result = evaluate(
+                climate, scenario, physiology=cfg.physiology, season=cfg.season, classes=cfg.classes,
+                scenario_layers=own_layers,
+            )
+            layers = {name: result[name] for name in layer_names(scenario) if name in result}
+            if scenario.name != cfg_baseline(cfg):
+                layers.update(_change_layers(written[cfg_baseline(cfg)], result, chunk))
+                layers = {n: layers[n] for n in layer_names(scenario)}
+            layers = {n: _georeferenced(layer, grid) for n, layer in layers.items()}
+            scenario_folder = folder / scenario.name
+            tags = _scenario_tags(scenario, config_hash)
+            with runtime.progress(f"{scenario.name}: computing and writing"):
+                written[scenario.name] = write_layers(
+                    layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=runtime.write_lock(scenario.name)
+                )
+            if cfg.output.datacube:
+                cube = result[list(MONTHLY_LAYERS)]
+                cube.attrs.update(tags)
+                with runtime.progress(f"{scenario.name}: monthly datacube"):
+                    write_datacube(_georeferenced(cube, grid), scenario_folder / DATACUBE_NAME)
+                written[scenario.name]["datacube"] = scenario_folder / DATACUBE_NAME
+            timings[f"scenario_{scenario.name}_s"] = time.perf_counter() - tick
+    summary = class_summary({name: paths["pathway_class"] for name, paths in written.items()})
+    summary.to_csv(folder / SUMMARY_NAME, index=False)
+    briefs: dict[str, Path] = {}
+    if getattr(cfg, "brief", None) is not None:
+        tick = time.perf_counter()
+        briefs = make_briefs(cfg, {s.name: folder / s.name for s in scenarios})
+        timings["briefs_s"] = time.perf_counter() - tick
+    timings["total_s"] = time.perf_counter() - started
+    manifest = build_manifest(cfg, config_hash, written, summary, timings, briefs)
+    manifest_path = folder / MANIFEST_NAME
+    write_manifest(manifest, manifest_path)
+    return RunResult(
+        output_folder=folder,
+        scenario_folders={s.name: folder / s.name for s in scenarios},
+        layers=written,
+        summary=summary,
+        manifest_path=manifest_path,
+        manifest=manifest,
+        briefs=briefs,
+    )
+
+
+def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path]) -> dict[str, Path]:
+    """Zonal statistics, figures and HTML/PDF briefs for the scenarios already written."""
+    from .reports import brief_context_from_config, build_brief
+
+    context = brief_context_from_config(cfg, scenario_folders, caution=CAUTION, tool_version=__version__)
+    return build_brief(context, Path(cfg.output.folder))
+
+
+def selected_layers(cfg: RunConfig):
+    """Return a function scenario -> the layer names to write for it (baseline has no change layers)."""
+    wanted = cfg.output.layers
+    all_layers = list(SEASONAL_LAYERS) + list(CHANGE_LAYERS)
+    names = all_layers if wanted in (None, "all") else list(wanted)
+    for required in REQUIRED_LAYERS:
+        if required not in names:
+            names.append(required)
+    baseline = cfg_baseline(cfg)
+
+    def for_scenario(scenario) -> list[str]:
+        if scenario.name == baseline:
+            return [n for n in names if n not in CHANGE_LAYERS]
+        return names
+
+    return for_scenario
+
+
+def cfg_baseline(cfg: RunConfig) -> str:
+    return cfg.baseline or cfg.scenarios[0].name
+
+
+def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
+    """Share of valid cells per class for each scenario's ``pathway_class`` COG, read window by window."""
+    import rasterio
+
+    rows = []
+    for scenario, path in class_paths.items():
+        counts = np.zeros(256, np.int64)
+        with rasterio.open(path) as src:
+            for _, window in src.block_windows(1):
+                counts += np.bincount(src.read(1, window=window).ravel(), minlength=256)
+        valid = counts[[CLASS_C3, CLASS_CONTESTED, CLASS_C4]].sum()
+        row = {"scenario": scenario, "valid_cells": int(valid), "nodata_cells": int(counts[CLASS_NODATA])}
+        for code, label in CLASS_NAMES.items():
+            row[f"{label} %"] = round(100.0 * counts[code] / valid, 2) if valid else float("nan")
+        rows.append(row)
+    return pd.DataFrame(rows)
+
+
+def build_manifest(cfg, config_hash, written, summary, timings, briefs) -> dict[str, Any]:
+    """The run manifest: enough to trace every number back to its config, inputs and code."""
+    inputs = []
+    for path in sorted(_input_files(cfg)):
+        inputs.append({"path": str(path), "bytes": path.stat().st_size, "sha256": file_checksum(path)})
+    outputs = {
+        scenario: {name: {"path": str(p), "bytes": p.stat().st_size, "sha256": file_checksum(p)} for name, p in paths.items()}
+        for scenario, paths in written.items()
+    }
+    versions = {}
+    for package in _PACKAGES:
+        try:
+            versions[package] = metadata.version(package)
+        except metadata.PackageNotFoundError:
+            versions[package] = None
+    return {
+        "tool": "suitability",
+        "tool_version": __version__,
+        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "config_file": str(getattr(cfg, "source_path", "") or ""),
+        "config_hash": config_hash,
+        "config": json.loads(cfg.model_dump_json()),
+        "inputs": inputs,
+        "outputs": outputs,
+        "briefs": {k: str(v) for k, v in briefs.items()},
+        "summary": summary.to_dict(orient="records"),
+        "timings": {k: round(v, 3) for k, v in timings.items()},
+        "python": platform.python_version(),
+        "platform": platform.platform(),
+        "packages": versions,
+        "caution": CAUTION,
+    }
+
+
+def _input_files(cfg: RunConfig) -> set[Path]:
+    from .inputs import layer_files
+
+    files: set[Path] = set()
+    for name, spec in cfg.climate.items():
+        files.update(layer_files(spec, cfg.config_dir))
+    for scenario in cfg.scenarios:
+        for name, spec in (getattr(scenario, "climate", None) or {}).items():
+            files.update(layer_files(spec, cfg.config_dir))
+    return files
+
+
+def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, chunk: int) -> dict[str, xr.DataArray]:
+    import rioxarray
+
+    def open_written(name: str) -> xr.DataArray:
+        layer = rioxarray.open_rasterio(baseline_paths[name], chunks={"x": chunk, "y": chunk}, lock=False, masked=False)
+        layer = layer.squeeze("band", drop=True)
+        return layer.assign_coords(x=result["pathway_advantage"].x, y=result["pathway_advantage"].y)
+
+    base_advantage = open_written("pathway_advantage")
+    base_class = open_written("pathway_class")
+    return {
+        "advantage_change": advantage_change(base_advantage, result["pathway_advantage"]).astype(np.float32),
+        "class_transition": class_transition(base_class, result["pathway_class"]),
+    }
+
+
+def _georeferenced(layer, grid: TargetGrid):
+    layer = layer.drop_vars([c for c in ("band",) if c in layer.coords])
+    return layer.rio.write_crs(grid.crs).rio.write_transform(grid.transform)
+
+
+def _scenario_tags(scenario, config_hash: str) -> dict[str, str]:
+    return {
+        "scenario": scenario.name,
+        "scenario_description": getattr(scenario, "description", "") or "",
+        "co2_ppm": f"{scenario.co2_ppm:g}",
+        "o2_percent": f"{scenario.o2_percent:g}",
+        "temperature_offset_c": f"{scenario.temperature_offset_c:g}",
+        "config_hash": config_hash,
+        "tool": f"suitability {__version__}",
+        "caution": CAUTION,
+    }
+
+
+def _ordered_scenarios(cfg: RunConfig) -> list:
+    baseline = cfg_baseline(cfg)
+    names = [s.name for s in cfg.scenarios]
+    if baseline not in names:
+        raise ConfigError(f"baseline: scenario {baseline!r} is not defined; scenarios are {names}")
+    return sorted(cfg.scenarios, key=lambda s: s.name != baseline)
+
+
+def _with_overrides(cfg: RunConfig, **overrides) -> RunConfig:
+    compute_updates = {k: v for k, v in overrides.items() if k != "overwrite" and v is not None}
+    updates = {}
+    if compute_updates:
+        updates["compute"] = cfg.compute.model_copy(update=compute_updates)
+    if overrides.get("overwrite") is not None:
+        updates["output"] = cfg.output.model_copy(update={"overwrite": overrides["overwrite"]})
+    if not updates:
+        return cfg
+    return cfg.model_copy(update=updates)
+
+
+__all__ = ["run", "RunResult", "CAUTION", "class_summary", "InputDataError"]
