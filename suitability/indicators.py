@@ -15,6 +15,7 @@ Decisions (documented in the README "Science" section):
 from __future__ import annotations
 
 import numpy as np
+import xarray as xr
 
 from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NODATA
 
@@ -29,16 +30,16 @@ def advantage_index(c3_total, c4_total):
     a4 = np.maximum(c4_total, 0.0)
     total = a3 + a4
     with np.errstate(invalid="ignore", divide="ignore"):
-        index = np.where(total > 0, (a4 - a3) / np.where(total > 0, total, 1.0), 0.0)
-    return np.where(np.isnan(c3_total) | np.isnan(c4_total), np.nan, index)
+        index = _where(total > 0, (a4 - a3) / _where(total > 0, total, 1.0), 0.0)
+    return _where(np.isnan(c3_total) | np.isnan(c4_total), np.nan, index)
 
 
 def pathway_class(advantage, margin: float = 0.05):
     """Class codes from the advantage index: 1 C3 favoured, 2 contested, 3 C4 favoured, 255 nodata (uint8)."""
     if not 0.0 <= margin < 1.0:
         raise ValueError(f"contested margin must be in [0, 1), got {margin}")
-    classes = np.where(advantage > margin, CLASS_C4, np.where(advantage < -margin, CLASS_C3, CLASS_CONTESTED))
-    return np.where(np.isnan(advantage), CLASS_NODATA, classes).astype(np.uint8)
+    classes = _where(advantage > margin, CLASS_C4, _where(advantage < -margin, CLASS_C3, CLASS_CONTESTED))
+    return _where(np.isnan(advantage), CLASS_NODATA, classes).astype(np.uint8)
 
 
 def c4_favoured_months(monthly_c3, monthly_c4, in_season, margin: float = 0.05):
@@ -52,7 +53,7 @@ def c4_favoured_months(monthly_c3, monthly_c4, in_season, margin: float = 0.05):
     favoured = (monthly_advantage > margin) & in_season
     count = favoured.sum(axis=0).astype(np.float32)
     missing = (np.isnan(monthly_advantage) & in_season).any(axis=0)
-    return np.where(missing, np.float32(np.nan), count)
+    return _where(missing, np.float32(np.nan), count)
 
 
 def photorespiration_share(c3_gross_total, c3_photorespiration_total):
@@ -63,7 +64,7 @@ def photorespiration_share(c3_gross_total, c3_photorespiration_total):
     """
     carboxylation = c3_gross_total + c3_photorespiration_total
     with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(carboxylation > 0, c3_photorespiration_total / np.where(carboxylation > 0, carboxylation, 1.0), np.nan)
+        return _where(carboxylation > 0, c3_photorespiration_total / _where(carboxylation > 0, carboxylation, 1.0), np.nan)
 
 
 def advantage_change(baseline_advantage, scenario_advantage):
@@ -77,9 +78,16 @@ def class_transition(baseline_class, scenario_class):
     scen = _as_uint16(scenario_class)
     code = base * 10 + scen
     nodata = (base == CLASS_NODATA) | (scen == CLASS_NODATA)
-    return np.where(nodata, CLASS_NODATA, code).astype(np.uint8)
+    return _where(nodata, CLASS_NODATA, code).astype(np.uint8)
 
 
 def _as_uint16(values):
     # .astype keeps xarray and dask objects lazy; plain scalars become numpy scalars.
     return values.astype(np.uint16) if hasattr(values, "astype") else np.uint16(values)
+
+
+def _where(condition, x, y):
+    # np.where would turn xarray (and dask-backed) inputs into numpy; xr.where keeps them lazy.
+    if any(isinstance(v, (xr.DataArray, xr.Dataset)) for v in (condition, x, y)):
+        return xr.where(condition, x, y)
+    return np.where(condition, x, y)
