@@ -1,0 +1,501 @@
+"""Exact-coverage zonal statistics of the output rasters per district and scenario.
+
+Each district polygon is intersected with the output grid by ``exactextract``, which gives, for every cell
+the polygon touches, the fraction of the cell it covers. A cell's weight in every statistic is
+
+    w_i = coverage_i * cell_area_i                                                      [m2]
+
+so partial cells count in proportion to the land they contribute. Cell areas:
+
+- projected grids: the planar cell area |a*e - b*d| of the affine transform, times the square of the CRS
+  axis unit in metres (areas in the map plane of the grid's CRS, as a GIS reports them for that CRS);
+- geographic grids: the area of the ellipsoidal quadrangle between two parallels and two meridians,
+
+      A = (a^2 / 2) * |q(phi_2) - q(phi_1)| * delta_lambda                              [m2]
+      q(phi) = (1 - e^2) * [ sin(phi) / (1 - e^2 sin^2(phi))
+                             - 1 / (2e) * ln((1 - e sin(phi)) / (1 + e sin(phi))) ]
+
+  with a the semi-major axis [m], e the eccentricity of the grid CRS's ellipsoid and delta_lambda the cell
+  width [rad] (Snyder 1987, Map Projections - A Working Manual, USGS Prof. Paper 1395, eq. 3-12 for q;
+  the zone area follows from the authalic latitude). For a sphere (e = 0) q(phi) = 2 sin(phi).
+
+Weighted means use the weights of the cells where that layer has data; the standard deviation is the
+weighted population standard deviation sqrt(sum w (x - m)^2 / sum w).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import math
+import os
+import tempfile
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass
+from pathlib import Path
+
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pyproj
+import rasterio
+import shapely
+from exactextract import exact_extract
+from exactextract.raster import NumPyRasterSource
+from rasterio.windows import Window
+
+from suitability.errors import InputDataError, OutputError
+from suitability.variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED
+
+#: Layers every scenario folder must hold for the statistics.
+SCENARIO_LAYERS = (
+    "pathway_class",
+    "pathway_advantage",
+    "c3_assimilation",
+    "c4_assimilation",
+    "c4_favoured_months",
+)
+#: Extra layers every non-baseline scenario folder must hold.
+CHANGE_LAYERS = ("class_transition", "advantage_change")
+
+#: Columns of the table returned by :func:`zonal_statistics`, in order, with their meaning.
+COLUMNS: dict[str, str] = {
+    "district": "district name, from the zones' name field",
+    "scenario": "scenario name",
+    "district_area_ha": "area of the whole district polygon [ha]",
+    "coverage_share": "share of the district's area that lies on the output grid [0-1]",
+    "valid_share": "share of the district's area with results (a valid class) [0-1]",
+    "area_c3_ha": "land where C3 is favoured [ha]",
+    "area_contested_ha": "land where neither pathway is clearly favoured [ha]",
+    "area_c4_ha": "land where C4 is favoured [ha]",
+    "share_c3": "area_c3_ha / mapped area (area with a valid class) [0-1]",
+    "share_contested": "area_contested_ha / mapped area [0-1]",
+    "share_c4": "area_c4_ha / mapped area [0-1]",
+    "advantage_mean": "area-weighted mean pathway advantage (A4 - A3)/(A4 + A3) [-1..1]",
+    "advantage_std": "area-weighted standard deviation of the pathway advantage [-]",
+    "c3_assimilation_mean": "area-weighted mean seasonal C3 assimilation [g C m-2]",
+    "c4_assimilation_mean": "area-weighted mean seasonal C4 assimilation [g C m-2]",
+    "c4_favoured_months_mean": "area-weighted mean number of months in which C4 is favoured",
+    "advantage_change_mean": "area-weighted mean change of the advantage against the baseline (0 for it)",
+    "share_c4_change": "share_c4 minus the baseline's share_c4 [fraction; 0 for the baseline]",
+    "c3_to_c4_ha": "land that is C3 favoured in the baseline and C4 favoured in the scenario [ha]",
+    "c4_to_c3_ha": "land that is C4 favoured in the baseline and C3 favoured in the scenario [ha]",
+    "flag": "empty when all is well, else what is wrong (no overlap, partly outside, no data, repaired)",
+}
+
+_TRANSITION_C3_TO_C4 = CLASS_C3 * 10 + CLASS_C4
+_TRANSITION_C4_TO_C3 = CLASS_C4 * 10 + CLASS_C3
+_SQUARE_METRES_PER_HECTARE = 1.0e4
+# Districts whose share on the grid falls below this are flagged as partly outside.
+_FULL_COVERAGE = 0.999
+
+
+@dataclass(frozen=True)
+class OutputGrid:
+    """The grid of the output rasters, read from one of them.
+
+    crs: the rasters' CRS. transform: affine, north-up. width, height: cells.
+    """
+
+    crs: pyproj.CRS
+    transform: rasterio.Affine
+    width: int
+    height: int
+
+    @classmethod
+    def from_raster(cls, path: Path) -> OutputGrid:
+        """Read the grid of ``path``; a missing CRS or a rotated or south-up grid is an error."""
+        with _open_raster(path) as dataset:
+            if dataset.crs is None:
+                raise InputDataError(f"{path}: the raster has no CRS; expected the CRS of the output grid")
+            transform = dataset.transform
+            if transform.b != 0 or transform.d != 0 or transform.e >= 0:
+                raise InputDataError(
+                    f"{path}: expected a north-up grid without rotation, found transform {tuple(transform)[:6]}"
+                )
+            return cls(pyproj.CRS.from_user_input(dataset.crs.to_wkt()), transform, dataset.width, dataset.height)
+
+    @property
+    def is_geographic(self) -> bool:
+        return bool(self.crs.is_geographic)
+
+    @property
+    def bounds(self) -> tuple[float, float, float, float]:
+        """(xmin, ymin, xmax, ymax) in the grid CRS."""
+        t = self.transform
+        return (t.c, t.f + t.e * self.height, t.c + t.a * self.width, t.f)
+
+    def row_cell_area_m2(self, rows: np.ndarray) -> np.ndarray:
+        """Area [m2] of the cells in grid rows ``rows`` (see the module docstring for the formulas)."""
+        t = self.transform
+        unit = self.crs.axis_info[0].unit_conversion_factor  # metres (projected) or radians (geographic)
+        rows = np.asarray(rows)
+        if not self.is_geographic:
+            return np.full(rows.shape, abs(t.a * t.e) * unit * unit, dtype="float64")
+        top = (t.f + t.e * rows) * unit
+        bottom = (t.f + t.e * (rows + 1)) * unit
+        ellipsoid = self.crs.ellipsoid
+        return ellipsoidal_zone_area_m2(
+            top, bottom, abs(t.a) * unit, ellipsoid.semi_major_metre, ellipsoid.inverse_flattening
+        )
+
+    def same_as(self, other: OutputGrid, tolerance: float = 1e-6) -> bool:
+        """True if ``other`` has the same CRS, shape and (to ``tolerance`` of a cell) the same transform."""
+        if (self.width, self.height) != (other.width, other.height) or not self.crs.equals(other.crs):
+            return False
+        mine, theirs = np.array(tuple(self.transform)[:6]), np.array(tuple(other.transform)[:6])
+        return bool(np.all(np.abs(mine - theirs) <= tolerance * abs(self.transform.a)))
+
+
+def authalic_q(latitude_rad, eccentricity):
+    """Snyder's q(phi) (Snyder 1987, eq. 3-12) [-].
+
+    latitude_rad: geodetic latitude [rad]. eccentricity: first eccentricity e of the ellipsoid [-].
+    q = (1 - e^2) [sin(phi) / (1 - e^2 sin^2(phi)) - 1/(2e) ln((1 - e sin(phi)) / (1 + e sin(phi)))];
+    for e = 0 the limit is 2 sin(phi).
+    """
+    sin_phi = np.sin(latitude_rad)
+    if eccentricity == 0:
+        return 2.0 * sin_phi
+    e = eccentricity
+    e_sin = e * sin_phi
+    return (1.0 - e * e) * (sin_phi / (1.0 - e_sin * e_sin) - np.log((1.0 - e_sin) / (1.0 + e_sin)) / (2.0 * e))
+
+
+def ellipsoidal_zone_area_m2(lat1_rad, lat2_rad, width_rad, semi_major_m, inverse_flattening):
+    """Area of the ellipsoidal quadrangle between two parallels, ``width_rad`` of longitude wide [m2].
+
+    A = (a^2 / 2) |q(phi_2) - q(phi_1)| delta_lambda (Snyder 1987, eq. 3-12 for q).
+    lat1_rad, lat2_rad: bounding latitudes [rad]; width_rad: longitude extent [rad]; semi_major_m: a [m];
+    inverse_flattening: 1/f [-] (0 for a sphere).
+    """
+    flattening = 0.0 if not inverse_flattening else 1.0 / inverse_flattening
+    eccentricity = math.sqrt(flattening * (2.0 - flattening))
+    dq = np.abs(authalic_q(lat2_rad, eccentricity) - authalic_q(lat1_rad, eccentricity))
+    return 0.5 * semi_major_m * semi_major_m * dq * width_rad
+
+
+def read_zones(zones_path: str | os.PathLike, name_field: str) -> gpd.GeoDataFrame:
+    """Read district polygons (GeoPackage, GeoJSON, Shapefile, anything pyogrio reads).
+
+    Returns a GeoDataFrame with a ``district`` column (the names, as text) and the geometry, in the file's
+    CRS and order. Raises InputDataError naming the file when it cannot be read, is empty, has no CRS,
+    lacks ``name_field`` (the message lists the fields it has), has empty names or duplicate names.
+    """
+    path = Path(zones_path)
+    if not path.exists():
+        raise InputDataError(f"{path}: district file not found; expected a GeoPackage, GeoJSON or Shapefile")
+    try:
+        zones = gpd.read_file(path, engine="pyogrio")
+    except Exception as exc:  # pyogrio raises several types; all mean the same thing to the user
+        raise InputDataError(f"{path}: cannot read the districts ({exc}); expected a polygon layer") from exc
+    if len(zones) == 0:
+        raise InputDataError(f"{path}: the district file holds no features; expected one polygon per district")
+    if zones.crs is None:
+        raise InputDataError(f"{path}: the districts have no CRS; expected a layer with a defined CRS")
+    if name_field not in zones.columns:
+        fields = ", ".join(str(c) for c in zones.columns if c != zones.geometry.name) or "(none)"
+        raise InputDataError(
+            f"{path}: no field {name_field!r} for the district names; the layer has the fields: {fields}"
+        )
+    names = zones[name_field]
+    if names.isna().any() or (names.astype(str).str.strip() == "").any():
+        raise InputDataError(f"{path}: field {name_field!r} has empty district names; expected a name per district")
+    names = names.astype(str)
+    duplicated = sorted(set(names[names.duplicated()]))
+    if duplicated:
+        raise InputDataError(
+            f"{path}: field {name_field!r} has duplicate district names: {', '.join(duplicated)}; "
+            "expected one polygon (or multipolygon) per name"
+        )
+    return gpd.GeoDataFrame({"district": names.to_numpy()}, geometry=zones.geometry.to_numpy(), crs=zones.crs)
+
+
+def zones_on_grid(zones: gpd.GeoDataFrame, grid_crs: pyproj.CRS) -> gpd.GeoDataFrame:
+    """Return ``zones`` in ``grid_crs``, edges densified first so they follow their true shape there.
+
+    exactextract does not reproject (it only warns on a CRS mismatch), so this must happen before it. Edges
+    are split into pieces no longer than 1/1000 of the layer's extent, in its own CRS, before the vertices
+    are transformed: a straight edge in one CRS is curved in another.
+    """
+    if pyproj.CRS.from_user_input(zones.crs).equals(grid_crs):
+        return zones
+    xmin, ymin, xmax, ymax = zones.total_bounds
+    segment = math.hypot(xmax - xmin, ymax - ymin) / 1000.0
+    densified = zones.geometry.segmentize(segment) if segment > 0 else zones.geometry
+    return gpd.GeoDataFrame(zones.drop(columns=zones.geometry.name), geometry=densified, crs=zones.crs).to_crs(
+        grid_crs
+    )
+
+
+def geometry_area_m2(geometry, grid: OutputGrid) -> float:
+    """Area of ``geometry`` (in the grid CRS) [m2], measured as the cell areas are.
+
+    Projected: planar area times the squared axis unit. Geographic: geodesic area on the grid's ellipsoid
+    (pyproj.Geod, Karney 2013) of the geometry with edges densified to a quarter cell, so that edges that
+    are straight in longitude/latitude are followed.
+    """
+    if geometry is None or geometry.is_empty:
+        return 0.0
+    unit = grid.crs.axis_info[0].unit_conversion_factor
+    if not grid.is_geographic:
+        return float(geometry.area) * unit * unit
+    step = min(abs(grid.transform.a), abs(grid.transform.e)) / 4.0
+    dense = shapely.segmentize(geometry, step)
+    if unit != math.pi / 180.0:
+        dense = shapely.transform(dense, lambda xy: xy * unit * 180.0 / math.pi)
+    ellipsoid = grid.crs.ellipsoid
+    geod = pyproj.Geod(a=ellipsoid.semi_major_metre, b=ellipsoid.semi_minor_metre)
+    area, _ = geod.geometry_area_perimeter(shapely.orient_polygons(dense))
+    return abs(float(area))
+
+
+@dataclass(frozen=True)
+class _DistrictCells:
+    """The grid cells one district covers: flat row/col indices and weights w = coverage * area [m2]."""
+
+    rows: np.ndarray
+    cols: np.ndarray
+    weights_m2: np.ndarray
+
+    @property
+    def window(self) -> Window:
+        r0, c0 = int(self.rows.min()), int(self.cols.min())
+        return Window(c0, r0, int(self.cols.max()) - c0 + 1, int(self.rows.max()) - r0 + 1)
+
+
+def _district_cells(geometry, grid: OutputGrid, template: NumPyRasterSource, crs) -> _DistrictCells:
+    features = gpd.GeoDataFrame({"id": [0]}, geometry=[geometry], crs=crs)
+    result = exact_extract(template, features, ["cell_id", "coverage"], output="pandas")
+    cell_ids = np.asarray(result["cell_id"].iloc[0], dtype="int64")
+    coverage = np.asarray(result["coverage"].iloc[0], dtype="float64")
+    rows, cols = np.divmod(cell_ids, grid.width)
+    return _DistrictCells(rows, cols, coverage * grid.row_cell_area_m2(rows))
+
+
+def _grid_template(grid: OutputGrid) -> NumPyRasterSource:
+    # A zero-memory stand-in raster: only the grid geometry matters for cell ids and coverage.
+    xmin, ymin, xmax, ymax = grid.bounds
+    cells = np.broadcast_to(np.uint8(0), (grid.height, grid.width))
+    return NumPyRasterSource(cells, xmin, ymin, xmax, ymax, srs_wkt=grid.crs.to_wkt())
+
+
+def _open_raster(path: Path):
+    try:
+        return rasterio.open(path)
+    except rasterio.errors.RasterioIOError as exc:
+        raise InputDataError(f"{path}: cannot open the raster ({exc}); expected a GeoTIFF of the output grid") from exc
+
+
+def _scenario_layer_paths(folder: Path, scenario: str, is_baseline: bool) -> dict[str, Path]:
+    names = SCENARIO_LAYERS + (() if is_baseline else CHANGE_LAYERS)
+    paths = {name: Path(folder) / f"{name}.tif" for name in names}
+    missing = [str(p) for p in paths.values() if not p.exists()]
+    if missing:
+        raise InputDataError(
+            f"scenario {scenario!r}: missing output layer(s) {', '.join(missing)}; expected the output "
+            f"folder of a finished run with the layers {', '.join(names)}"
+        )
+    return paths
+
+
+def _open_on_grid(path: Path, grid: OutputGrid, stack: contextlib.ExitStack):
+    """Open ``path`` for the duration of ``stack``, after checking it lies on ``grid``."""
+    if not OutputGrid.from_raster(path).same_as(grid):
+        raise InputDataError(
+            f"{path}: the raster is not on the grid of the other outputs; expected the CRS, shape and "
+            f"transform of the baseline's pathway_class.tif"
+        )
+    return stack.enter_context(_open_raster(path))
+
+
+def _read_cells(dataset, cells: _DistrictCells) -> np.ndarray:
+    """Values of ``dataset`` (band 1) at the district's cells, float64, NaN where nodata."""
+    window = cells.window
+    block = dataset.read(1, window=window, masked=True).astype("float64").filled(np.nan)
+    return block[cells.rows - int(window.row_off), cells.cols - int(window.col_off)]
+
+
+def _weighted_mean_std(values: np.ndarray, weights: np.ndarray) -> tuple[float, float]:
+    valid = np.isfinite(values) & (weights > 0)
+    total = weights[valid].sum()
+    if total <= 0:
+        return math.nan, math.nan
+    mean = float(np.sum(weights[valid] * values[valid]) / total)
+    variance = float(np.sum(weights[valid] * (values[valid] - mean) ** 2) / total)
+    return mean, math.sqrt(max(variance, 0.0))
+
+
+def _scenario_row(cells: _DistrictCells, layers: Mapping[str, object]) -> dict[str, float]:
+    w = cells.weights_m2
+    classes = _read_cells(layers["pathway_class"], cells)
+    area = {code: float(w[classes == code].sum()) for code in (CLASS_C3, CLASS_CONTESTED, CLASS_C4)}
+    mapped = sum(area.values())
+    row = {
+        "mapped_m2": mapped,
+        "area_c3_ha": area[CLASS_C3] / _SQUARE_METRES_PER_HECTARE,
+        "area_contested_ha": area[CLASS_CONTESTED] / _SQUARE_METRES_PER_HECTARE,
+        "area_c4_ha": area[CLASS_C4] / _SQUARE_METRES_PER_HECTARE,
+    }
+    for key, code in (("share_c3", CLASS_C3), ("share_contested", CLASS_CONTESTED), ("share_c4", CLASS_C4)):
+        row[key] = area[code] / mapped if mapped > 0 else math.nan
+    row["advantage_mean"], row["advantage_std"] = _weighted_mean_std(
+        _read_cells(layers["pathway_advantage"], cells), w
+    )
+    for layer in ("c3_assimilation", "c4_assimilation", "c4_favoured_months"):
+        row[f"{layer}_mean"], _ = _weighted_mean_std(_read_cells(layers[layer], cells), w)
+    if "class_transition" in layers:
+        transitions = _read_cells(layers["class_transition"], cells)
+        row["c3_to_c4_ha"] = float(w[transitions == _TRANSITION_C3_TO_C4].sum()) / _SQUARE_METRES_PER_HECTARE
+        row["c4_to_c3_ha"] = float(w[transitions == _TRANSITION_C4_TO_C3].sum()) / _SQUARE_METRES_PER_HECTARE
+        row["advantage_change_mean"], _ = _weighted_mean_std(_read_cells(layers["advantage_change"], cells), w)
+    else:  # the baseline compared with itself: nothing changes
+        row["c3_to_c4_ha"] = row["c4_to_c3_ha"] = row["advantage_change_mean"] = 0.0
+    return row
+
+
+def _empty_row() -> dict[str, float]:
+    row = {key: 0.0 for key in ("mapped_m2", "area_c3_ha", "area_contested_ha", "area_c4_ha")}
+    row |= {key: math.nan for key in ("share_c3", "share_contested", "share_c4", "advantage_mean",
+                                      "advantage_std", "c3_assimilation_mean", "c4_assimilation_mean",
+                                      "c4_favoured_months_mean", "advantage_change_mean")}
+    row["c3_to_c4_ha"] = row["c4_to_c3_ha"] = 0.0
+    return row
+
+
+def _flags(coverage_share: float, valid_share: float, repaired: bool, empty: bool) -> str:
+    notes = []
+    if empty:
+        notes.append("the district has no geometry")
+    elif coverage_share == 0:
+        notes.append("no overlap with the output grid")
+    elif coverage_share < _FULL_COVERAGE:
+        notes.append(f"partly outside the output grid ({coverage_share:.0%} on it)")
+    if coverage_share > 0 and valid_share == 0:
+        notes.append("no valid data in the district")
+    if repaired:
+        notes.append("invalid polygon repaired before use")
+    return "; ".join(notes)
+
+
+def _district_rows(on_grid: gpd.GeoDataFrame, grid: OutputGrid, datasets: Mapping, baseline: str) -> list[dict]:
+    template = _grid_template(grid)
+    grid_box = shapely.box(*grid.bounds)
+    rows: list[dict] = []
+    for district, geometry in zip(on_grid["district"], on_grid.geometry):
+        empty = geometry is None or geometry.is_empty
+        repaired = not empty and not geometry.is_valid
+        if repaired:
+            geometry = shapely.make_valid(geometry)
+        district_area = geometry_area_m2(geometry, grid)
+        inside_area = geometry_area_m2(geometry.intersection(grid_box), grid) if district_area > 0 else 0.0
+        coverage_share = min(1.0, inside_area / district_area) if district_area > 0 else 0.0
+        cells = _district_cells(geometry, grid, template, on_grid.crs) if coverage_share > 0 else None
+        if cells is not None and cells.weights_m2.sum() <= 0:
+            cells, coverage_share = None, 0.0
+        scenario_rows = {
+            scenario: _scenario_row(cells, layers) if cells is not None else _empty_row()
+            for scenario, layers in datasets.items()
+        }
+        baseline_share_c4 = scenario_rows[baseline]["share_c4"]
+        for scenario, stats in scenario_rows.items():
+            mapped = stats.pop("mapped_m2")
+            valid_share = min(1.0, mapped / district_area) if district_area > 0 else 0.0
+            rows.append(
+                {
+                    "district": district,
+                    "scenario": scenario,
+                    "district_area_ha": district_area / _SQUARE_METRES_PER_HECTARE,
+                    "coverage_share": coverage_share,
+                    "valid_share": valid_share,
+                    **stats,
+                    "share_c4_change": stats["share_c4"] - baseline_share_c4,
+                    "flag": _flags(coverage_share, valid_share, repaired, empty),
+                }
+            )
+    return rows
+
+
+def zonal_statistics(
+    zones_path: str | os.PathLike,
+    name_field: str,
+    scenario_folders: Mapping[str, str | os.PathLike],
+    baseline: str,
+) -> pd.DataFrame:
+    """Statistics of every scenario's output rasters for every district.
+
+    zones_path: district polygons (GeoPackage, GeoJSON, Shapefile), any CRS (reprojected to the grid's).
+    name_field: the field holding the district names (unique, non-empty).
+    scenario_folders: scenario name -> its output folder (``<output>/<scenario>/``), baseline included.
+    baseline: name of the baseline scenario (a key of ``scenario_folders``).
+
+    Returns one row per district and scenario (districts in file order, scenarios in mapping order) with
+    the columns of :data:`COLUMNS`. A district without overlap with the grid gets coverage_share 0, zero
+    areas, NaN means and a ``flag`` saying so. Raises InputDataError for unreadable or inconsistent inputs.
+    """
+    if baseline not in scenario_folders:
+        raise InputDataError(
+            f"baseline scenario {baseline!r} has no output folder; folders were given for: "
+            f"{', '.join(scenario_folders) or '(none)'}"
+        )
+    layer_paths = {
+        name: _scenario_layer_paths(Path(folder), name, name == baseline) for name, folder in scenario_folders.items()
+    }
+    grid = OutputGrid.from_raster(layer_paths[baseline]["pathway_class"])
+    zones = read_zones(zones_path, name_field)
+    on_grid = zones_on_grid(zones, grid.crs)
+    with contextlib.ExitStack() as stack:
+        datasets = {
+            scenario: {layer: _open_on_grid(path, grid, stack) for layer, path in paths.items()}
+            for scenario, paths in layer_paths.items()
+        }
+        rows = _district_rows(on_grid, grid, datasets, baseline)
+    return pd.DataFrame(rows, columns=list(COLUMNS))
+
+
+def _atomic_target(path: Path) -> tuple[Path, Path]:
+    path = Path(path)
+    if not path.parent.is_dir():
+        raise OutputError(f"{path}: folder {path.parent} does not exist; expected an existing output folder")
+    # The temporary keeps the real suffix (GDAL picks drivers by it) and starts with a dot (hidden).
+    handle, temporary = tempfile.mkstemp(prefix=f".{path.stem}.tmp-", suffix=path.suffix, dir=path.parent)
+    os.close(handle)
+    return path, Path(temporary)
+
+
+def write_table_csv(table: pd.DataFrame, path: str | os.PathLike) -> Path:
+    """Write the statistics table as CSV (UTF-8, no index) atomically: temporary name, then os.replace."""
+    target, temporary = _atomic_target(Path(path))
+    try:
+        table.to_csv(temporary, index=False, encoding="utf-8")
+        os.replace(temporary, target)
+    except OSError as exc:
+        temporary.unlink(missing_ok=True)
+        raise OutputError(f"{target}: cannot write the district table ({exc})") from exc
+    return target
+
+
+def write_table_geopackage(
+    table: pd.DataFrame,
+    zones_path: str | os.PathLike,
+    name_field: str,
+    path: str | os.PathLike,
+    scenarios: Iterable[str] | None = None,
+) -> Path:
+    """Write the districts with their statistics to a GeoPackage, one layer per scenario, atomically.
+
+    Each layer is named after its scenario and holds every district once, in the CRS of the zones file,
+    with the table's columns as attributes. The file is built under a temporary name and os.replace'd.
+    """
+    zones = read_zones(zones_path, name_field)
+    target, temporary = _atomic_target(Path(path))
+    temporary.unlink()  # GDAL wants to create the GeoPackage itself
+    try:
+        for scenario in scenarios if scenarios is not None else table["scenario"].unique():
+            attributes = table[table["scenario"] == scenario]
+            layer = zones.merge(attributes, on="district", how="left")
+            layer.to_file(temporary, layer=str(scenario), driver="GPKG", engine="pyogrio")
+        os.replace(temporary, target)
+    except Exception as exc:
+        temporary.unlink(missing_ok=True)
+        raise OutputError(f"{target}: cannot write the district GeoPackage ({exc})") from exc
+    return target
