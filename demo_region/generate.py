@@ -145,7 +145,7 @@ def shortwave_w_m2(x, y, latitude_deg, month):
 
 
 def water_availability_percent(x, y, month):
-    """Invented monthly water availability (%): a seasonal curve (wet Dec-Mar 96-100, dry Jun-Sep 46-58),
+    """Invented monthly water availability (%): a seasonal curve (wet Dec-Mar 97-100, dry Jun-Sep 46-58),
     lowered by up to 8 points in the wet and 14 in the dry season where the land is low and far east."""
     curve = np.array([99, 100, 98, 92, 76, 58, 50, 46, 52, 68, 88, 97], float)[np.asarray(month) - 1]
     dryness = (x - XMIN) / (XMAX - XMIN) * (1 - np.clip(elevation_m(x, y) / 2800.0, 0, 1))
