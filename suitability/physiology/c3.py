@@ -1,0 +1,201 @@
+"""C3 leaf photosynthesis: the Farquhar, von Caemmerer & Berry (1980) model.
+
+Equations (von Caemmerer 2000, Biochemical models of leaf photosynthesis, ch. 2; C, O, Kc, Ko, Γ* as
+partial pressures [Pa], see ``rubisco``):
+
+- Rubisco-limited carboxylation  Wc = Vcmax C / (C + Kc (1 + O/Ko))
+- electron-transport-limited     Wj = J C / (4 C + 8 Γ*)
+- triose-phosphate-use-limited   Wp = 3 Tp                         (optional; Sharkey 1985)
+- vc = min(Wc, Wj, Wp); vo = 2 Γ* vc / C;  A = vc − 0.5 vo − Rd = vc (1 − Γ*/C) − Rd
+- J is the smaller root of θ J² − (I2 + Jmax) J + I2 Jmax = 0 with I2 = absorbed_par (1 − f)/2
+  (von Caemmerer 2000 eq. 2.14; the input is ABSORBED PAR, so leaf absorptance is not applied again).
+
+Outputs: ``gross`` = vc − 0.5 vo = A + Rd; ``photorespiration`` = 0.5 vo, the CO2 released by
+photorespiration; so the share of gross carboxylation lost to photorespiration is
+photorespiration / (gross + photorespiration) = Γ*/C.
+
+Limitation codes: 1 Rubisco (Wc), 2 electron transport (Wj), 3 TPU (Wp).
+
+Capacity temperature responses (``vcmax_temperature_response`` parameter):
+- "peaked": Kattge & Knorr (2007) Plant Cell Environ 30:1176 (doi:10.1111/j.1365-3040.2007.01690.x),
+  Vcmax Ha 71513, Hd 200000, ΔS = 668.39 − 1.07 Tg; Jmax Ha 49884, Hd 200000, ΔS = 659.70 − 0.75 Tg
+  (J mol-1, J mol-1 K-1, Tg growth temperature in °C);
+- "arrhenius": Bernacchi et al. (2001) Vcmax Ea 65.33 kJ mol-1; Bernacchi et al. (2003) Plant Cell
+  Environ 26:1419 J Ea 43.5 kJ mol-1, applied to Jmax;
+- "collatz1991": Collatz et al. (1991) Vmax = Vmax25 2.4^((T−25)/10) / (1 + exp((S Tk − H)/(R Tk))),
+  S 710 J mol-1 K-1, H 220 kJ mol-1 [from memory]; this form is not normalised (0.966 at 25 °C), as published.
+Rd: Arrhenius Ea 46.39 kJ mol-1 (Bernacchi et al. 2001), or for "collatz1991"
+Rd = Rd25 2^((T−25)/10) / (1 + exp(1.3 (T − 55))) (Collatz et al. 1991 [from memory]). Tp follows Vcmax.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import NamedTuple
+
+import numpy as np
+
+from .rubisco import effective_michaelis_constant, rubisco_constants
+from .temperature import KELVIN_OFFSET, R_GAS, arrhenius, peaked_arrhenius, q10_response, where
+
+KATTGE_KNORR_2007 = {
+    "vcmax_activation_energy": 71513.0,
+    "jmax_activation_energy": 49884.0,
+    "deactivation_energy": 200000.0,
+    "vcmax_entropy_intercept": 668.39,
+    "vcmax_entropy_slope": -1.07,
+    "jmax_entropy_intercept": 659.70,
+    "jmax_entropy_slope": -0.75,
+}
+BERNACCHI_CAPACITY_ACTIVATION = {"vcmax": 65330.0, "jmax": 43500.0, "rd": 46390.0}
+COLLATZ_1991_VMAX = {"q10": 2.4, "entropy": 710.0, "deactivation_energy": 220000.0}
+
+
+class C3Rates(NamedTuple):
+    """FvCB results [µmol m-2 s-1] and the limitation code (1 Rubisco, 2 electron transport, 3 TPU)."""
+
+    net: object
+    gross: object
+    photorespiration: object
+    limitation: object
+
+
+def kattge_knorr_entropies(growth_temperature_c):
+    """ΔS of Vcmax and Jmax [J mol-1 K-1] acclimated to growth temperature Tg [°C] (Kattge & Knorr 2007)."""
+    kk = KATTGE_KNORR_2007
+    return (
+        kk["vcmax_entropy_intercept"] + kk["vcmax_entropy_slope"] * growth_temperature_c,
+        kk["jmax_entropy_intercept"] + kk["jmax_entropy_slope"] * growth_temperature_c,
+    )
+
+
+def capacity_temperature_factors(temperature_c, response: str, growth_temperature_c=25.0):
+    """Factors (Vcmax, Jmax, Rd) relative to their 25 °C values for one response name (module docstring).
+
+    Parameters
+    ----------
+    temperature_c : leaf temperature [°C]
+    response : "peaked" | "arrhenius" | "collatz1991"
+    growth_temperature_c : Tg for "peaked" [°C]
+    """
+    if response == "peaked":
+        vcmax_entropy, jmax_entropy = kattge_knorr_entropies(growth_temperature_c)
+        kk = KATTGE_KNORR_2007
+        vcmax = peaked_arrhenius(temperature_c, kk["vcmax_activation_energy"], kk["deactivation_energy"], vcmax_entropy)
+        jmax = peaked_arrhenius(temperature_c, kk["jmax_activation_energy"], kk["deactivation_energy"], jmax_entropy)
+        return vcmax, jmax, arrhenius(temperature_c, BERNACCHI_CAPACITY_ACTIVATION["rd"])
+    if response == "arrhenius":
+        ea = BERNACCHI_CAPACITY_ACTIVATION
+        return (
+            arrhenius(temperature_c, ea["vcmax"]),
+            arrhenius(temperature_c, ea["jmax"]),
+            arrhenius(temperature_c, ea["rd"]),
+        )
+    if response == "collatz1991":
+        c91 = COLLATZ_1991_VMAX
+        tk = temperature_c + KELVIN_OFFSET
+        vcmax = q10_response(temperature_c, c91["q10"]) / (
+            1.0 + np.exp((c91["entropy"] * tk - c91["deactivation_energy"]) / (R_GAS * tk))
+        )
+        rd = q10_response(temperature_c, 2.0) / (1.0 + np.exp(1.3 * (temperature_c - 55.0)))
+        return vcmax, vcmax, rd
+    raise ValueError(f"unknown Vcmax temperature response {response!r}; valid: peaked, arrhenius, collatz1991")
+
+
+def non_rectangular_hyperbola(rate_a, rate_b, curvature):
+    """Smaller root of θ x² − (a + b) x + a b = 0: a smooth co-limitation of two rates [units of a, b].
+
+    Written as x = 2ab / (a + b + √((a + b)² − 4θab)), which has no cancellation at low light and no
+    division by θ: θ = 0 gives the rectangular hyperbola ab/(a + b), θ = 1 the minimum of a and b.
+    """
+    total = rate_a + rate_b
+    product = rate_a * rate_b
+    # Rounding can push the discriminant a hair below zero when θ = 1 and a = b.
+    discriminant = np.maximum(total * total - 4.0 * curvature * product, 0.0)
+    return 2.0 * product / (total + np.sqrt(discriminant))
+
+
+def electron_transport_rate(absorbed_par, jmax, theta, spectral_correction):
+    """Potential electron transport rate J [µmol m-2 s-1], non-rectangular hyperbola.
+
+    J = smaller root of θ J² − (I2 + Jmax) J + I2 Jmax = 0,  I2 = absorbed_par (1 − f)/2
+    (von Caemmerer 2000 eq. 2.14). A scalar ``jmax = inf`` means no saturation (J = I2).
+
+    Parameters
+    ----------
+    absorbed_par : absorbed PAR photon flux density [µmol m-2 s-1]
+    jmax : maximum electron transport rate [µmol m-2 s-1]
+    theta : curvature θ [-]
+    spectral_correction : f [-]
+    """
+    i2 = absorbed_par * (1.0 - spectral_correction) / 2.0
+    if np.isscalar(jmax) and np.isinf(jmax):
+        return i2
+    return non_rectangular_hyperbola(i2, jmax, theta)
+
+
+def oxygenation_ratio(co2_pa, gamma_star_pa):
+    """vo/vc = 2 Γ*/C [-] (Farquhar et al. 1980). C and Γ* in the same units (Pa here)."""
+    return 2.0 * gamma_star_pa / co2_pa
+
+
+def photorespiration_share(co2_pa, gamma_star_pa):
+    """Share of gross carboxylation released by photorespiration, 0.5 vo/vc = Γ*/C [-]."""
+    return gamma_star_pa / co2_pa
+
+
+def fvcb_rates(co2_pa, o2_pa, absorbed_par, *, vcmax, jmax, tpu, rd, kc, ko, gamma_star, theta,
+               spectral_correction) -> C3Rates:
+    """FvCB net and gross assimilation, photorespiration [µmol m-2 s-1] and limitation from capacities.
+
+    Parameters
+    ----------
+    co2_pa, o2_pa : CO2 and O2 partial pressures at Rubisco [Pa]
+    absorbed_par : absorbed PAR [µmol m-2 s-1]
+    vcmax, jmax, tpu, rd : capacities and day respiration at leaf temperature [µmol m-2 s-1]
+    kc, ko, gamma_star : Rubisco constants [Pa]
+    theta, spectral_correction : J curvature and f [-]
+
+    Each limiting rate is written vc = ρ C with ρ = Vcmax/(C + Km), J/(4C + 8Γ*) or 3 Tp / C; the smallest
+    ρ limits, gross = ρ (C − Γ*) and photorespiration = ρ Γ*, which stays finite at C = 0.
+    """
+    electron_transport = electron_transport_rate(absorbed_par, jmax, theta, spectral_correction)
+    rate_rubisco = vcmax / (co2_pa + effective_michaelis_constant(kc, ko, o2_pa))
+    rate_light = electron_transport / (4.0 * co2_pa + 8.0 * gamma_star)
+    rate_tpu = 3.0 * tpu / co2_pa
+    light_limited = rate_light < rate_rubisco
+    rate = np.minimum(rate_rubisco, rate_light)
+    tpu_limited = rate_tpu < rate
+    rate = np.minimum(rate, rate_tpu)
+    limitation = where(tpu_limited, 3, where(light_limited, 2, 1))
+    gross = rate * (co2_pa - gamma_star)
+    return C3Rates(gross - rd, gross, rate * gamma_star, limitation)
+
+
+def c3_assimilation(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0) -> C3Rates:
+    """C3 leaf rates at leaf temperature with the capacities of a resolved C3 parameter mapping.
+
+    Parameters
+    ----------
+    temperature_c : leaf temperature [°C]
+    absorbed_par : absorbed PAR [µmol m-2 s-1]
+    co2_pa, o2_pa : intercellular CO2 and O2 partial pressures [Pa]
+    params : mapping from ``resolve_params("C3", ...)``
+    capacity_scale : factor on Vcmax (non-stomatal water stress) [-]
+    """
+    kc, ko, gamma_star = rubisco_constants(params["kinetics"], temperature_c, o2_pa)
+    vcmax_factor, jmax_factor, rd_factor = capacity_temperature_factors(
+        temperature_c, params["vcmax_temperature_response"], params["growth_temperature_c"]
+    )
+    # An unlimited (inf) Jmax or Tp stays a plain inf so that no inf * 0 or inf - inf can appear.
+    jmax = math.inf if math.isinf(params["jmax25"]) else params["jmax25"] * jmax_factor
+    tpu = math.inf if math.isinf(params["tpu25"]) else params["tpu25"] * vcmax_factor
+    return fvcb_rates(
+        co2_pa, o2_pa, absorbed_par,
+        vcmax=params["vcmax25"] * vcmax_factor * capacity_scale,
+        jmax=jmax,
+        tpu=tpu,
+        rd=params["rd25"] * rd_factor,
+        kc=kc, ko=ko, gamma_star=gamma_star,
+        theta=params["theta"], spectral_correction=params["spectral_correction"],
+    )

@@ -1,0 +1,170 @@
+"""C4 leaf photosynthesis: Collatz, Ribas-Carbo & Berry (1992) and von Caemmerer (2000).
+
+Both take ABSORBED PAR [µmol m-2 s-1] and gas partial pressures [Pa] (see ``rubisco`` for the pressure
+convention) and return :class:`C4Rates`.
+
+Collatz et al. (1992) Aust J Plant Physiol 19:519 (doi:10.1071/PP9920519)
+-------------------------------------------------------------------------
+Vt = Vmax 2^((T−25)/10) / [(1 + e^(0.3(13 − T)))(1 + e^(0.3(T − 36)))]
+Rd,t = Rd 2^((T−25)/10) / (1 + e^(1.3(T − 55)));  kt = k 2^((T−25)/10)
+M = smaller root of θ M² − M (Vt + α Q) + Vt α Q = 0
+A = smaller root of β A² − A (M + kt Ci/P) + M kt Ci/P = 0;  net = A − Rd,t;  gross = A.
+Ci/P is the intercellular CO2 mole fraction; here Ci/P = Ci [Pa] / 101.325 kPa, so that PEP
+carboxylation sees the CO2 partial pressure like every other enzyme constant (elevation lowers it).
+The model has no photorespiration (reported as 0), no bundle-sheath CO2 and no leakiness (NaN).
+Limitation codes: 1 enzyme (Vt), 2 light (α Q), 3 CO2/PEPc (kt Ci/P): whichever of the three is smallest.
+
+von Caemmerer (2000) Biochemical models of leaf photosynthesis, ch. 4, eqs. 4.21-4.23 and 4.44-4.47
+----------------------------------------------------------------------------------------------------
+Mesophyll CO2 Cm = Ci (no mesophyll resistance), no PSII activity in the bundle sheath (α = 0, so the
+bundle-sheath O2 equals the mesophyll O2 Om), gbs the bundle-sheath conductance.
+Enzyme-limited: Vp = min(Cm Vpmax/(Cm + Kp), Vpr);  Ac = smaller root of A² + b A + c = 0 with
+  b = −[(Vp − Rm + gbs Cm) + (Vcmax − Rd) + gbs Kc (1 + Om/Ko)],
+  c = (Vcmax − Rd)(Vp − Rm + gbs Cm) − [Vcmax gbs γ* Om + Rd gbs Kc (1 + Om/Ko)].
+Light-limited: Aj = smaller root of A² + b A + c = 0 with
+  b = −[(x J/2 − Rm + gbs Cm) + ((1 − x) J/3 − Rd) + 7 gbs γ* Om/3],
+  c = ((1 − x) J/3 − Rd)(x J/2 − Rm + gbs Cm) − gbs γ* Om ((1 − x) J/3 + 7 Rd/3).
+A = min(Ac, Aj); bundle-sheath CO2 Cs = Cm + (Vp − A − Rm)/gbs (Vp = x J/2 when light-limited);
+leakiness φ = gbs (Cs − Cm)/Vp; photorespiratory CO2 release 0.5 vo = vc γ* Om / Cs.
+J is the non-rectangular response to I2 = absorbed (1 − f)/2 as in C3.
+Temperature: Arrhenius (von Caemmerer 2021 J Exp Bot 72:6003) for Vcmax (78.0 kJ mol-1), Vpmax (50.1;
+also used for Vpr, a decision here), Rd (66.4), Kp (38.3) and the Rubisco constants (``rubisco``),
+Gaussian Jmax (To 43 °C, Ω 26 °C, normalised at 25 °C); gbs and x constant.
+Limitation codes: 1 enzyme (Rubisco or PEP regeneration), 2 light, 3 CO2 (PEPc CO2-limited, Cm Vpmax/(Cm +
+Kp) < Vpr, and the mesophyll supply Vp − Rm + gbs Cm below Vcmax − Rd).
+"""
+
+from __future__ import annotations
+
+from typing import NamedTuple
+
+import numpy as np
+
+from .c3 import electron_transport_rate, non_rectangular_hyperbola
+from .rubisco import STANDARD_PRESSURE_KPA, effective_michaelis_constant, rubisco_constants
+from .temperature import arrhenius, gaussian_response, q10_response, where
+
+CAEMMERER_2021_C4 = {
+    "kp25_pa": 82e-6 * 1e5,
+    "kp_activation_energy": 38300.0,
+    "vcmax_activation_energy": 78000.0,
+    "vpmax_activation_energy": 50100.0,
+    "rd_activation_energy": 66400.0,
+}
+"""C4-cycle constants of von Caemmerer (2021), Table 1: Kp 82 µbar; activation energies [J mol-1]."""
+
+
+class C4Rates(NamedTuple):
+    """C4 results [µmol m-2 s-1], limitation code, bundle-sheath CO2 [Pa] and leakiness [-]."""
+
+    net: object
+    gross: object
+    photorespiration: object
+    limitation: object
+    bundle_sheath_co2_pa: object
+    leakiness: object
+
+
+def collatz_c4_rates(temperature_c, absorbed_par, co2_pa, params, capacity_scale=1.0) -> C4Rates:
+    """Collatz et al. (1992) C4 leaf (module docstring).
+
+    Parameters
+    ----------
+    temperature_c : leaf temperature [°C]
+    absorbed_par : absorbed PAR [µmol m-2 s-1]
+    co2_pa : intercellular CO2 partial pressure [Pa]
+    params : resolved C4 mapping with ``model == "collatz1992"``
+    capacity_scale : factor on Vmax (non-stomatal water stress) [-]
+    """
+    q10 = q10_response(temperature_c, params["q10"])
+    enzyme = (
+        params["vmax25"] * capacity_scale * q10
+        / ((1.0 + np.exp(0.3 * (params["low_temperature_c"] - temperature_c)))
+           * (1.0 + np.exp(0.3 * (temperature_c - params["high_temperature_c"]))))
+    )
+    respiration = params["rd25"] * q10 / (1.0 + np.exp(1.3 * (temperature_c - params["respiration_high_temperature_c"])))
+    light = params["alpha"] * absorbed_par
+    # k [mol m-2 s-1] times the CO2 mole fraction at standard pressure, in µmol m-2 s-1.
+    co2_limited = params["k25"] * q10 * co2_pa * (1e3 / STANDARD_PRESSURE_KPA)
+    enzyme_light = non_rectangular_hyperbola(enzyme, light, params["theta"])
+    gross = non_rectangular_hyperbola(enzyme_light, co2_limited, params["beta"])
+    limitation = where(
+        (co2_limited < enzyme) & (co2_limited < light), 3, where(light < enzyme, 2, 1)
+    )
+    nan = gross * np.nan
+    return C4Rates(gross - respiration, gross, gross * 0.0, limitation, nan, nan)
+
+
+def _smaller_root_monic(b, c):
+    # Smaller root of A² + bA + c = 0 as 2c / (−b + √(b² − 4c)): no cancellation when c is small.
+    discriminant = np.maximum(b * b - 4.0 * c, 0.0)
+    return 2.0 * c / (np.sqrt(discriminant) - b)
+
+
+def caemmerer_c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0) -> C4Rates:
+    """von Caemmerer (2000) C4 leaf with bundle-sheath leakiness (module docstring).
+
+    Parameters
+    ----------
+    temperature_c : leaf temperature [°C]
+    absorbed_par : absorbed PAR [µmol m-2 s-1]
+    co2_pa : mesophyll (= intercellular) CO2 partial pressure [Pa]
+    o2_pa : mesophyll O2 partial pressure [Pa]
+    params : resolved C4 mapping with ``model == "vc2000"``
+    capacity_scale : factor on Vcmax and Vpmax (non-stomatal water stress) [-]
+    """
+    constants = CAEMMERER_2021_C4
+    kc, ko, gamma_star = rubisco_constants("caemmerer2021_c4", temperature_c, o2_pa)  # γ* Om, in Pa
+    kp = constants["kp25_pa"] * arrhenius(temperature_c, constants["kp_activation_energy"])
+    vcmax = params["vcmax25"] * capacity_scale * arrhenius(temperature_c, constants["vcmax_activation_energy"])
+    vp_factor = arrhenius(temperature_c, constants["vpmax_activation_energy"])
+    vpmax = params["vpmax25"] * capacity_scale * vp_factor
+    vpr = params["vpr25"] * vp_factor
+    rd = params["rd25"] * arrhenius(temperature_c, constants["rd_activation_energy"])
+    rm = params["rm_fraction"] * rd
+    jmax = params["jmax25"] * gaussian_response(temperature_c, params["jmax_optimum_c"], params["jmax_width_c"])
+    electron_transport = electron_transport_rate(absorbed_par, jmax, params["theta"], params["spectral_correction"])
+    # gbs [mol m-2 s-1 bar-1] -> [µmol m-2 s-1 Pa-1]: 1e6 µmol/mol over 1e5 Pa/bar.
+    gbs = params["gbs"] * 10.0
+    x = params["x"]
+    km = effective_michaelis_constant(kc, ko, o2_pa)
+
+    pepc_co2_limited = co2_pa * vpmax / (co2_pa + kp)
+    vp_enzyme = np.minimum(pepc_co2_limited, vpr)
+    mesophyll_supply = vp_enzyme - rm + gbs * co2_pa
+    enzyme_limited = _smaller_root_monic(
+        -(mesophyll_supply + vcmax - rd + gbs * km),
+        (vcmax - rd) * mesophyll_supply - (vcmax * gbs * gamma_star + rd * gbs * km),
+    )
+    vp_light = x * electron_transport / 2.0
+    bundle_sheath_electron = (1.0 - x) * electron_transport / 3.0
+    light_supply = vp_light - rm + gbs * co2_pa
+    light_limited = _smaller_root_monic(
+        -(light_supply + bundle_sheath_electron - rd + 7.0 * gbs * gamma_star / 3.0),
+        (bundle_sheath_electron - rd) * light_supply - gbs * gamma_star * (bundle_sheath_electron + 7.0 * rd / 3.0),
+    )
+
+    is_light_limited = light_limited < enzyme_limited
+    net = np.minimum(enzyme_limited, light_limited)
+    vp = where(is_light_limited, vp_light, vp_enzyme)
+    leak = vp - net - rm
+    bundle_sheath_co2 = co2_pa + leak / gbs
+    photorespiration = where(
+        is_light_limited,
+        bundle_sheath_electron * 3.0 * gamma_star / (3.0 * bundle_sheath_co2 + 7.0 * gamma_star),
+        vcmax * gamma_star / (bundle_sheath_co2 + km),
+    )
+    co2_limited = (pepc_co2_limited < vpr) & (mesophyll_supply < vcmax - rd)
+    limitation = where(is_light_limited, 2, where(co2_limited, 3, 1))
+    # Leakiness is undefined without PEP carboxylation (darkness): NaN there.
+    leakiness = where(vp > 0, leak / where(vp > 0, vp, 1.0), np.nan)
+    return C4Rates(net, net + rd, photorespiration, limitation, bundle_sheath_co2, leakiness)
+
+
+def c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0) -> C4Rates:
+    """C4 leaf rates with the model named by ``params["model"]`` ("collatz1992" or "vc2000")."""
+    if params["model"] == "collatz1992":
+        return collatz_c4_rates(temperature_c, absorbed_par, co2_pa, params, capacity_scale)
+    if params["model"] == "vc2000":
+        return caemmerer_c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale)
+    raise ValueError(f"unknown C4 model {params['model']!r}; valid: collatz1992, vc2000")
