@@ -1,0 +1,702 @@
+"""The YAML config: schema, loading and error messages.
+
+The schema is a tree of pydantic v2 models, every one with ``extra="forbid"`` so a misspelt key is an error
+(with the closest valid key suggested), never silently ignored. :func:`load_config` reads the file with
+``yaml.safe_load`` semantics (plus a duplicate-key check) and turns every validation problem into one
+:class:`~suitability.errors.ConfigError` that names the file, the line, the dotted key
+(``scenarios[2].co2_ppm``) and what was expected.
+
+Paths: a relative path is resolved against the folder of the config file (``RunConfig.config_dir``) at
+load time, so every path in a validated config is absolute; ``~`` is expanded. A climate path may hold a
+``{month}`` placeholder in Python format syntax (``{month}`` or ``{month:02d}``), one file per month.
+Other braces in a path are kept literally.
+
+``configs/demo.yaml`` and ``suitability/templates/starter.yaml`` show every section; the starter template
+documents each key with its default and unit.
+"""
+
+from __future__ import annotations
+
+import difflib
+import hashlib
+import json
+import os
+import re
+import types
+import typing
+from pathlib import Path
+from typing import Annotated, Any, Literal, Union
+from urllib.parse import urlsplit
+
+import yaml
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    ConfigDict,
+    Field,
+    PrivateAttr,
+    RootModel,
+    ValidationError,
+    ValidationInfo,
+    field_validator,
+    model_validator,
+)
+from pydantic_core import PydanticCustomError
+
+from .errors import ConfigError
+from .variables import INPUT_VARIABLES, OUTPUT_VARIABLES
+
+# ----------------------------------------------------------------------------------------------- paths
+
+MONTH_FIELD = re.compile(r"\{month(?::(?P<spec>[^{}]*))?\}")
+_SCENARIO_NAME = re.compile(r"^[A-Za-z0-9_-]+$")
+# Above this many cells a grid is almost surely a units slip (degrees for metres); a deliberate
+# continental 30 m grid is still well below it.
+MAX_GRID_CELLS = 10_000_000_000
+
+
+def _resolve_path(value: Path, info: ValidationInfo) -> Path:
+    """Absolute path: ``~`` expanded, relative paths taken from the config file's folder."""
+    base = Path((info.context or {}).get("config_dir") or Path.cwd())
+    path = Path(value).expanduser()
+    return Path(os.path.normpath(path if path.is_absolute() else base.absolute() / path))
+
+
+ConfigPath = Annotated[Path, AfterValidator(_resolve_path)]
+
+
+def month_path(path: str | Path, month: int) -> Path:
+    """The file of ``month`` (1..12) for a ``{month}`` pattern path; other braces are left as they are."""
+    return Path(MONTH_FIELD.sub(lambda m: format(month, m.group("spec") or ""), str(path)))
+
+
+def is_month_pattern(path: str | Path) -> bool:
+    """True if ``path`` holds a ``{month}`` or ``{month:<format>}`` placeholder."""
+    return MONTH_FIELD.search(str(path)) is not None
+
+
+# ----------------------------------------------------------------------------------------------- models
+
+
+class _Section(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=False, validate_default=True)
+
+
+class GridConfig(_Section):
+    """An explicit target grid. Bounds are snapped outward to whole cells by :mod:`suitability.grid`."""
+
+    crs: str
+    resolution: tuple[Annotated[float, Field(gt=0, allow_inf_nan=False)], Annotated[float, Field(gt=0, allow_inf_nan=False)]]
+    bounds: tuple[
+        Annotated[float, Field(allow_inf_nan=False)],
+        Annotated[float, Field(allow_inf_nan=False)],
+        Annotated[float, Field(allow_inf_nan=False)],
+        Annotated[float, Field(allow_inf_nan=False)],
+    ]
+
+    @field_validator("crs")
+    @classmethod
+    def _crs_known_to_proj(cls, value: str) -> str:
+        parse_crs(value)
+        return value
+
+    @field_validator("resolution", mode="before")
+    @classmethod
+    def _one_or_two_numbers(cls, value: Any) -> Any:
+        if isinstance(value, (int, float)) and not isinstance(value, bool):
+            return (value, value)
+        if isinstance(value, (list, tuple)) and len(value) == 2:
+            return tuple(value)
+        raise ValueError(f"expected one positive number or [x, y] in the units of the CRS, got {value!r}")
+
+    @model_validator(mode="after")
+    def _bounds_make_a_grid(self) -> "GridConfig":
+        xmin, ymin, xmax, ymax = self.bounds
+        if not (xmin < xmax and ymin < ymax):
+            raise ValueError(f"bounds must be [xmin, ymin, xmax, ymax] with xmin < xmax and ymin < ymax, got {list(self.bounds)}")
+        crs = parse_crs(self.crs)
+        if crs.is_geographic and not (-360 <= xmin and xmax <= 360 and -90 <= ymin and ymax <= 90):
+            raise ValueError(f"bounds {list(self.bounds)} are outside longitude/latitude limits of the geographic CRS {self.crs}")
+        cells = ((xmax - xmin) / self.resolution[0]) * ((ymax - ymin) / self.resolution[1])
+        if cells > MAX_GRID_CELLS:
+            raise ValueError(
+                f"resolution {list(self.resolution)} over bounds {list(self.bounds)} gives {cells:.3g} cells; "
+                "expected the resolution in the units of the CRS (metres for a projected CRS, degrees for a geographic one)"
+            )
+        return self
+
+    @property
+    def pyproj_crs(self):
+        return parse_crs(self.crs)
+
+
+class RegionConfig(_Section):
+    """Where to compute: an explicit ``grid`` or the grid of an existing raster (``like``), optional mask."""
+
+    name: Annotated[str, Field(min_length=1)]
+    grid: GridConfig | None = None
+    like: ConfigPath | None = None
+    mask: ConfigPath | None = None
+
+    @model_validator(mode="after")
+    def _grid_or_like(self) -> "RegionConfig":
+        if (self.grid is None) == (self.like is None):
+            raise ValueError("give exactly one of 'grid' (crs, resolution, bounds) or 'like' (a raster whose grid is copied)")
+        return self
+
+
+class LayerSpec(_Section):
+    """One climate input layer: where it is and how to read it."""
+
+    path: ConfigPath
+    variable: Annotated[str, Field(min_length=1)] | None = None
+    units: Annotated[str, Field(min_length=1)] | None = None
+    resampling: str | None = None
+    nodata: float | None = None
+    band: Annotated[int, Field(ge=1)] | None = None
+
+    @field_validator("resampling")
+    @classmethod
+    def _known_resampling(cls, value: str | None) -> str | None:
+        if value is None:
+            return None
+        from rasterio.enums import Resampling
+
+        names = [r.name for r in Resampling]
+        if value.lower() not in names:
+            raise ValueError(f"unknown resampling {value!r}; expected one of {', '.join(names)}{_did_you_mean(value, names)}")
+        return value.lower()
+
+    @field_validator("path")
+    @classmethod
+    def _month_format_valid(cls, value: Path) -> Path:
+        for match in MONTH_FIELD.finditer(str(value)):
+            try:
+                format(12, match.group("spec") or "")
+            except ValueError as exc:
+                raise ValueError(f"{match.group(0)} is not a valid month placeholder ({exc}); use {{month}} or {{month:02d}}") from exc
+        return value
+
+    @property
+    def is_month_pattern(self) -> bool:
+        return is_month_pattern(self.path)
+
+    def month_path(self, month: int) -> Path:
+        return month_path(self.path, month)
+
+
+class ClimateLayers(RootModel[dict[str, LayerSpec]]):
+    """Layer name -> LayerSpec. Names are the input layers of :data:`suitability.variables.INPUT_VARIABLES`."""
+
+    @model_validator(mode="before")
+    @classmethod
+    def _known_layer_names(cls, data: Any) -> Any:
+        if isinstance(data, dict):
+            for key in data:
+                if key not in INPUT_VARIABLES:
+                    raise PydanticCustomError(
+                        "unknown_key",
+                        "unknown layer '{key}'{hint}; valid layers: {valid}",
+                        {"key": key, "hint": _did_you_mean(str(key), INPUT_VARIABLES), "valid": ", ".join(INPUT_VARIABLES)},
+                    )
+        return data
+
+    @model_validator(mode="after")
+    def _patterns_only_for_monthly(self) -> "ClimateLayers":
+        for name, spec in self.root.items():
+            if spec.is_month_pattern and not INPUT_VARIABLES[name].monthly:
+                raise ValueError(f"{name}: a {{month}} pattern path is only for monthly layers; {name!r} is static")
+        return self
+
+    def items(self):
+        return self.root.items()
+
+    def keys(self):
+        return self.root.keys()
+
+    def values(self):
+        return self.root.values()
+
+    def __getitem__(self, name: str) -> LayerSpec:
+        return self.root[name]
+
+    def __contains__(self, name: object) -> bool:
+        return name in self.root
+
+    def __iter__(self):  # type: ignore[override]  # iterate like the mapping it stands for
+        return iter(self.root)
+
+    def __len__(self) -> int:
+        return len(self.root)
+
+    def get(self, name: str, default: Any = None) -> Any:
+        return self.root.get(name, default)
+
+
+# Alternatives that cannot be given together, and the layers each canonical quantity needs.
+_EXCLUSIVE = (("water_availability", "water_stress"), ("shortwave", "par"), ("vpd", "humidity"))
+_CANONICAL = {"water_stress": "water_availability", "par": "radiation", "shortwave": "radiation"}
+
+
+class ClimateConfig(ClimateLayers):
+    """The run's baseline climate: must give temperature, radiation and water."""
+
+    @model_validator(mode="after")
+    def _complete(self) -> "ClimateConfig":
+        names = set(self.root)
+        problems = []
+        if not ({"tmin", "tmax"} <= names or "tmean" in names):
+            problems.append("temperature: give tmin and tmax, or tmean")
+        for a, b in (("tmin", "tmax"), ("tmax", "tmin")):
+            if a in names and b not in names:
+                problems.append(f"{a} is given without {b}")
+        if not names & {"shortwave", "par"}:
+            problems.append("radiation: give shortwave or par")
+        if not names & {"water_availability", "water_stress"}:
+            problems.append("water: give water_availability or water_stress")
+        for a, b in _EXCLUSIVE:
+            if a in names and b in names:
+                problems.append(f"give {a} or {b}, not both")
+        if problems:
+            raise ValueError("; ".join(problems))
+        return self
+
+
+class SeasonConfig(_Section):
+    """Which months count: a fixed list, or per cell the months with mean temperature >= a threshold."""
+
+    months: list[Annotated[int, Field(ge=1, le=12)]] | None = None
+    min_mean_temperature_c: Annotated[float, Field(ge=-60, le=60)] | None = None
+
+    @model_validator(mode="after")
+    def _one_rule(self) -> "SeasonConfig":
+        if self.months is not None and self.min_mean_temperature_c is not None:
+            raise ValueError("give either 'months' or 'min_mean_temperature_c', not both")
+        if self.months is None and self.min_mean_temperature_c is None:
+            self.months = list(range(1, 13))
+        if self.months is not None:
+            if not self.months:
+                raise ValueError("months: expected at least one month (1..12)")
+            repeated = sorted({m for m in self.months if self.months.count(m) > 1})
+            if repeated:
+                raise ValueError(f"months: each month once; repeated: {repeated}")
+            self.months = sorted(self.months)
+        return self
+
+
+class PathwayConfig(_Section):
+    """A published parameter set by name and single-parameter overrides (keys as in the set)."""
+
+    parameter_set: Annotated[str, Field(min_length=1)] | None = None
+    overrides: dict[str, Any] = Field(default_factory=dict)
+
+    def as_params(self) -> dict[str, Any]:
+        """What :func:`suitability.physiology.resolve_params` takes."""
+        params = dict(self.overrides)
+        if self.parameter_set is not None:
+            params["parameter_set"] = self.parameter_set
+        return params
+
+
+class PhysiologyConfig(_Section):
+    """Leaf model parameters per pathway and canopy defaults."""
+
+    c3: PathwayConfig = Field(default_factory=PathwayConfig)
+    c4: PathwayConfig = Field(default_factory=PathwayConfig)
+    lai: Annotated[float, Field(gt=0, le=15)] = 3.0
+    diurnal_range_c: Annotated[float, Field(gt=0, le=40)] = 10.0
+
+    @field_validator("c3", "c4")
+    @classmethod
+    def _parameters_known(cls, value: PathwayConfig, info: ValidationInfo) -> PathwayConfig:
+        # Imported here: physiology is independent of the config, and importing it at module level
+        # would make `import suitability.config` pull in the whole science stack.
+        from .physiology import resolve_params
+
+        try:
+            resolve_params(info.field_name.upper(), value.as_params())
+        except (ValueError, KeyError, TypeError) as exc:
+            raise ValueError(str(exc).strip("'\"")) from exc
+        return value
+
+
+class ScenarioConfig(_Section):
+    """One scenario: CO2, O2, uniform warming, radiation and water factors, optional own climate layers."""
+
+    name: str
+    description: str = ""
+    co2_ppm: Annotated[float, Field(gt=0, allow_inf_nan=False)]
+    o2_percent: Annotated[float, Field(gt=0, le=100)] = 20.95
+    temperature_offset_c: Annotated[float, Field(allow_inf_nan=False)] = 0.0
+    shortwave_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
+    water_availability_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
+    climate: ClimateLayers | None = None
+
+    @field_validator("name")
+    @classmethod
+    def _safe_folder_name(cls, value: str) -> str:
+        if not _SCENARIO_NAME.match(value):
+            raise ValueError(
+                f"scenario name {value!r} is used as an output folder name: use only letters, digits, '_' and '-'"
+            )
+        return value
+
+
+class ClassesConfig(_Section):
+    contested_margin: Annotated[float, Field(ge=0, le=1)] = 0.05
+
+
+class CogConfig(_Section):
+    compression: Literal["deflate", "zstd"] = "deflate"
+    level: Annotated[int, Field(ge=1, le=22)] = 6
+    overviews: bool = True
+
+    @model_validator(mode="after")
+    def _level_fits_codec(self) -> "CogConfig":
+        top = {"deflate": 9, "zstd": 22}[self.compression]
+        if self.level > top:
+            raise ValueError(f"level: {self.compression} levels are 1..{top}, got {self.level}")
+        return self
+
+
+class OutputConfig(_Section):
+    folder: ConfigPath = Path("out")
+    layers: Union[Literal["all"], list[str]] = "all"
+    cog: CogConfig = Field(default_factory=CogConfig)
+    datacube: bool = False
+    overwrite: bool = False
+
+    @field_validator("layers", mode="before")
+    @classmethod
+    def _known_layers(cls, value: Any) -> Any:
+        if value == "all":
+            return value
+        if isinstance(value, str):
+            value = [value]
+        if not isinstance(value, list) or not value or not all(isinstance(v, str) for v in value):
+            raise ValueError(f"expected 'all' or a list of layer names ({', '.join(OUTPUT_VARIABLES)}), got {value!r}")
+        for name in value:
+            if name not in OUTPUT_VARIABLES:
+                raise ValueError(f"unknown output layer {name!r}{_did_you_mean(name, OUTPUT_VARIABLES)}; valid: {', '.join(OUTPUT_VARIABLES)}")
+        if len(set(value)) != len(value):
+            raise ValueError(f"each layer once, got {value}")
+        return value
+
+    def layer_names(self) -> list[str]:
+        """The requested layer names, with 'all' expanded."""
+        return list(OUTPUT_VARIABLES) if self.layers == "all" else list(self.layers)
+
+
+_SCHEDULERS = ("threads", "processes", "local-cluster")
+
+
+class ComputeConfig(_Section):
+    chunk_size: Annotated[int, Field(gt=0)] = 512
+    scheduler: str = "threads"
+    workers: Annotated[int, Field(ge=1)] | None = None
+    threads_per_worker: Annotated[int, Field(ge=1)] | None = None
+    memory_limit: str | None = None
+
+    @field_validator("chunk_size")
+    @classmethod
+    def _whole_tiles(cls, value: int) -> int:
+        if value % 512:
+            raise ValueError(f"expected a multiple of 512 (the output tile size), got {value}")
+        return value
+
+    @field_validator("scheduler")
+    @classmethod
+    def _known_scheduler(cls, value: str) -> str:
+        if value in _SCHEDULERS:
+            return value
+        if "://" in value:
+            parts = urlsplit(value)
+            try:
+                port = parts.port
+            except ValueError:
+                port = None
+            if parts.scheme in ("tcp", "tls") and parts.hostname and port:
+                return value
+            raise ValueError(f"scheduler address {value!r}: expected tcp://host:port or tls://host:port")
+        raise ValueError(f"expected one of {', '.join(_SCHEDULERS)} or a scheduler address tcp://host:port{_did_you_mean(value, _SCHEDULERS)}")
+
+    @field_validator("memory_limit")
+    @classmethod
+    def _byte_size(cls, value: str | None) -> str | None:
+        if value is None or value == "auto":
+            return value
+        from dask.utils import parse_bytes
+
+        try:
+            if parse_bytes(value) <= 0:
+                raise ValueError
+        except ValueError:
+            raise ValueError(f"expected a memory size such as '2GiB' or '500MB' (or 'auto'), got {value!r}") from None
+        return value
+
+
+class BriefConfig(_Section):
+    zones: ConfigPath
+    name_field: Annotated[str, Field(min_length=1)]
+    per_district: bool = False
+
+
+class RunConfig(_Section):
+    """A whole validated run config. ``config_dir`` is the folder of the YAML file (cwd if built in Python)."""
+
+    region: RegionConfig
+    climate: ClimateConfig
+    season: SeasonConfig = Field(default_factory=SeasonConfig)
+    physiology: PhysiologyConfig = Field(default_factory=PhysiologyConfig)
+    scenarios: Annotated[list[ScenarioConfig], Field(min_length=1)]
+    baseline: str | None = None
+    classes: ClassesConfig = Field(default_factory=ClassesConfig)
+    output: OutputConfig = Field(default_factory=OutputConfig)
+    compute: ComputeConfig = Field(default_factory=ComputeConfig)
+    brief: BriefConfig | None = None
+
+    _config_dir: Path = PrivateAttr(default_factory=Path.cwd)
+    _source_path: Path | None = PrivateAttr(default=None)
+
+    @model_validator(mode="after")
+    def _scenarios_consistent(self, info: ValidationInfo) -> "RunConfig":
+        context = info.context or {}
+        self._config_dir = Path(context.get("config_dir") or Path.cwd()).absolute()
+        self._source_path = Path(context["source_path"]).absolute() if context.get("source_path") else None
+        names = [s.name for s in self.scenarios]
+        seen: dict[str, str] = {}
+        for name in names:
+            # Scenario names become folders; on case-insensitive file systems these would be one folder.
+            if name.lower() in seen:
+                raise ValueError(f"scenarios: names must be unique (ignoring case): {seen[name.lower()]!r} and {name!r}")
+            seen[name.lower()] = name
+        if self.baseline is None:
+            self.baseline = names[0]
+        elif self.baseline not in names:
+            raise ValueError(f"baseline: {self.baseline!r} is not a scenario name{_did_you_mean(self.baseline, names)}; scenarios: {', '.join(names)}")
+        base = {_CANONICAL.get(n, n) for n in self.climate.keys()}
+        for scenario in self.scenarios:
+            for layer in (scenario.climate.keys() if scenario.climate else ()):
+                if _CANONICAL.get(layer, layer) not in base:
+                    raise ValueError(
+                        f"scenario {scenario.name!r}: climate.{layer} replaces nothing; the baseline climate has "
+                        f"{', '.join(self.climate.keys())} (a scenario may only replace baseline layers)"
+                    )
+        return self
+
+    @property
+    def config_dir(self) -> Path:
+        return self._config_dir
+
+    @property
+    def source_path(self) -> Path | None:
+        """The YAML file this config came from (None if built in Python)."""
+        return self._source_path
+
+    @property
+    def baseline_scenario(self) -> ScenarioConfig:
+        return self.scenario(self.baseline or self.scenarios[0].name)
+
+    def scenario(self, name: str) -> ScenarioConfig:
+        for scenario in self.scenarios:
+            if scenario.name == name:
+                return scenario
+        raise KeyError(f"no scenario {name!r}; scenarios: {', '.join(s.name for s in self.scenarios)}")
+
+    def config_hash(self) -> str:
+        """sha256 (hex) of the canonical JSON of the validated config: sorted keys, absolute paths, defaults filled."""
+        canonical = json.dumps(self.model_dump(mode="json"), sort_keys=True, separators=(",", ":"), ensure_ascii=False)
+        return hashlib.sha256(canonical.encode("utf-8")).hexdigest()
+
+
+# ----------------------------------------------------------------------------------------------- helpers
+
+
+def parse_crs(value: Any):
+    """pyproj CRS from an EPSG code, WKT or PROJ string; a CRSError becomes ValueError for pydantic."""
+    from pyproj import CRS
+    from pyproj.exceptions import CRSError
+
+    try:
+        return CRS.from_user_input(value)
+    except CRSError as exc:
+        raise ValueError(f"unknown CRS {value!r}: expected an EPSG code such as 'EPSG:32740' or a WKT string ({exc})") from None
+
+
+def _did_you_mean(value: str, valid) -> str:
+    close = difflib.get_close_matches(str(value), [str(v) for v in valid], n=1, cutoff=0.6)
+    return f" (did you mean {close[0]!r}?)" if close else ""
+
+
+# ----------------------------------------------------------------------------------------------- loading
+
+
+class _UniqueKeyLoader(yaml.SafeLoader):
+    """SafeLoader that rejects a key given twice in one mapping (plain safe_load keeps the last silently)."""
+
+
+def _no_duplicate_keys(loader: _UniqueKeyLoader, node: yaml.MappingNode, deep: bool = False):
+    seen: dict[Any, int] = {}
+    for key_node, _ in node.value:
+        key = loader.construct_object(key_node, deep=deep)
+        if key in seen:
+            raise yaml.constructor.ConstructorError(
+                None, None, f"key {key!r} is given twice (first on line {seen[key]})", key_node.start_mark
+            )
+        seen[key] = key_node.start_mark.line + 1
+    return loader.construct_mapping(node, deep=deep)
+
+
+_UniqueKeyLoader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _no_duplicate_keys)
+
+
+def load_config(path: str | Path) -> RunConfig:
+    """Read and validate a YAML config. Raises ConfigError naming the file, line, key and what was expected."""
+    path = Path(path).expanduser()
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ConfigError(f"{path}: config file not found") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ConfigError(f"{path}: cannot read the config file ({exc})") from None
+    try:
+        data = yaml.load(text, Loader=_UniqueKeyLoader)  # noqa: S506 - a SafeLoader subclass
+    except yaml.YAMLError as exc:
+        raise ConfigError(f"{path}: {_yaml_problem(exc)}") from None
+    if data is None:
+        raise ConfigError(f"{path}: the config file is empty; expected the sections region, climate, scenarios, ...")
+    if not isinstance(data, dict):
+        raise ConfigError(f"{path}: expected a mapping of sections (region, climate, scenarios, ...), got {type(data).__name__}")
+    context = {"config_dir": path.parent.absolute(), "source_path": path}
+    try:
+        return RunConfig.model_validate(data, context=context)
+    except ValidationError as exc:
+        raise ConfigError(format_validation_error(exc, path, _key_lines(text))) from None
+
+
+def validate_config(data: dict, config_dir: str | Path | None = None) -> RunConfig:
+    """Validate a config given as a Python mapping; relative paths resolve against ``config_dir`` (default cwd).
+
+    Raises ConfigError with the same messages as :func:`load_config`.
+    """
+    source = "<config>"
+    try:
+        return RunConfig.model_validate(data, context={"config_dir": Path(config_dir or Path.cwd()).absolute()})
+    except ValidationError as exc:
+        raise ConfigError(format_validation_error(exc, source, {})) from None
+
+
+def _yaml_problem(exc: yaml.YAMLError) -> str:
+    mark = getattr(exc, "problem_mark", None) or getattr(exc, "context_mark", None)
+    problem = getattr(exc, "problem", None) or str(exc)
+    context = getattr(exc, "context", None)
+    where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark is not None else ""
+    return f"{where}YAML error: {problem}" + (f" ({context})" if context else "")
+
+
+def _key_lines(text: str) -> dict[tuple, int]:
+    """Line number (1-based) of every key and list item in the YAML text, by location tuple."""
+    lines: dict[tuple, int] = {}
+
+    def walk(node, loc: tuple) -> None:
+        lines[loc] = node.start_mark.line + 1
+        if isinstance(node, yaml.MappingNode):
+            for key_node, value_node in node.value:
+                key = key_node.value
+                lines[loc + (key,)] = key_node.start_mark.line + 1
+                walk(value_node, loc + (key,))
+                lines[loc + (key,)] = key_node.start_mark.line + 1
+        elif isinstance(node, yaml.SequenceNode):
+            for i, item in enumerate(node.value):
+                walk(item, loc + (i,))
+
+    try:
+        root = yaml.compose(text, Loader=yaml.SafeLoader)
+    except yaml.YAMLError:
+        return lines
+    if root is not None:
+        walk(root, ())
+    return lines
+
+
+def format_validation_error(exc: ValidationError, source: str | Path, lines: dict[tuple, int]) -> str:
+    """One message listing every problem as ``line N, dotted.key: what was expected``."""
+    problems = []
+    for error in exc.errors(include_url=False):
+        loc = tuple(error["loc"])
+        if error["type"] == "unknown_key":
+            loc = loc + (error["ctx"]["key"],)
+        key = dotted_key(loc) or "(top level)"
+        line = _line_of(loc, lines)
+        where = f"line {line}, " if line else ""
+        problems.append(f"{where}{key}: {_explain(error, loc)}")
+    head = f"{source}: {len(problems)} problem{'s' if len(problems) > 1 else ''} in the config"
+    return head + "\n" + "\n".join(f"  - {p}" for p in problems)
+
+
+def dotted_key(loc: tuple) -> str:
+    """('scenarios', 2, 'co2_ppm') -> 'scenarios[2].co2_ppm'."""
+    text = ""
+    for part in loc:
+        text += f"[{part}]" if isinstance(part, int) else (f".{part}" if text else str(part))
+    return text
+
+
+def _line_of(loc: tuple, lines: dict[tuple, int]) -> int | None:
+    for end in range(len(loc), -1, -1):
+        if loc[:end] in lines:
+            return lines[loc[:end]]
+    return None
+
+
+def _explain(error: dict, loc: tuple) -> str:
+    kind, message = error["type"], error["msg"]
+    if kind == "extra_forbidden":
+        valid = _valid_keys(loc[:-1])
+        return f"unknown key{_did_you_mean(str(loc[-1]), valid)}" + (f" (valid keys here: {', '.join(valid)})" if valid else "")
+    if kind == "missing":
+        return "required key is missing"
+    if kind == "unknown_key":
+        return message
+    message = message.removeprefix("Value error, ").removeprefix("Assertion failed, ")
+    if kind not in ("value_error", "assertion_error"):
+        message = f"{message[0].lower()}{message[1:]} (got {error.get('input')!r})"
+    return message
+
+
+def _valid_keys(loc: tuple) -> list[str]:
+    """Field names of the model found at ``loc`` in the schema (empty if it is not a model)."""
+    node: Any = RunConfig
+    for part in loc:
+        node = _strip_optional(node)
+        if isinstance(part, int):
+            args = typing.get_args(node)
+            node = args[0] if args else None
+        elif isinstance(node, type) and issubclass(node, RootModel):
+            node = typing.get_args(node.model_fields["root"].annotation)[1]
+        elif isinstance(node, type) and issubclass(node, BaseModel) and part in node.model_fields:
+            node = node.model_fields[part].annotation
+        else:
+            return []
+    node = _strip_optional(node)
+    if isinstance(node, type) and issubclass(node, BaseModel) and not issubclass(node, RootModel):
+        return list(node.model_fields)
+    return []
+
+
+def _strip_optional(node: Any) -> Any:
+    while typing.get_origin(node) is Annotated:
+        node = typing.get_args(node)[0]
+    if typing.get_origin(node) in (Union, types.UnionType):
+        members = [a for a in typing.get_args(node) if a is not type(None)]
+        if len(members) == 1:
+            return _strip_optional(members[0])
+    return node
+
+
+__all__ = [
+    "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
+    "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
+    "ComputeConfig", "BriefConfig", "load_config", "validate_config", "parse_crs", "month_path",
+    "is_month_pattern", "dotted_key", "format_validation_error",
+]
