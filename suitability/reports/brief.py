@@ -1,0 +1,440 @@
+"""Regional briefs: self-contained HTML and PDF pages, in plain words, built from the district table.
+
+One brief per non-baseline scenario, each comparing that scenario with the baseline
+(``<folder>/brief/<region>_<scenario>.html`` and ``.pdf``); with only a baseline, one brief for it.
+Optionally one brief per district covering every scenario (``<region>_<district>.html`` / ``.pdf``).
+Beside them the district table is written as ``<region>_districts.csv`` and ``.gpkg``.
+
+Every number in the text comes from the table of :func:`suitability.reports.zones.zonal_statistics`.
+The HTML embeds its figures as base64 data URIs and its CSS inline; the PDF is WeasyPrint's rendering
+of the same HTML.
+"""
+
+from __future__ import annotations
+
+import base64
+import math
+import os
+import re
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from datetime import date
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
+
+from suitability.errors import ConfigError, OutputError
+from suitability.reports import figures
+from suitability.reports.zones import read_zones, write_table_csv, write_table_geopackage, zonal_statistics
+
+TEMPLATES = Path(__file__).with_name("templates")
+
+CAUTION = (
+    "Results are potential, model-based estimates of where C4 or C3 plants have the physiological advantage; "
+    "they are not yield forecasts. Local soils, irrigation, pests, markets and farmer knowledge are not "
+    "represented. Confirm with local agronomic advice, field trials and local regulations before acting."
+)
+
+#: The references the method section cites, in the order they appear.
+REFERENCES = (
+    "Farquhar, G.D., von Caemmerer, S. & Berry, J.A. (1980) A biochemical model of photosynthetic CO2 "
+    "assimilation in leaves of C3 species. Planta 149, 78-90.",
+    "Bernacchi, C.J., Singsaas, E.L., Pimentel, C., Portis, A.R. & Long, S.P. (2001) Improved temperature "
+    "response functions for models of Rubisco-limited photosynthesis. Plant, Cell & Environment 24, 253-259.",
+    "Collatz, G.J., Ribas-Carbo, M. & Berry, J.A. (1992) Coupled photosynthesis-stomatal conductance model "
+    "for leaves of C4 plants. Australian Journal of Plant Physiology 19, 519-538.",
+    "von Caemmerer, S. (2000) Biochemical Models of Leaf Photosynthesis. CSIRO Publishing, Collingwood.",
+    "Medlyn, B.E., Duursma, R.A., Eamus, D. et al. (2011) Reconciling the optimal and empirical approaches "
+    "to modelling stomatal conductance. Global Change Biology 17, 2134-2144.",
+    "de Pury, D.G.G. & Farquhar, G.D. (1997) Simple scaling of photosynthesis from leaves to canopies "
+    "without the errors of big-leaf models. Plant, Cell & Environment 20, 537-557.",
+    "Collatz, G.J., Berry, J.A. & Clark, J.S. (1998) Effects of climate and atmospheric CO2 partial pressure "
+    "on the global distribution of C4 grasses: present, past, and future. Oecologia 114, 441-454.",
+    "Allen, R.G., Pereira, L.S., Raes, D. & Smith, M. (1998) Crop evapotranspiration: guidelines for "
+    "computing crop water requirements. FAO Irrigation and Drainage Paper 56, FAO, Rome.",
+)
+
+
+@dataclass(frozen=True)
+class ScenarioInfo:
+    """One scenario as the brief describes it.
+
+    name: scenario name (also its output folder's name). co2_ppm: CO2 [ppm]. output_folder: the folder
+    with its rasters. description: one line in plain words. temperature_offset_c: warming added to the
+    baseline climate [deg C]. o2_percent: O2 [%]. is_baseline: True for the baseline scenario.
+    """
+
+    name: str
+    co2_ppm: float
+    output_folder: Path
+    description: str = ""
+    temperature_offset_c: float = 0.0
+    o2_percent: float = 20.95
+    is_baseline: bool = False
+
+
+@dataclass(frozen=True)
+class BriefContext:
+    """Everything a brief says that is not in the rasters.
+
+    region: region name. generated: date of the brief. tool_version: suitability's version.
+    scenarios: every scenario, baseline included. baseline: the baseline's name.
+    c3_parameter_set, c4_parameter_set: names of the parameter sets used (with overrides, if any).
+    zones_path, name_field: the district polygons and their name field.
+    warm_season_temperature_c: the region's warm-season mean air temperature today [deg C].
+    contested_margin: |advantage| below this is "no clear advantage" [-].
+    per_district: also write one brief per district. caution: the caution text every brief carries.
+    crossover_function: crossover temperature [deg C] as a function of CO2 [ppm] (keyword o2_percent);
+        None uses :func:`suitability.physiology.crossover_temperature`.
+    """
+
+    region: str
+    generated: date
+    tool_version: str
+    scenarios: tuple[ScenarioInfo, ...]
+    baseline: str
+    c3_parameter_set: str
+    c4_parameter_set: str
+    zones_path: Path
+    name_field: str
+    warm_season_temperature_c: float
+    contested_margin: float
+    per_district: bool = False
+    caution: str = CAUTION
+    crossover_function: Callable | None = field(default=None, compare=False)
+
+    def __post_init__(self):
+        names = [s.name for s in self.scenarios]
+        if not names:
+            raise ConfigError("brief: expected at least one scenario")
+        if len(set(names)) != len(names):
+            raise ConfigError(f"brief: scenario names must be unique, got {names}")
+        if self.baseline not in names:
+            raise ConfigError(f"brief: baseline {self.baseline!r} is not among the scenarios {', '.join(names)}")
+        if not math.isfinite(self.warm_season_temperature_c):
+            raise ConfigError(f"brief: warm-season temperature must be a number, got {self.warm_season_temperature_c}")
+
+    def scenario(self, name: str) -> ScenarioInfo:
+        return next(s for s in self.scenarios if s.name == name)
+
+    @property
+    def compared(self) -> list[ScenarioInfo]:
+        """The scenarios that get a brief of their own: every non-baseline one, else the baseline."""
+        others = [s for s in self.scenarios if s.name != self.baseline]
+        return others or [self.scenario(self.baseline)]
+
+
+# --- words from numbers ----------------------------------------------------------------------------------
+
+def percent_text(share: float, *, short: bool = False) -> str:
+    """A share [0-1] as whole percent, e.g. 0.184 -> '18 %'; tiny non-zero shares as 'less than 1 %'
+    (``short``: '<1 %'); NaN as 'no data' ('\u2013')."""
+    if not math.isfinite(share):
+        return "\u2013" if short else "no data"
+    if 0 < share < 0.005:
+        return "<1 %" if short else "less than 1 %"
+    return f"{round(100 * share):d} %"
+
+
+def hectares_text(hectares: float) -> str:
+    """Hectares rounded to whole numbers with thousands separators, e.g. 12345.6 -> '12,346 ha'."""
+    return f"{hectares:,.0f} ha"
+
+
+def _district_rows(table: pd.DataFrame, scenario: str) -> pd.DataFrame:
+    return table[table["scenario"] == scenario].set_index("district")
+
+
+def summary_sentences(table: pd.DataFrame, baseline: str, scenario: str,
+                      districts: Sequence[str] | None = None) -> list[str]:
+    """Plain sentences comparing ``scenario`` with ``baseline`` for each district, from the table's numbers.
+
+    For the baseline itself, sentences describe today. Districts without data get a sentence saying why.
+    """
+    base = _district_rows(table, baseline)
+    other = _district_rows(table, scenario)
+    chosen = list(districts) if districts is not None else list(base.index)
+    sentences = []
+    for district in chosen:
+        b, s = base.loc[district], other.loc[district]
+        if not (b["valid_share"] > 0 and s["valid_share"] > 0):
+            reason = s["flag"] or b["flag"] or "no valid data"
+            sentences.append(f"There are no results for {district} ({reason}).")
+            continue
+        before, after = percent_text(b["share_c4"]), percent_text(s["share_c4"])
+        if scenario == baseline:
+            sentences.append(f"Today, C4 crops have the advantage on {before} of {district}'s mapped land.")
+        elif before == after:
+            sentences.append(
+                f"Under {scenario}, the share of {district} where C4 crops have the advantage stays at {before}."
+            )
+        else:
+            verb = "rises" if s["share_c4"] > b["share_c4"] else "falls"
+            sentences.append(
+                f"Under {scenario}, the share of {district} where C4 crops have the advantage {verb} "
+                f"from {before} to {after}."
+            )
+    if scenario != baseline:
+        rows = other.loc[chosen]
+        gained, lost = rows["c3_to_c4_ha"].sum(), rows["c4_to_c3_ha"].sum()
+        where = f"In {chosen[0]}" if len(chosen) == 1 else "Across these districts"
+        sentences.append(
+            f"{where}, {hectares_text(gained)} change from a C3 advantage to a C4 advantage and "
+            f"{hectares_text(lost)} change from C4 to C3."
+        )
+    return sentences
+
+
+def _number(value: float, digits: int = 2) -> str:
+    return "\u2013" if not math.isfinite(value) else f"{value:.{digits}f}"
+
+
+def table_rows(table: pd.DataFrame, scenarios: Sequence[str], baseline: str,
+               districts: Sequence[str] | None = None) -> list[dict]:
+    """The district table as the brief prints it: one dict of display strings per district and scenario
+    (change columns are a dash for the baseline, which is not compared with itself)."""
+    rows = []
+    chosen = districts if districts is not None else list(dict.fromkeys(table["district"]))
+    for district in chosen:
+        for scenario in scenarios:
+            r = table[(table["district"] == district) & (table["scenario"] == scenario)].iloc[0]
+            rows.append({
+                "district": district,
+                "scenario": scenario,
+                "area": hectares_text(r["district_area_ha"]),
+                "mapped": percent_text(r["valid_share"], short=True),
+                "c3": percent_text(r["share_c3"], short=True),
+                "contested": percent_text(r["share_contested"], short=True),
+                "c4": percent_text(r["share_c4"], short=True),
+                "advantage": _number(r["advantage_mean"]),
+                "months": _number(r["c4_favoured_months_mean"], 1),
+                "to_c4": "\u2013" if scenario == baseline else hectares_text(r["c3_to_c4_ha"]),
+                "to_c3": "\u2013" if scenario == baseline else hectares_text(r["c4_to_c3_ha"]),
+                "flag": r["flag"],
+            })
+    return rows
+
+
+# --- files -----------------------------------------------------------------------------------------------
+
+def slug(text: str) -> str:
+    """A file-name-safe form of ``text``: lower case, runs of other characters replaced by '_'."""
+    cleaned = re.sub(r"[^0-9a-zA-Z]+", "_", text.strip().lower()).strip("_")
+    return cleaned or "region"
+
+
+def _data_uri(png: bytes) -> str:
+    return "data:image/png;base64," + base64.b64encode(png).decode("ascii")
+
+
+def _environment() -> Environment:
+    return Environment(
+        loader=FileSystemLoader(TEMPLATES),
+        autoescape=select_autoescape(["html", "j2"]),
+        undefined=StrictUndefined,
+        trim_blocks=True,
+        lstrip_blocks=True,
+    )
+
+
+def _write_atomic(target: Path, write: Callable[[Path], None]) -> Path:
+    temporary = target.with_name(f".{target.stem}.tmp{target.suffix}")
+    try:
+        write(temporary)
+        os.replace(temporary, target)
+    except Exception as exc:
+        temporary.unlink(missing_ok=True)
+        raise OutputError(f"{target}: cannot write the brief ({exc})") from exc
+    return target
+
+
+def _write_pdf(html: str, target: Path) -> Path:
+    import weasyprint  # imported late: it is slow to import and only the PDF needs it
+
+    return _write_atomic(target, lambda path: weasyprint.HTML(string=html, base_url=str(TEMPLATES)).write_pdf(path))
+
+
+class _Figures:
+    """Figures drawn once and shared by all briefs (as data URIs)."""
+
+    def __init__(self, context: BriefContext, table: pd.DataFrame, zones):
+        self._context, self._table, self._zones = context, table, zones
+        self._cache: dict[tuple, str] = {}
+
+    def _get(self, key: tuple, draw: Callable[[], bytes]) -> str:
+        if key not in self._cache:
+            self._cache[key] = _data_uri(draw())
+        return self._cache[key]
+
+    def class_map(self, scenario: ScenarioInfo) -> str:
+        title = f"{scenario.name}: where each kind of crop has the advantage"
+        return self._get(("class", scenario.name), lambda: figures.class_map_png(
+            Path(scenario.output_folder) / "pathway_class.tif", self._zones, title=title))
+
+    def change_map(self, scenario: ScenarioInfo) -> str:
+        title = f"Change: {scenario.name} against {self._context.baseline}"
+        return self._get(("change", scenario.name), lambda: figures.change_map_png(
+            Path(scenario.output_folder) / "advantage_change.tif", self._zones, title=title))
+
+    def shares(self, scenarios: Sequence[str], districts: Sequence[str] | None = None) -> str:
+        table = self._table if districts is None else self._table[self._table["district"].isin(districts)]
+        return self._get(("shares", tuple(scenarios), tuple(districts or ())),
+                         lambda: figures.class_share_png(table, scenarios))
+
+    def crossover(self) -> str:
+        context = self._context
+        o2 = context.scenario(context.baseline).o2_percent
+        return self._get(("crossover",), lambda: figures.crossover_png(
+            context.warm_season_temperature_c, context.scenarios, o2_percent=o2,
+            crossover=context.crossover_function))
+
+
+def render_html(context: BriefContext, table: pd.DataFrame, scenario: ScenarioInfo,
+                drawn: _Figures, district: str | None = None) -> str:
+    """The HTML of one brief: ``scenario`` against the baseline, or (``district``) one district, all scenarios."""
+    baseline = context.scenario(context.baseline)
+    districts = [district] if district is not None else None
+    if district is None:
+        shown = [baseline] if scenario.is_baseline or scenario.name == baseline.name else [baseline, scenario]
+        summaries = [(scenario.name, summary_sentences(table, baseline.name, scenario.name))]
+    else:
+        shown = list(context.scenarios)
+        summaries = [(s.name, summary_sentences(table, baseline.name, s.name, districts)) for s in shown]
+    maps = [{"title": s.name, "image": drawn.class_map(s)} for s in shown]
+    change_maps = [{"title": s.name, "image": drawn.change_map(s)} for s in shown if s.name != baseline.name]
+    names = [s.name for s in shown]
+    flagged = table[(table["flag"] != "") & table["scenario"].isin(names)]
+    if districts is not None:
+        flagged = flagged[flagged["district"].isin(districts)]
+    all_districts = list(dict.fromkeys(table["district"]))
+    return _environment().get_template("brief.html.j2").render(
+        css=(TEMPLATES / "brief.css").read_text(encoding="utf-8"),
+        context=context,
+        title=f"{context.region}: C3 and C4 crops" + (f" \u2013 {district}" if district else ""),
+        subject=district or context.region,
+        district=district,
+        scenario=scenario,
+        baseline=baseline,
+        shown=shown,
+        summaries=summaries,
+        maps=maps,
+        change_maps=change_maps,
+        shares_chart=drawn.shares(names, districts),
+        crossover_chart=drawn.crossover(),
+        rows=table_rows(table, names, baseline.name, districts),
+        districts=districts or all_districts,
+        flags=sorted(set(zip(flagged["district"], flagged["flag"]))),
+        references=REFERENCES,
+        generated=context.generated.isoformat(),
+    )
+
+
+def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.DataFrame | None = None) -> dict[str, Path]:
+    """Write the briefs, their district table and return {file name: path}.
+
+    context: what the brief says besides the rasters. folder: the run's output folder; files go to
+    ``<folder>/brief/``. table: a precomputed :func:`zonal_statistics` table (computed here if None).
+    """
+    out = Path(folder) / "brief"
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise OutputError(f"{out}: cannot create the brief folder ({exc})") from exc
+    scenario_folders = {s.name: Path(s.output_folder) for s in context.scenarios}
+    if table is None:
+        table = zonal_statistics(context.zones_path, context.name_field, scenario_folders, context.baseline)
+    zones = read_zones(context.zones_path, context.name_field)
+    region = slug(context.region)
+    written: dict[str, Path] = {}
+    for path in (
+        write_table_csv(table, out / f"{region}_districts.csv"),
+        write_table_geopackage(table, context.zones_path, context.name_field, out / f"{region}_districts.gpkg",
+                               scenarios=list(scenario_folders)),
+    ):
+        written[path.name] = path
+    drawn = _Figures(context, table, zones)
+    pages: list[tuple[str, str]] = []
+    for scenario in context.compared:
+        pages.append((f"{region}_{slug(scenario.name)}", render_html(context, table, scenario, drawn)))
+    if context.per_district:
+        for district in zones["district"]:
+            html = render_html(context, table, context.scenario(context.baseline), drawn, district=district)
+            pages.append((f"{region}_{slug(district)}", html))
+    for stem, html in pages:
+        html_path = _write_atomic(out / f"{stem}.html", lambda p, h=html: p.write_text(h, encoding="utf-8"))
+        pdf_path = _write_pdf(html, out / f"{stem}.pdf")
+        written[html_path.name] = html_path
+        written[pdf_path.name] = pdf_path
+    return written
+
+
+# --- from a run config -------------------------------------------------------------------------------------
+
+def warm_season_mean(monthly_mean_c: Sequence[float], months: int = 3) -> float:
+    """Mean of the ``months`` warmest values of a region's 12 monthly mean temperatures [deg C].
+
+    The warm season is taken as the three warmest months (common practice, no source).
+    """
+    values = np.asarray(monthly_mean_c, dtype="float64")
+    values = values[np.isfinite(values)]
+    if values.size < months:
+        raise ValueError(f"expected at least {months} monthly temperatures, got {values.size}")
+    return float(np.mean(np.sort(values)[-months:]))
+
+
+def _regional_monthly_temperature(cfg) -> np.ndarray:
+    """Region-mean monthly mean air temperature of the baseline climate [deg C], one value per month."""
+    from suitability.grid import TargetGrid  # imported late: only a run config needs the input stack
+    from suitability.inputs import load_climate
+
+    grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
+    climate = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
+    mean = climate["tmean"] if "tmean" in climate else (climate["tmin"] + climate["tmax"]) / 2
+    return mean.astype("float64").mean(dim=("y", "x"), skipna=True).compute().to_numpy()
+
+
+def _parameter_set_text(pathway_config) -> str:
+    name = pathway_config.parameter_set or "default"
+    if pathway_config.overrides:
+        changes = ", ".join(f"{k} = {v}" for k, v in sorted(pathway_config.overrides.items()))
+        return f"{name} (changed: {changes})"
+    return name
+
+
+def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, caution: str = CAUTION,
+                              tool_version: str = "", generated: date | None = None,
+                              warm_season_temperature_c: float | None = None) -> BriefContext:
+    """The BriefContext of a run config (``suitability.config.RunConfig``) whose outputs are written.
+
+    The warm-season temperature is computed from the baseline climate inputs unless given [deg C].
+    """
+    if cfg.brief is None:
+        raise ConfigError("the config has no 'brief' section (zones, name_field)")
+    baseline = cfg.baseline or cfg.scenarios[0].name
+    scenarios = tuple(
+        ScenarioInfo(
+            name=s.name, co2_ppm=s.co2_ppm, output_folder=Path(scenario_folders[s.name]),
+            description=s.description, temperature_offset_c=s.temperature_offset_c, o2_percent=s.o2_percent,
+            is_baseline=s.name == baseline,
+        )
+        for s in cfg.scenarios
+    )
+    if warm_season_temperature_c is None:
+        warm_season_temperature_c = warm_season_mean(_regional_monthly_temperature(cfg))
+    return BriefContext(
+        region=cfg.region.name,
+        generated=generated or date.today(),
+        tool_version=tool_version,
+        scenarios=scenarios,
+        baseline=baseline,
+        c3_parameter_set=_parameter_set_text(cfg.physiology.c3),
+        c4_parameter_set=_parameter_set_text(cfg.physiology.c4),
+        zones_path=Path(cfg.brief.zones),
+        name_field=cfg.brief.name_field,
+        warm_season_temperature_c=warm_season_temperature_c,
+        contested_margin=cfg.classes.contested_margin,
+        per_district=cfg.brief.per_district,
+        caution=caution,
+    )
