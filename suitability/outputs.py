@@ -1,0 +1,482 @@
+"""Writing results: Cloud-Optimized GeoTIFF layers, the NetCDF datacube, the run manifest.
+
+No science here: layers arrive computed-lazily in canonical units, and are written as they are.
+
+Layers (:func:`write_layers`)
+    All layers of one call are computed in ONE dask pass (``dask.array.store`` of every source at once),
+    so the physiology they share runs once. Each block goes to a pre-created tiled GeoTIFF through a
+    small picklable writer that opens the file in "r+" mode for its window, under a lock per output
+    (a ``distributed.Lock`` with a distributed client, else a ``dask.utils.SerializableLock``: see
+    :func:`suitability.runtime.write_lock`). Then each file is converted to a COG with
+    ``rio_cogeo.cog_translate``, validated with ``rio_cogeo.cogeo.cog_validate(strict=True)`` and only
+    then moved to ``<name>.tif`` with ``os.replace``. Until that last step everything lives in a hidden
+    staging folder ``.suitability-staging-<pid>-<random>`` inside the output folder (same filesystem, so
+    the rename is atomic; rio-cogeo's own scratch files land there too); any failure removes it and
+    raises :class:`~suitability.errors.OutputError`, so a finished-looking ``<name>.tif`` is always whole.
+
+    Float layers are float32 with NaN as nodata, predictor 3; class layers (those whose glossary entry in
+    :data:`suitability.variables.OUTPUT_VARIABLES` resamples by "mode") are uint8 with nodata 255,
+    predictor 2 and a colour table of our own. Tiles 512 x 512, ``BIGTIFF=IF_SAFER`` (without it, outputs
+    near 4 GiB are silently truncated), DEFLATE (default) or ZSTD with a level. Overviews use the
+    glossary's resampling (average for continuous, mode for classes). Band description = long name, band
+    unit = canonical units, band tags ``long_name``/``units`` (plus the class legend), dataset tags = the
+    caller's ``tags``. rio-cogeo (7.0) drops band units, so when they are missing after the conversion
+    they are set on the staged COG and the file is copied once more with its overviews to restore the
+    COG layout (the same final ``copy_src_overviews`` step rio-cogeo itself ends with).
+
+    Dask chunks that are not whole multiples of the 512 tile are rechunked before writing: partial tile
+    writes make GDAL rewrite compressed tiles (files up to 60 % larger for the same pixels).
+
+Datacube (:func:`write_datacube`): NetCDF4 with CF attributes, the CRS as a CF grid mapping (rioxarray),
+    zlib compression, written chunk by chunk, under a temporary name and renamed.
+Manifest (:func:`write_manifest`): JSON (strict: NaN/inf become null), written atomically.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import json
+import math
+import os
+import shutil
+import tempfile
+import uuid
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass
+from datetime import date, datetime
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import rioxarray  # noqa: F401  (registers the .rio accessor used on layers and datasets)
+import xarray as xr
+
+from .errors import ConfigError, OutputError
+from .runtime import compute, write_lock
+from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA, OUTPUT_VARIABLES
+
+TILE_SIZE = 512
+STAGING_PREFIX = ".suitability-staging-"
+GDAL_TIFF_OPTIONS = {"driver": "GTiff", "interleave": "pixel", "tiled": True, "blockxsize": TILE_SIZE,
+                     "blockysize": TILE_SIZE, "BIGTIFF": "IF_SAFER"}
+COMPRESSIONS = ("deflate", "zstd")
+
+# Colour tables of our own (RGBA). Classes: 1 C3 favoured blue-green, 2 contested pale grey, 3 C4 favoured
+# amber. Transitions: kept classes take their class colour, moves toward C4 warm (stronger = darker),
+# moves toward C3 cool; nodata is transparent.
+_BLUE_GREEN, _PALE_GREY, _AMBER = (23, 128, 122, 255), (221, 221, 216, 255), (236, 161, 21, 255)
+_TRANSPARENT = (0, 0, 0, 0)
+PATHWAY_CLASS_COLOURS = {CLASS_C3: _BLUE_GREEN, CLASS_CONTESTED: _PALE_GREY, CLASS_C4: _AMBER,
+                         CLASS_NODATA: _TRANSPARENT}
+CLASS_TRANSITION_COLOURS = {
+    11: _BLUE_GREEN, 22: _PALE_GREY, 33: _AMBER,
+    12: (247, 205, 150, 255), 23: (224, 112, 36, 255), 13: (176, 45, 28, 255),
+    21: (154, 208, 200, 255), 32: (150, 178, 222, 255), 31: (38, 66, 150, 255),
+    CLASS_NODATA: _TRANSPARENT,
+}
+COLOUR_TABLES = {"pathway_class": PATHWAY_CLASS_COLOURS, "class_transition": CLASS_TRANSITION_COLOURS}
+CLASS_LEGENDS = {
+    "pathway_class": dict(CLASS_NAMES),
+    "class_transition": {b * 10 + s: f"{CLASS_NAMES[b]} -> {CLASS_NAMES[s]}" for b in CLASS_NAMES for s in CLASS_NAMES},
+}
+
+
+@dataclass(frozen=True)
+class CogOptions:
+    """COG creation settings: compression "deflate" or "zstd", its level (None: GDAL's default; deflate
+    1-9, zstd 1-22), and whether to build overviews."""
+
+    compression: str = "deflate"
+    level: int | None = None
+    overviews: bool = True
+
+    @classmethod
+    def from_any(cls, options: Any) -> CogOptions:
+        """From None, a mapping, a CogOptions, or any object with those attributes (the config model)."""
+        if options is None or isinstance(options, CogOptions):
+            return options or cls()
+        get = options.get if isinstance(options, Mapping) else (lambda key, default: getattr(options, key, default))
+        compression = str(get("compression", "deflate") or "deflate").lower()
+        level = get("level", None)
+        if compression not in COMPRESSIONS:
+            raise ConfigError(f"output.cog.compression: expected one of {list(COMPRESSIONS)}, got {compression!r}")
+        limit = 9 if compression == "deflate" else 22
+        if level is not None and (isinstance(level, bool) or not isinstance(level, int) or not 1 <= level <= limit):
+            raise ConfigError(f"output.cog.level: expected a whole number 1-{limit} for {compression}, got {level!r}")
+        return cls(compression, level, bool(get("overviews", True)))
+
+    def creation_options(self, dtype: str) -> dict[str, Any]:
+        """GDAL GTiff creation options for a band of ``dtype`` (predictor 3 floats, 2 integers)."""
+        options = dict(GDAL_TIFF_OPTIONS, compress=self.compression.upper(),
+                       predictor=3 if np.dtype(dtype).kind == "f" else 2)
+        if self.level is not None:
+            options["zlevel" if self.compression == "deflate" else "zstd_level"] = self.level
+        return options
+
+
+def is_class_layer(name: str) -> bool:
+    """True for categorical layers (uint8 codes, colour table): those the glossary resamples by mode."""
+    return OUTPUT_VARIABLES[name].resampling == "mode"
+
+
+class BlockWriter:
+    """``dask.array.store`` target: writes each block into its window of a pre-created GeoTIFF.
+
+    Opens the file in "r+" mode per block (nothing unpicklable is kept, so it travels to distributed
+    workers) and holds ``lock`` meanwhile, because two handles updating one TIFF would corrupt it.
+    """
+
+    def __init__(self, path: str, lock=None):
+        self.path = str(path)
+        self.lock = lock
+
+    def __setitem__(self, index: tuple[slice, slice], block: np.ndarray) -> None:
+        import rasterio
+        from rasterio.windows import Window
+
+        rows, cols = index
+        window = Window(cols.start, rows.start, cols.stop - cols.start, rows.stop - rows.start)
+        if self.lock:
+            self.lock.acquire()
+        try:
+            with rasterio.open(self.path, "r+") as dst:
+                dst.write(block, 1, window=window)
+        except rasterio.errors.RasterioError as error:
+            raise OutputError(f"{self.path}: cannot write block {window}: {error}") from error
+        finally:
+            if self.lock:
+                self.lock.release()
+
+
+def check_output_folder(folder, names: Iterable[str] = (), overwrite: bool = False) -> Path:
+    """Make sure ``folder`` exists and is writable, and that no output in ``names`` would be replaced.
+
+    names: file names relative to ``folder`` (may include sub-folders, e.g. "baseline/pathway_class.tif").
+    Raises OutputError naming the folder when it cannot be created or written, or listing the existing
+    outputs when ``overwrite`` is False. Returns the folder as a Path.
+    """
+    folder = Path(folder)
+    existing = sorted(str(folder / name) for name in names if (folder / name).exists())
+    if existing and not overwrite:
+        raise OutputError(
+            f"{len(existing)} output(s) already exist and overwrite is off: {', '.join(existing)}; "
+            "set output.overwrite: true (or --overwrite) to replace them, or choose another output.folder"
+        )
+    subfolders = {folder / Path(name).parent for name in names} | {folder}
+    for path in sorted(subfolders):
+        try:
+            path.mkdir(parents=True, exist_ok=True)
+            with tempfile.NamedTemporaryFile(dir=path, prefix=".suitability-write-test-"):
+                pass
+        except OSError as error:
+            raise OutputError(f"output folder {path} cannot be created or written: {error}") from error
+    return folder
+
+
+def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[str, Any] | None = None,
+                 cog_options: Any = None, lock=None) -> dict[str, Path]:
+    """Compute all ``layers`` in one dask pass and write each as a validated COG ``<folder>/<name>.tif``.
+
+    layers: name (a key of OUTPUT_VARIABLES) -> (y, x) DataArray, dask-backed or not, with a CRS written by
+        rioxarray, all on one grid. Class layers: integer codes (or floats with NaN as nodata).
+    tags: dataset tags for every file (scenario, co2_ppm, config_hash, tool version, ...).
+    cog_options: CogOptions, a mapping or the config's ``output.cog`` object.
+    lock: None (a lock per file, chosen for the active scheduler), one lock shared by all files, or a
+        callable ``name -> lock``.
+    Returns name -> final path. Raises OutputError (naming the file or folder) on any failure, leaving no
+    ``<name>.tif`` of this call and no temporary file behind.
+    """
+    import dask.array as da
+
+    if not layers:
+        raise OutputError(f"no layers given to write into {folder}")
+    options = CogOptions.from_any(cog_options)
+    folder = check_output_folder(folder, overwrite=True)
+    grid = _common_grid(layers, folder)
+    staging = folder / f"{STAGING_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:8]}"
+    try:
+        staging.mkdir()
+        sources, targets, staged = [], [], {}
+        for name, layer in layers.items():
+            staged[name] = staging / f".{name}.tmp-{os.getpid()}.tif"
+            source = _as_tiled_dask(name, layer, da)
+            _create_tiled_geotiff(staged[name], name, source.dtype, grid, tags or {}, options)
+            sources.append(source)
+            targets.append(BlockWriter(staged[name], _lock_for(name, lock, staged[name])))
+        stored = da.store(sources, targets, lock=False, compute=False)
+        try:
+            compute(*(stored if isinstance(stored, (tuple, list)) else (stored,)))
+        except OutputError:
+            raise
+        except Exception as error:
+            raise OutputError(
+                f"computing {', '.join(f'{n}.tif' for n in layers)} for {folder} failed, nothing was written: "
+                f"{type(error).__name__}: {error}"
+            ) from error
+        finals = {name: _to_validated_cog(path, name, options) for name, path in staged.items()}
+        written = {}
+        for name, path in finals.items():
+            written[name] = folder / f"{name}.tif"
+            os.replace(path, written[name])
+        return written
+    except OutputError:
+        raise
+    except Exception as error:
+        raise OutputError(f"writing layers into {folder} failed: {type(error).__name__}: {error}") from error
+    finally:
+        shutil.rmtree(staging, ignore_errors=True)
+
+
+def write_datacube(ds: xr.Dataset, path) -> Path:
+    """Write ``ds`` to NetCDF4 at ``path``: CF attributes, CRS as grid mapping, zlib, chunk by chunk, atomic.
+
+    ds: data variables on (…, y, x) with a CRS (rioxarray). Variables named in OUTPUT_VARIABLES get its
+    long name and units where they have none. Returns the path.
+    """
+    path = Path(path)
+    check_output_folder(path.parent, overwrite=True)
+    crs = ds.rio.crs
+    if crs is None:
+        raise OutputError(f"{path}: the datacube has no CRS; write one with .rio.write_crs() first")
+    ds = ds.copy()
+    for name, variable in ds.data_vars.items():
+        known = OUTPUT_VARIABLES.get(str(name))
+        if known is not None:
+            variable.attrs.setdefault("long_name", known.long_name)
+            variable.attrs.setdefault("units", known.units)
+        variable.attrs.pop("grid_mapping", None)
+    ds = ds.rio.write_crs(crs).rio.write_coordinate_system()
+    grid_mapping = ds.rio.grid_mapping
+    for variable in ds.data_vars.values():
+        # an explicit to_netcdf encoding replaces the variable's own, so the link goes in the attributes
+        variable.encoding.pop("grid_mapping", None)
+        if variable.name != grid_mapping:
+            variable.attrs["grid_mapping"] = grid_mapping
+    ds.attrs.setdefault("Conventions", "CF-1.8")
+    ds.attrs = {key: _netcdf_attribute(value) for key, value in ds.attrs.items()}
+    for variable in ds.data_vars.values():
+        variable.attrs.update({key: _netcdf_attribute(value) for key, value in variable.attrs.items()})
+    encoding = {name: _netcdf_encoding(variable) for name, variable in ds.data_vars.items()}
+    # CF coordinate variables carry no fill value (xarray would add NaN to float x/y).
+    encoding.update({name: {"_FillValue": None} for name, coord in ds.coords.items()
+                     if coord.dtype.kind == "f" and name in ds.dims})
+    temporary = path.with_name(f".{path.name}.tmp-{os.getpid()}")
+    try:
+        delayed = ds.to_netcdf(temporary, engine="netcdf4", format="NETCDF4", encoding=encoding, compute=False)
+        compute(delayed)
+        os.replace(temporary, path)
+    except Exception as error:
+        temporary.unlink(missing_ok=True)
+        if isinstance(error, OutputError):
+            raise
+        raise OutputError(f"{path}: writing the datacube failed: {type(error).__name__}: {error}") from error
+    return path
+
+
+def write_manifest(manifest: Mapping[str, Any], path) -> Path:
+    """Write ``manifest`` as strict JSON (RFC 8259: NaN and infinities become null) atomically; return the path."""
+    path = Path(path)
+    check_output_folder(path.parent, overwrite=True)
+    text = json.dumps(_json_ready(manifest), indent=2, ensure_ascii=False, allow_nan=False)
+    temporary = path.with_name(f".{path.name}.tmp-{os.getpid()}")
+    try:
+        with open(temporary, "w", encoding="utf-8") as handle:
+            handle.write(text + "\n")
+            handle.flush()
+            os.fsync(handle.fileno())
+        os.replace(temporary, path)
+    except OSError as error:
+        temporary.unlink(missing_ok=True)
+        raise OutputError(f"{path}: cannot write the manifest: {error}") from error
+    return path
+
+
+def file_checksum(path, block_size: int = 1 << 20) -> str:
+    """SHA-256 of a file as hex, read in blocks of ``block_size`` bytes (files of any size)."""
+    digest = hashlib.sha256()
+    with open(path, "rb") as handle:
+        while chunk := handle.read(block_size):
+            digest.update(chunk)
+    return digest.hexdigest()
+
+
+# --- helpers -------------------------------------------------------------------------------------------
+
+@dataclass(frozen=True)
+class _Grid:
+    crs: Any
+    transform: Any
+    height: int
+    width: int
+
+
+def _common_grid(layers: Mapping[str, xr.DataArray], folder: Path) -> _Grid:
+    first_name, first = next(iter(layers.items()))
+    grid = None
+    for name, layer in layers.items():
+        where = f"{folder / (name + '.tif')}"
+        if name not in OUTPUT_VARIABLES:
+            raise OutputError(f"{where}: {name!r} is not an output layer; expected one of {list(OUTPUT_VARIABLES)}")
+        if tuple(layer.dims) != ("y", "x"):
+            raise OutputError(f"{where}: layer {name!r} has dims {tuple(layer.dims)}, expected ('y', 'x')")
+        if layer.rio.crs is None:
+            raise OutputError(f"{where}: layer {name!r} has no CRS; write one with .rio.write_crs()")
+        this = _Grid(layer.rio.crs, layer.rio.transform(), *layer.shape)
+        if grid is None:
+            grid = this
+        elif this != grid or not (np.array_equal(layer.x, first.x) and np.array_equal(layer.y, first.y)):
+            raise OutputError(f"{where}: layer {name!r} is not on the grid of {first_name!r} (CRS, transform or coords differ)")
+    return grid
+
+
+def _as_tiled_dask(name: str, layer: xr.DataArray, da):
+    data = layer.data
+    if not isinstance(data, da.Array):
+        data = da.from_array(np.asarray(data), chunks=TILE_SIZE, name=False)
+    if is_class_layer(name):
+        data = data.map_blocks(_class_codes, name, dtype=np.uint8)
+    else:
+        data = data.astype(np.float32)
+    aligned = tuple(_tile_aligned(axis_chunks) for axis_chunks in data.chunks)
+    return data if aligned == data.chunks else data.rechunk(aligned)
+
+
+def _tile_aligned(axis_chunks: tuple[int, ...]) -> tuple[int, ...] | int:
+    if all(c % TILE_SIZE == 0 for c in axis_chunks[:-1]):
+        return axis_chunks
+    return max(TILE_SIZE, axis_chunks[0] // TILE_SIZE * TILE_SIZE)
+
+
+def _class_codes(block: np.ndarray, name: str) -> np.ndarray:
+    """Class codes as uint8 (NaN -> 255); codes outside the layer's legend are an error, not a colour."""
+    values = np.asarray(block)
+    if values.dtype.kind == "f":
+        values = np.where(np.isnan(values), CLASS_NODATA, values)
+    allowed = np.array(sorted(CLASS_LEGENDS[name]) + [CLASS_NODATA])
+    bad = ~np.isin(values, allowed)
+    if bad.any():
+        raise ValueError(f"layer {name!r} holds codes {np.unique(values[bad])[:5].tolist()} outside {allowed.tolist()}")
+    return values.astype(np.uint8)
+
+
+def _lock_for(name: str, lock, path: Path):
+    if lock is None:
+        return write_lock(f"{path.parent.name}-{name}")  # the staging folder's name is unique per call
+    if callable(lock) and not hasattr(lock, "acquire"):
+        return lock(name)
+    return lock
+
+
+def _create_tiled_geotiff(path: Path, name: str, dtype, grid: _Grid, tags: Mapping[str, Any], options: CogOptions):
+    import rasterio
+    from rasterio.enums import ColorInterp
+
+    variable = OUTPUT_VARIABLES[name]
+    categorical = is_class_layer(name)
+    profile = dict(options.creation_options(dtype), width=grid.width, height=grid.height, count=1,
+                   dtype=np.dtype(dtype).name, crs=grid.crs, transform=grid.transform,
+                   nodata=CLASS_NODATA if categorical else np.nan, SPARSE_OK=True)
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.update_tags(**{str(key): _tag_text(value) for key, value in tags.items()})
+        dst.set_band_description(1, variable.long_name)
+        dst.set_band_unit(1, variable.units)
+        band_tags = {"long_name": variable.long_name, "units": variable.units}
+        if categorical:
+            band_tags.update({f"class_{code}": label for code, label in CLASS_LEGENDS[name].items()})
+            dst.colorinterp = [ColorInterp.palette]
+            dst.write_colormap(1, COLOUR_TABLES[name])
+        dst.update_tags(1, **band_tags)
+
+
+def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
+    import rasterio
+    from rasterio.shutil import copy
+    from rio_cogeo.cogeo import cog_translate, cog_validate
+
+    variable = OUTPUT_VARIABLES[name]
+    categorical = is_class_layer(name)
+    cog = tiled.with_name(tiled.name.replace(".tmp-", ".cog-"))
+    with rasterio.open(tiled) as src:
+        dtype = src.dtypes[0]
+    profile = options.creation_options(dtype)
+    try:
+        cog_translate(
+            tiled, cog, profile,
+            nodata=CLASS_NODATA if categorical else np.nan,
+            overview_level=None if options.overviews else 0,
+            overview_resampling=variable.resampling,
+            forward_band_tags=True,
+            colormap=COLOUR_TABLES.get(name) if categorical else None,
+            quiet=True,
+        )
+        with rasterio.open(cog) as check:
+            units_kept = check.units[0] == variable.units
+        if not units_kept:
+            with rasterio.open(cog, "r+", IGNORE_COG_LAYOUT_BREAK="YES") as dst:
+                dst.set_band_unit(1, variable.units)
+            relaid = cog.with_name(cog.name.replace(".cog-", ".final-"))
+            copy(cog, relaid, copy_src_overviews=True, **profile)
+            cog = relaid
+    except Exception as error:
+        raise OutputError(f"{tiled.parent.parent / (name + '.tif')}: COG conversion failed: {error}") from error
+    # Without overviews the validator's only warning ("recommended to include internal overviews") is expected.
+    valid, errors, warnings = cog_validate(cog, strict=options.overviews, quiet=True)
+    if not valid:
+        raise OutputError(f"{tiled.parent.parent / (name + '.tif')}: not a valid COG: {errors + warnings}")
+    return cog
+
+
+def _tag_text(value: Any) -> str:
+    return value if isinstance(value, str) else json.dumps(_json_ready(value)) if isinstance(value, (dict, list, tuple)) else str(value)
+
+
+def _netcdf_attribute(value: Any):
+    if isinstance(value, (str, int, float, np.number, np.ndarray)) and not isinstance(value, bool):
+        return value
+    return _tag_text(value)
+
+
+def _netcdf_encoding(variable: xr.DataArray) -> dict[str, Any]:
+    encoding: dict[str, Any] = {"zlib": True, "complevel": 4, "shuffle": True}
+    spatial = {"y": TILE_SIZE, "x": TILE_SIZE}
+    encoding["chunksizes"] = tuple(min(spatial.get(str(d), 1), n) for d, n in zip(variable.dims, variable.shape))
+    if variable.dtype.kind == "f":
+        encoding["_FillValue"] = np.nan
+    elif variable.dtype == np.uint8:
+        encoding["_FillValue"] = np.uint8(CLASS_NODATA)
+    return encoding
+
+
+def _json_ready(value: Any):
+    if isinstance(value, Mapping):
+        return {str(k): _json_ready(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple, set)):
+        return [_json_ready(v) for v in value]
+    if isinstance(value, Path):
+        return str(value)
+    if isinstance(value, (datetime, date)):
+        return value.isoformat()
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, np.ndarray):
+        return _json_ready(value.tolist())
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if value is None or isinstance(value, (str, int, float, bool)):
+        return value
+    return str(value)
+
+
+__all__ = [
+    "write_layers",
+    "write_datacube",
+    "write_manifest",
+    "file_checksum",
+    "check_output_folder",
+    "CogOptions",
+    "BlockWriter",
+    "is_class_layer",
+    "PATHWAY_CLASS_COLOURS",
+    "CLASS_TRANSITION_COLOURS",
+    "CLASS_LEGENDS",
+]

@@ -1,0 +1,315 @@
+"""Where and how the dask graphs run: scheduler choice, write locks, GDAL cache, progress bars.
+
+``compute_context(compute_config)`` opens the scheduler named in the config's ``compute`` section and
+yields a :class:`Runtime`; everything computed inside the ``with`` block runs there:
+
+- ``threads``: dask's threaded scheduler with ``workers`` threads, no client.
+- ``processes`` / ``local-cluster``: a ``distributed.LocalCluster`` of ``workers`` worker processes
+  (``threads_per_worker`` threads each, default 1; ``memory_limit`` per worker, default dask's "auto"),
+  with a Client; both are closed on exit.
+- ``tcp://host:port``: a Client connected to an already running scheduler; only the client is closed on
+  exit. Its workers must see the output folder under the same path (a shared filesystem).
+
+GDAL's raster block cache defaults to 5 % of RAM *per process*; with several worker processes that adds
+up, so every process gets a limit of :data:`GDAL_CACHE_MB` (256 MB: a few hundred 512 x 512 float32
+tiles, small next to a 2 GiB worker): through ``GDAL_CACHEMAX`` in the environment of new worker
+processes, and by setting GDAL's limit directly (``rasterio.env.set_gdal_config``, i.e.
+``GDALSetCacheMax64``, which works even after the cache is in use) in this process for the threaded
+scheduler and on the workers of an existing scheduler. A ``GDAL_CACHEMAX`` the user exported wins; the
+limit of this process is restored on exit.
+
+Progress bars are ``rich`` bars on stderr, shown only when the caller asks for them. Locally a
+``dask.callbacks.Callback`` counts finished tasks; on a distributed client the per-block futures are
+polled as they complete (:func:`compute` does that), because local callbacks do not see remote tasks.
+"""
+
+from __future__ import annotations
+
+import contextvars
+import os
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass, field
+from typing import Any
+
+import dask
+from dask.callbacks import Callback
+from dask.utils import SerializableLock, parse_bytes
+
+from .errors import ConfigError
+
+#: GDAL block cache per process [MB] (see the module docstring for the choice).
+GDAL_CACHE_MB = 256
+TILE_SIZE = 512
+LOCAL_SCHEDULERS = ("threads", "processes", "local-cluster")
+CONNECT_TIMEOUT_S = 10
+
+_ACTIVE_BAR: contextvars.ContextVar[ProgressReport | None] = contextvars.ContextVar("suitability_bar", default=None)
+
+
+@dataclass
+class Runtime:
+    """The compute environment of one run.
+
+    scheduler: "threads", "local-cluster" (also used for the "processes" setting) or "distributed"
+        (a client to an existing scheduler). client: the distributed Client, None for threads.
+    workers: worker threads (threads) or worker processes. chunk_size: cells per chunk side, a multiple of
+    512. show_progress: default of :meth:`progress` (the library default is silent).
+    """
+
+    scheduler: str
+    client: Any | None
+    workers: int
+    chunk_size: int
+    show_progress: bool = False
+    address: str | None = field(default=None)
+
+    def write_lock(self, name: str):
+        """A lock shared by every writer of the named output, valid on this runtime's workers."""
+        return write_lock(name, client=self.client)
+
+    def progress(self, description: str, enabled: bool | None = None):
+        """A progress bar around the computes inside the ``with`` block (see :func:`progress`)."""
+        return progress(description, enabled=self.show_progress if enabled is None else enabled)
+
+    def compute(self, *collections):
+        """Compute dask collections here, driving the active progress bar (see :func:`compute`)."""
+        return compute(*collections)
+
+
+@contextmanager
+def compute_context(compute_config: Any = None, *, progress: bool = False) -> Iterator[Runtime]:
+    """Open the scheduler named by ``compute_config`` and yield the :class:`Runtime`; close it on exit.
+
+    compute_config: any object with attributes ``scheduler`` (str), ``workers`` (int), ``threads_per_worker``
+        (int or None), ``memory_limit`` (str such as "2GiB", per worker, or None) and ``chunk_size``
+        (int, a multiple of 512); missing attributes take the defaults (threads, all cores, 1, "auto", 512).
+    progress: whether :meth:`Runtime.progress` shows bars by default.
+    Raises ConfigError naming the ``compute.*`` key when a value cannot be used.
+    """
+    scheduler = str(getattr(compute_config, "scheduler", None) or "threads")
+    workers = _positive_int(getattr(compute_config, "workers", None), "compute.workers", default=os.cpu_count() or 1)
+    threads_per_worker = _positive_int(
+        getattr(compute_config, "threads_per_worker", None), "compute.threads_per_worker", default=1
+    )
+    chunk_size = _positive_int(getattr(compute_config, "chunk_size", None), "compute.chunk_size", default=TILE_SIZE)
+    if chunk_size % TILE_SIZE:
+        raise ConfigError(f"compute.chunk_size: expected a multiple of {TILE_SIZE} cells, got {chunk_size}")
+    memory_limit = getattr(compute_config, "memory_limit", None)
+    if memory_limit is not None:
+        try:
+            parse_bytes(memory_limit)
+        except (ValueError, TypeError) as error:
+            raise ConfigError(
+                f"compute.memory_limit: expected a size such as '2GiB', got {memory_limit!r}"
+            ) from error
+
+    if scheduler == "threads":
+        with _gdal_cache_in_this_process(), dask.config.set(scheduler="threads", num_workers=workers):
+            yield Runtime("threads", None, workers, chunk_size, progress)
+    elif scheduler in ("processes", "local-cluster"):
+        from distributed import Client, LocalCluster
+
+        with LocalCluster(
+            n_workers=workers,
+            threads_per_worker=threads_per_worker,
+            processes=True,
+            memory_limit=memory_limit or "auto",
+            dashboard_address=":0",  # any free port: several runs (or users) may share the machine
+            env={} if "GDAL_CACHEMAX" in os.environ else {"GDAL_CACHEMAX": str(GDAL_CACHE_MB)},
+        ) as cluster, Client(cluster, set_as_default=True) as client:
+            yield Runtime("local-cluster", client, workers, chunk_size, progress, cluster.scheduler_address)
+    elif scheduler.startswith("tcp://"):
+        from distributed import Client
+
+        try:
+            client = Client(scheduler, timeout=CONNECT_TIMEOUT_S, set_as_default=True)
+        except (OSError, TimeoutError) as error:
+            raise ConfigError(
+                f"compute.scheduler: cannot reach the dask scheduler at {scheduler} within {CONNECT_TIMEOUT_S} s "
+                f"({error}); start it first or choose one of {list(LOCAL_SCHEDULERS)}"
+            ) from error
+        try:
+            client.run(_limit_gdal_cache, GDAL_CACHE_MB)
+            n_workers = len(client.scheduler_info().get("workers", {}))
+            yield Runtime("distributed", client, n_workers, chunk_size, progress, scheduler)
+        finally:
+            client.close()
+    else:
+        raise ConfigError(
+            f"compute.scheduler: expected one of {list(LOCAL_SCHEDULERS)} or a scheduler address "
+            f"'tcp://host:port', got {scheduler!r}"
+        )
+
+
+def active_client():
+    """The distributed Client that dask would use for a compute now, or None for a local scheduler."""
+    try:
+        from distributed import default_client
+    except ImportError:  # pragma: no cover - distributed is a dependency
+        return None
+    try:
+        client = default_client()
+    except ValueError:
+        return None
+    # dask.config.set(scheduler="threads") inside a client's lifetime wins over the client.
+    return client if dask.base.get_scheduler() == client.get else None
+
+
+def write_lock(name: str, client: Any | None = None):
+    """A lock named ``name`` that serialises writes to one file, for the scheduler that will run them.
+
+    With a distributed client: ``distributed.Lock(name)`` (held on the scheduler, so it works across
+    worker processes and machines). Otherwise a ``dask.utils.SerializableLock(name)``: a threading lock
+    that survives pickling (same name, same lock within a process), unlike ``threading.Lock``.
+    """
+    client = client if client is not None else active_client()
+    if client is not None:
+        from distributed import Lock
+
+        return Lock(name)
+    return SerializableLock(name)
+
+
+def compute(*collections):
+    """Compute dask collections in one pass on the active scheduler and return their results.
+
+    Locally this is ``dask.compute`` (a :func:`progress` bar counts tasks through a dask callback). With a
+    distributed client the collections are persisted together (so a graph they share runs once), each
+    block's future is awaited as it completes to advance the active bar, the first failure cancels the
+    rest and is raised, and the results are gathered.
+    """
+    client = active_client()
+    if client is None:
+        return dask.compute(*collections)
+    from distributed import as_completed, futures_of
+
+    persisted = client.persist(list(collections))
+    futures = futures_of(persisted)
+    bar = _ACTIVE_BAR.get()
+    if bar is not None:
+        bar.add_total(len(futures))
+    try:
+        for future in as_completed(futures):
+            if future.status == "error":
+                future.result()  # raises the task's exception here
+            if bar is not None:
+                bar.advance(1)
+        return tuple(client.compute(persisted, sync=True))
+    except BaseException:
+        client.cancel(futures)
+        raise
+
+
+@dataclass
+class ProgressReport:
+    """Handle of one progress bar: how many steps are done out of how many (tasks or blocks)."""
+
+    _progress: Any
+    _task: Any
+
+    @property
+    def completed(self) -> float:
+        return self._progress.tasks[0].completed
+
+    @property
+    def total(self) -> float | None:
+        return self._progress.tasks[0].total
+
+    def add_total(self, steps: int) -> None:
+        self._progress.update(self._task, total=(self.total or 0) + steps)
+
+    def advance(self, steps: int = 1) -> None:
+        self._progress.advance(self._task, steps)
+
+
+class _TaskCounter(Callback):
+    """Advances a bar by one for every task finished by dask's local schedulers."""
+
+    def __init__(self, report: ProgressReport):
+        super().__init__()
+        self._report = report
+
+    def _start_state(self, dsk, state):
+        self._report.add_total(sum(len(state[k]) for k in ("ready", "waiting", "running", "finished")))
+
+    def _posttask(self, key, result, dsk, state, worker_id):
+        self._report.advance(1)
+
+
+@contextmanager
+def progress(description: str, enabled: bool = True, *, console=None) -> Iterator[ProgressReport | None]:
+    """Show a ``rich`` progress bar on stderr for the dask computes inside the ``with`` block.
+
+    description: text before the bar. enabled: False yields None and shows nothing (the library never
+    writes to the terminal unless asked). console: a ``rich.console.Console`` to draw on (default: stderr).
+    Yields a :class:`ProgressReport`. Local schedulers are followed task by task through a dask callback;
+    with a distributed client, computes made through :func:`compute` advance it block by block.
+    """
+    if not enabled:
+        yield None
+        return
+    from rich.console import Console
+    from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn, TimeElapsedColumn
+
+    bar = Progress(
+        TextColumn("{task.description}"),
+        BarColumn(),
+        MofNCompleteColumn(),
+        TimeElapsedColumn(),
+        console=console if console is not None else Console(stderr=True),
+    )
+    report = ProgressReport(bar, bar.add_task(description, total=None))
+    token = _ACTIVE_BAR.set(report)
+    try:
+        with bar:
+            if active_client() is None:
+                with _TaskCounter(report):
+                    yield report
+            else:
+                yield report
+    finally:
+        _ACTIVE_BAR.reset(token)
+
+
+def _positive_int(value, key: str, default: int) -> int:
+    if value is None:
+        return default
+    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
+        raise ConfigError(f"{key}: expected a positive whole number, got {value!r}")
+    return value
+
+
+def _limit_gdal_cache(megabytes: int) -> int | None:
+    """Set GDAL's block cache limit in this process unless GDAL_CACHEMAX is exported; return the old limit [bytes]."""
+    if "GDAL_CACHEMAX" in os.environ:
+        return None
+    from rasterio.env import get_gdal_config, set_gdal_config
+
+    previous = get_gdal_config("GDAL_CACHEMAX")  # rasterio reports GDALGetCacheMax64(), in bytes
+    set_gdal_config("GDAL_CACHEMAX", megabytes * 2**20)  # an int goes to GDALSetCacheMax64(), in bytes
+    return previous
+
+
+@contextmanager
+def _gdal_cache_in_this_process() -> Iterator[None]:
+    previous = _limit_gdal_cache(GDAL_CACHE_MB)
+    try:
+        yield
+    finally:
+        if isinstance(previous, int):
+            from rasterio.env import set_gdal_config
+
+            set_gdal_config("GDAL_CACHEMAX", previous)
+
+
+__all__: Sequence[str] = (
+    "Runtime",
+    "compute_context",
+    "compute",
+    "progress",
+    "write_lock",
+    "active_client",
+    "ProgressReport",
+    "GDAL_CACHE_MB",
+)
