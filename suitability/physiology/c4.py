@@ -27,6 +27,8 @@ Light-limited: Aj = smaller root of A² + b A + c = 0 with
 A = min(Ac, Aj); bundle-sheath CO2 Cs = Cm + (Vp − A − Rm)/gbs (Vp = x J/2 when light-limited);
 leakiness φ = gbs (Cs − Cm)/Vp; photorespiratory CO2 release 0.5 vo = vc γ* Om / Cs.
 J is the non-rectangular response to I2 = absorbed (1 − f)/2 as in C3.
+Kinetic constants at 25 °C: von Caemmerer (2000) Table 4.1 (``kinetics = "caemmerer2000_c4"``, default)
+or von Caemmerer (2021) (``"caemmerer2021_c4"``); see ``rubisco`` and ``PEPC_KINETICS``.
 Temperature: Arrhenius (von Caemmerer 2021 J Exp Bot 72:6003) for Vcmax (78.0 kJ mol-1), Vpmax (50.1;
 also used for Vpr, a decision here), Rd (66.4), Kp (38.3) and the Rubisco constants (``rubisco``),
 Gaussian Jmax (To 43 °C, Ω 26 °C, normalised at 25 °C); gbs and x constant.
@@ -44,14 +46,19 @@ from .c3 import electron_transport_rate, non_rectangular_hyperbola
 from .rubisco import STANDARD_PRESSURE_KPA, effective_michaelis_constant, rubisco_constants
 from .temperature import arrhenius, gaussian_response, q10_response, where
 
-CAEMMERER_2021_C4 = {
-    "kp25_pa": 82e-6 * 1e5,
-    "kp_activation_energy": 38300.0,
+PEPC_KINETICS = {
+    "caemmerer2000_c4": {"kp25_pa": 80e-6 * 1e5, "kp_activation_energy": 38300.0},
+    "caemmerer2021_c4": {"kp25_pa": 82e-6 * 1e5, "kp_activation_energy": 38300.0},
+}
+"""PEP carboxylase Kp [Pa] at 25 °C (von Caemmerer 2000 Table 4.1: 80 µbar; 2021 Table 1: 82 µbar) and its
+activation energy [J mol-1] (von Caemmerer 2021), keyed by the ``kinetics`` name of the vc2000 set."""
+
+CAEMMERER_2021_ACTIVATION = {
     "vcmax_activation_energy": 78000.0,
     "vpmax_activation_energy": 50100.0,
     "rd_activation_energy": 66400.0,
 }
-"""C4-cycle constants of von Caemmerer (2021), Table 1: Kp 82 µbar; activation energies [J mol-1]."""
+"""Activation energies [J mol-1] of the C4 capacities, von Caemmerer (2021) Table 1."""
 
 
 class C4Rates(NamedTuple):
@@ -113,9 +120,10 @@ def caemmerer_c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capac
     params : resolved C4 mapping with ``model == "vc2000"``
     capacity_scale : factor on Vcmax and Vpmax (non-stomatal water stress) [-]
     """
-    constants = CAEMMERER_2021_C4
-    kc, ko, gamma_star = rubisco_constants("caemmerer2021_c4", temperature_c, o2_pa)  # γ* Om, in Pa
-    kp = constants["kp25_pa"] * arrhenius(temperature_c, constants["kp_activation_energy"])
+    constants = CAEMMERER_2021_ACTIVATION
+    kc, ko, gamma_star = rubisco_constants(params["kinetics"], temperature_c, o2_pa)  # Γ* = γ* Om, in Pa
+    pepc = PEPC_KINETICS[params["kinetics"]]
+    kp = pepc["kp25_pa"] * arrhenius(temperature_c, pepc["kp_activation_energy"])
     vcmax = params["vcmax25"] * capacity_scale * arrhenius(temperature_c, constants["vcmax_activation_energy"])
     vp_factor = arrhenius(temperature_c, constants["vpmax_activation_energy"])
     vpmax = params["vpmax25"] * capacity_scale * vp_factor

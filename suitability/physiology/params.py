@@ -46,8 +46,9 @@ Collatz et al. (1992) Aust J Plant Physiol 19:519: ``vmax25``, ``alpha``, ``k25`
 ``theta``, ``beta``, ``rd25``, ``q10`` (of Vmax, k and Rd; 2.0 as printed in the equations [P form]),
 ``low_temperature_c``/``high_temperature_c`` (13 and 36 °C of the Vmax inhibition terms) and
 ``respiration_high_temperature_c`` (55 °C).
-von Caemmerer (2000), ch. 4: ``vcmax25``, ``vpmax25``, ``vpr25``, ``jmax25``, ``rd25`` (None = 0.01
-vcmax25 [M]), ``rm_fraction`` (Rm/Rd, 0.5), ``gbs`` [mol m-2 s-1 bar-1], ``x`` (share of J for the C4
+von Caemmerer (2000), ch. 4: ``kinetics`` ("caemmerer2000_c4": Table 4.1 25 °C constants, default;
+"caemmerer2021_c4": von Caemmerer 2021 constants, which make the model more O2-sensitive),
+``vcmax25``, ``vpmax25``, ``vpr25``, ``jmax25``, ``rd25`` (None = 0.01 vcmax25 [M]), ``rm_fraction`` (Rm/Rd, 0.5), ``gbs`` [mol m-2 s-1 bar-1], ``x`` (share of J for the C4
 cycle), ``theta``, ``spectral_correction``, ``jmax_optimum_c``, ``jmax_width_c``.
 
 Resolution
@@ -135,10 +136,11 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
         "vc2000": {
             "source": (
                 "von Caemmerer (2000) Biochemical models of leaf photosynthesis, ch. 4 (enzyme- and light-"
-                "limited C4 model, Table 4.1 example leaf, gbs, x, Rm = 0.5 Rd); temperature responses and "
-                "25 °C kinetic constants of von Caemmerer (2021) J Exp Bot 72:6003; f shared with the C3 set"
+                "limited C4 model, Table 4.1 example leaf, kinetic constants, gbs, x, Rm = 0.5 Rd); temperature "
+                "responses of von Caemmerer (2021) J Exp Bot 72:6003; f shared with the C3 set"
             ),
             "model": "vc2000",
+            "kinetics": "caemmerer2000_c4",
             "vcmax25": 60.0,
             "vpmax25": 120.0,
             "vpr25": 80.0,
@@ -163,7 +165,7 @@ DEFAULT_SETS = {"C3": "bernacchi2001", "C4": "collatz1992"}
 
 _CHOICES = {
     "model": ("fvcb", "collatz1992", "vc2000"),
-    "kinetics": ("bernacchi2001", "collatz1991"),
+    "kinetics": ("bernacchi2001", "collatz1991", "caemmerer2000_c4", "caemmerer2021_c4"),
     "vcmax_temperature_response": ("peaked", "arrhenius", "collatz1991"),
     "stomatal_model": ("medlyn", "fixed"),
 }
@@ -220,6 +222,10 @@ def _derive(pathway: str, merged: dict) -> dict:
             merged["tpu25"] = math.inf
     elif merged["model"] == "vc2000" and merged["rd25"] is None:
         merged["rd25"] = 0.01 * merged["vcmax25"]
+    c3_kinetics = merged.get("kinetics") in ("bernacchi2001", "collatz1991")
+    if "kinetics" in merged and c3_kinetics != (pathway == "C3"):
+        valid = "bernacchi2001, collatz1991" if pathway == "C3" else "caemmerer2000_c4, caemmerer2021_c4"
+        raise ValueError(f"{pathway} parameter 'kinetics' = {merged['kinetics']!r}; valid: {valid}")
     if pathway == "C3" and merged["model"] != "fvcb":
         raise ValueError(f"C3 parameter 'model' = {merged['model']!r}; valid: fvcb")
     if pathway == "C4" and merged["model"] not in ("collatz1992", "vc2000"):

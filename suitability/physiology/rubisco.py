@@ -24,6 +24,9 @@ Kinetic sets (``KINETIC_SETS``)
   mmol mol-1 (36.38), Γ* 42.75 µmol mol-1 (37.83) at O = 210 mmol mol-1.
 - ``"collatz1991"``: Collatz et al. (1991) Agric For Meteorol 54:107 (doi:10.1016/0168-1923(91)90002-8),
   Q10 form: Kc 30 Pa (Q10 2.1), Ko 30 kPa (Q10 1.2), τ 2600 (Q10 0.57), Γ* = O/(2τ).
+- ``"caemmerer2000_c4"``: bundle-sheath Rubisco of C4 leaves, 25 °C values of von Caemmerer (2000)
+  Biochemical models of leaf photosynthesis, Table 4.1: Kc 650 µbar, Ko 450 mbar, γ* 0.000193, with the
+  activation energies of von Caemmerer (2021) below.
 - ``"caemmerer2021_c4"``: bundle-sheath Rubisco of C4 leaves for the von Caemmerer (2000) model, 25 °C
   values and activation energies from von Caemmerer (2021) J Exp Bot 72:6003 (doi:10.1093/jxb/erab266):
   Kc 1210 µbar (64.2 kJ mol-1), Ko 292 mbar (10.5), γ* = 0.5/1310 (31.1), Γ* = γ* O.
@@ -59,6 +62,16 @@ KINETIC_SETS = {
         "tau25": 2600.0,
         "tau_q10": 0.57,
         "source": "Collatz et al. (1991) Agric For Meteorol 54:107, Table A1",
+    },
+    "caemmerer2000_c4": {
+        "form": "arrhenius_gamma",
+        "kc25_pa": 650e-6 * 1e5,
+        "kc_activation_energy": 64200.0,
+        "ko25_pa": 450e-3 * 1e5,
+        "ko_activation_energy": 10500.0,
+        "gamma25": 0.000193,
+        "gamma_activation_energy": 31100.0,
+        "source": "von Caemmerer (2000) Table 4.1 values at 25 °C; activation energies of von Caemmerer (2021)",
     },
     "caemmerer2021_c4": {
         "form": "arrhenius_gamma",
