@@ -68,6 +68,8 @@ def _sanitise(inputs):
     """
     masks, clean = [], []
     for value, lower, lower_inclusive, upper, upper_inclusive, default in inputs:
+        if isinstance(value, (list, tuple)):
+            value = np.asarray(value, dtype=float)
         ok = (value >= lower if lower_inclusive else value > lower) & (
             value <= upper if upper_inclusive else value < upper
         )
