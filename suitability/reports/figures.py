@@ -147,11 +147,6 @@ def _map_axes(figure: Figure, raster: _MapRaster, title: str):
     axes.set_yticks([])
     for spine in axes.spines.values():
         spine.set_edgecolor("#BBBBBB")
-    if raster.crs.is_geographic:
-        # Equal ground distances on both axes at the map centre.
-        axes.set_aspect(1.0 / max(math.cos(math.radians(raster.mid_latitude)), 1e-6))
-    else:
-        axes.set_aspect("equal")
     axes.set_title(title, loc="left", fontsize=10, color=_INK, pad=6)
     return axes
 
@@ -174,6 +169,14 @@ def _draw_districts(axes, zones: gpd.GeoDataFrame | None, raster: _MapRaster) ->
     axes.set_ylim(bottom, top)
     axes.set_xlabel("")  # geopandas labels the axes with the CRS's axis names; the frame is enough
     axes.set_ylabel("")
+
+
+def _set_ground_aspect(axes, raster: _MapRaster) -> None:
+    """Equal ground distances along both axes at the map centre. Set last: imshow and geopandas reset it."""
+    if raster.crs.is_geographic:
+        axes.set_aspect(1.0 / max(math.cos(math.radians(raster.mid_latitude)), 1e-6))
+    else:
+        axes.set_aspect("equal")
 
 
 def _draw_scale_bar(axes, raster: _MapRaster) -> float:
@@ -219,6 +222,7 @@ def class_map_figure(class_path, zones: gpd.GeoDataFrame | None = None, *, title
     axes.imshow(_class_rgba(raster.values), extent=raster.extent, interpolation="nearest", origin="upper")
     _draw_districts(axes, zones, raster)
     _draw_scale_bar(axes, raster)
+    _set_ground_aspect(axes, raster)
     handles = [Patch(facecolor=CLASS_COLOURS[c], edgecolor="#999999", label=CLASS_LABELS[c]) for c in CLASS_COLOURS]
     handles.append(Patch(facecolor=NODATA_COLOUR, edgecolor="#999999", label="no data"))
     figure.legend(handles=handles, loc="lower center", ncol=2, frameon=False, fontsize=8,
@@ -244,6 +248,7 @@ def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, tit
                         cmap=CHANGE_COLORMAP, norm=mcolors.TwoSlopeNorm(0.0, -limit, limit))
     _draw_districts(axes, zones, raster)
     _draw_scale_bar(axes, raster)
+    _set_ground_aspect(axes, raster)
     bar_axes = figure.add_axes((0.15, 0.10, 0.7, 0.03))
     bar = figure.colorbar(image, cax=bar_axes, orientation="horizontal")
     bar.set_label("\u2190 towards C3      change of the advantage      towards C4 \u2192", fontsize=8, color=_INK)

@@ -1,0 +1,212 @@
+"""Figures: scale bars, colours, layout and the data each chart draws.
+
+All rasters and districts here are SYNTHETIC, made up for these tests; the district names are invented.
+Sources are named beside each check.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+from types import SimpleNamespace
+
+import colorspacious
+import geopandas as gpd
+import numpy as np
+import pandas as pd
+import pyproj
+import pytest
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.patches import Rectangle
+from PIL import Image
+from rasterio.transform import from_origin
+from shapely.geometry import box
+
+from suitability.reports import figures
+from suitability.variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NODATA
+
+from . import write_raster
+
+GEOD = pyproj.Geod(ellps="WGS84")
+
+
+def _rgb(figure) -> np.ndarray:
+    canvas = FigureCanvasAgg(figure)
+    canvas.draw()
+    return np.asarray(canvas.buffer_rgba())[..., :3]
+
+
+def _hex_rgb(colour: str) -> np.ndarray:
+    return np.array([int(colour[i:i + 2], 16) for i in (1, 3, 5)], dtype=np.uint8)
+
+
+def _three_band_classes(height=40, width=60):
+    """Columns 0-19 C3, 20-39 contested, 40-59 C4; a nodata block in the top-left corner."""
+    classes = np.full((height, width), CLASS_C4, dtype=np.uint8)
+    classes[:, :20] = CLASS_C3
+    classes[:, 20:40] = CLASS_CONTESTED
+    classes[:5, :5] = CLASS_NODATA
+    return classes
+
+
+# --- scale-bar geometry ----------------------------------------------------------------------------------
+
+@pytest.mark.parametrize("latitude", [0.0, -24.0, 45.0, 60.0])
+def test_metres_per_degree_longitude_matches_geod(latitude):
+    # pyproj.Geod (Karney 2013) distance over 0.001 degree of longitude, scaled to one degree; over so short
+    # a step the geodesic and the parallel differ by far less than 1e-9.
+    distance = GEOD.inv(56.0, latitude, 56.001, latitude)[2] * 1000
+    assert figures.metres_per_degree_longitude(latitude) == pytest.approx(distance, rel=1e-7)
+
+
+def test_metres_per_degree_at_equator():
+    # Hand derivation: at the equator a degree of longitude is pi/180 * a = 111319.49 m for WGS84's a.
+    assert figures.metres_per_degree_longitude(0.0) == pytest.approx(math.pi / 180 * 6378137.0, rel=1e-12)
+
+
+@pytest.mark.parametrize("longest, expected", [(37_000, 20_000), (50_000, 50_000), (9.99, 5), (1000, 1000),
+                                               (199, 100), (0.3, 0.2)])
+def test_nice_scale_length(longest, expected):
+    # Derived here from the definition: the largest 1, 2 or 5 x 10^k not longer than the given length.
+    assert figures.nice_scale_length(longest) == pytest.approx(expected)
+
+
+def _scale_bar_width(figure) -> float:
+    axes = figure.axes[0]
+    return sum(p.get_width() for p in axes.patches if isinstance(p, Rectangle) and p.get_zorder() == 5)
+
+
+def test_class_map_projected_scale_bar_colours_and_labels(tmp_path):
+    # Grid of 60 x 40 cells of 1 km in UTM: 60 km wide; a quarter is 15 km -> the scale bar shows 10 km
+    # (hand derivation from nice_scale_length's rule) and is 10 000 m long in map units.
+    path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    zones = gpd.GeoDataFrame({"district": ["Orvanne", "Telmira"]},
+                             geometry=[box(302000, 7362000, 330000, 7398000), box(330000, 7362000, 358000, 7398000)],
+                             crs="EPSG:32740").to_crs("EPSG:4326")  # another CRS: the map reprojects them
+    figure = figures.class_map_figure(path, zones, title="baseline")
+    texts = [t.get_text() for t in figure.axes[0].texts]
+    assert "10 km" in texts
+    assert _scale_bar_width(figure) == pytest.approx(10_000, rel=1e-9)
+    assert "Orvanne" in texts and "Telmira" in texts
+    image = _rgb(figure)
+    # Derived from the synthetic layout: the three class colours are all drawn, C3 left of contested left
+    # of C4 (mean column of the pixels of each colour).
+    centres = []
+    for code in (CLASS_C3, CLASS_CONTESTED, CLASS_C4):
+        match = np.all(image == _hex_rgb(figures.CLASS_COLOURS[code]), axis=-1)
+        assert match.sum() > 1000, f"class {code} colour not drawn"
+        centres.append(np.nonzero(match)[1].mean())
+    assert centres[0] < centres[1] < centres[2]
+
+
+def test_class_map_geographic_scale_bar_from_latitude(tmp_path):
+    # 1 degree wide, centred on 24.5 S. pyproj.Geod gives the length of a degree along that parallel; a
+    # quarter of the width is about 25 km -> a 20 km bar, whose width in degrees is 20 km / that length.
+    path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(40, 100), "EPSG:4326",
+                        from_origin(56.0, -24.3, 0.01, 0.01))
+    figure = figures.class_map_figure(path, None)
+    degree_m = GEOD.inv(56.0, -24.5, 56.001, -24.5)[2] * 1000
+    assert "20 km" in [t.get_text() for t in figure.axes[0].texts]
+    assert _scale_bar_width(figure) == pytest.approx(20_000 / degree_m, rel=1e-6)
+    # Equal ground distances on both axes: the aspect is 1 / cos(latitude) (hand derivation, sphere)
+    assert figure.axes[0].get_aspect() == pytest.approx(1 / math.cos(math.radians(24.5)), rel=1e-9)
+
+
+def test_change_map_is_diverging_and_centred(tmp_path):
+    change = np.linspace(-0.12, 0.31, 60)[None, :].repeat(30, axis=0)
+    path = write_raster(tmp_path / "advantage_change.tif", change, "EPSG:32740", from_origin(0, 30000, 1000, 1000))
+    figure = figures.change_map_figure(path, None)
+    image = figure.axes[0].images[0]
+    # Derived here: the largest |change| 0.31 rounds up to 0.35, the scale is symmetric about 0.
+    assert image.norm.vmin == pytest.approx(-0.35) and image.norm.vmax == pytest.approx(0.35)
+    assert image.norm(0.0) == pytest.approx(0.5)
+    assert image.get_cmap().name == figures.CHANGE_COLORMAP
+
+
+def test_class_colours_stay_distinct_for_colour_blind_readers():
+    # Independent library colorspacious: CVD simulation (Machado et al. 2009) at full severity, distances in
+    # CAM02-UCS (Luo et al. 2006). A distance of 20 or more counts as clearly distinct (common practice,
+    # no source).
+    colours = {code: _hex_rgb(c) / 255 for code, c in figures.CLASS_COLOURS.items()}
+    assert set(colours) == {CLASS_C3, CLASS_CONTESTED, CLASS_C4}
+    for deficiency in ("deuteranomaly", "protanomaly", "tritanomaly"):
+        space = {"name": "sRGB1+CVD", "cvd_type": deficiency, "severity": 100}
+        seen = {code: np.clip(colorspacious.cspace_convert(rgb, space, "sRGB1"), 0, 1) for code, rgb in colours.items()}
+        for a in seen:
+            for b in seen:
+                if a < b:
+                    assert colorspacious.deltaE(seen[a], seen[b], input_space="sRGB1") >= 20, (deficiency, a, b)
+
+
+# --- charts ----------------------------------------------------------------------------------------------
+
+def _table():
+    rows = []
+    for district, base, warm in (("Orvanne", (0.6, 0.3, 0.1), (0.2, 0.3, 0.5)), ("Telmira", (0.1, 0.1, 0.8), (0.0, 0.05, 0.95))):
+        for scenario, shares in (("baseline", base), ("warmer", warm)):
+            rows.append({"district": district, "scenario": scenario, "share_c3": shares[0],
+                         "share_contested": shares[1], "share_c4": shares[2]})
+    rows.append({"district": "Far Reach", "scenario": "baseline", "share_c3": np.nan, "share_contested": np.nan,
+                 "share_c4": np.nan})
+    return pd.DataFrame(rows)
+
+
+def test_class_share_chart_draws_the_table():
+    table = _table()
+    shares = figures.class_share_table(table)
+    # Plumbing against the input table: percent = 100 * share, districts without data left out.
+    assert list(zip(shares["district"], shares["scenario"])) == [
+        ("Orvanne", "baseline"), ("Orvanne", "warmer"), ("Telmira", "baseline"), ("Telmira", "warmer")]
+    assert shares["C4 favoured"].tolist() == pytest.approx([10, 50, 80, 95])
+    figure = figures.class_share_figure(table)
+    bars = [p for p in figure.axes[0].patches if isinstance(p, Rectangle)]
+    assert len(bars) == 4 * 3
+    # Each district-scenario bar stack adds up to 100 % (the shares of one row sum to 1 by construction).
+    ends = {}
+    for bar in bars:
+        y = round(bar.get_y() + bar.get_height() / 2, 6)
+        ends[y] = max(ends.get(y, 0), bar.get_x() + bar.get_width())
+    assert list(ends.values()) == pytest.approx([100.0] * 4)
+
+
+def test_crossover_chart_plots_the_function_and_the_scenarios():
+    def linear(co2, o2_percent):  # a stand-in with a known shape: 12 degC + 0.025 degC per ppm
+        return 12 + 0.025 * np.asarray(co2)
+
+    scenarios = [SimpleNamespace(name="baseline", co2_ppm=420, temperature_offset_c=0.0),
+                 SimpleNamespace(name="hot", co2_ppm=700, temperature_offset_c=3.0)]
+    figure = figures.crossover_figure(23.5, scenarios, crossover=linear)
+    lines = {line.get_gid(): line for line in figure.axes[0].lines}
+    co2 = lines["crossover"].get_xdata()
+    assert co2[0] == 250 and co2[-1] == 1000  # the brief's CO2 range
+    assert lines["crossover"].get_ydata() == pytest.approx(linear(co2, 20.95))
+    assert set(lines["warm_season"].get_ydata()) == {23.5}
+    assert lines["scenario:hot"].get_xdata()[0] == 700
+    assert lines["scenario:hot"].get_ydata()[0] == pytest.approx(26.5)  # hand: 23.5 + 3.0
+
+
+def test_crossover_chart_with_the_physiology_function():
+    physiology = pytest.importorskip("suitability.physiology")
+    if not hasattr(physiology, "crossover_temperature"):
+        pytest.skip("suitability.physiology.crossover_temperature is not available yet")
+    figure = figures.crossover_figure(23.5, [])
+    line = next(line for line in figure.axes[0].lines if line.get_gid() == "crossover")
+    co2, temperature = line.get_xdata(), line.get_ydata()
+    finite = np.isfinite(temperature)
+    # Ehleringer, Cerling & Helliker (1997): the crossover temperature rises with CO2.
+    assert np.all(np.diff(temperature[finite]) > 0)
+    # Collatz, Berry & Clark (1998): about 22 degC near 350 ppm (band 20-24 degC).
+    assert 20 <= np.interp(350, co2[finite], temperature[finite]) <= 24
+
+
+def test_png_bytes_are_a_real_non_blank_image(tmp_path):
+    path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    data = figures.class_map_png(path, None, dpi=80)
+    image = np.asarray(Image.open(io.BytesIO(data)).convert("L"), dtype=float)  # Pillow decodes it
+    assert image.shape[0] > 200 and image.shape[1] > 200
+    assert image.std() > 10  # not a blank page
+    saved = figures.save_png(data, tmp_path / "map.png")
+    assert saved.read_bytes() == data
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["map.png", "pathway_class.tif"]
