@@ -183,8 +183,9 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
     cog_options: CogOptions, a mapping or the config's ``output.cog`` object.
     lock: None (a lock per file, chosen for the active scheduler), one lock shared by all files, or a
         callable ``name -> lock``.
-    Returns name -> final path. Raises OutputError (naming the file or folder) on any failure, leaving no
-    ``<name>.tif`` of this call and no temporary file behind.
+    Returns name -> final path. An existing ``<name>.tif`` is replaced (call :func:`check_output_folder`
+    first to refuse that). Raises OutputError (naming the file or folder) on any failure, leaving no
+    ``<name>.tif`` of this call (earlier files untouched) and no temporary file behind.
     """
     import dask.array as da
 
@@ -325,7 +326,9 @@ def _common_grid(layers: Mapping[str, xr.DataArray], folder: Path) -> _Grid:
         if grid is None:
             grid = this
         elif this != grid or not (np.array_equal(layer.x, first.x) and np.array_equal(layer.y, first.y)):
-            raise OutputError(f"{where}: layer {name!r} is not on the grid of {first_name!r} (CRS, transform or coords differ)")
+            raise OutputError(
+                f"{where}: layer {name!r} is not on the grid of {first_name!r} (CRS, transform or coords differ)"
+            )
     return grid
 
 
@@ -427,7 +430,9 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
 
 
 def _tag_text(value: Any) -> str:
-    return value if isinstance(value, str) else json.dumps(_json_ready(value)) if isinstance(value, (dict, list, tuple)) else str(value)
+    if isinstance(value, str):
+        return value
+    return json.dumps(_json_ready(value)) if isinstance(value, (dict, list, tuple)) else str(value)
 
 
 def _netcdf_attribute(value: Any):

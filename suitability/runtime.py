@@ -7,8 +7,8 @@ yields a :class:`Runtime`; everything computed inside the ``with`` block runs th
 - ``processes`` / ``local-cluster``: a ``distributed.LocalCluster`` of ``workers`` worker processes
   (``threads_per_worker`` threads each, default 1; ``memory_limit`` per worker, default dask's "auto"),
   with a Client; both are closed on exit.
-- ``tcp://host:port``: a Client connected to an already running scheduler; only the client is closed on
-  exit. Its workers must see the output folder under the same path (a shared filesystem).
+- ``tcp://host:port`` (or ``tls://``): a Client connected to an already running scheduler; only the
+  client is closed on exit. Its workers must see the output folder under the same path (a shared filesystem).
 
 GDAL's raster block cache defaults to 5 % of RAM *per process*; with several worker processes that adds
 up, so every process gets a limit of :data:`GDAL_CACHE_MB` (256 MB: a few hundred 512 x 512 float32
@@ -119,7 +119,7 @@ def compute_context(compute_config: Any = None, *, progress: bool = False) -> It
             env={} if "GDAL_CACHEMAX" in os.environ else {"GDAL_CACHEMAX": str(GDAL_CACHE_MB)},
         ) as cluster, Client(cluster, set_as_default=True) as client:
             yield Runtime("local-cluster", client, workers, chunk_size, progress, cluster.scheduler_address)
-    elif scheduler.startswith("tcp://"):
+    elif scheduler.startswith(("tcp://", "tls://")):
         from distributed import Client
 
         try:
@@ -176,8 +176,8 @@ def compute(*collections):
 
     Locally this is ``dask.compute`` (a :func:`progress` bar counts tasks through a dask callback). With a
     distributed client the collections are persisted together (so a graph they share runs once), each
-    block's future is awaited as it completes to advance the active bar, the first failure cancels the
-    rest and is raised, and the results are gathered.
+    output block's future (one per chunk of an array, one per Delayed) is awaited as it completes to
+    advance the active bar, the first failure cancels the rest and is raised, and the results are gathered.
     """
     client = active_client()
     if client is None:

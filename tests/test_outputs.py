@@ -302,7 +302,8 @@ def test_bad_layers_are_refused_with_the_file_named(tmp_path):
     good = example_layers()["pathway_advantage"]
     with pytest.raises(OutputError, match="not an output layer"):
         write_layers({"rainfall": good}, tmp_path, tags=TAGS, cog_options=None)
-    no_crs = xr.DataArray(np.zeros((4, 4), np.float32), dims=("y", "x"), coords={"y": np.arange(4.0), "x": np.arange(4.0)})
+    no_crs = xr.DataArray(np.zeros((4, 4), np.float32), dims=("y", "x"),
+                          coords={"y": np.arange(4.0), "x": np.arange(4.0)})
     with pytest.raises(OutputError, match=r"c3_assimilation\.tif.*no CRS"):
         write_layers({"c3_assimilation": no_crs}, tmp_path, tags=TAGS, cog_options=None)
     shifted = good.assign_coords(x=good.x + 1000.0).rio.write_transform(TRANSFORM @ Affine.translation(1, 0))
@@ -375,11 +376,12 @@ def test_datacube_is_cf_netcdf_with_the_grid(tmp_path):
     import netCDF4
     import pyproj
 
+    template = on_grid(np.zeros((HEIGHT, WIDTH), np.float32))
     monthly = da.random.default_rng(6).random((12, HEIGHT, WIDTH), chunks=(12, 512, 512)).astype(np.float32)
     cube = xr.Dataset(
         {"c3_monthly_assimilation": (("month", "y", "x"), monthly, {"long_name": "monthly C3", "units": "g m-2"}),
          "c4_monthly_assimilation": (("month", "y", "x"), monthly * 2, {"long_name": "monthly C4", "units": "g m-2"})},
-        coords={"month": np.arange(1, 13), "y": on_grid(np.zeros((HEIGHT, WIDTH))).y, "x": on_grid(np.zeros((HEIGHT, WIDTH))).x},
+        coords={"month": np.arange(1, 13), "y": template.y, "x": template.x},
         attrs={"scenario": "co2_only", "co2_ppm": 700.0},
     ).rio.write_crs(CRS).rio.write_transform(TRANSFORM)
     path = write_datacube(cube, tmp_path / "monthly_assimilation.nc")

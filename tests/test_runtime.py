@@ -60,6 +60,18 @@ def test_a_users_gdal_cachemax_is_respected(monkeypatch):
     assert os.environ["GDAL_CACHEMAX"] == "64"
 
 
+def test_the_config_models_are_accepted():
+    # the pydantic models of suitability.config carry the attributes this module reads
+    from suitability.config import CogConfig, ComputeConfig
+    from suitability.outputs import CogOptions
+
+    with compute_context(ComputeConfig(scheduler="threads", workers=2, chunk_size=1024)) as rt:
+        assert dask.config.get("num_workers") == 2 and rt.chunk_size == 1024
+    options = CogOptions.from_any(CogConfig(compression="zstd", level=12, overviews=False))
+    assert options.creation_options("float32")["zstd_level"] == 12 and options.overviews is False
+    assert options.creation_options("uint8")["predictor"] == 2  # TIFF TN3: horizontal differencing for integers
+
+
 def test_missing_attributes_take_defaults():
     with compute_context(object()) as rt:
         assert rt.scheduler == "threads" and rt.chunk_size == 512 and rt.workers == (os.cpu_count() or 1)
@@ -126,6 +138,7 @@ def test_local_cluster_has_the_requested_workers(cluster_runtime):
 
     assert isinstance(rt.write_lock("co2_only"), Lock)
     assert runtime.active_client() is rt.client
+    assert isinstance(write_lock("co2_only-pathway_class"), Lock)  # chosen from the active client
 
 
 def test_local_cluster_compute_matches_numpy_and_drives_the_bar(cluster_runtime):
@@ -155,7 +168,8 @@ def test_local_cluster_compute_raises_the_task_error(cluster_runtime):
 
 
 def test_cluster_is_closed_on_exit():
-    with compute_context(settings(scheduler="local-cluster", workers=1, threads_per_worker=1, memory_limit="512MiB")) as rt:
+    small = settings(scheduler="local-cluster", workers=1, threads_per_worker=1, memory_limit="512MiB")
+    with compute_context(small) as rt:
         client = rt.client
     assert client.status == "closed"
     assert runtime.active_client() is not client
