@@ -125,7 +125,8 @@ def sunset_hour_angle(latitude_deg, declination_rad):
     """
     valid = in_range(latitude_deg, -90.0, 90.0)
     phi = np.deg2rad(where_valid(valid, latitude_deg, 0.0))
-    omega = np.arccos(np.clip(-np.tan(phi) * np.tan(declination_rad), -1.0, 1.0))
+    # np.minimum/np.maximum rather than np.clip: they are ufuncs, which xarray and dask keep lazy.
+    omega = np.arccos(np.minimum(np.maximum(-np.tan(phi) * np.tan(declination_rad), -1.0), 1.0))
     return where_valid(valid, omega)
 
 
@@ -300,7 +301,7 @@ def diffuse_fraction_instantaneous(clearness, sin_elevation):
     memory, matching published transcriptions).
     """
     tau = clearness
-    s = np.clip(sin_elevation, 0.0, 1.0)
+    s = np.minimum(np.maximum(sin_elevation, 0.0), 1.0)
     clear_limit = 0.847 - 1.61 * s + 1.04 * s * s
     knee = (1.47 - clear_limit) / 1.66
     fraction = where_valid(tau < 0.22, 1.0,

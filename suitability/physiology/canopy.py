@@ -1,0 +1,295 @@
+"""Daily canopy assimilation of a sun/shade canopy on a representative day.
+
+The leaf model (:func:`suitability.physiology.leaf.leaf_assimilation`) is run for the sunlit and the
+shaded leaves (de Pury & Farquhar 1997) at a few moments of the day and integrated over time with
+Gauss-Legendre quadrature (Goudriaan 1986, Agric For Meteorol 38:249-254; Goudriaan & van Laar 1994,
+Modelling Potential Crop Growth Processes, Kluwer).
+
+Choices made here, each documented where it is used:
+
+* Time: daylight (sunrise to sunset, FAO-56 eqs. 24, 25, 34) is integrated with
+  :data:`DAY_GAUSS_POINTS` = 14 Gauss-Legendre points, the night with :data:`NIGHT_GAUSS_POINTS` = 3.
+  The leaf models switch between limitations with a min() (a kink in time where sunlit leaves pass from
+  light to Rubisco limitation), so Gaussian quadrature converges only as about 1/n² here, not as fast
+  as for smooth integrands: over 1000 realistic days (Tmin 0-25, Tmax 10-40 °C, 5-30 MJ m-2 d-1,
+  latitudes ±40°, LAI 0.5-6, with and without water stress and elevation up to 3000 m) the largest
+  difference in daily gross assimilation from a 96-step integration of the same model was 1.1 % with
+  9 points, 0.9 % with 12 and 0.32 % with 14, for all four parameter sets (0.5 % is the target;
+  tests/physiology/test_canopy.py checks it). Goudriaan's (1986) three points per half day are far
+  cheaper but a few per cent off with these leaf models. Three points suffice at night, where only
+  the smooth temperature course varies.
+* Radiation: the daily total is spread as sin β (1 + 0.4 sin β); the daily diffuse total, from the daily
+  clearness Sg/Ra (Spitters et al. 1986 eq. 2), is spread as sin β, i.e. as a fixed share of the
+  extraterrestrial flux, and capped at the global flux (Spitters et al. 1986; Goudriaan & van Laar
+  1994). Both courses are smooth in time, which suits the quadrature better than applying an
+  instantaneous diffuse relation to a synthetic course. PAR is 0.5 of shortwave at 4.57 µmol J-1 and
+  has the diffuse share of shortwave (see :mod:`.light`).
+* Temperature: T(t) = (Tmax + Tmin)/2 + (Tmax − Tmin)/2 · cos(2π (t − 14) / 24), peaking at 14:00
+  solar time (common practice, no source; the same cosine is used by Goudriaan & van Laar 1994,
+  from memory). It is smooth, so day and night quadratures both integrate it well.
+* Humidity: VPD is ``vpd_kpa`` when given (held for the whole day), else e°(T(t)) − ea with ea given or
+  taken as e°(Tmin) (FAO-56 eq. 48).
+* Leaf capacity does not decline through the canopy: sunlit and shaded leaves share the same parameters
+  and differ only in absorbed PAR. This over-states the capacity of deep shaded leaves compared with a
+  nitrogen profile (de Pury & Farquhar 1997 scale Vcmax with kn ≈ 0.7), mainly for LAI > 4; it is a
+  potential-assimilation estimate for both pathways alike.
+* Night: every leaf is dark; the leaf model with zero absorbed PAR gives −Rd at the night temperature,
+  so night respiration of the whole canopy (LAI × Rd(T(t))) enters the daily net through the night
+  quadrature. Gross and photorespiration are zero at night.
+* Air pressure from elevation (FAO-56 eq. 7) sets the partial pressures inside the leaf model.
+
+Everything is elementwise with a fixed small Python loop over quadrature points, so scalars, numpy,
+xarray and dask inputs all work and dask stays lazy. Invalid elements give NaN.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from .atmosphere import (
+    actual_vapour_pressure_from_tmin,
+    air_pressure_from_elevation,
+    in_range,
+    vapour_pressure_deficit,
+    where_valid,
+)
+from .leaf import leaf_assimilation
+from .light import (
+    day_length,
+    daylight_integral_of_sin_elevation,
+    diffuse_fraction_daily,
+    extraterrestrial_radiation,
+    par_from_shortwave,
+    shortwave_daily_course,
+    sin_solar_elevation,
+    solar_declination,
+    sun_shade_absorbed_par,
+)
+from .params import resolve_params
+
+#: Gauss-Legendre points over the daylight period (see the module docstring for the accuracy).
+DAY_GAUSS_POINTS = 14
+#: Gauss-Legendre points over the night.
+NIGHT_GAUSS_POINTS = 3
+#: Solar hour of the daily maximum temperature [h] (common practice, no source).
+HOUR_OF_MAXIMUM_TEMPERATURE = 14.0
+#: Molar mass of carbon [g mol-1] (IUPAC standard atomic weight 12.011).
+CARBON_G_PER_MOL = 12.011
+
+_SECONDS_PER_HOUR = 3600.0
+_UMOL_CO2_TO_G_C = 1e-6 * CARBON_G_PER_MOL
+
+
+@dataclass(frozen=True)
+class CanopyAssimilation:
+    """Daily canopy CO2 exchange per ground area, as carbon mass.
+
+    Fields
+    ------
+    net : net canopy assimilation over 24 h, day minus night respiration [g C m-2 d-1].
+    gross : gross assimilation in daylight, as the leaf model defines it (net + day respiration)
+        [g C m-2 d-1].
+    photorespiration : CO2 released by photorespiration in daylight [g C m-2 d-1].
+    """
+
+    net: Any
+    gross: Any
+    photorespiration: Any
+
+
+def daily_temperature(tmin_c, tmax_c, solar_hour):
+    """Air temperature through the day, a cosine between Tmin and Tmax peaking at 14:00 solar time.
+
+    T(t) = (Tmax + Tmin)/2 + (Tmax − Tmin)/2 · cos(2π (t − 14) / 24)
+
+    Parameters
+    ----------
+    tmin_c, tmax_c : daily minimum and maximum air temperature [°C].
+    solar_hour : local apparent solar time [h].
+
+    Returns
+    -------
+    T(t) [°C].
+
+    Reference: common practice, no source (the form of Goudriaan & van Laar 1994, from memory).
+    """
+    phase = 2.0 * np.pi * (solar_hour - HOUR_OF_MAXIMUM_TEMPERATURE) / 24.0
+    return 0.5 * (tmax_c + tmin_c) + 0.5 * (tmax_c - tmin_c) * np.cos(phase)
+
+
+@dataclass(frozen=True)
+class _Day:
+    """Everything about the day and the place that does not change with the hour."""
+
+    pathway: str
+    tmin_c: Any
+    tmax_c: Any
+    shortwave_mj: Any
+    latitude_deg: Any
+    declination: Any
+    daylight_integral_s: Any
+    diffuse_shortwave_mj: Any
+    daylight_integral_sin_s: Any
+    day_length_h: Any
+    co2_ppm: Any
+    pressure_kpa: Any
+    vpd_kpa: Any
+    actual_vapour_pressure_kpa: Any
+    water_availability: Any
+    lai: Any
+    o2_percent: Any
+    params: Any
+
+
+def _leaf(day: _Day, temperature_c, absorbed_par):
+    vpd = day.vpd_kpa
+    if vpd is None:
+        vpd = vapour_pressure_deficit(temperature_c, day.actual_vapour_pressure_kpa)
+    return leaf_assimilation(day.pathway, temperature_c, absorbed_par, day.co2_ppm,
+                             o2_percent=day.o2_percent, pressure_kpa=day.pressure_kpa, vpd_kpa=vpd,
+                             water_availability=day.water_availability, params=day.params)
+
+
+def _canopy_rates(day: _Day, solar_hour):
+    """Net, gross and photorespiration of the canopy at one moment [µmol m-2 ground s-1]."""
+    sin_b = sin_solar_elevation(day.latitude_deg, day.declination, solar_hour)
+    shortwave_w = shortwave_daily_course(day.shortwave_mj, sin_b, day.daylight_integral_s)
+    diffuse_w = np.minimum(shortwave_daily_course(day.diffuse_shortwave_mj, sin_b, day.daylight_integral_sin_s,
+                                                  atmospheric_factor=0.0), shortwave_w)
+    par = par_from_shortwave(shortwave_w)
+    diffuse_par = par_from_shortwave(diffuse_w)
+    light = sun_shade_absorbed_par(par - diffuse_par, diffuse_par, day.lai, sin_b)
+    temperature = daily_temperature(day.tmin_c, day.tmax_c, solar_hour)
+    sun = _leaf(day, temperature, light.sunlit_absorbed_per_leaf)
+    shade = _leaf(day, temperature, light.shaded_absorbed_per_leaf)
+    return tuple(getattr(sun, name) * light.sunlit_lai + getattr(shade, name) * light.shaded_lai
+                 for name in ("net", "gross", "photorespiration"))
+
+
+def _dark_canopy_net(day: _Day, solar_hour):
+    """Net CO2 exchange of the canopy with every leaf dark [µmol m-2 ground s-1] (−LAI · Rd)."""
+    temperature = daily_temperature(day.tmin_c, day.tmax_c, solar_hour)
+    return _leaf(day, temperature, 0.0 * day.lai).net * day.lai
+
+
+def _prepare(pathway, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year, co2_ppm, elevation_m,
+             vpd_kpa, actual_vapour_pressure_kpa, water_availability, lai, o2_percent, params):
+    """Validate the inputs elementwise and compute the quantities that are fixed for the day."""
+    # Resolved once here (an unknown set or key raises ValueError before any work); the leaf model
+    # accepts the resolved mapping as it is.
+    params = resolve_params(pathway, params)
+    pressure = air_pressure_from_elevation(elevation_m)
+    valid = (np.isfinite(tmin_c) & np.isfinite(tmax_c) & (tmin_c <= tmax_c) & (shortwave_mj >= 0)
+             & in_range(latitude_deg, -90.0, 90.0) & in_range(day_of_year, 1, 366) & (lai >= 0)
+             & np.isfinite(pressure))
+    if actual_vapour_pressure_kpa is None:
+        actual_vapour_pressure_kpa = actual_vapour_pressure_from_tmin(tmin_c)
+    declination = solar_declination(day_of_year)
+    extraterrestrial = extraterrestrial_radiation(latitude_deg, day_of_year)
+    sun_rises = extraterrestrial > 0
+    clearness = where_valid(sun_rises, shortwave_mj / where_valid(sun_rises, extraterrestrial, 1.0), 0.0)
+    day = _Day(
+        pathway=pathway, tmin_c=tmin_c, tmax_c=tmax_c, shortwave_mj=shortwave_mj,
+        latitude_deg=latitude_deg, declination=declination,
+        daylight_integral_s=daylight_integral_of_sin_elevation(latitude_deg, declination),
+        diffuse_shortwave_mj=diffuse_fraction_daily(clearness) * shortwave_mj,
+        daylight_integral_sin_s=daylight_integral_of_sin_elevation(latitude_deg, declination,
+                                                                   atmospheric_factor=0.0),
+        day_length_h=day_length(latitude_deg, day_of_year), co2_ppm=co2_ppm, pressure_kpa=pressure,
+        vpd_kpa=vpd_kpa, actual_vapour_pressure_kpa=actual_vapour_pressure_kpa,
+        water_availability=water_availability, lai=lai, o2_percent=o2_percent, params=params)
+    return day, valid
+
+
+def _result(valid, net_umol, gross_umol, photorespiration_umol) -> CanopyAssimilation:
+    def to_carbon(total):
+        return where_valid(valid, total * _UMOL_CO2_TO_G_C)
+
+    return CanopyAssimilation(net=to_carbon(net_umol), gross=to_carbon(gross_umol),
+                              photorespiration=to_carbon(photorespiration_umol))
+
+
+def daily_canopy_assimilation(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year,
+                              co2_ppm, elevation_m=0.0, vpd_kpa=None, actual_vapour_pressure_kpa=None,
+                              water_availability=1.0, lai=3.0, o2_percent=20.95, params=None,
+                              day_gauss_points=DAY_GAUSS_POINTS) -> CanopyAssimilation:
+    """Daily canopy assimilation of a C3 or C4 canopy, by Gaussian integration over the day.
+
+    A_day = Σ_i w_i (N/2) A_canopy(t_i) + Σ_j v_j ((24 − N)/2) A_dark(s_j),  in µmol m-2 per hour·3600
+    A_canopy(t) = A_leaf(I_sun(t)) L_sun(t) + A_leaf(I_shade(t)) L_shade(t)
+
+    with Gauss-Legendre nodes t_i = 12 + (N/2) x_i over the daylight hours N (FAO-56 eq. 34) and
+    s_j = (24 − N)/2 · x_j around midnight; then µmol CO2 → g C (12.011 g mol-1).
+
+    Parameters
+    ----------
+    pathway : "C3" or "C4", passed to the leaf model.
+    tmin_c, tmax_c : daily minimum and maximum air temperature [°C]; Tmin > Tmax gives NaN.
+    shortwave_mj : daily global shortwave radiation [MJ m-2 d-1]; negative gives NaN.
+    latitude_deg : latitude [degrees north], −90..90.
+    day_of_year : representative day [day], 1-366 (e.g. the middle of the month).
+    co2_ppm : ambient CO2 mole fraction [µmol mol-1].
+    elevation_m : elevation [m], sets the air pressure (FAO-56 eq. 7).
+    vpd_kpa : daytime vapour pressure deficit [kPa]; if None, computed hourly from ea.
+    actual_vapour_pressure_kpa : actual vapour pressure ea [kPa]; if None, e°(Tmin) (FAO-56 eq. 48).
+    water_availability : 0 (none) .. 1 (well watered) [-], passed to the leaf model.
+    lai : leaf area index [m2 m-2]; negative gives NaN.
+    o2_percent : O2 mole fraction [%].
+    params : leaf parameters, as for :func:`suitability.physiology.params.resolve_params`.
+    day_gauss_points : Gauss-Legendre points over the daylight period [-]; fewer are faster and less
+        accurate (see the module docstring).
+
+    Returns
+    -------
+    :class:`CanopyAssimilation` with net, gross and photorespiration [g C m-2 d-1].
+
+    References: Goudriaan (1986); Goudriaan & van Laar (1994); de Pury & Farquhar (1997); Spitters et al.
+    (1986); Allen et al. (1998) FAO-56.
+    """
+    day, valid = _prepare(pathway, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year, co2_ppm,
+                          elevation_m, vpd_kpa, actual_vapour_pressure_kpa, water_availability, lai,
+                          o2_percent, params)
+    day_half_s = 0.5 * day.day_length_h * _SECONDS_PER_HOUR
+    night_half_s = 0.5 * (24.0 - day.day_length_h) * _SECONDS_PER_HOUR
+
+    net = gross = photorespiration = 0.0
+    nodes, weights = np.polynomial.legendre.leggauss(day_gauss_points)
+    for node, weight in zip(nodes, weights):
+        hour = 12.0 + 0.5 * day.day_length_h * node
+        rate_net, rate_gross, rate_photorespiration = _canopy_rates(day, hour)
+        net = net + weight * day_half_s * rate_net
+        gross = gross + weight * day_half_s * rate_gross
+        photorespiration = photorespiration + weight * day_half_s * rate_photorespiration
+    nodes, weights = np.polynomial.legendre.leggauss(NIGHT_GAUSS_POINTS)
+    for node, weight in zip(nodes, weights):
+        hour = 0.5 * (24.0 - day.day_length_h) * node  # around midnight; negative hours are evening
+        net = net + weight * night_half_s * _dark_canopy_net(day, hour)
+    return _result(valid, net, gross, photorespiration)
+
+
+def daily_canopy_assimilation_reference(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg,
+                                        day_of_year, co2_ppm, elevation_m=0.0, vpd_kpa=None,
+                                        actual_vapour_pressure_kpa=None, water_availability=1.0, lai=3.0,
+                                        o2_percent=20.95, params=None, steps=96) -> CanopyAssimilation:
+    """The same daily canopy assimilation by the midpoint rule over ``steps`` equal steps of 24 h.
+
+    A_day = Σ_k (24 h / steps) A_canopy(t_k),  t_k = (k + ½) 24 / steps
+
+    Every step runs the full sun/shade canopy (dark leaves at night, where the sun is below the
+    horizon). For tests and benchmarks of :func:`daily_canopy_assimilation`; arguments and result as
+    there, plus ``steps`` [-].
+    """
+    day, valid = _prepare(pathway, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year, co2_ppm,
+                          elevation_m, vpd_kpa, actual_vapour_pressure_kpa, water_availability, lai,
+                          o2_percent, params)
+    step_s = 24.0 * _SECONDS_PER_HOUR / steps
+    net = gross = photorespiration = 0.0
+    for k in range(steps):
+        rate_net, rate_gross, rate_photorespiration = _canopy_rates(day, (k + 0.5) * 24.0 / steps)
+        net = net + step_s * rate_net
+        gross = gross + step_s * rate_gross
+        photorespiration = photorespiration + step_s * rate_photorespiration
+    return _result(valid, net, gross, photorespiration)
