@@ -10,9 +10,11 @@ Layers (:func:`write_layers`)
     :func:`suitability.runtime.write_lock`). Then each file is converted to a COG with
     ``rio_cogeo.cog_translate``, validated with ``rio_cogeo.cogeo.cog_validate(strict=True)`` and only
     then moved to ``<name>.tif`` with ``os.replace``. Until that last step everything lives in a hidden
-    staging folder ``.suitability-staging-<pid>-<random>`` inside the output folder (same filesystem, so
-    the rename is atomic; rio-cogeo's own scratch files land there too); any failure removes it and
-    raises :class:`~suitability.errors.OutputError`, so a finished-looking ``<name>.tif`` is always whole.
+    staging folder ``.suitability-staging-<host>-<pid>-<random>`` inside the output folder (same
+    filesystem, so the rename is atomic; rio-cogeo's own scratch files land there too); any failure
+    removes it and raises :class:`~suitability.errors.OutputError`, so a finished-looking ``<name>.tif``
+    is always whole. A run that is killed leaves only its hidden staging folder, which the next write
+    into that folder removes (same host, process gone).
 
     Float layers are float32 with NaN as nodata, predictor 3; class layers (those whose glossary entry in
     :data:`suitability.variables.OUTPUT_VARIABLES` resamples by "mode") are uint8 with nodata 255,
@@ -39,6 +41,7 @@ import json
 import math
 import os
 import shutil
+import socket
 import tempfile
 import uuid
 from collections.abc import Iterable, Mapping
@@ -194,7 +197,8 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
     options = CogOptions.from_any(cog_options)
     folder = check_output_folder(folder, overwrite=True)
     grid = _common_grid(layers, folder)
-    staging = folder / f"{STAGING_PREFIX}{os.getpid()}-{uuid.uuid4().hex[:8]}"
+    _remove_abandoned_staging(folder)
+    staging = folder / f"{STAGING_PREFIX}{socket.gethostname()}-{os.getpid()}-{uuid.uuid4().hex[:8]}"
     try:
         staging.mkdir()
         sources, targets, staged = [], [], {}
@@ -360,6 +364,25 @@ def _class_codes(block: np.ndarray, name: str) -> np.ndarray:
     if bad.any():
         raise ValueError(f"layer {name!r} holds codes {np.unique(values[bad])[:5].tolist()} outside {allowed.tolist()}")
     return values.astype(np.uint8)
+
+
+def _remove_abandoned_staging(folder: Path) -> None:
+    """Remove staging folders left by killed runs: same host, process no longer alive."""
+    host = socket.gethostname()
+    for path in folder.glob(f"{STAGING_PREFIX}{host}-*"):
+        pid_text = path.name[len(STAGING_PREFIX) + len(host) + 1:].split("-", 1)[0]
+        if pid_text.isdigit() and not _process_alive(int(pid_text)):
+            shutil.rmtree(path, ignore_errors=True)
+
+
+def _process_alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
 
 
 def _lock_for(name: str, lock, path: Path):

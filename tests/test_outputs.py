@@ -291,6 +291,47 @@ def test_failure_mid_compute_leaves_no_output_and_no_temporaries(tmp_path):
     assert file_checksum(earlier) == earlier_sum
 
 
+KILLED_WRITER = """
+import sys, time
+import dask, dask.array as da, numpy as np, rioxarray, xarray as xr
+from affine import Affine
+from suitability.outputs import write_layers
+
+def slow(block):
+    time.sleep(0.4)
+    return block
+
+t = Affine(1000.0, 0.0, 300000.0, 0.0, -1000.0, 7460000.0)
+data = da.ones((1100, 1100), chunks=512, dtype=np.float32).map_blocks(slow, meta=np.array((), np.float32))
+layer = xr.DataArray(data, dims=("y", "x"), coords={"y": 7459500.0 - 1000 * np.arange(1100),
+                     "x": 300500.0 + 1000 * np.arange(1100)}).rio.write_crs("EPSG:32740").rio.write_transform(t)
+with dask.config.set(scheduler="threads", num_workers=1):
+    write_layers({"c3_assimilation": layer}, sys.argv[1], tags={}, cog_options=None)
+"""
+
+
+def test_a_killed_write_leaves_nothing_that_looks_finished(tmp_path):
+    import signal
+    import sys
+    import time
+
+    # the trap (ECOSYSTEM.md, reproduced): a file killed half-way still opens in GDAL; here a run is killed
+    # with SIGKILL mid-compute and must leave no <name>.tif, only a hidden staging folder
+    writer = subprocess.Popen([sys.executable, "-c", KILLED_WRITER, str(tmp_path)])
+    deadline = time.monotonic() + 60
+    while not list(tmp_path.glob(".suitability-staging-*/.c3_assimilation.tmp-*.tif")):
+        assert writer.poll() is None and time.monotonic() < deadline, "the writer never started writing"
+        time.sleep(0.05)
+    time.sleep(0.5)
+    writer.send_signal(signal.SIGKILL)
+    writer.wait()
+    assert not list(tmp_path.glob("*.tif"))
+    assert all(name.startswith(".") for name in our_files(tmp_path))
+    # the next write into the folder removes the abandoned staging folder of the dead process
+    write_layers({"pathway_advantage": example_layers()["pathway_advantage"]}, tmp_path, tags=TAGS, cog_options=None)
+    assert our_files(tmp_path) == ["pathway_advantage.tif"]
+
+
 def test_invalid_class_codes_fail_cleanly(tmp_path):
     classes = da.full((HEIGHT, WIDTH), 7, dtype=np.uint8, chunks=512)  # 7 is not a class code
     with pytest.raises(OutputError, match="pathway_class"):
