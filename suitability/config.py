@@ -104,10 +104,19 @@ class GridConfig(_Section):
     @classmethod
     def _one_or_two_numbers(cls, value: Any) -> Any:
         if isinstance(value, (int, float)) and not isinstance(value, bool):
+            if not value > 0:
+                raise ValueError(f"expected a cell size greater than 0 in the units of the CRS, got {value!r}")
             return (value, value)
         if isinstance(value, (list, tuple)) and len(value) == 2:
             return tuple(value)
         raise ValueError(f"expected one positive number or [x, y] in the units of the CRS, got {value!r}")
+
+    @field_validator("bounds", mode="before")
+    @classmethod
+    def _four_numbers(cls, value: Any) -> Any:
+        if not isinstance(value, (list, tuple)) or len(value) != 4:
+            raise ValueError(f"expected 4 numbers [xmin, ymin, xmax, ymax] in the units of the CRS, got {value!r}")
+        return tuple(value)
 
     @model_validator(mode="after")
     def _bounds_make_a_grid(self) -> "GridConfig":
@@ -205,7 +214,7 @@ class ClimateLayers(RootModel[dict[str, LayerSpec]]):
     def _patterns_only_for_monthly(self) -> "ClimateLayers":
         for name, spec in self.root.items():
             if spec.is_month_pattern and not INPUT_VARIABLES[name].monthly:
-                raise ValueError(f"{name}: a {{month}} pattern path is only for monthly layers; {name!r} is static")
+                raise _located((name, "path"), f"a {{month}} pattern path is only for monthly layers; {name!r} is static")
         return self
 
     def items(self):
@@ -301,8 +310,8 @@ class PathwayConfig(_Section):
 class PhysiologyConfig(_Section):
     """Leaf model parameters per pathway and canopy defaults."""
 
-    c3: PathwayConfig = Field(default_factory=PathwayConfig)
-    c4: PathwayConfig = Field(default_factory=PathwayConfig)
+    c3: PathwayConfig = Field(default_factory=dict)
+    c4: PathwayConfig = Field(default_factory=dict)
     lai: Annotated[float, Field(gt=0, le=15)] = 3.0
     diurnal_range_c: Annotated[float, Field(gt=0, le=40)] = 10.0
 
@@ -362,7 +371,7 @@ class CogConfig(_Section):
 class OutputConfig(_Section):
     folder: ConfigPath = Path("out")
     layers: Union[Literal["all"], list[str]] = "all"
-    cog: CogConfig = Field(default_factory=CogConfig)
+    cog: CogConfig = Field(default_factory=dict)
     datacube: bool = False
     overwrite: bool = False
 
@@ -446,42 +455,61 @@ class RunConfig(_Section):
 
     region: RegionConfig
     climate: ClimateConfig
-    season: SeasonConfig = Field(default_factory=SeasonConfig)
-    physiology: PhysiologyConfig = Field(default_factory=PhysiologyConfig)
+    season: SeasonConfig = Field(default_factory=dict)
+    physiology: PhysiologyConfig = Field(default_factory=dict)
     scenarios: Annotated[list[ScenarioConfig], Field(min_length=1)]
     baseline: str | None = None
-    classes: ClassesConfig = Field(default_factory=ClassesConfig)
-    output: OutputConfig = Field(default_factory=OutputConfig)
-    compute: ComputeConfig = Field(default_factory=ComputeConfig)
+    classes: ClassesConfig = Field(default_factory=dict)
+    output: OutputConfig = Field(default_factory=dict)
+    compute: ComputeConfig = Field(default_factory=dict)
     brief: BriefConfig | None = None
 
     _config_dir: Path = PrivateAttr(default_factory=Path.cwd)
     _source_path: Path | None = PrivateAttr(default=None)
 
+    @field_validator("scenarios")
+    @classmethod
+    def _scenarios_fit(cls, scenarios: list[ScenarioConfig], info: ValidationInfo) -> list[ScenarioConfig]:
+        seen: dict[str, str] = {}
+        for i, scenario in enumerate(scenarios):
+            # Scenario names become folders; on case-insensitive file systems these would be one folder.
+            key = scenario.name.lower()
+            if key in seen:
+                raise _located((i, "name"), f"scenario names must be unique (ignoring case): {seen[key]!r} is given twice"
+                               + ("" if seen[key] == scenario.name else f" (as {scenario.name!r})"))
+            seen[key] = scenario.name
+        climate = info.data.get("climate")
+        if climate is None:  # the climate section itself is invalid; reported there
+            return scenarios
+        base = {_CANONICAL.get(n, n) for n in climate.keys()}
+        for i, scenario in enumerate(scenarios):
+            for layer in (scenario.climate.keys() if scenario.climate else ()):
+                if _CANONICAL.get(layer, layer) not in base:
+                    raise _located(
+                        (i, "climate", layer),
+                        f"replaces nothing: the baseline climate has {', '.join(climate.keys())} "
+                        "(a scenario's climate may only replace baseline layers)",
+                    )
+        return scenarios
+
+    @field_validator("baseline")
+    @classmethod
+    def _baseline_is_a_scenario(cls, baseline: str | None, info: ValidationInfo) -> str | None:
+        scenarios = info.data.get("scenarios")
+        if not scenarios:
+            return baseline
+        names = [s.name for s in scenarios]
+        if baseline is None:
+            return names[0]
+        if baseline not in names:
+            raise ValueError(f"{baseline!r} is not a scenario name{_did_you_mean(baseline, names)}; scenarios: {', '.join(names)}")
+        return baseline
+
     @model_validator(mode="after")
-    def _scenarios_consistent(self, info: ValidationInfo) -> "RunConfig":
+    def _remember_where(self, info: ValidationInfo) -> "RunConfig":
         context = info.context or {}
         self._config_dir = Path(context.get("config_dir") or Path.cwd()).absolute()
         self._source_path = Path(context["source_path"]).absolute() if context.get("source_path") else None
-        names = [s.name for s in self.scenarios]
-        seen: dict[str, str] = {}
-        for name in names:
-            # Scenario names become folders; on case-insensitive file systems these would be one folder.
-            if name.lower() in seen:
-                raise ValueError(f"scenarios: names must be unique (ignoring case): {seen[name.lower()]!r} and {name!r}")
-            seen[name.lower()] = name
-        if self.baseline is None:
-            self.baseline = names[0]
-        elif self.baseline not in names:
-            raise ValueError(f"baseline: {self.baseline!r} is not a scenario name{_did_you_mean(self.baseline, names)}; scenarios: {', '.join(names)}")
-        base = {_CANONICAL.get(n, n) for n in self.climate.keys()}
-        for scenario in self.scenarios:
-            for layer in (scenario.climate.keys() if scenario.climate else ()):
-                if _CANONICAL.get(layer, layer) not in base:
-                    raise ValueError(
-                        f"scenario {scenario.name!r}: climate.{layer} replaces nothing; the baseline climate has "
-                        f"{', '.join(self.climate.keys())} (a scenario may only replace baseline layers)"
-                    )
         return self
 
     @property
@@ -521,6 +549,11 @@ def parse_crs(value: Any):
         return CRS.from_user_input(value)
     except CRSError as exc:
         raise ValueError(f"unknown CRS {value!r}: expected an EPSG code such as 'EPSG:32740' or a WKT string ({exc})") from None
+
+
+def _located(at: tuple, message: str) -> PydanticCustomError:
+    """An error reported at a key below the validated field (``at`` is appended to its location)."""
+    return PydanticCustomError("located", "{message}", {"message": message, "at": at})
 
 
 def _did_you_mean(value: str, valid) -> str:
@@ -626,6 +659,8 @@ def format_validation_error(exc: ValidationError, source: str | Path, lines: dic
         loc = tuple(error["loc"])
         if error["type"] == "unknown_key":
             loc = loc + (error["ctx"]["key"],)
+        elif error["type"] == "located":
+            loc = loc + tuple(error["ctx"]["at"])
         key = dotted_key(loc) or "(top level)"
         line = _line_of(loc, lines)
         where = f"line {line}, " if line else ""
@@ -656,7 +691,7 @@ def _explain(error: dict, loc: tuple) -> str:
         return f"unknown key{_did_you_mean(str(loc[-1]), valid)}" + (f" (valid keys here: {', '.join(valid)})" if valid else "")
     if kind == "missing":
         return "required key is missing"
-    if kind == "unknown_key":
+    if kind in ("unknown_key", "located"):
         return message
     message = message.removeprefix("Value error, ").removeprefix("Assertion failed, ")
     if kind not in ("value_error", "assertion_error"):

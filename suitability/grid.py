@@ -222,8 +222,11 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
 
     On the same grid (CRS and transform equal to 1e-6 of a cell) only the coordinates are replaced by the
     grid's. Otherwise odc-geo's dask reprojection is used, which calls ``rasterio.warp.reproject`` per
-    output block; GDAL's own choice of the resampling kernel radius is kept (XSCALE/YSCALE not forced), so
-    the result agrees with a single ``rasterio.warp.reproject`` of the whole raster.
+    output block with the GDAL warp options XSCALE=YSCALE=1: "bilinear" then interpolates between the 4
+    source cells around each cell centre, whatever the ratio of cell sizes. (Left to itself GDAL widens
+    the kernel when the source is finer than the grid, but a widened kernel is cut at block edges, so the
+    result would depend on the chunk size.) For a source much finer than the grid use "average", which
+    weights every source cell of the footprint.
     """
     from odc.geo.xr import xr_reproject
 
@@ -240,7 +243,7 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
         da = da.transpose(*other, "y", "x")
         out = xr_reproject(
             da, grid.geobox, resampling=resampling, dst_nodata=np.nan, src_nodata=np.nan, chunks=(chunk, chunk),
-            always_yx=True, XSCALE=None, YSCALE=None,
+            always_yx=True,
         )
         out = out.drop_vars([c for c in out.coords if c not in ("x", "y", *other)])
         out = out.assign_coords(x=grid.x, y=grid.y)
