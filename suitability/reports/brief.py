@@ -268,15 +268,15 @@ class _Figures:
             self._cache[key] = _data_uri(draw())
         return self._cache[key]
 
-    def class_map(self, scenario: ScenarioInfo) -> str:
+    def class_map(self, scenario: ScenarioInfo, district: str | None = None) -> str:
         title = f"{scenario.name}: where each kind of crop has the advantage"
-        return self._get(("class", scenario.name), lambda: figures.class_map_png(
-            Path(scenario.output_folder) / "pathway_class.tif", self._zones, title=title))
+        return self._get(("class", scenario.name, district), lambda: figures.class_map_png(
+            Path(scenario.output_folder) / "pathway_class.tif", self._zones, title=title, highlight=district))
 
-    def change_map(self, scenario: ScenarioInfo) -> str:
+    def change_map(self, scenario: ScenarioInfo, district: str | None = None) -> str:
         title = f"Change: {scenario.name} against {self._context.baseline}"
-        return self._get(("change", scenario.name), lambda: figures.change_map_png(
-            Path(scenario.output_folder) / "advantage_change.tif", self._zones, title=title))
+        return self._get(("change", scenario.name, district), lambda: figures.change_map_png(
+            Path(scenario.output_folder) / "advantage_change.tif", self._zones, title=title, highlight=district))
 
     def shares(self, scenarios: Sequence[str], districts: Sequence[str] | None = None) -> str:
         table = self._table if districts is None else self._table[self._table["district"].isin(districts)]
@@ -302,8 +302,8 @@ def render_html(context: BriefContext, table: pd.DataFrame, scenario: ScenarioIn
     else:
         shown = list(context.scenarios)
         summaries = [(s.name, summary_sentences(table, baseline.name, s.name, districts)) for s in shown]
-    maps = [{"title": s.name, "image": drawn.class_map(s)} for s in shown]
-    change_maps = [{"title": s.name, "image": drawn.change_map(s)} for s in shown if s.name != baseline.name]
+    maps = [{"title": s.name, "image": drawn.class_map(s, district)} for s in shown]
+    change_maps = [{"title": s.name, "image": drawn.change_map(s, district)} for s in shown if s.name != baseline.name]
     names = [s.name for s in shown]
     flagged = table[(table["flag"] != "") & table["scenario"].isin(names)]
     if districts is not None:

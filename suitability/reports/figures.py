@@ -151,11 +151,13 @@ def _map_axes(figure: Figure, raster: _MapRaster, title: str):
     return axes
 
 
-def _draw_districts(axes, zones: gpd.GeoDataFrame | None, raster: _MapRaster) -> None:
+def _draw_districts(axes, zones: gpd.GeoDataFrame | None, raster: _MapRaster, highlight: str | None) -> None:
     if zones is None or len(zones) == 0:
         return
     on_map = zones_on_grid(zones, raster.crs)
     on_map.boundary.plot(ax=axes, color=OUTLINE_COLOUR, linewidth=0.8)
+    if highlight is not None:
+        on_map[on_map["district"] == highlight].boundary.plot(ax=axes, color="#000000", linewidth=2.6)
     halo = [patheffects.withStroke(linewidth=3, foreground="white")]
     left, right, bottom, top = raster.extent
     for name, geometry in zip(on_map["district"], on_map.geometry):
@@ -210,17 +212,17 @@ MAP_SIZE_IN = (4.8, 4.6)
 
 
 def class_map_figure(class_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
-                     size_in: tuple[float, float] = MAP_SIZE_IN) -> Figure:
+                     highlight: str | None = None, size_in: tuple[float, float] = MAP_SIZE_IN) -> Figure:
     """The favoured-pathway map of one scenario: classes, legend, scale bar, district outlines and names.
 
     class_path: a ``pathway_class.tif``. zones: districts with a ``district`` column (any CRS), or None.
-    size_in: figure (width, height) [inch].
+    highlight: a district drawn with a heavy outline. size_in: figure (width, height) [inch].
     """
     raster = _MapRaster(class_path)
     figure = Figure(figsize=size_in)
     axes = _map_axes(figure, raster, title)
     axes.imshow(_class_rgba(raster.values), extent=raster.extent, interpolation="nearest", origin="upper")
-    _draw_districts(axes, zones, raster)
+    _draw_districts(axes, zones, raster, highlight)
     _draw_scale_bar(axes, raster)
     _set_ground_aspect(axes, raster)
     handles = [Patch(facecolor=CLASS_COLOURS[c], edgecolor="#999999", label=CLASS_LABELS[c]) for c in CLASS_COLOURS]
@@ -230,13 +232,14 @@ def class_map_figure(class_path, zones: gpd.GeoDataFrame | None = None, *, title
     return figure
 
 
-def class_map_png(class_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "", dpi: int = 130) -> bytes:
+def class_map_png(class_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
+                  highlight: str | None = None, dpi: int = 130) -> bytes:
     """PNG bytes of :func:`class_map_figure`."""
-    return _png(class_map_figure(class_path, zones, title=title), dpi)
+    return _png(class_map_figure(class_path, zones, title=title, highlight=highlight), dpi)
 
 
 def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
-                      size_in: tuple[float, float] = MAP_SIZE_IN) -> Figure:
+                      highlight: str | None = None, size_in: tuple[float, float] = MAP_SIZE_IN) -> Figure:
     """Map of ``advantage_change.tif`` (scenario minus baseline) on a diverging scale centred on 0."""
     raster = _MapRaster(change_path)
     figure = Figure(figsize=size_in)
@@ -246,7 +249,7 @@ def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, tit
     limit = max(0.05, math.ceil(largest * 20) / 20)  # round up to 0.05, never a zero-width scale
     image = axes.imshow(raster.values, extent=raster.extent, interpolation="nearest", origin="upper",
                         cmap=CHANGE_COLORMAP, norm=mcolors.TwoSlopeNorm(0.0, -limit, limit))
-    _draw_districts(axes, zones, raster)
+    _draw_districts(axes, zones, raster, highlight)
     _draw_scale_bar(axes, raster)
     _set_ground_aspect(axes, raster)
     bar_axes = figure.add_axes((0.15, 0.10, 0.7, 0.03))
@@ -256,9 +259,10 @@ def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, tit
     return figure
 
 
-def change_map_png(change_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "", dpi: int = 130) -> bytes:
+def change_map_png(change_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
+                   highlight: str | None = None, dpi: int = 130) -> bytes:
     """PNG bytes of :func:`change_map_figure`."""
-    return _png(change_map_figure(change_path, zones, title=title), dpi)
+    return _png(change_map_figure(change_path, zones, title=title, highlight=highlight), dpi)
 
 
 def class_share_table(table: pd.DataFrame, scenarios: Sequence[str] | None = None) -> pd.DataFrame:
@@ -308,9 +312,13 @@ def class_share_png(table: pd.DataFrame, scenarios: Sequence[str] | None = None,
     return _png(class_share_figure(table, scenarios), dpi)
 
 
-def _physiology_crossover() -> Callable:
-    from suitability.physiology import crossover_temperature  # imported late: another module owns it
-
+def physiology_crossover() -> Callable:
+    """:func:`suitability.physiology.crossover_temperature` (from its module if the package does not
+    re-export it). Imported late: figures must import without the science stack loaded."""
+    try:
+        from suitability.physiology import crossover_temperature
+    except ImportError:
+        from suitability.physiology.crossover import crossover_temperature
     return crossover_temperature
 
 
@@ -329,7 +337,7 @@ def crossover_figure(
     curve C4 plants make better use of light; below it, C3 plants (Collatz et al. 1998). Each scenario is
     drawn as a point at its CO2 and the warm-season temperature plus its warming [deg C].
     """
-    crossover = crossover or _physiology_crossover()
+    crossover = crossover or physiology_crossover()
     co2 = np.linspace(co2_range_ppm[0], co2_range_ppm[1], 151)
     temperature = np.asarray(crossover(co2, o2_percent=o2_percent), dtype="float64")
     figure = Figure(figsize=(7.5, 4.2))

@@ -6,7 +6,6 @@ names (Orvanne, Telmira, Quessel, Far Reach) describe no real place. Sources are
 
 from __future__ import annotations
 
-import io
 import re
 import shutil
 import subprocess

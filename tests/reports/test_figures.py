@@ -187,9 +187,11 @@ def test_crossover_chart_plots_the_function_and_the_scenarios():
 
 
 def test_crossover_chart_with_the_physiology_function():
-    physiology = pytest.importorskip("suitability.physiology")
-    if not hasattr(physiology, "crossover_temperature"):
-        pytest.skip("suitability.physiology.crossover_temperature is not available yet")
+    try:
+        function = figures.physiology_crossover()
+    except ImportError as exc:
+        pytest.skip(f"suitability.physiology.crossover_temperature is not available yet ({exc})")
+    assert function.__module__.startswith("suitability.physiology")
     figure = figures.crossover_figure(23.5, [])
     line = next(line for line in figure.axes[0].lines if line.get_gid() == "crossover")
     co2, temperature = line.get_xdata(), line.get_ydata()
@@ -210,3 +212,19 @@ def test_png_bytes_are_a_real_non_blank_image(tmp_path):
     saved = figures.save_png(data, tmp_path / "map.png")
     assert saved.read_bytes() == data
     assert sorted(p.name for p in tmp_path.iterdir()) == ["map.png", "pathway_class.tif"]
+
+
+def test_highlighted_district_has_a_heavy_outline(tmp_path):
+    path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    zones = gpd.GeoDataFrame({"district": ["Orvanne", "Telmira"]},
+                             geometry=[box(302000, 7362000, 330000, 7398000), box(330000, 7362000, 358000, 7398000)],
+                             crs="EPSG:32740")
+    plain = figures.class_map_figure(path, zones)
+    marked = figures.class_map_figure(path, zones, highlight="Telmira")
+    widths = [c.get_linewidth()[0] for c in marked.axes[0].collections]
+    # Derived here: one extra outline collection, heavier than the others, tracing Telmira's box.
+    assert len(marked.axes[0].collections) == len(plain.axes[0].collections) + 1
+    heavy = marked.axes[0].collections[int(np.argmax(widths))]
+    vertices = np.concatenate([p.vertices for p in heavy.get_paths()])
+    assert vertices[:, 0].min() == pytest.approx(330000) and vertices[:, 0].max() == pytest.approx(358000)
