@@ -86,6 +86,7 @@ class BriefContext:
     warm_season_temperature_c: the region's warm-season mean air temperature today [deg C].
     contested_margin: |advantage| below this is "no clear advantage" [-].
     per_district: also write one brief per district. caution: the caution text every brief carries.
+    notes: extra lines shown under the caution (e.g. that a demo's data are synthetic).
     crossover_function: crossover temperature [deg C] as a function of CO2 [ppm] (keyword o2_percent);
         None uses :func:`suitability.physiology.crossover_temperature`.
     """
@@ -103,6 +104,7 @@ class BriefContext:
     contested_margin: float
     per_district: bool = False
     caution: str = CAUTION
+    notes: tuple[str, ...] = ()
     crossover_function: Callable | None = field(default=None, compare=False)
 
     def __post_init__(self):

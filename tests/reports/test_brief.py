@@ -80,6 +80,7 @@ def run(tmp_path_factory):
         baseline="present", c3_parameter_set="set_a", c4_parameter_set="set_b", zones_path=zones,
         name_field="name", warm_season_temperature_c=24.2, contested_margin=0.05, per_district=True,
         crossover_function=_linear_crossover,
+        notes=("All data in this brief are synthetic, made up for a test.",),
     )
     paths = build_brief(context, root / "out")
     table = zonal_statistics(zones, "name", {"present": base, "hotter": warm}, "present")
@@ -204,6 +205,7 @@ def test_pdf_pages_and_text(run):
     assert len(pages) == 5
     assert REGION in pages[0] and "hotter" in pages[0] and "not yield forecasts" in pages[0]
     assert "2031-05-04" in pages[0] and "9.9.9" in pages[0]
+    assert "All data in this brief are synthetic" in " ".join(pages[0].split())
     assert pages[1].startswith("Maps")
     assert all(name in pages[2] for name in DISTRICTS)
     assert "Farquhar et al." in pages[3] and "FAO-56" in pages[3]
