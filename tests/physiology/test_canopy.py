@@ -35,12 +35,15 @@ def realistic_days(count, seed):
                 lai=lai)
 
 
-@pytest.mark.parametrize("pathway,co2", [("C3", 400.0), ("C4", 400.0), ("C3", 700.0), ("C4", 280.0)])
-def test_gaussian_daily_integral_matches_96_step_reference(pathway, co2):
+@pytest.mark.parametrize("pathway,params,co2", [
+    ("C3", None, 400.0), ("C4", None, 400.0), ("C3", None, 700.0), ("C4", None, 280.0),
+    ("C3", "collatz1991", 400.0), ("C4", "vc2000", 400.0),
+])
+def test_gaussian_daily_integral_matches_96_step_reference(pathway, params, co2):
     # Independent of the quadrature choice: the 96-step midpoint rule over 24 h of the same model.
-    days = realistic_days(60, seed=int(co2) + (1 if pathway == "C3" else 2))
-    gauss = canopy.daily_canopy_assimilation(pathway, co2_ppm=co2, **days)
-    reference = canopy.daily_canopy_assimilation_reference(pathway, co2_ppm=co2, steps=96, **days)
+    days = realistic_days(60, seed=int(co2) + (1 if pathway == "C3" else 2) + (10 if params else 0))
+    gauss = canopy.daily_canopy_assimilation(pathway, co2_ppm=co2, params=params, **days)
+    reference = canopy.daily_canopy_assimilation_reference(pathway, co2_ppm=co2, params=params, steps=96, **days)
     np.testing.assert_allclose(gauss.gross, reference.gross, rtol=RELATIVE_TOLERANCE)
     # Net can be near zero on dim cool days, so its error is measured against gross assimilation.
     assert np.all(np.abs(gauss.net - reference.net) <= RELATIVE_TOLERANCE * reference.gross)
@@ -83,18 +86,30 @@ def test_pathway_contrast_follows_temperature():
     assert canopy.daily_canopy_assimilation("C3", **cool).net > canopy.daily_canopy_assimilation("C4", **cool).net
 
 
-@pytest.mark.parametrize("pathway", [
-    "C3",
-    pytest.param("C4", marks=pytest.mark.xfail(
-        strict=True, reason="leaf_assimilation('C4', ..., absorbed_par=0, water_availability=0) returns NaN "
-                            "(Collatz 1992 model), so the night term is NaN")),
-])
-def test_no_water_means_no_net_uptake(pathway):
+def test_diffuse_light_raises_canopy_assimilation(monkeypatch):
+    # Spitters (1986, Agric For Meteorol 38:231, Part II) and de Pury & Farquhar (1997) (from memory): at
+    # the same global radiation a canopy assimilates more when more of the light is diffuse, because it
+    # reaches the light-limited shaded leaves. The model's own diffuse share lies between the extremes.
+    day = dict(tmin_c=16.0, tmax_c=30.0, shortwave_mj=26.0, latitude_deg=30.0, day_of_year=170,
+               co2_ppm=400.0, lai=3.0)
+    default = canopy.daily_canopy_assimilation("C3", **day).gross
+    monkeypatch.setattr(canopy, "diffuse_fraction_daily", lambda clearness: 0.0 * clearness)
+    all_beam = canopy.daily_canopy_assimilation("C3", **day).gross
+    monkeypatch.setattr(canopy, "diffuse_fraction_daily", lambda clearness: 0.0 * clearness + 1.0)
+    all_diffuse = canopy.daily_canopy_assimilation("C3", **day).gross
+    assert all_beam < default < all_diffuse
+
+
+@pytest.mark.parametrize("pathway,params", [("C3", "bernacchi2001"), ("C3", "collatz1991"),
+                                            ("C4", "collatz1992"), ("C4", "vc2000")])
+def test_no_water_means_no_net_uptake(pathway, params):
     # Common practice, no source: with stomata shut (water availability 0) a canopy cannot gain carbon.
     days = realistic_days(12, seed=3)
-    result = canopy.daily_canopy_assimilation(pathway, co2_ppm=400.0, water_availability=0.0, **days)
+    result = canopy.daily_canopy_assimilation(pathway, co2_ppm=400.0, water_availability=0.0, params=params,
+                                              **days)
     assert np.all(result.net <= 0.0)
-    watered = canopy.daily_canopy_assimilation(pathway, co2_ppm=400.0, water_availability=1.0, **days)
+    watered = canopy.daily_canopy_assimilation(pathway, co2_ppm=400.0, water_availability=1.0, params=params,
+                                               **days)
     assert np.all(watered.net > result.net)
 
 
@@ -176,16 +191,30 @@ def test_xarray_and_dask_inputs_give_identical_numbers_and_stay_lazy():
     eager = canopy.daily_canopy_assimilation("C4", co2_ppm=400.0, **days)
 
     def lazy(values):
-        return xr.DataArray(da.from_array(values.reshape(3, 4), chunks=2), dims=("y", "x"))
+        return xr.DataArray(da.from_array(values.reshape(3, 4), chunks=2), dims=("y", "x"),
+                            coords={"y": [10.0, 20.0, 30.0]})
 
     with dask.config.set(scheduler=_raise_if_computed):
         result = canopy.daily_canopy_assimilation("C4", co2_ppm=400.0, **{k: lazy(v) for k, v in days.items()})
-    for name in ("net", "gross", "photorespiration"):
+    fields = ("net", "gross", "photorespiration")
+    for name in fields:
         value = getattr(result, name)
         assert isinstance(value, xr.DataArray) and isinstance(value.data, da.Array), name
+        assert value.dims == ("y", "x") and value["y"].values.tolist() == [10.0, 20.0, 30.0]
+    computed = dask.compute(*(getattr(result, name) for name in fields))
+    for name, value in zip(fields, computed):
         np.testing.assert_allclose(value.values.ravel(), getattr(eager, name), rtol=1e-12, atol=1e-12)
-    plain_dask = canopy.daily_canopy_assimilation(
-        "C3", co2_ppm=400.0, **{k: da.from_array(v, chunks=4) for k, v in days.items()})
+
+    in_memory = canopy.daily_canopy_assimilation(
+        "C4", co2_ppm=400.0, **{k: xr.DataArray(v.reshape(3, 4), dims=("y", "x")) for k, v in days.items()})
+    np.testing.assert_allclose(in_memory.net.values.ravel(), eager.net, rtol=1e-12)
+
+    # Plain dask arrays, one of them a numpy array, another a scalar.
+    mixed = {k: da.from_array(v, chunks=4) for k, v in days.items()}
+    mixed["lai"] = days["lai"]
+    mixed["tmin_c"] = 12.0
+    with dask.config.set(scheduler=_raise_if_computed):
+        plain_dask = canopy.daily_canopy_assimilation("C3", co2_ppm=400.0, **mixed)
     assert isinstance(plain_dask.net, da.Array)
-    np.testing.assert_allclose(plain_dask.net.compute(),
-                               canopy.daily_canopy_assimilation("C3", co2_ppm=400.0, **days).net, rtol=1e-12)
+    expected = canopy.daily_canopy_assimilation("C3", co2_ppm=400.0, **{**days, "tmin_c": 12.0})
+    np.testing.assert_allclose(plain_dask.net.compute(), expected.net, rtol=1e-12)

@@ -124,6 +124,12 @@ def test_shortwave_daily_course_returns_the_daily_total():
     course = light.shortwave_daily_course(total, sin_b,
                                           light.daylight_integral_of_sin_elevation(latitude, declination))
     assert course.sum() * 30.0 / 1e6 == pytest.approx(total, rel=1e-5)
+    # The same with the atmospheric factor 0 (the course of diffuse light, proportional to sin β).
+    diffuse = light.shortwave_daily_course(
+        7.0, sin_b, light.daylight_integral_of_sin_elevation(latitude, declination, atmospheric_factor=0.0),
+        atmospheric_factor=0.0)
+    assert diffuse.sum() * 30.0 / 1e6 == pytest.approx(7.0, rel=1e-5)
+    np.testing.assert_allclose(diffuse / diffuse.max(), np.maximum(sin_b, 0) / sin_b.max(), atol=1e-12)
     assert (course[sin_b <= 0] == 0).all()
     # Polar night: no course, no NaN.
     night = light.shortwave_daily_course(1.0, -0.2, light.daylight_integral_of_sin_elevation(-80.0, 0.4))
