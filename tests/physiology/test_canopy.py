@@ -35,13 +35,18 @@ def realistic_days(count, seed):
                 lai=lai)
 
 
-@pytest.mark.parametrize("pathway,params,co2", [
-    ("C3", None, 400.0), ("C4", None, 400.0), ("C3", None, 700.0), ("C4", None, 280.0),
-    ("C3", "collatz1991", 400.0), ("C4", "vc2000", 400.0),
+@pytest.mark.parametrize("pathway,params,co2,stressed", [
+    ("C3", None, 400.0, False), ("C4", None, 400.0, False), ("C3", None, 700.0, False), ("C4", None, 280.0, False),
+    ("C3", "collatz1991", 400.0, False), ("C4", "vc2000", 400.0, False),
+    ("C3", None, 400.0, True), ("C4", None, 400.0, True),
 ])
-def test_gaussian_daily_integral_matches_96_step_reference(pathway, params, co2):
+def test_gaussian_daily_integral_matches_96_step_reference(pathway, params, co2, stressed):
     # Independent of the quadrature choice: the 96-step midpoint rule over 24 h of the same model.
-    days = realistic_days(60, seed=int(co2) + (1 if pathway == "C3" else 2) + (10 if params else 0))
+    seed = int(co2) + (1 if pathway == "C3" else 2) + (10 if params else 0) + (20 if stressed else 0)
+    days = realistic_days(60, seed=seed)
+    if stressed:  # water availability 0.3-1 and elevations 0-3000 m (invented spread)
+        rng = np.random.default_rng(seed)
+        days.update(water_availability=rng.uniform(0.3, 1.0, 60), elevation_m=rng.uniform(0.0, 3000.0, 60))
     gauss = canopy.daily_canopy_assimilation(pathway, co2_ppm=co2, params=params, **days)
     reference = canopy.daily_canopy_assimilation_reference(pathway, co2_ppm=co2, params=params, steps=96, **days)
     np.testing.assert_allclose(gauss.gross, reference.gross, rtol=RELATIVE_TOLERANCE)
@@ -128,6 +133,22 @@ def test_dark_day_is_night_respiration_integrated_over_24_h():
         assert result.net < 0.0
         assert result.net == pytest.approx(expected, rel=1e-3)
         assert result.gross == pytest.approx(0.0, abs=1e-12)
+
+
+@pytest.mark.parametrize("pathway,params", [
+    ("C3", "bernacchi2001"), ("C3", "collatz1991"), ("C4", "collatz1992"),
+    pytest.param("C4", "vc2000", marks=pytest.mark.xfail(strict=True, reason=(
+        "leaf_assimilation('C4', 33, 0, 400, water_availability=0.437, pressure_kpa=71.5, vpd_kpa=2.5, "
+        "params='vc2000') gives net 0 and gross = Rd (bundle-sheath CO2 negative) instead of net -Rd"))),
+])
+def test_dark_day_loses_carbon_under_stress_at_altitude(pathway, params):
+    # Common practice, no source: leaves in darkness only respire, so a day without light loses carbon
+    # (net < 0, gross 0) whatever the water supply or air pressure.
+    result = canopy.daily_canopy_assimilation(pathway, tmin_c=25.0, tmax_c=38.0, shortwave_mj=0.0,
+                                              latitude_deg=35.7, day_of_year=59, co2_ppm=400.0, lai=5.0,
+                                              water_availability=0.437, elevation_m=2822.0, params=params)
+    assert result.net < 0.0
+    assert result.gross == pytest.approx(0.0, abs=1e-9)
 
 
 def test_daily_temperature_course():

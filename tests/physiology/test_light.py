@@ -231,8 +231,8 @@ def test_sun_shade_limits():
     beam, diffuse, lai, sin_b = 1200.0, 300.0, 2.5, 0.6
     black = light.sun_shade_absorbed_par(beam, diffuse, lai, sin_b, scattering=0.0, diffuse_reflection=0.0)
     kb, kd = 0.5 / sin_b, light.DIFFUSE_EXTINCTION_BLACK_LEAVES
-    assert black.canopy_absorbed == pytest.approx(beam * (1 - np.exp(-kb * lai)) + diffuse * (1 - np.exp(-kd * lai)),
-                                                  rel=1e-12)
+    beer = beam * (1 - np.exp(-kb * lai)) + diffuse * (1 - np.exp(-kd * lai))
+    assert black.canopy_absorbed == pytest.approx(beer, rel=1e-12)
     # Sunlit black leaves get the whole beam (de Pury & Farquhar 1997 with σ = 0).
     assert black.sunlit_absorbed - diffuse * kd / (kd + kb) * (1 - np.exp(-(kd + kb) * lai)) == pytest.approx(
         beam * (1 - np.exp(-kb * lai)), rel=1e-12)
@@ -251,7 +251,8 @@ def test_invalid_inputs_give_nan_elementwise():
     latitude = np.array([10.0, 95.0, np.nan, -91.0])
     assert np.isfinite(light.extraterrestrial_radiation(latitude, 100)).tolist() == [True, False, False, False]
     assert np.isfinite(light.day_length(10.0, np.array([0, 1, 366, 400]))).tolist() == [False, True, True, False]
-    result = light.sun_shade_absorbed_par(np.array([1000.0, -5.0, 1000.0]), 200.0, np.array([3.0, 3.0, -1.0]), 0.7)
+    result = light.sun_shade_absorbed_par(np.array([1000.0, -5.0, 1000.0]), 200.0,
+                                          np.array([3.0, 3.0, -1.0]), 0.7)
     assert np.isfinite(result.canopy_absorbed).tolist() == [True, False, False]
     assert np.isnan(light.diffuse_fraction_daily(-0.1)) and np.isnan(light.diffuse_fraction_instantaneous(np.nan, 0.5))
 
