@@ -22,9 +22,9 @@ Decisions
   lat/latitude/lon/longitude) is taken as EPSG:4326 (WGS 84 longitude/latitude), as most such files mean;
   projected x/y without a grid mapping is an error. Projected x/y in km are converted to metres (xarray
   would otherwise give 1 m cells). Ascending latitude is flipped to north-up; longitudes 0..360 to -180..180.
-- Plausibility of the declared units is checked on a strided sample of at most 256 x 256 cells per time
-  step, never the whole raster. Values outside the glossary's valid range (after conversion) become NaN,
-  never clamped; :func:`inspect_inputs` reports their share.
+- Plausibility of the declared units is checked on a sample of at most 256 x 256 cells per time step
+  (64 small windows spread over the layer), never the whole raster. Values outside the glossary's valid
+  range (after conversion) become NaN, never clamped; :func:`inspect_inputs` reports their share.
 """
 
 from __future__ import annotations
@@ -73,8 +73,9 @@ class LayerReport:
     crs: CRS as text; native_resolution: (x, y) cell size in CRS units.
     declared_units: the config's units, else the file's; file_units: the file's units attribute;
     canonical_units: the units it is converted to. overlap_share: share of the region inside the layer's
-    extent [0-1]; nodata_share / out_of_range_share: shares of a strided sample within the region that are
-    nodata / outside the valid range after conversion. problems: errors that stop a run; warnings: notes.
+    extent [0-1]; nodata_share / out_of_range_share: shares of a sample of the layer within the region
+    (see ``_sample``) that are nodata / outside the valid range after conversion. problems: errors that
+    stop a run; warnings: notes.
     """
 
     layer: str
@@ -216,7 +217,8 @@ def _open_converted(name: str, spec: Any, config_dir, chunk: int) -> tuple[xr.Da
         canonical = INPUT_VARIABLES[result_name].units
         scale, offset = linear_conversion(declared, "1" if name == "water_stress" else canonical)
     except ValueError as exc:
-        raise InputDataError(f"{where}: {exc}; expected units convertible to {INPUT_VARIABLES[name].units}") from None
+        hint = "" if "expected" in str(exc) else f"; expected units convertible to {INPUT_VARIABLES[name].units}"
+        raise InputDataError(f"{where}: {exc}{hint}") from None
 
     sample = _sample(native.data, where)
     _check_plausible(name, declared, scale, offset, sample, where)
@@ -532,15 +534,25 @@ def _keep_spatial(data: xr.DataArray) -> xr.DataArray:
 # ============================================================================================ checks
 
 
-def _sample(data: xr.DataArray, where: str, side: int = SAMPLE_SIDE) -> np.ndarray:
-    """A strided sample of at most side x side cells per time step, as float64 (reads only those cells)."""
-    step_y = max(1, math.ceil(data.sizes["y"] / side))
-    step_x = max(1, math.ceil(data.sizes["x"] / side))
+def _sample(data: xr.DataArray, where: str) -> np.ndarray:
+    """A sample of at most 256 x 256 cells per time step, as float64.
+
+    8 x 8 windows of 32 x 32 cells spread evenly over the layer: they touch at most 64 blocks of a tiled
+    file, where a strided read of every n-th cell would decode every block.
+    """
+    index = {dim: _sample_index(data.sizes[dim]) for dim in ("y", "x")}
     try:
-        values = data.isel(y=slice(None, None, step_y), x=slice(None, None, step_x)).values
+        values = data.isel(index).values
     except Exception as exc:  # noqa: BLE001 - a truncated file fails here, on first read
         raise InputDataError(f"{where}: cannot read the values; the file may be truncated or corrupt ({exc})") from None
     return np.asarray(values, dtype=np.float64)
+
+
+def _sample_index(size: int, windows: int = 8, width: int = SAMPLE_SIDE // 8):
+    if size <= windows * width:
+        return slice(None)
+    starts = np.linspace(0, size - width, windows).round().astype(int)
+    return np.concatenate([np.arange(start, start + width) for start in starts])
 
 
 def _check_plausible(name: str, declared: str, scale: float, offset: float, sample: np.ndarray, where: str) -> None:
@@ -574,29 +586,51 @@ def _check_plausible(name: str, declared: str, scale: float, offset: float, samp
         )
 
 
-def coverage_share(data: xr.DataArray, grid: TargetGrid) -> float:
-    """Share [0-1] of the grid's area inside the layer's extent (edges densified before reprojecting)."""
+def _footprint(data: xr.DataArray, crs: Any):
+    """The layer's extent as a shapely polygon in ``crs`` (edges densified), or None if it does not project."""
     import shapely
     from pyproj import CRS, Transformer
 
     transform = data.rio.transform(recalc=True)
     left, top = transform.c, transform.f
     right, bottom = left + transform.a * data.sizes["x"], top + transform.e * data.sizes["y"]
+    box = shapely.box(min(left, right), min(top, bottom), max(left, right), max(top, bottom))
+    dense = shapely.segmentize(box, max(abs(right - left), abs(top - bottom)) / 100.0)
+    to_crs = Transformer.from_crs(CRS.from_user_input(data.rio.crs.to_wkt()), crs, always_xy=True)
+    x, y = to_crs.transform(*np.asarray(dense.exterior.coords).T)
+    if not (np.all(np.isfinite(x)) and np.all(np.isfinite(y))):
+        return None
+    return shapely.Polygon(np.column_stack([x, y])).buffer(0)
+
+
+def coverage_share(data: xr.DataArray, grid: TargetGrid) -> float:
+    """Share [0-1] of the grid's area inside the layer's extent (edges densified before reprojecting)."""
+    import shapely
+    from pyproj import CRS, Transformer
+
     box = shapely.box(*grid.bounds)
-    source = shapely.segmentize(shapely.box(min(left, right), min(top, bottom), max(left, right), max(top, bottom)),
-                                max(abs(right - left), abs(top - bottom)) / 100.0)
-    to_grid = Transformer.from_crs(CRS.from_user_input(data.rio.crs.to_wkt()), grid.crs, always_xy=True)
-    x, y = to_grid.transform(*np.asarray(source.exterior.coords).T)
-    if np.all(np.isfinite(x)) and np.all(np.isfinite(y)):
-        footprint = shapely.Polygon(np.column_stack([x, y]))
-        return float(min(1.0, footprint.buffer(0).intersection(box).area / box.area))
+    footprint = _footprint(data, grid.crs)
+    if footprint is not None:
+        return float(min(1.0, footprint.intersection(box).area / box.area))
     # The layer's extent does not project into the grid CRS (a global lon/lat layer and a local
     # projection): measure the grid's footprint in the layer CRS instead.
-    to_layer = Transformer.from_crs(grid.crs, CRS.from_user_input(data.rio.crs.to_wkt()), always_xy=True)
+    layer_crs = CRS.from_user_input(data.rio.crs.to_wkt())
+    to_layer = Transformer.from_crs(grid.crs, layer_crs, always_xy=True)
     dense = shapely.segmentize(box, max(box.bounds[2] - box.bounds[0], box.bounds[3] - box.bounds[1]) / 100.0)
     gx, gy = to_layer.transform(*np.asarray(dense.exterior.coords).T)
     region = shapely.Polygon(np.column_stack([gx, gy])).buffer(0)
-    return float(region.intersection(source).area / region.area) if region.area else 0.0
+    left, bottom, right, top = data.rio.bounds(recalc=True)
+    extent = shapely.box(min(left, right), min(bottom, top), max(left, right), max(bottom, top))
+    return float(region.intersection(extent).area / region.area) if region.area else 0.0
+
+
+def _cells_per_grid_cell(data: xr.DataArray, grid: TargetGrid) -> float | None:
+    """How many layer cells fit in one grid cell (mean, in the grid's map plane); None if unknown."""
+    footprint = _footprint(data, grid.crs)
+    if footprint is None or footprint.area == 0:
+        return None
+    layer_cell = footprint.area / (data.sizes["x"] * data.sizes["y"])
+    return grid.resolution[0] * grid.resolution[1] / layer_cell
 
 
 # ============================================================================================ the climate
@@ -657,8 +691,9 @@ def load_mask(region_config: Any, grid: TargetGrid, config_dir: str | Path | Non
 def inspect_inputs(config: Any) -> list[LayerReport]:
     """Open every input of ``config`` (baseline climate, scenario overrides, region mask) and report on it.
 
-    Reads only metadata and strided samples; never computes the model. Problems that would stop a run
-    are listed per layer in ``problems`` rather than raised, so one check shows all of them.
+    Reads only metadata and samples of at most 256 x 256 cells per time step; never computes the model.
+    Problems that would stop a run are listed per layer in ``problems`` rather than raised, so one check
+    shows all of them.
     """
     reports: list[LayerReport] = []
     try:
@@ -702,6 +737,11 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
         return report
     if report.overlap_share < 1.0 - 1e-6:
         report.warnings.append(f"covers {report.overlap_share:.1%} of the region; cells outside are NaN")
+    resampling = getattr(spec, "resampling", None) or INPUT_VARIABLES[name].resampling
+    ratio = _cells_per_grid_cell(converted, grid)
+    if ratio is not None and ratio > 4.0 and resampling in ("nearest", "bilinear", "cubic"):
+        report.warnings.append(f"about {ratio:.0f} layer cells per grid cell: '{resampling}' uses only the cells next to "
+                               "each grid cell centre; resampling: average uses them all")
     sample = _sample(_region_window(converted, grid), f"{spec.path}: layer {name!r}")
     valid = np.isfinite(sample)
     report.nodata_share = float(1.0 - valid.mean()) if sample.size else None
