@@ -50,9 +50,9 @@ from .variables import INPUT_VARIABLES, OUTPUT_VARIABLES
 
 MONTH_FIELD = re.compile(r"\{month(?::(?P<spec>[^{}]*))?\}")
 _SCENARIO_NAME = re.compile(r"^[A-Za-z0-9_-]+$")
-# Above this many cells a grid is almost surely a units slip (degrees for metres); a deliberate
-# continental 30 m grid is still well below it.
-MAX_GRID_CELLS = 10_000_000_000
+# Above this many cells (400 GB per float32 layer) a grid is almost surely a units slip, such as a
+# resolution in degrees over bounds in metres (0.01 over 200 km gives 4e14 cells).
+MAX_GRID_CELLS = 100_000_000_000
 
 
 def _resolve_path(value: Path, info: ValidationInfo) -> Path:
@@ -63,6 +63,8 @@ def _resolve_path(value: Path, info: ValidationInfo) -> Path:
 
 
 ConfigPath = Annotated[Path, AfterValidator(_resolve_path)]
+_Finite = Annotated[float, Field(allow_inf_nan=False)]
+_Positive = Annotated[float, Field(gt=0, allow_inf_nan=False)]
 
 
 def month_path(path: str | Path, month: int) -> Path:
@@ -79,20 +81,15 @@ def is_month_pattern(path: str | Path) -> bool:
 
 
 class _Section(BaseModel):
-    model_config = ConfigDict(extra="forbid", frozen=False, validate_default=True)
+    model_config = ConfigDict(extra="forbid", validate_default=True)
 
 
 class GridConfig(_Section):
     """An explicit target grid. Bounds are snapped outward to whole cells by :mod:`suitability.grid`."""
 
     crs: str
-    resolution: tuple[Annotated[float, Field(gt=0, allow_inf_nan=False)], Annotated[float, Field(gt=0, allow_inf_nan=False)]]
-    bounds: tuple[
-        Annotated[float, Field(allow_inf_nan=False)],
-        Annotated[float, Field(allow_inf_nan=False)],
-        Annotated[float, Field(allow_inf_nan=False)],
-        Annotated[float, Field(allow_inf_nan=False)],
-    ]
+    resolution: tuple[_Positive, _Positive]
+    bounds: tuple[_Finite, _Finite, _Finite, _Finite]
 
     @field_validator("crs")
     @classmethod
@@ -242,7 +239,8 @@ class ClimateLayers(RootModel[dict[str, LayerSpec]]):
         return self.root.get(name, default)
 
 
-# Alternatives that cannot be given together, and the layers each canonical quantity needs.
+# Layers that cannot be given together; and the quantity each layer stands for, so that a scenario may
+# replace a baseline layer with its alternative (water_stress for water_availability, par for shortwave).
 _EXCLUSIVE = (("water_availability", "water_stress"), ("shortwave", "par"), ("vpd", "humidity"))
 _CANONICAL = {"water_stress": "water_availability", "par": "radiation", "shortwave": "radiation"}
 
@@ -334,9 +332,9 @@ class ScenarioConfig(_Section):
 
     name: str
     description: str = ""
-    co2_ppm: Annotated[float, Field(gt=0, allow_inf_nan=False)]
+    co2_ppm: _Positive
     o2_percent: Annotated[float, Field(gt=0, le=100)] = 20.95
-    temperature_offset_c: Annotated[float, Field(allow_inf_nan=False)] = 0.0
+    temperature_offset_c: _Finite = 0.0
     shortwave_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
     water_availability_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
     climate: ClimateLayers | None = None

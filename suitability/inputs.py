@@ -662,9 +662,7 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
         if layer.name in layers:
             raise InputDataError(f"{path}: layer {name!r} gives {layer.name!r}, which another layer already gives")
         layers[layer.name] = align_to_grid(layer, grid, resampling, chunk)
-    months = {tuple(a["month"].values) for a in layers.values() if "month" in a.dims}
-    if len(months) > 1:
-        raise InputDataError(f"monthly layers have different months: {sorted(months)}; expected 1..12 in each")
+    # Every monthly layer was checked to hold each month 1..12 once (sorted), so their months agree.
     dataset = xr.Dataset(layers)
     return dataset.rio.write_crs(grid.crs.to_wkt())
 

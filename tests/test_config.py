@@ -230,6 +230,22 @@ def test_unknown_key_names_the_dotted_key_the_line_and_the_closest_valid_key(tmp
     assert f"line {line}," in message
 
 
+@pytest.mark.parametrize("dotted, suggestion", [
+    ("region.grid.crz", "crs"),
+    ("climate.tmin.unitz", "units"),
+    ("scenarios[1].climate.tmin.variabel", "variable"),
+    ("brief.zonez", "zones"),
+    ("output.cog.overview", "overviews"),
+])
+def test_unknown_nested_keys_suggest_the_valid_key_at_their_level(tmp_path, dotted, suggestion):
+    data = demo_dict()
+    if dotted.startswith("scenarios[1].climate"):
+        data["scenarios"][1]["climate"] = {"tmin": {"path": "future.nc"}}
+    _set(data, dotted, 1)
+    message = error_of(tmp_path, data)
+    assert f"{dotted}: unknown key (did you mean {suggestion!r}?)" in message
+
+
 def test_unknown_climate_layer_suggests_the_closest_layer_name(tmp_path):
     data = demo_dict()
     data["climate"]["tmpx"] = data["climate"].pop("tmax")

@@ -333,6 +333,20 @@ def test_non_standard_calendars_and_time_order(tmp_path, calendar):
     np.testing.assert_allclose(layer.values[:, 0, 0], MONTHS, atol=1e-4)  # month m holds m °C, sorted
 
 
+def test_integer_months_since_time_axis_is_read_as_calendar_months(tmp_path):
+    # CF-1.10 §4.4 allows "months since" units; xarray cannot decode them in the standard calendar, so the
+    # reader counts whole calendar months from the reference date (a documented decision).
+    order = [7, 8, 9, 10, 11, 12, 1, 2, 3, 4, 5, 6]
+    values = np.stack([np.full((40, 40), 273.15 + m, "float32") for m in order])
+    time = xr.DataArray(np.arange(12), dims="time", attrs={"units": "months since 1999-07-01", "calendar": "standard"})
+    lat = -22.9 - 0.02 * (np.arange(40) + 0.5)
+    lon = 54.9 + 0.02 * (np.arange(40) + 0.5)
+    ds = xr.Dataset({"tmin": (("time", "lat", "lon"), values, {"units": "K"})}, coords={"time": time, "lat": lat, "lon": lon})
+    ds.to_netcdf(tmp_path / "t.nc")
+    layer = open_layer("tmin", spec(tmp_path / "t.nc", variable="tmin"))
+    np.testing.assert_allclose(layer.values[:, 0, 0], MONTHS, atol=1e-4)
+
+
 def test_plain_month_dimension_is_accepted(tmp_path):
     lat = -22.9 - 0.02 * (np.arange(40) + 0.5)
     lon = 54.9 + 0.02 * (np.arange(40) + 0.5)
@@ -503,6 +517,14 @@ def test_full_overlap_gives_no_warning(tmp_path):
     with warnings.catch_warnings():
         warnings.simplefilter("error", InputCoverageWarning)
         load_climate({"shortwave": spec(tif(tmp_path / "sw.tif", monthly(lambda m: 200.0), units="W m-2"))}, REGION)
+
+
+def test_two_layers_giving_the_same_quantity_are_refused(tmp_path):
+    # variables.py: water_stress is returned as water_availability, so both cannot be given.
+    both = {"water_availability": spec(tif(tmp_path / "a.tif", monthly(lambda m: 0.5)), units="1"),
+            "water_stress": spec(tif(tmp_path / "s.tif", monthly(lambda m: 0.5)), units="1")}
+    with pytest.raises(InputDataError, match="another layer already gives"):
+        load_climate(both, REGION)
 
 
 def test_region_mask(tmp_path):
