@@ -277,7 +277,7 @@ def test_month_pattern_with_missing_months_names_them(tmp_path):
 
 def test_month_pattern_files_on_different_grids_are_refused(tmp_path):
     for m in MONTHS:
-        transform = REGION_TRANSFORM if m != 6 else REGION_TRANSFORM * Affine.translation(1, 0)
+        transform = REGION_TRANSFORM if m != 6 else REGION_TRANSFORM @ Affine.translation(1, 0)
         tif(tmp_path / f"t_{m:02d}.tif", np.full(REGION.shape, 20.0), transform=transform)
     with pytest.raises(InputDataError, match="t_06.tif: month 6"):
         open_layer("tmax", spec(tmp_path / "t_{month:02d}.tif", units="degC"))
@@ -507,7 +507,7 @@ def test_partial_overlap_warns_with_the_share_and_leaves_nan(tmp_path):
 
 
 def test_no_overlap_is_an_error(tmp_path):
-    far = tif(tmp_path / "sw.tif", monthly(lambda m: 200.0), units="W m-2", transform=REGION_TRANSFORM * Affine.translation(500, 0))
+    far = tif(tmp_path / "sw.tif", monthly(lambda m: 200.0), units="W m-2", transform=REGION_TRANSFORM @ Affine.translation(500, 0))
     with pytest.raises(InputDataError, match="does not overlap the region") as info:
         load_climate({"shortwave": spec(far)}, REGION)
     assert str(far) in str(info.value)
@@ -585,3 +585,18 @@ def test_inspect_inputs_counts_out_of_range_values(tmp_path):
 def test_layer_files_expands_month_patterns(tmp_path):
     files = layer_files(spec(tmp_path / "sw_{month:02d}.tif"))
     assert [f.name for f in files] == [f"sw_{m:02d}.tif" for m in MONTHS]
+
+
+def test_inspect_inputs_reports_the_region_mask(tmp_path):
+    for name, units in (("t", "degC"), ("sw", "MJ m-2 d-1"), ("w", "1")):
+        tif(tmp_path / f"{name}.tif", monthly(lambda m: 0.5), units=units)
+    west = tif(tmp_path / "mask.tif", np.ones((REGION.height, 5)), dtype="uint8")  # 5 of 20 columns
+    (tmp_path / "run.yaml").write_text(yaml.safe_dump({
+        "region": {"name": "Kessarine Basin", "mask": "mask.tif",
+                   "grid": {"crs": UTM40S, "resolution": 2000, "bounds": list(REGION.bounds)}},
+        "climate": {"tmean": {"path": "t.tif"}, "shortwave": {"path": "sw.tif"}, "water_availability": {"path": "w.tif"}},
+        "scenarios": [{"name": "now", "co2_ppm": 420}],
+    }))
+    report = next(r for r in inspect_inputs(load_config(tmp_path / "run.yaml")) if r.layer == "mask")
+    assert report.path == str(west) and report.crs == UTM40S
+    assert report.overlap_share == pytest.approx(0.25)  # 5 / 20 columns, derived here
