@@ -106,13 +106,15 @@ def non_rectangular_hyperbola(rate_a, rate_b, curvature):
     """Smaller root of θ x² − (a + b) x + a b = 0: a smooth co-limitation of two rates [units of a, b].
 
     Written as x = 2ab / (a + b + √((a + b)² − 4θab)), which has no cancellation at low light and no
-    division by θ: θ = 0 gives the rectangular hyperbola ab/(a + b), θ = 1 the minimum of a and b.
+    division by θ: θ = 0 gives the rectangular hyperbola ab/(a + b), θ = 1 the minimum of a and b;
+    0 when both rates are 0.
     """
     total = rate_a + rate_b
     product = rate_a * rate_b
     # Rounding can push the discriminant a hair below zero when θ = 1 and a = b.
-    discriminant = np.maximum(total * total - 4.0 * curvature * product, 0.0)
-    return 2.0 * product / (total + np.sqrt(discriminant))
+    denominator = total + np.sqrt(np.maximum(total * total - 4.0 * curvature * product, 0.0))
+    # Both rates zero (darkness with closed stomata) is 0/0: the co-limited rate is then 0.
+    return where(denominator > 0, 2.0 * product / where(denominator > 0, denominator, 1.0), 0.0)
 
 
 def electron_transport_rate(absorbed_par, jmax, theta, spectral_correction):
@@ -161,12 +163,16 @@ def fvcb_rates(co2_pa, o2_pa, absorbed_par, *, vcmax, jmax, tpu, rd, kc, ko, gam
     """
     electron_transport = electron_transport_rate(absorbed_par, jmax, theta, spectral_correction)
     rate_rubisco = vcmax / (co2_pa + effective_michaelis_constant(kc, ko, o2_pa))
-    rate_light = electron_transport / (4.0 * co2_pa + 8.0 * gamma_star)
-    rate_tpu = 3.0 * tpu / co2_pa
+    light_denominator = 4.0 * co2_pa + 8.0 * gamma_star
+    # Divisions are guarded rather than left to produce inf/NaN: under dask, np.errstate does not reach
+    # the computation and the warnings would surface. C = Γ* = 0 (no CO2, no O2) leaves Rubisco limiting.
+    rate_light = where(light_denominator > 0, electron_transport / where(light_denominator > 0, light_denominator, 1.0),
+                       np.inf)
     light_limited = rate_light < rate_rubisco
     rate = np.minimum(rate_rubisco, rate_light)
-    tpu_limited = rate_tpu < rate
-    rate = np.minimum(rate, rate_tpu)
+    # TPU limits where 3 Tp < ρ C, i.e. where 3 Tp / C < ρ without dividing by a C that may be 0.
+    tpu_limited = 3.0 * tpu < rate * co2_pa
+    rate = where(tpu_limited, 3.0 * tpu / where(tpu_limited, co2_pa, 1.0), rate)
     limitation = where(tpu_limited, 3, where(light_limited, 2, 1))
     gross = rate * (co2_pa - gamma_star)
     return C3Rates(gross - rd, gross, rate * gamma_star, limitation)

@@ -103,9 +103,12 @@ def collatz_c4_rates(temperature_c, absorbed_par, co2_pa, params, capacity_scale
 
 
 def _smaller_root_monic(b, c):
-    # Smaller root of A² + bA + c = 0 as 2c / (−b + √(b² − 4c)): no cancellation when c is small.
-    discriminant = np.maximum(b * b - 4.0 * c, 0.0)
-    return 2.0 * c / (np.sqrt(discriminant) - b)
+    # Smaller root of A² + bA + c = 0 as 2c / (−b + √(b² − 4c)) (no cancellation when c is small). The
+    # denominator is twice the larger root, which may be negative (darkness, low Cm); where it is 0 the
+    # smaller root is −b.
+    denominator = np.sqrt(np.maximum(b * b - 4.0 * c, 0.0)) - b
+    nonzero = denominator != 0
+    return where(nonzero, 2.0 * c / where(nonzero, denominator, 1.0), -b)
 
 
 def caemmerer_c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0) -> C4Rates:
@@ -157,9 +160,10 @@ def caemmerer_c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capac
     vp = where(is_light_limited, vp_light, vp_enzyme)
     leak = vp - net - rm
     bundle_sheath_co2 = co2_pa + leak / gbs
+    light_denominator = 3.0 * bundle_sheath_co2 + 7.0 * gamma_star
     photorespiration = where(
         is_light_limited,
-        bundle_sheath_electron * 3.0 * gamma_star / (3.0 * bundle_sheath_co2 + 7.0 * gamma_star),
+        bundle_sheath_electron * 3.0 * gamma_star / where(light_denominator > 0, light_denominator, 1.0),
         vcmax * gamma_star / (bundle_sheath_co2 + km),
     )
     co2_limited = (pepc_co2_limited < vpr) & (mesophyll_supply < vcmax - rd)

@@ -204,6 +204,8 @@ def _check_value(pathway: str, key: str, value, default):
     value = float(value)
     if math.isnan(value) or (math.isinf(value) and key not in {"jmax25", "tpu25"}):
         raise ValueError(f"{where} must be finite, got {value!r}")
+    if key == "gbs" and value <= 0:
+        raise ValueError(f"{where} must be > 0, got {value!r}")
     if key not in _SIGNED and value < 0:
         raise ValueError(f"{where} must be >= 0, got {value!r}")
     if key in _FRACTIONS and value > 1:
