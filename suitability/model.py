@@ -18,7 +18,7 @@ import xarray as xr
 
 from . import indicators
 from .physiology import crossover_temperature, daily_canopy_assimilation
-from .physiology.atmosphere import air_pressure_kpa
+from .physiology import atmosphere, light
 from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario
 from .variables import CLASS_NODATA
 
@@ -186,14 +186,7 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
         settings.contested_margin,
     )
     share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        warnings.simplefilter("ignore", UserWarning)
-        crossover = crossover_temperature(
-            scenario.co2_ppm, o2_percent=scenario.o2_percent, pressure_kpa=air_pressure_kpa(elevation),
-            params=settings.c3_params and None,
-        )
-    crossover = np.broadcast_to(crossover, shape)
+    crossover = _crossover_by_pressure(atmosphere.air_pressure_from_elevation(elevation), settings)
     seasonal = [season_c3, season_c4, advantage, classes, months_favoured, share, crossover]
     out = np.empty(shape + (_N_STACKED,), np.float32)
     for i, layer in enumerate(seasonal):
@@ -207,9 +200,25 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     return out
 
 
-def _month_inputs(data: Mapping[str, np.ndarray], index: int) -> dict[str, np.ndarray]:
-    from .physiology import light
+def _crossover_by_pressure(pressure_kpa: np.ndarray, settings: ModelSettings) -> np.ndarray:
+    """Crossover temperature per cell, solved once per distinct air pressure (to 0.01 kPa) of the block.
 
+    The crossover depends on the cell only through its air pressure; rounding the pressure to 0.01 kPa
+    (about 1 m of elevation) changes it by far less than the 0.1 °C the maps resolve.
+    """
+    finite = np.isfinite(pressure_kpa)
+    rounded = np.round(np.where(finite, pressure_kpa, 101.3), 2)
+    distinct, inverse = np.unique(rounded, return_inverse=True)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        solved = crossover_temperature(
+            settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent, pressure_kpa=distinct,
+            params={"C3": settings.c3_params, "C4": settings.c4_params},
+        )
+    return np.where(finite, np.asarray(solved)[inverse.reshape(pressure_kpa.shape)], np.nan)
+
+
+def _month_inputs(data: Mapping[str, np.ndarray], index: int) -> dict[str, np.ndarray]:
     inputs = {
         "tmin_c": data["tmin"][..., index],
         "tmax_c": data["tmax"][..., index],
@@ -218,14 +227,13 @@ def _month_inputs(data: Mapping[str, np.ndarray], index: int) -> dict[str, np.nd
     if "shortwave" in data:
         inputs["shortwave_mj"] = data["shortwave"][..., index]
     else:
-        inputs["shortwave_mj"] = light.shortwave_from_par(data["par"][..., index])
+        # mol m-2 d-1 of PAR back to MJ m-2 d-1 of shortwave, inverting light.par_from_shortwave
+        inputs["shortwave_mj"] = data["par"][..., index] / light.par_from_shortwave(1.0)
     if "vpd" in data:
         inputs["vpd_kpa"] = data["vpd"][..., index]
     elif "humidity" in data:
-        from .physiology import atmosphere
-
-        inputs["actual_vapour_pressure_kpa"] = atmosphere.actual_vapour_pressure_from_humidity(
-            data["humidity"][..., index], inputs["tmin_c"], inputs["tmax_c"]
+        inputs["actual_vapour_pressure_kpa"] = atmosphere.actual_vapour_pressure_from_relative_humidity(
+            100.0 * data["humidity"][..., index], inputs["tmin_c"], inputs["tmax_c"]
         )
     return inputs
 

@@ -23,7 +23,7 @@ from .config import RunConfig, load_config
 from .errors import ConfigError, InputDataError
 from .grid import TargetGrid
 from .indicators import advantage_change, class_transition
-from .inputs import load_climate
+from .inputs import load_climate, load_mask
 from .model import MONTHLY_LAYERS, SEASONAL_LAYERS, evaluate
 from .outputs import check_output_folder, file_checksum, write_datacube, write_layers, write_manifest
 from .runtime import compute_context
@@ -91,9 +91,12 @@ def run(
     check_output_folder(folder, [f"{s.name}/{n}.tif" for s in scenarios for n in layer_names(s)], cfg.output.overwrite)
     chunk = cfg.compute.chunk_size
     written: dict[str, dict[str, Path]] = {}
-    with compute_context(cfg.compute) as runtime:
+    with compute_context(cfg.compute, progress=progress) as runtime:
         tick = time.perf_counter()
         climate = load_climate(cfg.climate, grid, cfg.config_dir, chunk)
+        mask = load_mask(cfg.region, grid, cfg.config_dir, chunk)
+        if mask is not None:
+            climate = climate.where(mask)
         climate = climate.assign(latitude=grid.latitude(chunk))
         timings["open_inputs_s"] = time.perf_counter() - tick
         config_hash = cfg.config_hash()
@@ -115,7 +118,7 @@ def run(
             tags = _scenario_tags(scenario, config_hash)
             with runtime.progress(f"{scenario.name}: computing and writing"):
                 written[scenario.name] = write_layers(
-                    layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=runtime.write_lock(scenario.name)
+                    layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=None
                 )
             if cfg.output.datacube:
                 cube = result[list(MONTHLY_LAYERS)]
@@ -213,7 +216,7 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs) -> dict[
         "tool": "suitability",
         "tool_version": __version__,
         "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
-        "config_file": str(getattr(cfg, "source_path", "") or ""),
+        "config_file": str(cfg.source_path or ""),
         "config_hash": config_hash,
         "config": json.loads(cfg.model_dump_json()),
         "inputs": inputs,

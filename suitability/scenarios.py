@@ -22,6 +22,11 @@ import numpy as np
 import xarray as xr
 
 DEFAULT_DIURNAL_RANGE_C = 10.0
+# A scenario layer replaces the baseline's layer of the same quantity under another name, too.
+_ALTERNATIVES = {
+    "shortwave": ("par",), "par": ("shortwave",), "vpd": ("humidity",), "humidity": ("vpd",),
+    "tmean": ("tmin", "tmax"), "tmin": ("tmean",), "tmax": ("tmean",),
+}
 
 
 @dataclass(frozen=True)
@@ -79,6 +84,9 @@ def apply_scenario(
     climate = baseline.copy()
     if scenario_layers is not None:
         for name, layer in scenario_layers.data_vars.items():
+            for alternative in _ALTERNATIVES.get(name, ()):
+                if alternative in climate and alternative not in scenario_layers:
+                    climate = climate.drop_vars(alternative)
             climate[name] = layer
     climate = _ensure_tmin_tmax(climate, diurnal_range_c)
     offset = np.float32(settings.temperature_offset_c)
