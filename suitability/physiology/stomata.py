@@ -16,7 +16,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from .temperature import where
+from .temperature import weak_scalar, where
 
 
 def medlyn_ci_ratio(vpd_kpa, g1, water_availability=1.0):
@@ -29,7 +29,7 @@ def medlyn_ci_ratio(vpd_kpa, g1, water_availability=1.0):
     water_availability : W [-], 0 (none) .. 1 (unstressed)
     """
     slope = g1 * water_availability
-    denominator = slope + np.sqrt(vpd_kpa)
+    denominator = slope + weak_scalar(np.sqrt(vpd_kpa))
     # Closed stomata in saturated air (W = 0 and D = 0) is 0/0; closed stomata win: Ci/Ca = 0.
     return where(denominator > 0, slope / where(denominator > 0, denominator, 1.0), 0.0)
 

@@ -45,6 +45,13 @@ def where(condition, if_true, if_false):
     return np.where(condition, if_true, if_false)
 
 
+def weak_scalar(value):
+    """A numpy scalar or 0-d array as a Python float, which does not upcast float32 arrays (NEP 50)."""
+    if isinstance(value, (np.generic, np.ndarray)) and np.ndim(value) == 0:
+        return float(value)
+    return value
+
+
 def arrhenius(temperature_c, activation_energy):
     """Normalised Arrhenius factor, 1 at 25 °C.
 
@@ -74,9 +81,9 @@ def peaked_arrhenius(temperature_c, activation_energy, deactivation_energy, entr
     entropy : ΔS [J mol-1 K-1]
     """
     tk = temperature_c + KELVIN_OFFSET
-    at_reference = 1.0 + np.exp(
+    at_reference = weak_scalar(1.0 + np.exp(
         (REFERENCE_TEMPERATURE_K * entropy - deactivation_energy) / (REFERENCE_TEMPERATURE_K * R_GAS)
-    )
+    ))
     at_temperature = 1.0 + np.exp((tk * entropy - deactivation_energy) / (R_GAS * tk))
     return arrhenius(temperature_c, activation_energy) * at_reference / at_temperature
 

@@ -147,3 +147,17 @@ def test_overrides_and_config_form():
 def test_bad_params_list_valid_choices(pathway, params, message):
     with pytest.raises(ValueError, match=message):
         resolve_params(pathway, params)
+
+
+@pytest.mark.parametrize("pathway, params", [("C3", None), ("C3", "collatz1991"), ("C4", None), ("C4", "vc2000")])
+def test_float32_stays_float32(pathway, params):
+    # The pipeline carries float32 layers (docs/contracts.md): results stay float32, within float32
+    # rounding of the float64 computation.
+    t, q = np.float32([5.0, 25.0, 40.0]), np.float32([100.0, 800.0, 2000.0])
+    single = leaf_assimilation(pathway, t, q, np.float32(400.0), vpd_kpa=np.float32(1.2),
+                               water_availability=np.float32(0.8), params=params)
+    double = leaf_assimilation(pathway, t.astype(float), q.astype(float), 400.0, vpd_kpa=1.2,
+                               water_availability=0.8, params=params)
+    for name in FLOAT_FIELDS:
+        assert getattr(single, name).dtype == np.float32, name
+        np.testing.assert_allclose(getattr(single, name), getattr(double, name), rtol=1e-5, atol=1e-5)
