@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import functools
 import sys
+import warnings
 from pathlib import Path
 from typing import List, Optional
 
@@ -23,8 +24,20 @@ app = typer.Typer(
     no_args_is_help=True,
     help="Map where C4 plants out-assimilate C3 plants, today and under climate scenarios.",
 )
-console = Console(stderr=False)
-errors = Console(stderr=True)
+
+
+class _LazyConsole:
+    """A rich Console made on first use, so the terminal width is read when a command runs."""
+
+    def __init__(self, stderr: bool):
+        self._stderr = stderr
+
+    def print(self, *args, **kwargs):
+        Console(stderr=self._stderr).print(*args, **kwargs)
+
+
+console = _LazyConsole(stderr=False)
+errors = _LazyConsole(stderr=True)
 
 CAUTION_SHORT = (
     "Potential, model-based estimates, not yield forecasts. Confirm with local agronomic advice, "
@@ -32,9 +45,18 @@ CAUTION_SHORT = (
 )
 
 
+def _quiet_library_noise() -> None:
+    # Harmless notices from the raster stack that a GIS user cannot act on; our own warnings still show.
+    warnings.filterwarnings("ignore", category=PendingDeprecationWarning)
+    warnings.filterwarnings("ignore", category=DeprecationWarning)
+    warnings.filterwarnings("ignore", message="Dataset has no geotransform")
+
+
 def _handle_errors(command):
     @functools.wraps(command)
     def wrapper(*args, debug: bool = False, **kwargs):
+        if not debug:
+            _quiet_library_noise()
         try:
             return command(*args, **kwargs)
         except SuitabilityError as error:
@@ -108,17 +130,19 @@ def _check(config):
     cfg = load_config(config)
     reports = inspect_inputs(cfg)
     table = Table(title=f"Inputs of {config}")
-    for column in ("layer", "file", "CRS", "units", "overlap %", "nodata %", "problems"):
-        table.add_column(column)
+    with_scenarios = any(report.scenario for report in reports)
+    columns = ["layer"] + (["scenario"] if with_scenarios else []) + ["file", "CRS", "units", "overlap %", "nodata %", "notes"]
+    for column in columns:
+        table.add_column(column, overflow="fold")
     problems = 0
     for report in reports:
-        issues = list(getattr(report, "problems", []) or [])
+        issues = list(report.problems)
         problems += len(issues)
-        table.add_row(
-            str(report.layer), Path(str(report.path)).name, str(report.crs), _units_text(report),
-            _percent(getattr(report, "overlap_share", None)), _percent(getattr(report, "nodata_share", None)),
-            "; ".join(issues) or "ok",
-        )
+        notes = [f"[red]{p}[/]" for p in issues] + [f"[yellow]{w}[/]" for w in report.warnings]
+        cells = [str(report.layer)] + ([report.scenario or "-"] if with_scenarios else [])
+        cells += [Path(str(report.path)).name, str(report.crs), _units_text(report),
+                  _percent(report.overlap_share), _percent(report.nodata_share), "; ".join(notes) or "[green]ok[/]"]
+        table.add_row(*cells)
     console.print(table)
     console.print(f"{len(cfg.scenarios)} scenarios: {', '.join(s.name for s in cfg.scenarios)}")
     if problems:

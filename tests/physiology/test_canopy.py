@@ -136,10 +136,7 @@ def test_dark_day_is_night_respiration_integrated_over_24_h():
 
 
 @pytest.mark.parametrize("pathway,params", [
-    ("C3", "bernacchi2001"), ("C3", "collatz1991"), ("C4", "collatz1992"),
-    pytest.param("C4", "vc2000", marks=pytest.mark.xfail(strict=True, reason=(
-        "leaf_assimilation('C4', 33, 0, 400, water_availability=0.437, pressure_kpa=71.5, vpd_kpa=2.5, "
-        "params='vc2000') gives net 0 and gross = Rd (bundle-sheath CO2 negative) instead of net -Rd"))),
+    ("C3", "bernacchi2001"), ("C3", "collatz1991"), ("C4", "collatz1992"), ("C4", "vc2000"),
 ])
 def test_dark_day_loses_carbon_under_stress_at_altitude(pathway, params):
     # Common practice, no source: leaves in darkness only respire, so a day without light loses carbon
