@@ -622,6 +622,10 @@ def _yaml_problem(exc: yaml.YAMLError) -> str:
     problem = getattr(exc, "problem", None) or str(exc)
     context = getattr(exc, "context", None)
     where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark is not None else ""
+    # An unclosed quote or bracket is found only at the end of the file; where it starts is what to fix.
+    started = getattr(exc, "context_mark", None)
+    if context and started is not None and mark is not None and started.line != mark.line:
+        context = f"{context} that starts on line {started.line + 1}, column {started.column + 1}"
     return f"{where}YAML error: {problem}" + (f" ({context})" if context else "")
 
 
