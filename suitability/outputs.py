@@ -56,7 +56,7 @@ import xarray as xr
 
 from .errors import ConfigError, OutputError
 from .runtime import compute, write_lock
-from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA, OUTPUT_VARIABLES
+from .variables import CLASS_C3, CLASS_C4, CLASS_COLOURS_RGB, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA, OUTPUT_VARIABLES
 
 TILE_SIZE = 512
 STAGING_PREFIX = ".suitability-staging-"
@@ -67,7 +67,7 @@ COMPRESSIONS = ("deflate", "zstd")
 # Colour tables of our own (RGBA). Classes: 1 C3 favoured blue-green, 2 contested pale grey, 3 C4 favoured
 # amber. Transitions: kept classes take their class colour, moves toward C4 warm (stronger = darker),
 # moves toward C3 cool; nodata is transparent.
-_BLUE_GREEN, _PALE_GREY, _AMBER = (23, 128, 122, 255), (221, 221, 216, 255), (236, 161, 21, 255)
+_BLUE_GREEN, _PALE_GREY, _AMBER = (CLASS_COLOURS_RGB[c] + (255,) for c in (CLASS_C3, CLASS_CONTESTED, CLASS_C4))
 _TRANSPARENT = (0, 0, 0, 0)
 PATHWAY_CLASS_COLOURS = {CLASS_C3: _BLUE_GREEN, CLASS_CONTESTED: _PALE_GREY, CLASS_C4: _AMBER,
                          CLASS_NODATA: _TRANSPARENT}

@@ -72,3 +72,7 @@ CLASS_CONTESTED = 2
 CLASS_C4 = 3
 CLASS_NODATA = 255
 CLASS_NAMES = {CLASS_C3: "C3 favoured", CLASS_CONTESTED: "contested", CLASS_C4: "C4 favoured"}
+
+#: Class colours as RGB, shared by the GeoTIFF colour tables and the brief figures: blue-green C3 favoured,
+#: pale grey contested, amber C4 favoured (from the colour-blind-safe set of Okabe & Ito 2008).
+CLASS_COLOURS_RGB = {CLASS_C3: (0, 158, 115), CLASS_CONTESTED: (221, 221, 221), CLASS_C4: (230, 159, 0)}

@@ -15,23 +15,15 @@ from typer.testing import CliRunner
 from suitability.cli import app
 from suitability.config import load_config
 
+from conftest import write_demo_config
+
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "configs" / "demo.yaml"
 runner = CliRunner(env={"COLUMNS": "200"})
 
 
 def _demo_copy(tmp_path: Path, **changes) -> Path:
-    config = yaml.safe_load(DEMO.read_text())
-    for section in ("tmin", "tmax", "shortwave", "water_availability", "elevation"):
-        layer = config["climate"][section]
-        layer["path"] = str((DEMO.parent / layer["path"]).resolve())
-    config["brief"]["zones"] = str((DEMO.parent / config["brief"]["zones"]).resolve())
-    config["output"]["folder"] = str(tmp_path / "out")
-    for key, value in changes.items():
-        config[key] = value
-    path = tmp_path / "config.yaml"
-    path.write_text(yaml.safe_dump(config, sort_keys=False))
-    return path
+    return write_demo_config(tmp_path, **changes)
 
 
 def test_check_on_the_demo_reports_every_layer(tmp_path):

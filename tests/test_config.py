@@ -276,7 +276,14 @@ def _set(data: dict, dotted: str, value):
         node[int(last) if last.isdigit() else last] = value
 
 
-_DELETE = object()
+class _Delete:
+    """Marker: remove the key instead of setting a value (a stable repr keeps test ids equal across xdist workers)."""
+
+    def __repr__(self) -> str:
+        return "<deleted>"
+
+
+_DELETE = _Delete()
 
 # (dotted key to set, value, key expected in the message, text expected in the message, basis of the rule)
 BAD_VALUES = [

@@ -22,23 +22,17 @@ import suitability
 from suitability.config import load_config
 from suitability.grid import TargetGrid
 
+from conftest import write_demo_config
+
 REPO = Path(__file__).resolve().parents[1]
 DEMO = REPO / "configs" / "demo.yaml"
 
 
 @pytest.fixture(scope="module")
 def demo_run(tmp_path_factory):
-    folder = tmp_path_factory.mktemp("demo_out")
-    config = yaml.safe_load(DEMO.read_text())
-    config["output"]["folder"] = str(folder)
-    config["output"]["datacube"] = True
-    path = REPO / "configs" / f".test_demo_{folder.name}.yaml"
-    path.write_text(yaml.safe_dump(config))
-    try:
-        result = suitability.run(path)
-    finally:
-        path.unlink()
-    return result
+    folder = tmp_path_factory.mktemp("demo_run")
+    output = dict(yaml.safe_load(DEMO.read_text())["output"], datacube=True)
+    return suitability.run(write_demo_config(folder, output=output | {"folder": str(folder / "out")}))
 
 
 def test_every_layer_is_a_valid_cog_on_the_target_grid(demo_run):

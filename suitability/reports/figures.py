@@ -31,10 +31,10 @@ from rasterio.enums import Resampling
 
 from suitability.errors import InputDataError, OutputError
 from suitability.reports.zones import zones_on_grid
-from suitability.variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES
+from suitability.variables import CLASS_C3, CLASS_C4, CLASS_COLOURS_RGB, CLASS_CONTESTED, CLASS_NAMES
 
-#: Class colours (Okabe & Ito 2008): blue-green C3, pale grey contested, amber C4.
-CLASS_COLOURS: dict[int, str] = {CLASS_C3: "#009E73", CLASS_CONTESTED: "#DDDDDD", CLASS_C4: "#E69F00"}
+#: Class colours as hex, the same as the GeoTIFF colour tables (variables.CLASS_COLOURS_RGB).
+CLASS_COLOURS: dict[int, str] = {code: "#{:02X}{:02X}{:02X}".format(*rgb) for code, rgb in CLASS_COLOURS_RGB.items()}
 #: Plain-language legend labels of the classes.
 CLASS_LABELS: dict[int, str] = {
     CLASS_C3: "C3 crops have the advantage",
