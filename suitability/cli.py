@@ -14,6 +14,7 @@ from typing import List, Optional
 
 import typer
 from rich.console import Console
+from rich.markup import escape
 from rich.panel import Panel
 from rich.table import Table
 
@@ -62,7 +63,7 @@ def _handle_errors(command):
         except SuitabilityError as error:
             if debug:
                 raise
-            errors.print(f"[bold red]error:[/] {error}", highlight=False, soft_wrap=True)
+            errors.print(f"[bold red]error:[/] {escape(str(error))}", highlight=False, soft_wrap=True)
             raise typer.Exit(error.exit_code)
         except KeyboardInterrupt:
             errors.print("[bold red]interrupted[/]: no finished-looking partial outputs were left behind.")
@@ -70,7 +71,7 @@ def _handle_errors(command):
         except Exception as error:  # noqa: BLE001 - the last line of defence for a GIS user
             if debug:
                 raise
-            errors.print(f"[bold red]internal error:[/] {type(error).__name__}: {error}", highlight=False)
+            errors.print(f"[bold red]internal error:[/] {type(error).__name__}: {escape(str(error))}", highlight=False)
             errors.print("Run again with --debug for the traceback, and report it.")
             raise typer.Exit(1)
 
@@ -102,16 +103,22 @@ def _run(config, overwrite, scheduler, workers, memory_limit, progress):
     result = pipeline.run(
         config, overwrite=overwrite, scheduler=scheduler, workers=workers, memory_limit=memory_limit, progress=progress
     )
-    table = Table(title="Share of valid cells by favoured pathway (%)")
-    for column in result.summary.columns:
-        table.add_column(str(column), justify="left" if column == "scenario" else "right")
-    for row in result.summary.itertuples(index=False):
-        table.add_row(*[f"{v:.1f}" if isinstance(v, float) else str(v) for v in row])
+    table = Table(title="Share of mapped cells by favoured pathway (%)")
+    table.add_column("scenario", no_wrap=True)
+    for heading in ("C3 favoured", "contested", "C4 favoured", "mapped cells"):
+        table.add_column(heading, justify="right")
+    for row in result.summary.to_dict(orient="records"):
+        table.add_row(
+            row["scenario"], f"{row['C3 favoured %']:.1f}", f"{row['contested %']:.1f}",
+            f"{row['C4 favoured %']:.1f}", str(row["valid_cells"]),
+        )
     console.print(table)
     console.print(f"Outputs: {result.output_folder}")
     console.print(f"Manifest: {result.manifest_path}")
-    for name, path in result.briefs.items():
-        console.print(f"Brief ({name}): {path}")
+    if result.briefs:
+        console.print("Briefs and district tables:")
+        for path in result.briefs.values():
+            console.print(f"  {path}", soft_wrap=True)
     console.print(f"Run time: {result.manifest['timings']['total_s']:.1f} s")
 
 
@@ -138,7 +145,7 @@ def _check(config):
     for report in reports:
         issues = list(report.problems)
         problems += len(issues)
-        notes = [f"[red]{p}[/]" for p in issues] + [f"[yellow]{w}[/]" for w in report.warnings]
+        notes = [f"[red]{escape(p)}[/]" for p in issues] + [f"[yellow]{escape(w)}[/]" for w in report.warnings]
         cells = [str(report.layer)] + ([report.scenario or "-"] if with_scenarios else [])
         cells += [Path(str(report.path)).name, str(report.crs), _units_text(report),
                   _percent(report.overlap_share), _percent(report.nodata_share), "; ".join(notes) or "[green]ok[/]"]
