@@ -1,0 +1,97 @@
+"""suitability.evaluate on in-memory xarray data: the Python API researchers use.
+
+Expected directions are published (cited beside each check); the seasonal-sum identities are derived
+here from the definitions in suitability/model.py. The climate values are synthetic.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import xarray as xr
+
+import suitability
+from suitability.model import SEASONAL_LAYERS
+
+
+def synthetic_climate(mean_temperature_c, *, chunks=None) -> xr.Dataset:
+    """A 2 x len(T) grid whose columns differ in mean temperature; a mild seasonal cycle; well watered."""
+    temperature = np.asarray(mean_temperature_c, dtype=np.float32)
+    months = np.arange(1, 13)
+    season = (3.0 * np.cos(2 * np.pi * (months - 1) / 12.0)).astype(np.float32)[:, None, None]
+    tmean = temperature[None, None, :] + season + np.zeros((12, 2, temperature.size), np.float32)
+    ds = xr.Dataset(
+        {
+            "tmin": (("month", "y", "x"), tmean - 6.0),
+            "tmax": (("month", "y", "x"), tmean + 6.0),
+            "shortwave": (("month", "y", "x"), np.full_like(tmean, 20.0)),
+            "water_availability": (("month", "y", "x"), np.full_like(tmean, 1.0)),
+            "latitude": (("y", "x"), np.full((2, temperature.size), -15.0, np.float32)),
+            "elevation": (("y", "x"), np.zeros((2, temperature.size), np.float32)),
+        },
+        coords={"month": months, "y": [1.5, 0.5], "x": np.arange(temperature.size) + 0.5},
+    )
+    return ds.chunk({"month": -1, "y": 1, "x": 2}) if chunks else ds
+
+
+def test_every_layer_is_returned_with_its_shape():
+    result = suitability.evaluate(synthetic_climate([10.0, 28.0]), {"co2_ppm": 420})
+    for name in SEASONAL_LAYERS:
+        assert result[name].shape == (2, 2), name
+    assert result["c3_monthly_assimilation"].shape == (12, 2, 2)
+    assert result["pathway_class"].dtype == np.uint8
+
+
+def test_season_totals_are_sums_of_the_monthly_totals():
+    result = suitability.evaluate(synthetic_climate([10.0, 28.0]), {"co2_ppm": 420}, season={"months": [1, 2, 3]})
+    monthly = result["c3_monthly_assimilation"]
+    # derived here: season total = sum of the season's monthly totals; months outside the season are NaN
+    np.testing.assert_allclose(result["c3_assimilation"], monthly.sel(month=[1, 2, 3]).sum("month"), rtol=1e-5)
+    assert np.isnan(monthly.sel(month=6)).all()
+
+
+def test_cool_cells_favour_c3_and_hot_cells_favour_c4():
+    # Collatz et al. 1998 / Ehleringer et al. 1997: C4 favoured where warm, C3 where cool, at present CO2.
+    result = suitability.evaluate(synthetic_climate([8.0, 30.0]), {"co2_ppm": 420})
+    classes = result["pathway_class"].values[0]
+    assert classes[0] == 1 and classes[1] == 3
+
+
+def test_more_co2_lowers_and_warming_raises_the_c4_advantage():
+    climate = synthetic_climate([14.0, 20.0, 26.0])
+    base = suitability.evaluate(climate, {"co2_ppm": 420})["pathway_advantage"]
+    more_co2 = suitability.evaluate(climate, {"co2_ppm": 700})["pathway_advantage"]
+    warmer = suitability.evaluate(climate, {"co2_ppm": 420, "temperature_offset_c": 3})["pathway_advantage"]
+    assert (more_co2 < base).all()  # Ehleringer et al. 1997: higher CO2 favours C3
+    assert (warmer > base).all()  # Collatz et al. 1998: warmer months favour C4
+
+
+def test_dask_input_stays_lazy_and_gives_identical_numbers():
+    eager = suitability.evaluate(synthetic_climate([12.0, 18.0, 24.0, 30.0]), {"co2_ppm": 500})
+    lazy = suitability.evaluate(synthetic_climate([12.0, 18.0, 24.0, 30.0], chunks=True), {"co2_ppm": 500})
+    assert lazy["pathway_advantage"].chunks is not None
+    for name in SEASONAL_LAYERS:
+        np.testing.assert_array_equal(eager[name].values, lazy[name].values)
+
+
+def test_nodata_cells_stay_nodata():
+    climate = synthetic_climate([12.0, 28.0])
+    climate["tmin"][:, 0, 0] = np.nan
+    result = suitability.evaluate(climate, {"co2_ppm": 420})
+    assert np.isnan(result["pathway_advantage"].values[0, 0])
+    assert result["pathway_class"].values[0, 0] == 255
+    assert np.isfinite(result["pathway_advantage"].values[1, 0])
+
+
+def test_temperature_rule_season_excludes_cold_months():
+    result = suitability.evaluate(synthetic_climate([6.0, 25.0]), {"co2_ppm": 420}, season={"min_mean_temperature_c": 5.0})
+    monthly = result["c3_monthly_assimilation"].values
+    # derived here: the 6 °C column has a cosine of amplitude 3 °C, so months near July (mean < 5 °C) drop out
+    assert np.isnan(monthly[6, 0, 0]) and np.isfinite(monthly[0, 0, 0])
+    assert np.isfinite(monthly[:, 0, 1]).all()
+
+
+def test_missing_layer_is_a_clear_error():
+    climate = synthetic_climate([20.0]).drop_vars("shortwave")
+    with pytest.raises(ValueError, match="shortwave"):
+        suitability.evaluate(climate, {"co2_ppm": 420})
