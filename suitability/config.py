@@ -403,6 +403,7 @@ class ComputeConfig(_Section):
     workers: Annotated[int, Field(ge=1)] | None = None
     threads_per_worker: Annotated[int, Field(ge=1)] | None = None
     memory_limit: str | None = None
+    engine: Literal["compiled", "numpy"] = "compiled"
 
     @field_validator("chunk_size")
     @classmethod
