@@ -1,13 +1,18 @@
 """Command line: parses arguments, calls the public API, renders results, maps errors to exit codes.
 
 Exit codes: 0 success, 1 unexpected internal error, 2 config error, 3 input-data error, 4 output error,
-130 interrupted.
+130 interrupted (Ctrl-C, SIGINT), 143 terminated (SIGTERM). SIGTERM is handled like Ctrl-C: the run
+stops, removes its temporary files and releases the output folder; finished scenarios stay (and can be
+kept with ``run --resume``). Warnings of the tool are shown as one line each, "warning: ...".
 """
 
 from __future__ import annotations
 
+import contextlib
 import functools
+import signal
 import sys
+import threading
 import warnings
 from pathlib import Path
 from typing import List, Optional
@@ -53,21 +58,56 @@ def _quiet_library_noise() -> None:
     warnings.filterwarnings("ignore", message="Dataset has no geotransform")
 
 
+class Terminated(KeyboardInterrupt):
+    """SIGTERM arrived; raised in the main thread so that cleanup runs as for Ctrl-C."""
+
+
+def _raise_terminated(signum, frame):
+    raise Terminated()
+
+
+@contextlib.contextmanager
+def _sigterm_as_interrupt():
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+    previous = signal.signal(signal.SIGTERM, _raise_terminated)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None):
+    errors.print(f"[yellow]warning:[/] {escape(str(message))}", highlight=False, soft_wrap=True)
+
+
+@contextlib.contextmanager
+def _warnings_as_lines(debug: bool):
+    with warnings.catch_warnings():
+        if not debug:
+            _quiet_library_noise()
+            warnings.simplefilter("default", UserWarning)
+            warnings.showwarning = _show_warning
+        yield
+
+
 def _handle_errors(command):
     @functools.wraps(command)
     def wrapper(*args, debug: bool = False, **kwargs):
-        if not debug:
-            _quiet_library_noise()
         try:
-            return command(*args, **kwargs)
+            with _warnings_as_lines(debug), _sigterm_as_interrupt():
+                return command(*args, **kwargs)
         except SuitabilityError as error:
             if debug:
                 raise
             errors.print(f"[bold red]error:[/] {escape(str(error))}", highlight=False, soft_wrap=True)
             raise typer.Exit(error.exit_code)
-        except KeyboardInterrupt:
-            errors.print("[bold red]interrupted[/]: no finished-looking partial outputs were left behind.")
-            raise typer.Exit(130)
+        except KeyboardInterrupt as interrupt:
+            how = "terminated (SIGTERM)" if isinstance(interrupt, Terminated) else "interrupted"
+            errors.print(f"[bold red]{how}[/]: no finished-looking partial outputs were left behind; "
+                         "scenarios already finished are kept (run again with --resume to keep them).")
+            raise typer.Exit(143 if isinstance(interrupt, Terminated) else 130)
         except Exception as error:  # noqa: BLE001 - the last line of defence for a GIS user
             if debug:
                 raise
@@ -85,6 +125,10 @@ DebugOption = typer.Option(False, "--debug", help="Show the full traceback on er
 def run(
     config: Path = typer.Argument(..., help="YAML config file."),
     overwrite: Optional[bool] = typer.Option(None, "--overwrite/--no-overwrite", help="Replace existing outputs."),
+    resume: bool = typer.Option(
+        False, "--resume",
+        help="Keep scenarios whose outputs match the manifest (same config and input files); recompute the rest.",
+    ),
     scheduler: Optional[str] = typer.Option(None, help="threads | processes | local-cluster | tcp://host:port"),
     workers: Optional[int] = typer.Option(None, help="Threads or worker processes."),
     memory_limit: Optional[str] = typer.Option(None, help="Memory limit per worker, e.g. 2GiB."),
@@ -92,17 +136,20 @@ def run(
     debug: bool = DebugOption,
 ):
     """Compute every scenario of CONFIG and write the maps, tables, manifest (and briefs)."""
-    _run(config, overwrite, scheduler, workers, memory_limit, progress, debug=debug)
+    _run(config, overwrite, resume, scheduler, workers, memory_limit, progress, debug=debug)
 
 
 @_handle_errors
-def _run(config, overwrite, scheduler, workers, memory_limit, progress):
+def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
     from . import pipeline
 
     _print_caution()
     result = pipeline.run(
-        config, overwrite=overwrite, scheduler=scheduler, workers=workers, memory_limit=memory_limit, progress=progress
+        config, overwrite=overwrite, resume=resume, scheduler=scheduler, workers=workers, memory_limit=memory_limit,
+        progress=progress,
     )
+    if result.resumed:
+        console.print(f"Kept from the earlier run (outputs up to date): {', '.join(result.resumed)}")
     table = Table(title="Share of mapped cells by favoured pathway (%)")
     table.add_column("scenario", no_wrap=True)
     for heading in ("C3 favoured", "contested", "C4 favoured", "mapped cells"):
@@ -147,7 +194,7 @@ def _check(config):
         problems += len(issues)
         notes = [f"[red]{escape(p)}[/]" for p in issues] + [f"[yellow]{escape(w)}[/]" for w in report.warnings]
         cells = [str(report.layer)] + ([report.scenario or "-"] if with_scenarios else [])
-        cells += [Path(str(report.path)).name, str(report.crs), _units_text(report),
+        cells += [escape(Path(str(report.path)).name), str(report.crs), escape(_units_text(report)),
                   _percent(report.overlap_share), _percent(report.nodata_share), "; ".join(notes) or "[green]ok[/]"]
         table.add_row(*cells)
     console.print(table)
@@ -167,13 +214,9 @@ def brief(config: Path = typer.Argument(..., help="YAML config file of a finishe
 def _brief(config):
     from . import pipeline
     from .config import load_config
-    from .errors import ConfigError
 
     cfg = load_config(config)
-    if getattr(cfg, "brief", None) is None:
-        raise ConfigError(f"{config}: the config has no 'brief' section (zones, name_field)")
-    folder = Path(cfg.output.folder)
-    paths = pipeline.make_briefs(cfg, {s.name: folder / s.name for s in cfg.scenarios})
+    paths = pipeline.briefs_of_finished_run(cfg)
     _print_caution()
     for name, path in paths.items():
         console.print(f"{name}: {path}")

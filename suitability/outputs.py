@@ -36,10 +36,12 @@ Manifest (:func:`write_manifest`): JSON (strict: NaN/inf become null), written a
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import math
 import os
+import re
 import shutil
 import socket
 import tempfile
@@ -145,7 +147,7 @@ class BlockWriter:
             with rasterio.open(self.path, "r+") as dst:
                 dst.write(block, 1, window=window)
         except rasterio.errors.RasterioError as error:
-            raise OutputError(f"{self.path}: cannot write block {window}: {error}") from error
+            raise OutputError(f"{self.path}: cannot write block {window}: {error}{disk_full_hint(error)}") from error
         finally:
             if self.lock:
                 self.lock.release()
@@ -216,7 +218,7 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
         except Exception as error:
             raise OutputError(
                 f"computing {', '.join(f'{n}.tif' for n in layers)} for {folder} failed, nothing was written: "
-                f"{type(error).__name__}: {error}"
+                f"{type(error).__name__}: {error}{disk_full_hint(error)}"
             ) from error
         finals = {name: _to_validated_cog(path, name, options) for name, path in staged.items()}
         written = {}
@@ -227,7 +229,9 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
     except OutputError:
         raise
     except Exception as error:
-        raise OutputError(f"writing layers into {folder} failed: {type(error).__name__}: {error}") from error
+        raise OutputError(
+            f"writing layers into {folder} failed: {type(error).__name__}: {error}{disk_full_hint(error)}"
+        ) from error
     finally:
         shutil.rmtree(staging, ignore_errors=True)
 
@@ -274,7 +278,9 @@ def write_datacube(ds: xr.Dataset, path) -> Path:
         temporary.unlink(missing_ok=True)
         if isinstance(error, OutputError):
             raise
-        raise OutputError(f"{path}: writing the datacube failed: {type(error).__name__}: {error}") from error
+        raise OutputError(
+            f"{path}: writing the datacube failed: {type(error).__name__}: {error}{disk_full_hint(error)}"
+        ) from error
     return path
 
 
@@ -292,7 +298,7 @@ def write_manifest(manifest: Mapping[str, Any], path) -> Path:
         os.replace(temporary, path)
     except OSError as error:
         temporary.unlink(missing_ok=True)
-        raise OutputError(f"{path}: cannot write the manifest: {error}") from error
+        raise OutputError(f"{path}: cannot write the manifest: {error}{disk_full_hint(error)}") from error
     return path
 
 
@@ -364,6 +370,64 @@ def _class_codes(block: np.ndarray, name: str) -> np.ndarray:
     if bad.any():
         raise ValueError(f"layer {name!r} holds codes {np.unique(values[bad])[:5].tolist()} outside {allowed.tolist()}")
     return values.astype(np.uint8)
+
+
+def write_csv(table, path) -> Path:
+    """Write a pandas table as CSV (UTF-8, no index) atomically: temporary name, then os.replace."""
+    path = Path(path)
+    temporary = path.with_name(f".{path.name}.tmp-{os.getpid()}")
+    try:
+        table.to_csv(temporary, index=False, encoding="utf-8")
+        os.replace(temporary, path)
+    except OSError as error:
+        temporary.unlink(missing_ok=True)
+        raise OutputError(f"{path}: cannot write the table: {error}{disk_full_hint(error)}") from error
+    return path
+
+
+# Temporary names used while writing: ours carry the writer's process id; the briefs' do not.
+_TEMPORARY_WITH_PID = re.compile(r"^\..+\.(?:tmp|cog|final)-(\d+)(?:\.\w+)?$")
+_TEMPORARY_WITHOUT_PID = re.compile(r"^\..+\.tmp(?:-[A-Za-z0-9_]+)?(?:\.\w+)?$|^\.suitability-write-test-")
+
+
+def remove_leftovers(folder) -> list[Path]:
+    """Remove what killed runs left in ``folder`` and its sub-folders (scenario folders, brief/).
+
+    Call only while holding the folder's :class:`~suitability.runlock.RunLock`: then no other run is
+    writing here. Removed: staging folders and temporary files of processes of this host that no longer
+    exist, and temporary files without a process id. Returns the removed paths.
+    """
+    folder = Path(folder)
+    removed = []
+    for parent in [folder] + [p for p in folder.iterdir() if p.is_dir() and not p.name.startswith(".")]:
+        _remove_abandoned_staging(parent)
+        for path in parent.glob(".*"):
+            match = _TEMPORARY_WITH_PID.match(path.name)
+            if match:
+                abandoned = not _process_alive(int(match.group(1)))
+            else:
+                abandoned = _TEMPORARY_WITHOUT_PID.match(path.name) is not None
+            if abandoned and path.is_file():
+                path.unlink(missing_ok=True)
+                removed.append(path)
+    return removed
+
+
+def disk_full_hint(error: BaseException) -> str:
+    """'; the disk is full ...' when ``error`` (or what caused it) says so, else ''."""
+    seen = error
+    while seen is not None:
+        if isinstance(seen, OSError) and seen.errno in (errno.ENOSPC, errno.EDQUOT, errno.EFBIG):
+            break
+        text = str(seen).lower()
+        if any(word in text for word in ("no space left", "disk full", "free disk space", "file too large",
+                                         "quota exceeded")):
+            break
+        seen = seen.__cause__ or seen.__context__
+    else:
+        return ""
+    return ("; the disk is full (or a file-size or quota limit was reached): free space or choose another "
+            "output.folder, then run again (finished scenarios can be kept with --resume)")
 
 
 def _remove_abandoned_staging(folder: Path) -> None:
@@ -444,7 +508,9 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
             copy(cog, relaid, copy_src_overviews=True, **profile)
             cog = relaid
     except Exception as error:
-        raise OutputError(f"{tiled.parent.parent / (name + '.tif')}: COG conversion failed: {error}") from error
+        raise OutputError(
+            f"{tiled.parent.parent / (name + '.tif')}: COG conversion failed: {error}{disk_full_hint(error)}"
+        ) from error
     # Without overviews the validator's only warning ("recommended to include internal overviews") is expected.
     valid, errors, warnings = cog_validate(cog, strict=options.overviews, quiet=True)
     if not valid:
@@ -501,6 +567,9 @@ __all__ = [
     "write_manifest",
     "file_checksum",
     "check_output_folder",
+    "write_csv",
+    "remove_leftovers",
+    "disk_full_hint",
     "CogOptions",
     "BlockWriter",
     "is_class_layer",
