@@ -5,6 +5,13 @@ is evaluated for a representative day, the 15th of the month, and multiplied by 
 (a non-leap year). Season totals add the months of the season. The work is done block by block: on dask
 data each block of cells goes through :func:`_evaluate_block` once, which returns every output layer at
 the same time, so the physiology runs once per cell and month whatever the number of layers written.
+
+Two engines evaluate the daily canopy model inside a block, chosen by ``engine`` (config
+``compute.engine``): "compiled" (default), the fused numba kernel of :mod:`suitability.kernel`, and
+"numpy", the physiology package called month by month and pathway by pathway (the reference the
+kernel is tested against, within 1e-4 relative). The kernel supports every leaf model of
+:mod:`suitability.physiology.params`; a leaf model it does not know (:func:`suitability.kernel.supports`)
+runs on the numpy engine. Everything after the daily values (season sums, indicators) is shared.
 """
 
 from __future__ import annotations
@@ -13,12 +20,14 @@ import warnings
 from dataclasses import dataclass
 from typing import Any, Mapping, Sequence
 
+import dask
 import numpy as np
 import xarray as xr
 
-from . import indicators
+from . import indicators, kernel
 from .physiology import crossover_temperature, daily_canopy_assimilation
 from .physiology import atmosphere, light
+from .runtime import ENGINE_CONFIG_KEY, ENGINES  # compute_context passes compute.engine under this key
 from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario
 from .variables import CLASS_NODATA
 
@@ -51,6 +60,7 @@ class ModelSettings:
     season_min_temperature_c: per-cell rule, months whose mean of tmin and tmax is at least this [°C].
     contested_margin: half-width of the contested class on the advantage index [-].
     lai: leaf area index used where the data have no ``lai`` layer [m2 m-2].
+    engine: "compiled" (the numba kernel) or "numpy" (see the module docstring).
     """
 
     scenario: ScenarioSettings
@@ -60,6 +70,7 @@ class ModelSettings:
     season_min_temperature_c: float | None = None
     contested_margin: float = 0.05
     lai: float = DEFAULT_LAI
+    engine: str = "compiled"
 
 
 def evaluate(
@@ -70,6 +81,7 @@ def evaluate(
     season: Any = None,
     classes: Any = None,
     scenario_layers: xr.Dataset | None = None,
+    engine: str | None = None,
 ) -> xr.Dataset:
     """Evaluate both pathways on a climate dataset and return every per-scenario output layer.
 
@@ -83,11 +95,13 @@ def evaluate(
     physiology: config ``physiology`` section or mapping {"c3": {...}, "c4": {...}, "lai": ...}.
     season: config ``season`` section or mapping {"months": [...]} / {"min_mean_temperature_c": t}.
     classes: config ``classes`` section or mapping {"contested_margin": m}.
+    engine: "compiled" or "numpy"; None = the ``compute.engine`` of the active compute context, else
+        "compiled".
 
     Returns a Dataset with the layers of ``SEASONAL_LAYERS`` (y, x) and ``MONTHLY_LAYERS`` (month, y, x),
     assimilation in g C m-2 per season or month; ``pathway_class`` is uint8 with 255 as nodata.
     """
-    settings = model_settings(scenario, physiology=physiology, season=season, classes=classes)
+    settings = model_settings(scenario, physiology=physiology, season=season, classes=classes, engine=engine)
     diurnal_range = _get(physiology, "diurnal_range_c", DEFAULT_DIURNAL_RANGE_C)
     climate = apply_scenario(dataset, settings.scenario, scenario_layers, diurnal_range_c=diurnal_range)
     climate = _with_latitude(climate)
@@ -117,8 +131,12 @@ def evaluate(
     return _unstack(stacked, settings)
 
 
-def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None) -> ModelSettings:
+def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None,
+                   engine: str | None = None) -> ModelSettings:
     """Collect the model's settings from config sections or plain mappings (see :func:`evaluate`)."""
+    engine = engine if engine is not None else dask.config.get(ENGINE_CONFIG_KEY, None) or "compiled"
+    if engine not in ENGINES:
+        raise ValueError(f"engine: expected one of {', '.join(ENGINES)}, got {engine!r}")
     months = _get(season, "months", None)
     threshold = _get(season, "min_mean_temperature_c", None)
     if months is None and threshold is None:
@@ -131,6 +149,7 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         season_min_temperature_c=None if threshold is None else float(threshold),
         contested_margin=float(_get(classes, "contested_margin", 0.05)),
         lai=float(_get(physiology, "lai", DEFAULT_LAI) or DEFAULT_LAI),
+        engine=engine,
     )
 
 
@@ -141,10 +160,45 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     """
     data = dict(zip(names, arrays))
     shape = data["latitude"].shape
-    scenario = settings.scenario
     elevation = data.get("elevation", np.zeros(shape, np.float32))
     lai = data.get("lai", np.full(shape, settings.lai, np.float32))
     in_season = _season_mask(data, settings, shape)
+    if settings.engine == "compiled" and kernel.supports(settings.c3_params, settings.c4_params):
+        monthly, c3_gross, c3_photorespiration = _compiled_months(data, settings, in_season, elevation, lai)
+    else:
+        monthly, c3_gross, c3_photorespiration = _numpy_months(data, settings, in_season, elevation, lai)
+    valid = _valid_cells(data)
+    season_c3 = np.where(in_season, monthly["C3"], 0.0).sum(axis=-1)
+    season_c4 = np.where(in_season, monthly["C4"], 0.0).sum(axis=-1)
+    has_season = in_season.any(axis=-1)
+    nodata = ~valid | ~has_season | np.isnan(season_c3) | np.isnan(season_c4)
+    season_c3 = np.where(nodata, np.nan, season_c3)
+    season_c4 = np.where(nodata, np.nan, season_c4)
+    advantage = indicators.advantage_index(season_c3, season_c4)
+    classes = indicators.pathway_class(advantage, settings.contested_margin)
+    months_favoured = indicators.c4_favoured_months(
+        np.moveaxis(monthly["C3"], -1, 0), np.moveaxis(monthly["C4"], -1, 0), np.moveaxis(in_season, -1, 0),
+        settings.contested_margin,
+    )
+    share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
+    crossover = _crossover_by_pressure(atmosphere.air_pressure_from_elevation(elevation), settings)
+    seasonal = [season_c3, season_c4, advantage, classes, months_favoured, share, crossover]
+    out = np.empty(shape + (_N_STACKED,), np.float32)
+    for i, layer in enumerate(seasonal):
+        values = np.asarray(layer, dtype=np.float64)
+        if SEASONAL_LAYERS[i] != "pathway_class":
+            values = np.where(nodata, np.nan, values)
+        out[..., i] = values
+    first = len(SEASONAL_LAYERS)
+    out[..., first:first + 12] = np.where(valid[..., None], monthly["C3"], np.nan)
+    out[..., first + 12:first + 24] = np.where(valid[..., None], monthly["C4"], np.nan)
+    return out
+
+
+def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
+    """Monthly net totals per pathway [g C m-2], season C3 gross and photorespiration, by the numpy physiology."""
+    shape = in_season.shape[:-1]
+    scenario = settings.scenario
     monthly = {p: np.full(shape + (12,), np.nan, np.float64) for p in ("C3", "C4")}
     c3_gross = np.zeros(shape, np.float64)
     c3_photorespiration = np.zeros(shape, np.float64)
@@ -172,32 +226,32 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
                 c3_photorespiration += np.asarray(day.photorespiration) * season_weight
     for pathway in monthly:
         monthly[pathway] = np.where(in_season, monthly[pathway], np.nan)  # NaN = month not in the season
-    valid = _valid_cells(data)
-    season_c3 = np.where(in_season, monthly["C3"], 0.0).sum(axis=-1)
-    season_c4 = np.where(in_season, monthly["C4"], 0.0).sum(axis=-1)
-    has_season = in_season.any(axis=-1)
-    nodata = ~valid | ~has_season | np.isnan(season_c3) | np.isnan(season_c4)
-    season_c3 = np.where(nodata, np.nan, season_c3)
-    season_c4 = np.where(nodata, np.nan, season_c4)
-    advantage = indicators.advantage_index(season_c3, season_c4)
-    classes = indicators.pathway_class(advantage, settings.contested_margin)
-    months_favoured = indicators.c4_favoured_months(
-        np.moveaxis(monthly["C3"], -1, 0), np.moveaxis(monthly["C4"], -1, 0), np.moveaxis(in_season, -1, 0),
-        settings.contested_margin,
+    return monthly, c3_gross, c3_photorespiration
+
+
+def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai):
+    """The same three results as :func:`_numpy_months`, by the compiled kernel (:mod:`suitability.kernel`)."""
+    humidity = {}
+    if "vpd" in data:
+        humidity["vpd_kpa"] = data["vpd"]
+    elif "humidity" in data:
+        humidity["actual_vapour_pressure_kpa"] = atmosphere.actual_vapour_pressure_from_relative_humidity(
+            100.0 * data["humidity"], data["tmin"], data["tmax"])
+    if "shortwave" in data:
+        shortwave = data["shortwave"]
+    else:  # mol m-2 d-1 of PAR back to MJ m-2 d-1 of shortwave, inverting light.par_from_shortwave
+        shortwave = data["par"] / light.par_from_shortwave(1.0)
+    day = kernel.monthly_canopy_assimilation(
+        tmin_c=data["tmin"], tmax_c=data["tmax"], shortwave_mj=shortwave,
+        water_availability=data["water_availability"], latitude_deg=data["latitude"],
+        day_of_year=REPRESENTATIVE_DAY, co2_ppm=settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent,
+        elevation_m=elevation, lai=lai, in_season=in_season, c3_params=settings.c3_params,
+        c4_params=settings.c4_params, **humidity,
     )
-    share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
-    crossover = _crossover_by_pressure(atmosphere.air_pressure_from_elevation(elevation), settings)
-    seasonal = [season_c3, season_c4, advantage, classes, months_favoured, share, crossover]
-    out = np.empty(shape + (_N_STACKED,), np.float32)
-    for i, layer in enumerate(seasonal):
-        values = np.asarray(layer, dtype=np.float64)
-        if SEASONAL_LAYERS[i] != "pathway_class":
-            values = np.where(nodata, np.nan, values)
-        out[..., i] = values
-    first = len(SEASONAL_LAYERS)
-    out[..., first:first + 12] = np.where(valid[..., None], monthly["C3"], np.nan)
-    out[..., first + 12:first + 24] = np.where(valid[..., None], monthly["C4"], np.nan)
-    return out
+    monthly = {"C3": day.c3_net * DAYS_IN_MONTH, "C4": day.c4_net * DAYS_IN_MONTH}
+    c3_gross = np.where(in_season, day.c3_gross * DAYS_IN_MONTH, 0.0).sum(axis=-1)
+    c3_photorespiration = np.where(in_season, day.c3_photorespiration * DAYS_IN_MONTH, 0.0).sum(axis=-1)
+    return monthly, c3_gross, c3_photorespiration
 
 
 def _crossover_by_pressure(pressure_kpa: np.ndarray, settings: ModelSettings) -> np.ndarray:

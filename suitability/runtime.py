@@ -18,6 +18,12 @@ processes, and by setting GDAL's limit directly (``rasterio.env.set_gdal_config`
 scheduler and on the workers of an existing scheduler. A ``GDAL_CACHEMAX`` the user exported wins; the
 limit of this process is restored on exit.
 
+The model engine (``compute.engine``: "compiled", the numba kernel, or "numpy") is passed to
+:func:`suitability.model.evaluate` through the dask config key ``suitability.engine`` for the duration of
+the context. The compiled kernel runs without numba threads (``nogil``, one block per dask thread or
+worker), so no numba threading layer is involved whatever the scheduler: numba's default layer is not safe
+when several dask threads call a parallel kernel at once, and one thread per core avoids oversubscription.
+
 Progress bars are ``rich`` bars on stderr, shown only when the caller asks for them. Locally a
 ``dask.callbacks.Callback`` counts finished tasks; on a distributed client the per-block futures are
 polled as they complete (:func:`compute` does that), because local callbacks do not see remote tasks.
@@ -38,6 +44,9 @@ from dask.utils import SerializableLock, parse_bytes
 
 from .errors import ConfigError
 
+#: Values of ``compute.engine`` and the dask config key that carries it to the model (see the docstring).
+ENGINES = ("compiled", "numpy")
+ENGINE_CONFIG_KEY = "suitability.engine"
 #: GDAL block cache per process [MB] (see the module docstring for the choice).
 GDAL_CACHE_MB = 256
 TILE_SIZE = 512
@@ -82,8 +91,9 @@ def compute_context(compute_config: Any = None, *, progress: bool = False) -> It
     """Open the scheduler named by ``compute_config`` and yield the :class:`Runtime`; close it on exit.
 
     compute_config: any object with attributes ``scheduler`` (str), ``workers`` (int), ``threads_per_worker``
-        (int or None), ``memory_limit`` (str such as "2GiB", per worker, or None) and ``chunk_size``
-        (int, a multiple of 512); missing attributes take the defaults (threads, all cores, 1, "auto", 512).
+        (int or None), ``memory_limit`` (str such as "2GiB", per worker, or None), ``chunk_size``
+        (int, a multiple of 512) and ``engine`` ("compiled" or "numpy"); missing attributes take the
+        defaults (threads, all cores, 1, "auto", 512, "compiled").
     progress: whether :meth:`Runtime.progress` shows bars by default.
     Raises ConfigError naming the ``compute.*`` key when a value cannot be used.
     """
@@ -95,6 +105,9 @@ def compute_context(compute_config: Any = None, *, progress: bool = False) -> It
     chunk_size = _positive_int(getattr(compute_config, "chunk_size", None), "compute.chunk_size", default=TILE_SIZE)
     if chunk_size % TILE_SIZE:
         raise ConfigError(f"compute.chunk_size: expected a multiple of {TILE_SIZE} cells, got {chunk_size}")
+    engine = getattr(compute_config, "engine", None) or "compiled"
+    if engine not in ENGINES:
+        raise ConfigError(f"compute.engine: expected one of {list(ENGINES)}, got {engine!r}")
     memory_limit = getattr(compute_config, "memory_limit", None)
     if memory_limit is not None:
         try:
@@ -104,6 +117,11 @@ def compute_context(compute_config: Any = None, *, progress: bool = False) -> It
                 f"compute.memory_limit: expected a size such as '2GiB', got {memory_limit!r}"
             ) from error
 
+    with dask.config.set({ENGINE_CONFIG_KEY: engine}):
+        yield from _open_scheduler(scheduler, workers, threads_per_worker, chunk_size, memory_limit, progress)
+
+
+def _open_scheduler(scheduler, workers, threads_per_worker, chunk_size, memory_limit, progress):
     if scheduler == "threads":
         with _gdal_cache_in_this_process(), dask.config.set(scheduler="threads", num_workers=workers):
             yield Runtime("threads", None, workers, chunk_size, progress)
