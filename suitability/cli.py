@@ -86,8 +86,8 @@ def _show_warning(message, category, filename, lineno, file=None, line=None):
 def _warnings_as_lines(debug: bool):
     with warnings.catch_warnings():
         if not debug:
-            _quiet_library_noise()
             warnings.simplefilter("default", UserWarning)
+            _quiet_library_noise()  # after: the filters added last are matched first
             warnings.showwarning = _show_warning
         yield
 

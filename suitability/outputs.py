@@ -147,7 +147,9 @@ class BlockWriter:
             with rasterio.open(self.path, "r+") as dst:
                 dst.write(block, 1, window=window)
         except rasterio.errors.RasterioError as error:
-            raise OutputError(f"{self.path}: cannot write block {window}: {error}{disk_full_hint(error)}") from error
+            raise OutputError(
+                f"{self.path}: cannot write block {window}: {error}{disk_full_hint(error, Path(self.path).parent)}"
+            ) from error
         finally:
             if self.lock:
                 self.lock.release()
@@ -218,7 +220,7 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
         except Exception as error:
             raise OutputError(
                 f"computing {', '.join(f'{n}.tif' for n in layers)} for {folder} failed, nothing was written: "
-                f"{type(error).__name__}: {error}{disk_full_hint(error)}"
+                f"{type(error).__name__}: {error}{disk_full_hint(error, folder)}"
             ) from error
         finals = {name: _to_validated_cog(path, name, options) for name, path in staged.items()}
         written = {}
@@ -230,7 +232,7 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
         raise
     except Exception as error:
         raise OutputError(
-            f"writing layers into {folder} failed: {type(error).__name__}: {error}{disk_full_hint(error)}"
+            f"writing layers into {folder} failed: {type(error).__name__}: {error}{disk_full_hint(error, folder)}"
         ) from error
     finally:
         shutil.rmtree(staging, ignore_errors=True)
@@ -279,7 +281,7 @@ def write_datacube(ds: xr.Dataset, path) -> Path:
         if isinstance(error, OutputError):
             raise
         raise OutputError(
-            f"{path}: writing the datacube failed: {type(error).__name__}: {error}{disk_full_hint(error)}"
+            f"{path}: writing the datacube failed: {type(error).__name__}: {error}{disk_full_hint(error, path.parent)}"
         ) from error
     return path
 
@@ -298,7 +300,7 @@ def write_manifest(manifest: Mapping[str, Any], path) -> Path:
         os.replace(temporary, path)
     except OSError as error:
         temporary.unlink(missing_ok=True)
-        raise OutputError(f"{path}: cannot write the manifest: {error}{disk_full_hint(error)}") from error
+        raise OutputError(f"{path}: cannot write the manifest: {error}{disk_full_hint(error, path.parent)}") from error
     return path
 
 
@@ -381,7 +383,7 @@ def write_csv(table, path) -> Path:
         os.replace(temporary, path)
     except OSError as error:
         temporary.unlink(missing_ok=True)
-        raise OutputError(f"{path}: cannot write the table: {error}{disk_full_hint(error)}") from error
+        raise OutputError(f"{path}: cannot write the table: {error}{disk_full_hint(error, path.parent)}") from error
     return path
 
 
@@ -413,21 +415,30 @@ def remove_leftovers(folder) -> list[Path]:
     return removed
 
 
-def disk_full_hint(error: BaseException) -> str:
-    """'; the disk is full ...' when ``error`` (or what caused it) says so, else ''."""
-    seen = error
-    while seen is not None:
-        if isinstance(seen, OSError) and seen.errno in (errno.ENOSPC, errno.EDQUOT, errno.EFBIG):
-            break
+def disk_full_hint(error: BaseException, folder=None) -> str:
+    """'; the disk is full ...' when ``error`` (or what caused it) says so, or when ``folder``'s file system
+    has almost no free space left (GDAL often reports a full disk only as a failed seek or read); else ''."""
+    seen, full = error, False
+    while seen is not None and not full:
         text = str(seen).lower()
-        if any(word in text for word in ("no space left", "disk full", "free disk space", "file too large",
-                                         "quota exceeded")):
-            break
+        full = (isinstance(seen, OSError) and seen.errno in (errno.ENOSPC, errno.EDQUOT, errno.EFBIG)) or any(
+            word in text for word in ("no space left", "disk full", "free disk space", "file too large", "quota exceeded"))
         seen = seen.__cause__ or seen.__context__
-    else:
+    free = None
+    if folder is not None:
+        try:
+            free = shutil.disk_usage(folder).free
+        except OSError:
+            pass
+    if not full and (free is None or free >= _NEARLY_FULL_BYTES):
         return ""
-    return ("; the disk is full (or a file-size or quota limit was reached): free space or choose another "
+    left = f" ({free} bytes free on the disk of {folder})" if free is not None else ""
+    return (f"; the disk is full (or a file-size or quota limit was reached){left}: free space or choose another "
             "output.folder, then run again (finished scenarios can be kept with --resume)")
+
+
+# Less free space than this after a failed write means the disk filled up.
+_NEARLY_FULL_BYTES = 8 * 1024 * 1024
 
 
 def _remove_abandoned_staging(folder: Path) -> None:
@@ -509,7 +520,7 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
             cog = relaid
     except Exception as error:
         raise OutputError(
-            f"{tiled.parent.parent / (name + '.tif')}: COG conversion failed: {error}{disk_full_hint(error)}"
+            f"{tiled.parent.parent / (name + '.tif')}: COG conversion failed: {error}{disk_full_hint(error, tiled.parent.parent)}"
         ) from error
     # Without overviews the validator's only warning ("recommended to include internal overviews") is expected.
     valid, errors, warnings = cog_validate(cog, strict=options.overviews, quiet=True)

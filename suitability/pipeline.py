@@ -9,6 +9,7 @@ import hashlib
 import json
 import platform
 import time
+import warnings
 from dataclasses import dataclass, field
 from datetime import datetime, timezone
 from importlib import metadata
@@ -129,7 +130,10 @@ def run(
         _check_brief_inputs(cfg)
         timings["open_inputs_s"] = time.perf_counter() - tick
         check_output_folder(folder)
-        with RunLock(folder):
+        with RunLock(folder) as lock:
+            if lock.taken_over_from is not None:
+                warnings.warn(f"{lock.path}: taken over from {lock.taken_over_from.describe()}, which no longer "
+                              "holds it (a run that was killed); its temporary files are removed", stacklevel=2)
             remove_leftovers(folder)
             checksums = {path: file_checksum(path) for path in sorted(_input_files(cfg))}
             hashes = {s.name: scenario_hash(cfg, s, layer_names(s), checksums) for s in scenarios}

@@ -1,0 +1,104 @@
+"""Interruption: SIGINT, SIGTERM and SIGKILL during a real `suitability run` leave no file that looks
+finished but is not (every file with a final name is a whole, valid COG; no manifest, no class summary;
+partial work only under hidden temporary names), and a rerun with --resume completes.
+
+Checked against the project's contract (issue 6, "Interruption, concurrency, resume"; exit codes 130 for
+SIGINT and 143 for SIGTERM, documented in suitability/cli.py; 128 + signal number is the POSIX shell
+convention for a process ended by a signal). The runs use the invented demo region.
+"""
+
+from __future__ import annotations
+
+import os
+import signal
+import subprocess
+import time
+from pathlib import Path
+
+import pytest
+from rio_cogeo.cogeo import cog_validate
+
+from suitability.outputs import STAGING_PREFIX
+from suitability.runlock import LOCK_NAME
+
+from .conftest import SUITABILITY, cli, demo_config, write_config
+
+
+def _long_config(tmp_path) -> Path:
+    # Three scenarios over six months: several seconds per scenario on two cores.
+    return write_config(tmp_path, demo_config(months=range(1, 7), scenarios=3))
+
+
+def _start(config: Path) -> subprocess.Popen:
+    env = {**os.environ, "COLUMNS": "240"}
+    return subprocess.Popen([str(SUITABILITY), "run", str(config), "--no-progress"], stdout=subprocess.PIPE,
+                            stderr=subprocess.PIPE, text=True, env=env)
+
+
+def _wait_for(predicate, process: subprocess.Popen, timeout: float = 120.0) -> None:
+    deadline = time.monotonic() + timeout
+    while not predicate():
+        if process.poll() is not None:
+            raise AssertionError(f"the run ended before the moment to interrupt it: {process.communicate()}")
+        if time.monotonic() > deadline:
+            process.kill()
+            raise AssertionError("timed out waiting for the run to reach the moment to interrupt it")
+        time.sleep(0.01)
+
+
+def _writing_second_scenario(folder: Path):
+    return lambda: any((folder / "co2_only").glob(f"{STAGING_PREFIX}*"))
+
+
+def _visible(folder: Path) -> list[Path]:
+    return [p for p in folder.rglob("*") if p.is_file()
+            and not any(part.startswith(".") for part in p.relative_to(folder).parts)]
+
+
+def _assert_nothing_half_finished(folder: Path) -> None:
+    names = {str(p.relative_to(folder)) for p in _visible(folder)}
+    assert "manifest.json" not in names and "class_summary.csv" not in names, names
+    for path in _visible(folder):
+        assert path.suffix == ".tif", path
+        valid, errors, _ = cog_validate(str(path), quiet=True)  # rio-cogeo's COG validator
+        assert valid, (path, errors)
+    assert any(n.startswith("baseline/") for n in names)  # the finished baseline is kept
+
+
+def _rerun_completes(config: Path, folder: Path) -> None:
+    result = cli("run", config, "--no-progress", "--resume")
+    assert result.exit_code == 0, result.output
+    assert "Kept from the earlier run (outputs up to date): baseline" in result.output
+    assert (folder / "manifest.json").exists()
+    leftovers = [p for p in folder.rglob(".*")]
+    assert leftovers == [], leftovers  # no lock, staging, progress record or temporary file remains
+
+
+@pytest.mark.parametrize("signum, exit_code, word", [(signal.SIGINT, 130, "interrupted"),
+                                                     (signal.SIGTERM, 143, "terminated (SIGTERM)")])
+def test_sigint_and_sigterm_clean_up_and_a_rerun_completes(tmp_path, signum, exit_code, word):
+    config = _long_config(tmp_path)
+    folder = tmp_path / "out"
+    process = _start(config)
+    _wait_for(_writing_second_scenario(folder), process)
+    process.send_signal(signum)
+    _, stderr = process.communicate(timeout=120)
+    assert process.returncode == exit_code, stderr
+    assert word in stderr and "Traceback" not in stderr
+    _assert_nothing_half_finished(folder)
+    assert not (folder / LOCK_NAME).exists()  # released on the way out
+    assert not list(folder.rglob(f"{STAGING_PREFIX}*"))  # temporary files removed on the way out
+    _rerun_completes(config, folder)
+
+
+def test_sigkill_leaves_only_hidden_temporaries_and_a_rerun_completes(tmp_path):
+    config = _long_config(tmp_path)
+    folder = tmp_path / "out"
+    process = _start(config)
+    _wait_for(_writing_second_scenario(folder), process)
+    process.kill()
+    process.communicate(timeout=60)
+    assert process.returncode == -signal.SIGKILL
+    _assert_nothing_half_finished(folder)
+    assert (folder / LOCK_NAME).exists()  # a killed run cannot clean up: its lock is left, with its dead PID
+    _rerun_completes(config, folder)
