@@ -696,10 +696,20 @@ def _explain(error: dict, loc: tuple) -> str:
         return "required key is missing"
     if kind in ("unknown_key", "located"):
         return message
+    if kind in _PLAIN_WORDS:  # pydantic names Python classes here; say it in the words of a YAML file
+        return f"{_PLAIN_WORDS[kind]} (got {error.get('input')!r})"
     message = message.removeprefix("Value error, ").removeprefix("Assertion failed, ")
     if kind not in ("value_error", "assertion_error"):
         message = f"{message[0].lower()}{message[1:]} (got {error.get('input')!r})"
     return message
+
+
+_PLAIN_WORDS = {
+    "model_type": "expected a section of 'key: value' entries",
+    "dict_type": "expected a section of 'key: value' entries",
+    "model_attributes_type": "expected a section of 'key: value' entries",
+    "path_type": "expected a file or folder path as text",
+}
 
 
 def _valid_keys(loc: tuple) -> list[str]:
