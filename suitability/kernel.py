@@ -43,6 +43,7 @@ from functools import lru_cache
 from typing import Any, Mapping
 
 import numba
+import numba.extending
 import numpy as np
 
 from .physiology import canopy as _canopy
@@ -296,9 +297,66 @@ def _constants() -> np.ndarray:
 
 # ---------------------------------------------------------------------------------------------------------
 # The compiled part. Every function mirrors a numpy function of suitability.physiology, named beside it.
-# error_model="numpy": a division by zero gives inf/NaN as in numpy instead of raising.
+#
+# Layout for SIMD: cells are taken BATCH at a time; per batch and month the day's quantities are set up
+# cell by cell (setup[field, lane]), then each Gauss moment runs as one loop over the lanes whose body
+# has no calls and no data-dependent branches, so that LLVM vectorises it. The exponential, sine and
+# cosine inside those loops are therefore polynomial (below) instead of libm calls. The last batch is
+# padded with harmless lanes, so every cell runs through the same instructions wherever it sits.
+#
+# error_model="numpy": a division by zero gives inf/NaN as in numpy instead of raising. No fast-math.
 # ---------------------------------------------------------------------------------------------------------
-_JIT = dict(cache=True, nogil=True, error_model="numpy")
+_JIT = dict(cache=True, nogil=True, error_model="numpy", _nrt=False)
+#: Cells per batch (a multiple of every SIMD width).
+BATCH = 64
+#: Below this argument exp() is taken as exp(−80) < 2e-35, nothing next to the 1 it is subtracted from.
+_EXP_FLOOR = -80.0
+_INV_FACTORIAL = tuple(1.0 / math.factorial(k) for k in range(23))
+
+# setup[field, lane]
+(_S_OMEGA, _S_A, _S_B, _S_INTEGRAL_GLOBAL, _S_INTEGRAL_DIFFUSE, _S_SHORTWAVE, _S_DIFFUSE, _S_MEAN_T,
+ _S_AMPLITUDE_T, _S_HALF_DAY_S, _S_HALF_NIGHT_H, _S_LAI, _S_E_KD, _S_HUMIDITY, _S_WATER, _S_CO2_PER_RATIO,
+ _S_O2, _S_C3_SCALE, _S_C4_SCALE) = range(19)
+_N_SETUP = 19
+# acc[field, lane]
+_A_C3_NET, _A_C3_GROSS, _A_C3_PHOTO, _A_C4_NET, _A_C4_GROSS, _A_BAD = range(6)
+_N_ACC = 6
+# moment[field, lane]
+(_M_TEMPERATURE_AFTER, _M_TEMPERATURE_BEFORE, _M_SUNLIT_PAR, _M_SHADED_PAR, _M_SUNLIT_LAI,
+ _M_SHADED_LAI) = range(6)
+_N_MOMENT = 6
+
+
+def _stack_array(rows: int):
+    """A compiled-only helper returning a (rows, BATCH) float64 array on the stack of the caller.
+
+    Stack memory cannot alias the tables or the outputs, so LLVM needs no run-time alias checks to
+    vectorise the lane loops (with heap arrays it gives up: the table reads have no known bounds).
+    """
+    array_type = numba.types.Array(numba.types.float64, 2, "C")
+
+    @numba.extending.intrinsic
+    def stack_array(typingctx):
+        def codegen(context, builder, signature, args):
+            from numba.core import cgutils
+            from numba.np.arrayobj import make_array, populate_array
+
+            data = cgutils.alloca_once(builder, context.get_value_type(numba.types.float64), size=rows * BATCH)
+            array = make_array(array_type)(context, builder)
+            intp = context.get_value_type(numba.types.intp)
+            populate_array(array, data=data, shape=cgutils.pack_array(builder, [intp(rows), intp(BATCH)]),
+                           strides=cgutils.pack_array(builder, [intp(8 * BATCH), intp(8)]), itemsize=intp(8),
+                           meminfo=None)
+            return array._getvalue()
+
+        return array_type(), codegen
+
+    return stack_array
+
+
+_setup_array = _stack_array(_N_SETUP)
+_acc_array = _stack_array(_N_ACC)
+_moment_array = _stack_array(_N_MOMENT)
 
 
 @numba.njit(inline="always", **_JIT)
@@ -308,44 +366,70 @@ def _non_negative(value):
 
 
 @numba.njit(inline="always", **_JIT)
+def _expm1(x):
+    """exp(x) − 1 with a relative error of a few 1e-16 for −80 <= x <= 4 (derived here).
+
+    z = x / 2¹², expm1(z) by its Taylor series to z⁷ (truncation < 1e-18 relative for |z| < 0.02), then
+    twelve doublings expm1(2z) = expm1(z) (expm1(z) + 2), which keep the relative error of small results
+    and shrink it for large negative x. Arguments below −80 are taken as −80 (see _EXP_FLOOR).
+    """
+    z = (_EXP_FLOOR if x < _EXP_FLOOR else x) * (1.0 / 4096.0)
+    f = _INV_FACTORIAL
+    m = z * (1.0 + z * (f[2] + z * (f[3] + z * (f[4] + z * (f[5] + z * (f[6] + z * f[7]))))))
+    # Twelve doublings, written out: a loop here would be an inner loop and stop LLVM vectorising.
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    m = m * (m + 2.0)
+    return m
+
+
+@numba.njit(inline="always", **_JIT)
+def _sincos(angle):
+    """(sin, cos) of an angle in [−π, π] [rad], to about 1e-16 (derived here).
+
+    Taylor series of the half angle h (|h| <= π/2) to h¹⁹ and h²⁰ (next terms < 3e-16), then
+    sin = 2 sin(h) cos(h), cos = (cos h − sin h)(cos h + sin h).
+    """
+    h = 0.5 * angle
+    q = h * h
+    f = _INV_FACTORIAL
+    s = h * (1.0 - q * (f[3] - q * (f[5] - q * (f[7] - q * (f[9] - q * (f[11] - q * (f[13] - q * (f[15] - q * (
+        f[17] - q * f[19])))))))))
+    c = 1.0 - q * (f[2] - q * (f[4] - q * (f[6] - q * (f[8] - q * (f[10] - q * (f[12] - q * (f[14] - q * (
+        f[16] - q * (f[18] - q * f[20])))))))))
+    return 2.0 * s * c, (c - s) * (c + s)
+
+
+@numba.njit(inline="always", **_JIT)
 def _hyperbola(rate_a, rate_b, curvature):
     # c3.non_rectangular_hyperbola: smaller root of θ x² − (a + b) x + a b = 0.
     total = rate_a + rate_b
     product = rate_a * rate_b
     denominator = total + math.sqrt(_non_negative(total * total - 4.0 * curvature * product))
-    return 2.0 * product / denominator if denominator > 0.0 else 0.0
+    positive = denominator > 0.0
+    return 2.0 * product / (denominator if positive else 1.0) if positive else 0.0
 
 
 @numba.njit(inline="always", **_JIT)
 def _smaller_root_monic(b, c):
     # c4._smaller_root_monic: smaller root of A² + bA + c = 0.
     denominator = math.sqrt(_non_negative(b * b - 4.0 * c)) - b
-    return 2.0 * c / denominator if denominator != 0.0 else -b
-
-
-@numba.njit(inline="always", **_JIT)
-def _saturation_vapour_pressure(temperature):
-    # atmosphere.saturation_vapour_pressure, FAO-56 eq. 11 (NaN outside −60..60 °C).
-    if temperature >= -60.0 and temperature <= 60.0:
-        return 0.6108 * math.exp(17.27 * temperature / (temperature + 237.3))
-    return np.nan
-
-
-@numba.njit(inline="always", **_JIT)
-def _daily_course(daily_mj, sin_elevation, integral_s, atmospheric_factor):
-    # light.shortwave_daily_course: Sg(t) = Sg,day sin β (1 + c sin β) / ∫ sin β (1 + c sin β) dt [W m-2].
-    if not daily_mj >= 0.0:
-        return np.nan
-    if sin_elevation > 0.0 and integral_s > 0.0:
-        return 1e6 * daily_mj * sin_elevation * (1.0 + atmospheric_factor * sin_elevation) / integral_s
-    return 0.0
+    nonzero = denominator != 0.0
+    return 2.0 * c / (denominator if nonzero else 1.0) if nonzero else -b
 
 
 @numba.njit(inline="always", **_JIT)
 def _diffuse_fraction_daily(clearness):
-    # light.diffuse_fraction_daily, Spitters et al. (1986) eq. 2.
-    if not clearness >= 0.0:
-        return np.nan
+    # light.diffuse_fraction_daily, Spitters et al. (1986) eq. 2 (clearness >= 0 here).
     if clearness < 0.07:
         return 1.0
     if clearness < 0.35:
@@ -358,11 +442,11 @@ def _diffuse_fraction_daily(clearness):
 @numba.njit(inline="always", **_JIT)
 def _ci_ratio(scalars, sqrt_vpd, water):
     # stomata.intercellular_co2_ratio: Medlyn et al. (2011) Ci/Ca = g1 W / (g1 W + √D), or a fixed ratio.
-    if scalars[2] == 1.0:
-        return scalars[1]
     slope = scalars[0] * water
     denominator = slope + sqrt_vpd
-    return slope / denominator if denominator > 0.0 else 0.0
+    positive = denominator > 0.0
+    medlyn = slope / (denominator if positive else 1.0) if positive else 0.0
+    return scalars[1] if scalars[2] == 1.0 else medlyn
 
 
 @numba.njit(inline="always", **_JIT)
@@ -392,23 +476,26 @@ def _c3_light(state, scalars, absorbed_par, co2_pa):
     """c3.fvcb_rates for one absorbed PAR [µmol m-2 s-1]: (net, gross, photorespiration)."""
     rate_rubisco, light_denominator, jmax, tpu3, gamma_star, rd = state
     i2 = absorbed_par * (1.0 - scalars[6]) / 2.0
-    electron_transport = i2 if scalars[7] == 1.0 else _hyperbola(i2, jmax, scalars[5])
-    rate_light = electron_transport / light_denominator if light_denominator > 0.0 else np.inf
+    saturating = _hyperbola(i2, jmax, scalars[5])
+    electron_transport = i2 if scalars[7] == 1.0 else saturating
+    positive = light_denominator > 0.0
+    rate_light = electron_transport / (light_denominator if positive else 1.0) if positive else np.inf
     rate = rate_light if rate_light < rate_rubisco else rate_rubisco
-    if scalars[8] != 1.0 and tpu3 < rate * co2_pa:
-        rate = tpu3 / co2_pa
+    tpu_limited = scalars[8] != 1.0 and tpu3 < rate * co2_pa
+    rate_tpu = tpu3 / (co2_pa if tpu_limited else 1.0)
+    rate = rate_tpu if tpu_limited else rate
     gross = rate * (co2_pa - gamma_star)
     return gross - rd, gross, rate * gamma_star
 
 
 @numba.njit(inline="always", **_JIT)
-def _c4_state(table, row, fraction, scalars, co2_pa, o2_pa, capacity_scale):
-    """Light-independent terms of c4.collatz_c4_rates or c4.caemmerer_c4_rates (six numbers)."""
-    if scalars[4] == 1.0:  # Collatz et al. (1992)
+def _c4_state(model, table, row, fraction, scalars, co2_pa, o2_pa, capacity_scale):
+    """Light-independent terms of c4.collatz_c4_rates or c4.caemmerer_c4_rates (five numbers)."""
+    if model == MODEL_COLLATZ1992:
         enzyme = _lerp(table, row, fraction, COLLATZ_ENZYME) * capacity_scale
         respiration = _lerp(table, row, fraction, COLLATZ_RESPIRATION)
         co2_limited = _lerp(table, row, fraction, COLLATZ_K) * co2_pa
-        return enzyme, respiration, co2_limited, 0.0, 0.0, 0.0
+        return enzyme, respiration, co2_limited, 0.0, 0.0
     # von Caemmerer (2000): the enzyme-limited rate does not depend on light.
     kc = _lerp(table, row, fraction, VC_KC)
     ko = _lerp(table, row, fraction, VC_KO)
@@ -427,18 +514,18 @@ def _c4_state(table, row, fraction, scalars, co2_pa, o2_pa, capacity_scale):
     enzyme_limited = _smaller_root_monic(
         -(mesophyll_supply + vcmax - rd + gbs * km),
         (vcmax - rd) * mesophyll_supply - (vcmax * gbs * gamma_star + rd * gbs * km))
-    return enzyme_limited, rd, _lerp(table, row, fraction, VC_JMAX), -rm + gbs * co2_pa, gbs * gamma_star, 0.0
+    return enzyme_limited, rd, _lerp(table, row, fraction, VC_JMAX), -rm + gbs * co2_pa, gbs * gamma_star
 
 
 @numba.njit(inline="always", **_JIT)
-def _c4_light(state, scalars, absorbed_par):
+def _c4_light(model, state, scalars, absorbed_par):
     """c4 rates for one absorbed PAR [µmol m-2 s-1]: (net, gross)."""
-    if scalars[4] == 1.0:
+    if model == MODEL_COLLATZ1992:
         enzyme, respiration, co2_limited = state[0], state[1], state[2]
         enzyme_light = _hyperbola(enzyme, scalars[5] * absorbed_par, scalars[6])
         gross = _hyperbola(enzyme_light, co2_limited, scalars[7])
         return gross - respiration, gross
-    enzyme_limited, rd, jmax, supply_without_light, gbs_gamma_star = state[0], state[1], state[2], state[3], state[4]
+    enzyme_limited, rd, jmax, supply_without_light, gbs_gamma_star = state
     x = scalars[8]
     electron_transport = _hyperbola(absorbed_par * (1.0 - scalars[6]) / 2.0, jmax, scalars[5])
     vp_light = x * electron_transport / 2.0
@@ -452,29 +539,47 @@ def _c4_light(state, scalars, absorbed_par):
 
 
 @numba.njit(inline="always", **_JIT)
-def _table_position(temperature, table_start, table_inverse_step, last_row):
-    position = (temperature - table_start) * table_inverse_step
+def _moment(c4_model, setup, lane, temperature, sunlit_par, shaded_par, sunlit_lai, shaded_lai, humidity_kind,
+            c3_scalars, c3_table, c4_scalars, c4_table, table_start, table_inverse_step, last_row):
+    """Canopy rates of both pathways at one moment [µmol m-2 s-1]: C3 net, gross, photorespiration, C4
+    net, gross, and 1.0 where the moment is invalid (temperature outside −60..60 °C) else 0.0."""
+    valid = temperature >= -60.0 and temperature <= 60.0
+    t = temperature if valid else 25.0
+    # atmosphere.vapour_pressure_deficit with e° of FAO-56 eq. 11, or the given VPD
+    saturation = 0.6108 * (1.0 + _expm1(17.27 * t / (t + 237.3)))
+    vpd = setup[_S_HUMIDITY, lane] if humidity_kind == HUMIDITY_VPD else _non_negative(
+        saturation - setup[_S_HUMIDITY, lane])
+    sqrt_vpd = math.sqrt(vpd)
+    water = setup[_S_WATER, lane]
+    co2_per_ratio = setup[_S_CO2_PER_RATIO, lane]
+    o2_pa = setup[_S_O2, lane]
+    position = (t - table_start) * table_inverse_step
     row = min(max(int(math.floor(position)), 0), last_row)
-    return row, position - row
+    fraction = position - row
+    c3_co2_pa = co2_per_ratio * _ci_ratio(c3_scalars, sqrt_vpd, water)
+    c4_co2_pa = co2_per_ratio * _ci_ratio(c4_scalars, sqrt_vpd, water)
+    state3 = _c3_state(c3_table, row, fraction, c3_co2_pa, o2_pa, setup[_S_C3_SCALE, lane])
+    state4 = _c4_state(c4_model, c4_table, row, fraction, c4_scalars, c4_co2_pa, o2_pa, setup[_S_C4_SCALE, lane])
+    net_sun, gross_sun, photo_sun = _c3_light(state3, c3_scalars, sunlit_par, c3_co2_pa)
+    net_shade, gross_shade, photo_shade = _c3_light(state3, c3_scalars, shaded_par, c3_co2_pa)
+    net4_sun, gross4_sun = _c4_light(c4_model, state4, c4_scalars, sunlit_par)
+    net4_shade, gross4_shade = _c4_light(c4_model, state4, c4_scalars, shaded_par)
+    return (net_sun * sunlit_lai + net_shade * shaded_lai,
+            gross_sun * sunlit_lai + gross_shade * shaded_lai,
+            photo_sun * sunlit_lai + photo_shade * shaded_lai,
+            net4_sun * sunlit_lai + net4_shade * shaded_lai,
+            gross4_sun * sunlit_lai + gross4_shade * shaded_lai,
+            0.0 if valid else 1.0)
 
 
-@numba.njit(**_JIT)
-def _monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season,
-                   days, co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
-                   table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out):
-    """Fill out[0..4, cell, month] with C3 net, gross, photorespiration and C4 net, gross [g C m-2 d-1].
-
-    The body follows canopy._prepare, canopy._gauss_integral and canopy._canopy_rates (see there for
-    the equations and sources); comments name the numpy function each step mirrors. ``day_nodes`` are
-    symmetric about 0 (as numpy's leggauss returns them): the two moments at ±x share the sun's
-    elevation, so the light climate is computed once for both and only the temperature differs.
-    """
-    nan = np.nan
+@numba.njit(inline="always", **_JIT)
+def _light_of_pair(setup, moment, node, constants):
+    """Absorbed PAR per leaf and leaf areas of the sunlit and shaded leaves at t = 12 ± (N/2) x, and the
+    temperatures of both moments (canopy._canopy_rates, canopy.daily_temperature), for every lane."""
     par_per_shortwave = constants[0]
     atmospheric_factor = constants[1]
     scattering = constants[2]
     min_sin_elevation = constants[5]
-    to_carbon = constants[7]
     # Temperature peaks at constants[6] h: cos(2π (t − t_peak)/24) = cos(θ − φ) with θ = π (t − 12)/12.
     peak_phase = 2.0 * math.pi * (constants[6] - 12.0) / 24.0
     cos_peak = math.cos(peak_phase)
@@ -484,181 +589,240 @@ def _monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitu
     horizontal_reflection = (1.0 - root) / (1.0 + root)
     kd_scattered = constants[3] * root
     diffuse_transmitted = 1.0 - constants[4]
+    for lane in range(BATCH):
+        # θ = π (t − 12) / 12 = ωs x, as N = 24 ωs / π (light.day_length)
+        sin_theta, cos_theta = _sincos(setup[_S_OMEGA, lane] * node)
+        sin_b = setup[_S_A, lane] + setup[_S_B, lane] * cos_theta  # light.sin_solar_elevation
+        # light.shortwave_daily_course, global (c = 0.4) and diffuse (c = 0) [W m-2]
+        sun_up = sin_b > 0.0
+        sb = sin_b if sun_up else 0.0
+        integral_global = setup[_S_INTEGRAL_GLOBAL, lane]
+        integral_diffuse = setup[_S_INTEGRAL_DIFFUSE, lane]
+        global_w = (1e6 * setup[_S_SHORTWAVE, lane] * sb * (1.0 + atmospheric_factor * sb)
+                    / (integral_global if integral_global > 0.0 else 1.0))
+        global_w = global_w if (sun_up and integral_global > 0.0) else 0.0
+        diffuse_w = 1e6 * setup[_S_DIFFUSE, lane] * sb / (integral_diffuse if integral_diffuse > 0.0 else 1.0)
+        diffuse_w = diffuse_w if (sun_up and integral_diffuse > 0.0) else 0.0
+        diffuse_w = global_w if diffuse_w > global_w else diffuse_w
+        diffuse_par = diffuse_w * par_per_shortwave
+        beam_par = global_w * par_per_shortwave - diffuse_par
+        # light.sun_shade_absorbed_par (de Pury & Farquhar 1997); E(k) = 1 − exp(−k L) and
+        # E(k1 + k2) = E1 + E2 − E1 E2, so only two exponentials depend on the moment.
+        leaf_area = setup[_S_LAI, lane]
+        e_kd = setup[_S_E_KD, lane]
+        kb = 0.5 / (sin_b if sin_b > min_sin_elevation else min_sin_elevation)
+        kb_scattered = kb * root
+        beam_reflection = -_expm1(-2.0 * horizontal_reflection * kb / (1.0 + kb))
+        absorbed_beam = (1.0 - beam_reflection) * beam_par
+        absorbed_diffuse = diffuse_transmitted * diffuse_par
+        e_kb = -_expm1(-kb * leaf_area)
+        e_kbs = -_expm1(-kb_scattered * leaf_area)
+        e_2kb = e_kb * (2.0 - e_kb)
+        diffuse_to_sunlit = kd_scattered / (kd_scattered + kb) * (e_kd + e_kb - e_kd * e_kb)
+        scattered_to_sunlit = kb_scattered / (kb_scattered + kb) * (e_kbs + e_kb - e_kbs * e_kb)
+        direct = beam_par * (1.0 - scattering)
+        sunlit = (direct * e_kb + absorbed_diffuse * diffuse_to_sunlit
+                  + absorbed_beam * scattered_to_sunlit - direct * e_2kb / 2.0)
+        shaded = (absorbed_diffuse * (e_kd - diffuse_to_sunlit)
+                  + absorbed_beam * (e_kbs - scattered_to_sunlit)
+                  - direct * (e_kb - e_2kb / 2.0))
+        sunlit_lai = e_kb / kb
+        shaded_lai = _non_negative(leaf_area - sunlit_lai)
+        sunlit_par = _non_negative(sunlit) / (sunlit_lai if sunlit_lai > 0.0 else 1.0)
+        shaded_par = _non_negative(shaded) / (shaded_lai if shaded_lai > 0.0 else 1.0)
+        moment[_M_SUNLIT_PAR, lane] = sunlit_par if sunlit_lai > 0.0 else 0.0
+        moment[_M_SHADED_PAR, lane] = shaded_par if shaded_lai > 0.0 else 0.0
+        moment[_M_SUNLIT_LAI, lane] = sunlit_lai
+        moment[_M_SHADED_LAI, lane] = shaded_lai
+        # canopy.daily_temperature at t = 12 + (N/2) x (afternoon) and 12 − (N/2) x (morning)
+        mean_t = setup[_S_MEAN_T, lane]
+        amplitude_t = setup[_S_AMPLITUDE_T, lane]
+        moment[_M_TEMPERATURE_AFTER, lane] = mean_t + amplitude_t * (cos_theta * cos_peak + sin_theta * sin_peak)
+        moment[_M_TEMPERATURE_BEFORE, lane] = mean_t + amplitude_t * (cos_theta * cos_peak - sin_theta * sin_peak)
+
+
+@numba.njit(inline="always", **_JIT)
+def _dark_night(setup, moment, node, constants):
+    """Temperature at t = ((24 − N)/2) x around midnight, with every leaf dark (canopy._dark_canopy_net):
+    the dark leaf counts with the whole LAI."""
+    midnight_phase = 2.0 * math.pi * (0.0 - constants[6]) / 24.0
+    cos_midnight = math.cos(midnight_phase)
+    sin_midnight = math.sin(midnight_phase)
+    for lane in range(BATCH):
+        # cos(2π (t − t_peak)/24) = cos(α + ψ), α = 2π t / 24, ψ the phase at midnight
+        sin_alpha, cos_alpha = _sincos(2.0 * math.pi * setup[_S_HALF_NIGHT_H, lane] * node / 24.0)
+        moment[_M_TEMPERATURE_AFTER, lane] = setup[_S_MEAN_T, lane] + setup[_S_AMPLITUDE_T, lane] * (
+            cos_alpha * cos_midnight - sin_alpha * sin_midnight)
+        moment[_M_SUNLIT_PAR, lane] = 0.0
+        moment[_M_SHADED_PAR, lane] = 0.0
+        moment[_M_SUNLIT_LAI, lane] = setup[_S_LAI, lane]
+        moment[_M_SHADED_LAI, lane] = 0.0
+
+
+@numba.njit(inline="always", **_JIT)
+def _integrate_batch(c4_model, setup, moment, acc, humidity_kind, c3_scalars, c3_table, c4_scalars, c4_table,
+                     table_start, table_inverse_step, day_nodes, day_weights, night_nodes, night_weights,
+                     constants):
+    """Add every Gauss moment of the day and the night to acc (canopy._gauss_integral).
+
+    Daylight moments t = 12 ± (N/2) x come in pairs that see the same sun elevation (sin β is even in
+    t − 12), so the light is computed once per pair; each moment then runs the same lane loop.
+    """
     last_row = c3_table.shape[0] - 2
-    o2_ok = o2_percent >= 0.0 and o2_percent <= 100.0
-    c3_water_on_capacity = c3_scalars[3] == 1.0
-    c4_water_on_capacity = c4_scalars[3] == 1.0
-    two_pi = 2.0 * math.pi
     n_day = day_nodes.shape[0]
     n_pairs = (n_day + 1) // 2
-    n_night = night_nodes.shape[0]
-    temperatures = np.empty(2)
-    weights = np.empty(2)
-
-    for cell in range(tmin.shape[0]):
-        latitude_deg = latitude[cell]
-        elevation_m = elevation[cell]
-        leaf_area = lai[cell]
-        # atmosphere.air_pressure_from_elevation, FAO-56 eq. 7
-        if elevation_m >= -500.0 and elevation_m <= 9000.0:
-            pressure = 101.3 * ((293.0 - 0.0065 * elevation_m) / 293.0) ** 5.26
+    n_day_moments = 2 * n_pairs
+    for k in range(n_day_moments + night_nodes.shape[0]):
+        daylight = k < n_day_moments
+        if daylight:
+            pair = k // 2
+            afternoon = k % 2 == 0
+            if afternoon:
+                _light_of_pair(setup, moment, day_nodes[n_day - 1 - pair], constants)
+            if afternoon:
+                node_weight = day_weights[n_day - 1 - pair]
+            else:  # an odd middle node (x = 0) is counted once
+                node_weight = 0.0 if n_day - 1 - pair == pair else day_weights[pair]
+            temperature_row = _M_TEMPERATURE_AFTER if afternoon else _M_TEMPERATURE_BEFORE
         else:
-            pressure = nan
-        cell_ok = (latitude_deg >= -90.0 and latitude_deg <= 90.0 and leaf_area >= 0.0
-                   and pressure > 0.0 and co2_ppm > 0.0 and o2_ok)
-        o2_pa = o2_percent * pressure * 10.0  # rubisco.o2_partial_pressure_pa
-        co2_pa_per_ratio = co2_ppm * pressure * 1e-3  # rubisco.co2_partial_pressure_pa of Ci = ratio · Ca
-        phi = math.radians(latitude_deg)
-        sin_phi = math.sin(phi)
-        cos_phi = math.cos(phi)
-        tan_phi = math.tan(phi)
-        e_kd = -math.expm1(-kd_scattered * leaf_area)
+            point = k - n_day_moments
+            _dark_night(setup, moment, night_nodes[point], constants)
+            node_weight = night_weights[point]
+            temperature_row = _M_TEMPERATURE_AFTER
+        gross_share = 1.0 if daylight else 0.0  # gross and photorespiration count in daylight only
+        for lane in range(BATCH):
+            seconds = node_weight * (setup[_S_HALF_DAY_S, lane] if daylight else setup[_S_HALF_NIGHT_H, lane] * 3600.0)
+            rates = _moment(c4_model, setup, lane, moment[temperature_row, lane], moment[_M_SUNLIT_PAR, lane],
+                            moment[_M_SHADED_PAR, lane], moment[_M_SUNLIT_LAI, lane], moment[_M_SHADED_LAI, lane],
+                            humidity_kind, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
+                            table_inverse_step, last_row)
+            acc[_A_C3_NET, lane] += seconds * rates[0]
+            acc[_A_C3_GROSS, lane] += gross_share * (seconds * rates[1])
+            acc[_A_C3_PHOTO, lane] += gross_share * (seconds * rates[2])
+            acc[_A_C4_NET, lane] += seconds * rates[3]
+            acc[_A_C4_GROSS, lane] += gross_share * (seconds * rates[4])
+            acc[_A_BAD, lane] += rates[5]
 
+
+@numba.njit(inline="always", **_JIT)
+def _fill_harmless(setup, lane, constants):
+    # A valid, finite day for lanes whose cell is invalid or beyond the last cell (result discarded).
+    for field in range(_N_SETUP):
+        setup[field, lane] = 1.0
+    setup[_S_OMEGA, lane] = 0.5 * math.pi
+    setup[_S_A, lane] = 0.0
+    setup[_S_SHORTWAVE, lane] = 0.0
+    setup[_S_DIFFUSE, lane] = 0.0
+    setup[_S_MEAN_T, lane] = 20.0
+    setup[_S_AMPLITUDE_T, lane] = 0.0
+    setup[_S_HALF_DAY_S, lane] = 21600.0
+    setup[_S_HALF_NIGHT_H, lane] = 6.0
+    setup[_S_E_KD, lane] = 0.5
+    setup[_S_CO2_PER_RATIO, lane] = 40.0
+    setup[_S_O2, lane] = 21000.0
+
+
+@numba.njit(inline="always", **_JIT)
+def _setup_lane(setup, lane, cell, month, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude,
+                elevation, lai, season, days, co2_ppm, o2_percent, c3_scalars, c4_scalars, constants):
+    """The day's quantities of one cell and month (canopy._prepare); False where the result is NaN."""
+    latitude_deg = latitude[cell]
+    elevation_m = elevation[cell]
+    leaf_area = lai[cell]
+    t_low = tmin[cell, month]
+    t_high = tmax[cell, month]
+    daily_shortwave = shortwave[cell, month]
+    w = water[cell, month]
+    doy = days[month]
+    if not (season[cell, month] and elevation_m >= -500.0 and elevation_m <= 9000.0
+            and latitude_deg >= -90.0 and latitude_deg <= 90.0 and leaf_area >= 0.0 and leaf_area < np.inf
+            and co2_ppm > 0.0 and o2_percent >= 0.0 and o2_percent <= 100.0
+            and t_low >= -60.0 and t_high <= 60.0 and t_low <= t_high and daily_shortwave >= 0.0
+            and daily_shortwave < np.inf and doy >= 1.0 and doy <= 366.0 and w >= 0.0 and w <= 1.0):
+        return False
+    if humidity_kind == HUMIDITY_VPD or humidity_kind == HUMIDITY_VAPOUR_PRESSURE:
+        given = humidity[cell, month]
+        if not (given >= 0.0 and given < np.inf):
+            return False
+        setup[_S_HUMIDITY, lane] = given
+    else:  # atmosphere.actual_vapour_pressure_from_tmin, FAO-56 eqs. 11, 48
+        setup[_S_HUMIDITY, lane] = 0.6108 * math.exp(17.27 * t_low / (t_low + 237.3))
+    pressure = 101.3 * ((293.0 - 0.0065 * elevation_m) / 293.0) ** 5.26  # FAO-56 eq. 7
+    # light.solar_declination, inverse_relative_distance, sunset_hour_angle (FAO-56 eqs. 23-25)
+    two_pi = 2.0 * math.pi
+    phi = math.radians(latitude_deg)
+    declination = 0.409 * math.sin(two_pi * doy / 365.0 - 1.39)
+    relative_distance = 1.0 + 0.033 * math.cos(two_pi * doy / 365.0)
+    omega_s = math.acos(min(max(-math.tan(phi) * math.tan(declination), -1.0), 1.0))
+    a = math.sin(phi) * math.sin(declination)
+    b = math.cos(phi) * math.cos(declination)
+    sin_omega = math.sin(omega_s)
+    # light.extraterrestrial_radiation (FAO-56 eq. 21), the daily clearness and diffuse share
+    extraterrestrial = 24.0 * 60.0 / math.pi * 0.0820 * relative_distance * (omega_s * a + b * sin_omega)
+    clearness = daily_shortwave / extraterrestrial if extraterrestrial > 0.0 else 0.0
+    # light.daylight_integral_of_sin_elevation, with and without the atmospheric factor
+    integral_sin = 24.0 / math.pi * (a * omega_s + b * sin_omega)
+    integral_sin2 = 12.0 / math.pi * (2.0 * a * a * omega_s + 4.0 * a * b * sin_omega
+                                      + b * b * (omega_s + sin_omega * math.cos(omega_s)))
+    day_hours = 24.0 / math.pi * omega_s  # light.day_length, FAO-56 eq. 34
+    kd_scattered = constants[3] * math.sqrt(1.0 - constants[2])
+    setup[_S_OMEGA, lane] = omega_s
+    setup[_S_A, lane] = a
+    setup[_S_B, lane] = b
+    setup[_S_INTEGRAL_GLOBAL, lane] = 3600.0 * (integral_sin + constants[1] * integral_sin2)
+    setup[_S_INTEGRAL_DIFFUSE, lane] = 3600.0 * integral_sin
+    setup[_S_SHORTWAVE, lane] = daily_shortwave
+    setup[_S_DIFFUSE, lane] = _diffuse_fraction_daily(clearness) * daily_shortwave
+    setup[_S_MEAN_T, lane] = 0.5 * (t_high + t_low)
+    setup[_S_AMPLITUDE_T, lane] = 0.5 * (t_high - t_low)
+    setup[_S_HALF_DAY_S, lane] = 0.5 * day_hours * 3600.0
+    setup[_S_HALF_NIGHT_H, lane] = 0.5 * (24.0 - day_hours)
+    setup[_S_LAI, lane] = leaf_area
+    setup[_S_E_KD, lane] = -math.expm1(-kd_scattered * leaf_area)
+    setup[_S_WATER, lane] = w
+    setup[_S_CO2_PER_RATIO, lane] = co2_ppm * pressure * 1e-3  # rubisco.co2_partial_pressure_pa, Ci = ratio Ca
+    setup[_S_O2, lane] = o2_percent * pressure * 10.0  # rubisco.o2_partial_pressure_pa
+    setup[_S_C3_SCALE, lane] = w if c3_scalars[3] == 1.0 else 1.0  # stomata.capacity_scale
+    setup[_S_C4_SCALE, lane] = w if c4_scalars[3] == 1.0 else 1.0
+    return True
+
+
+@numba.njit(**_JIT)
+def _monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season,
+                   days, co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
+                   table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out):
+    """Fill out[0..4, cell, month] with C3 net, gross, photorespiration and C4 net, gross [g C m-2 d-1].
+
+    Follows canopy._prepare, canopy._gauss_integral and canopy._canopy_rates (see there for the
+    equations and sources). ``day_nodes`` must be symmetric about 0, as numpy's leggauss returns them.
+    """
+    n = tmin.shape[0]
+    setup = _setup_array()
+    moment = _moment_array()
+    acc = _acc_array()
+    collatz = c4_scalars[4] == MODEL_COLLATZ1992
+    to_carbon = constants[7]
+    for start in range(0, n, BATCH):
         for month in range(12):
-            t_low = tmin[cell, month]
-            t_high = tmax[cell, month]
-            daily_shortwave = shortwave[cell, month]
-            w = water[cell, month]
-            doy = days[month]
-            ok = (season[cell, month] and cell_ok and math.isfinite(t_low) and math.isfinite(t_high)
-                  and t_low <= t_high and daily_shortwave >= 0.0 and doy >= 1.0 and doy <= 366.0
-                  and w >= 0.0 and w <= 1.0)
-            if not ok:
-                for q in range(5):
-                    out[q, cell, month] = nan
-                continue
-            vpd_fixed = humidity[cell, month] if humidity_kind == 1 else nan
-            if humidity_kind == 2:
-                vapour_pressure = humidity[cell, month]
+            for lane in range(BATCH):
+                cell = start + lane
+                valid = cell < n and _setup_lane(
+                    setup, lane, cell, month, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude,
+                    elevation, lai, season, days, co2_ppm, o2_percent, c3_scalars, c4_scalars, constants)
+                if not valid:
+                    _fill_harmless(setup, lane, constants)
+                for field in range(_N_ACC):
+                    acc[field, lane] = 0.0
+                acc[_A_BAD, lane] = 0.0 if valid else 1.0
+            if collatz:
+                _integrate_batch(MODEL_COLLATZ1992, setup, moment, acc, humidity_kind, c3_scalars, c3_table,
+                                 c4_scalars, c4_table, table_start, table_inverse_step, day_nodes, day_weights,
+                                 night_nodes, night_weights, constants)
             else:
-                vapour_pressure = _saturation_vapour_pressure(t_low)  # atmosphere.actual_vapour_pressure_from_tmin
-            # light.solar_declination, inverse_relative_distance, sunset_hour_angle (FAO-56 eqs. 23-25)
-            declination = 0.409 * math.sin(two_pi * doy / 365.0 - 1.39)
-            relative_distance = 1.0 + 0.033 * math.cos(two_pi * doy / 365.0)
-            omega_s = math.acos(min(max(-tan_phi * math.tan(declination), -1.0), 1.0))
-            a = sin_phi * math.sin(declination)
-            b = cos_phi * math.cos(declination)
-            sin_omega = math.sin(omega_s)
-            # light.extraterrestrial_radiation (FAO-56 eq. 21) and the daily clearness
-            extraterrestrial = 24.0 * 60.0 / math.pi * 0.0820 * relative_distance * (omega_s * a + b * sin_omega)
-            clearness = daily_shortwave / extraterrestrial if extraterrestrial > 0.0 else 0.0
-            daily_diffuse = _diffuse_fraction_daily(clearness) * daily_shortwave
-            # light.daylight_integral_of_sin_elevation, with and without the atmospheric factor
-            integral_sin = 24.0 / math.pi * (a * omega_s + b * sin_omega)
-            integral_sin2 = 12.0 / math.pi * (2.0 * a * a * omega_s + 4.0 * a * b * sin_omega
-                                              + b * b * (omega_s + sin_omega * math.cos(omega_s)))
-            integral_global_s = 3600.0 * (integral_sin + atmospheric_factor * integral_sin2)
-            integral_diffuse_s = 3600.0 * integral_sin
-            day_hours = 24.0 / math.pi * omega_s  # light.day_length, FAO-56 eq. 34
-            mean_t = 0.5 * (t_high + t_low)
-            amplitude_t = 0.5 * (t_high - t_low)
-            c3_scale = w if c3_water_on_capacity else 1.0
-            c4_scale = w if c4_water_on_capacity else 1.0
-            c3_net = c3_gross = c3_photo = c4_net = c4_gross = 0.0
-
-            # Daylight: Gauss-Legendre moments in pairs t = 12 ± (N/2) x (canopy._gauss_integral).
-            half_day_s = 0.5 * day_hours * 3600.0
-            for pair in range(n_pairs):
-                node = day_nodes[n_day - 1 - pair]
-                theta = math.pi * (0.5 * day_hours * node) / 12.0
-                cos_theta = math.cos(theta)
-                sin_theta = math.sin(theta)
-                n_moments = 1 if n_day - 1 - pair == pair else 2
-                weights[0] = day_weights[n_day - 1 - pair] * half_day_s
-                weights[1] = day_weights[pair] * half_day_s
-                # canopy.daily_temperature at t = 12 + ... (afternoon) and t = 12 − ... (morning)
-                temperatures[0] = mean_t + amplitude_t * (cos_theta * cos_peak + sin_theta * sin_peak)
-                temperatures[1] = mean_t + amplitude_t * (cos_theta * cos_peak - sin_theta * sin_peak)
-
-                # canopy._canopy_rates: the light of both moments
-                sin_b = a + b * cos_theta  # light.sin_solar_elevation
-                global_w = _daily_course(daily_shortwave, sin_b, integral_global_s, atmospheric_factor)
-                diffuse_w = _daily_course(daily_diffuse, sin_b, integral_diffuse_s, 0.0)
-                if diffuse_w > global_w:
-                    diffuse_w = global_w
-                diffuse_par = diffuse_w * par_per_shortwave
-                beam_par = global_w * par_per_shortwave - diffuse_par
-                # light.sun_shade_absorbed_par (de Pury & Farquhar 1997); E(k) = 1 − exp(−k L), with
-                # E(k1 + k2) = E1 + E2 − E1 E2 so that only two exponentials depend on the moment.
-                kb = 0.5 / max(sin_b, min_sin_elevation)
-                kb_scattered = kb * root
-                beam_reflection = 1.0 - math.exp(-2.0 * horizontal_reflection * kb / (1.0 + kb))
-                absorbed_beam = (1.0 - beam_reflection) * beam_par
-                absorbed_diffuse = diffuse_transmitted * diffuse_par
-                e_kb = -math.expm1(-kb * leaf_area)
-                e_kbs = -math.expm1(-kb_scattered * leaf_area)
-                e_2kb = e_kb * (2.0 - e_kb)
-                diffuse_to_sunlit = kd_scattered / (kd_scattered + kb) * (e_kd + e_kb - e_kd * e_kb)
-                scattered_to_sunlit = kb_scattered / (kb_scattered + kb) * (e_kbs + e_kb - e_kbs * e_kb)
-                direct = beam_par * (1.0 - scattering)
-                sunlit = (direct * e_kb + absorbed_diffuse * diffuse_to_sunlit
-                          + absorbed_beam * scattered_to_sunlit - direct * e_2kb / 2.0)
-                shaded = (absorbed_diffuse * (e_kd - diffuse_to_sunlit)
-                          + absorbed_beam * (e_kbs - scattered_to_sunlit)
-                          - direct * (e_kb - e_2kb / 2.0))
-                sunlit_lai = e_kb / kb
-                shaded_lai = _non_negative(leaf_area - sunlit_lai)
-                sunlit_par = _non_negative(sunlit) / sunlit_lai if sunlit_lai > 0.0 else 0.0
-                shaded_par = _non_negative(shaded) / shaded_lai if shaded_lai > 0.0 else 0.0
-                if not (sunlit_par >= 0.0 and shaded_par >= 0.0 and sunlit_par < np.inf and shaded_par < np.inf):
-                    ok = False
-
-                for moment in range(n_moments):
-                    temperature = temperatures[moment]
-                    weight = weights[moment]
-                    if not (temperature >= -60.0 and temperature <= 60.0):
-                        ok = False
-                        continue
-                    vpd = vpd_fixed if humidity_kind == 1 else _non_negative(
-                        _saturation_vapour_pressure(temperature) - vapour_pressure)  # atmosphere.vapour_pressure_deficit
-                    if not (vpd >= 0.0 and vapour_pressure >= 0.0):
-                        ok = False
-                        continue
-                    sqrt_vpd = math.sqrt(vpd)
-                    row, fraction = _table_position(temperature, table_start, table_inverse_step, last_row)
-                    c3_co2_pa = co2_pa_per_ratio * _ci_ratio(c3_scalars, sqrt_vpd, w)
-                    c4_co2_pa = co2_pa_per_ratio * _ci_ratio(c4_scalars, sqrt_vpd, w)
-                    state3 = _c3_state(c3_table, row, fraction, c3_co2_pa, o2_pa, c3_scale)
-                    state4 = _c4_state(c4_table, row, fraction, c4_scalars, c4_co2_pa, o2_pa, c4_scale)
-                    net_sun, gross_sun, photo_sun = _c3_light(state3, c3_scalars, sunlit_par, c3_co2_pa)
-                    net_shade, gross_shade, photo_shade = _c3_light(state3, c3_scalars, shaded_par, c3_co2_pa)
-                    c3_net += weight * (net_sun * sunlit_lai + net_shade * shaded_lai)
-                    c3_gross += weight * (gross_sun * sunlit_lai + gross_shade * shaded_lai)
-                    c3_photo += weight * (photo_sun * sunlit_lai + photo_shade * shaded_lai)
-                    net_sun, gross_sun = _c4_light(state4, c4_scalars, sunlit_par)
-                    net_shade, gross_shade = _c4_light(state4, c4_scalars, shaded_par)
-                    c4_net += weight * (net_sun * sunlit_lai + net_shade * shaded_lai)
-                    c4_gross += weight * (gross_sun * sunlit_lai + gross_shade * shaded_lai)
-
-            # Night: every leaf dark (canopy._dark_canopy_net), t = ((24 − N)/2) x around midnight.
-            half_night_h = 0.5 * (24.0 - day_hours)
-            for point in range(n_night):
-                hour = half_night_h * night_nodes[point]
-                weight = night_weights[point] * half_night_h * 3600.0
-                temperature = mean_t + amplitude_t * math.cos(two_pi * (hour - constants[6]) / 24.0)
-                if not (temperature >= -60.0 and temperature <= 60.0):
-                    ok = False
-                    continue
-                vpd = vpd_fixed if humidity_kind == 1 else _non_negative(
-                    _saturation_vapour_pressure(temperature) - vapour_pressure)
-                if not (vpd >= 0.0 and vapour_pressure >= 0.0):
-                    ok = False
-                    continue
-                sqrt_vpd = math.sqrt(vpd)
-                row, fraction = _table_position(temperature, table_start, table_inverse_step, last_row)
-                c3_co2_pa = co2_pa_per_ratio * _ci_ratio(c3_scalars, sqrt_vpd, w)
-                c4_co2_pa = co2_pa_per_ratio * _ci_ratio(c4_scalars, sqrt_vpd, w)
-                state3 = _c3_state(c3_table, row, fraction, c3_co2_pa, o2_pa, c3_scale)
-                state4 = _c4_state(c4_table, row, fraction, c4_scalars, c4_co2_pa, o2_pa, c4_scale)
-                c3_net += weight * (_c3_light(state3, c3_scalars, 0.0, c3_co2_pa)[0] * leaf_area)
-                c4_net += weight * (_c4_light(state4, c4_scalars, 0.0)[0] * leaf_area)
-
-            if ok:
-                out[0, cell, month] = c3_net * to_carbon
-                out[1, cell, month] = c3_gross * to_carbon
-                out[2, cell, month] = c3_photo * to_carbon
-                out[3, cell, month] = c4_net * to_carbon
-                out[4, cell, month] = c4_gross * to_carbon
-            else:
-                for q in range(5):
-                    out[q, cell, month] = nan
+                _integrate_batch(MODEL_VC2000, setup, moment, acc, humidity_kind, c3_scalars, c3_table,
+                                 c4_scalars, c4_table, table_start, table_inverse_step, day_nodes, day_weights,
+                                 night_nodes, night_weights, constants)
+            for lane in range(min(BATCH, n - start)):
+                good = acc[_A_BAD, lane] == 0.0
+                for field in range(5):
+                    out[field, start + lane, month] = acc[field, lane] * to_carbon if good else np.nan
