@@ -268,7 +268,8 @@ def monthly_canopy_assimilation(
     day_nodes, day_weights = np.polynomial.legendre.leggauss(_canopy.DAY_GAUSS_POINTS)
     night_nodes, night_weights = np.polynomial.legendre.leggauss(_canopy.NIGHT_GAUSS_POINTS)
     out = np.empty((5, n, 12), np.float64)
-    _monthly_cells(
+    entry = _monthly_cells_collatz if c4.scalars[4] == MODEL_COLLATZ1992 else _monthly_cells_caemmerer
+    entry(
         cells_by_month(tmin_c, "tmin_c"), cells_by_month(tmax_c, "tmax_c"),
         cells_by_month(shortwave_mj, "shortwave_mj"), cells_by_month(water_availability, "water_availability"),
         humidity, humidity_kind, cells(latitude_deg, "latitude_deg", 0.0), cells(elevation_m, "elevation_m", 0.0),
@@ -318,6 +319,9 @@ _INV_FACTORIAL = tuple(1.0 / math.factorial(k) for k in range(23))
  _S_AMPLITUDE_T, _S_HALF_DAY_S, _S_HALF_NIGHT_H, _S_LAI, _S_E_KD, _S_HUMIDITY, _S_WATER, _S_CO2_PER_RATIO,
  _S_O2, _S_C3_SCALE, _S_C4_SCALE) = range(19)
 _N_SETUP = 19
+# cells[field, lane]: what does not change with the month
+(_C_VALID, _C_SIN_PHI, _C_COS_PHI, _C_TAN_PHI, _C_LAI, _C_E_KD, _C_CO2_PER_RATIO, _C_O2) = range(8)
+_N_CELL = 8
 # acc[field, lane]
 _A_C3_NET, _A_C3_GROSS, _A_C3_PHOTO, _A_C4_NET, _A_C4_GROSS, _A_BAD = range(6)
 _N_ACC = 6
@@ -355,6 +359,7 @@ def _stack_array(rows: int):
 
 
 _setup_array = _stack_array(_N_SETUP)
+_cell_array = _stack_array(_N_CELL)
 _acc_array = _stack_array(_N_ACC)
 _moment_array = _stack_array(_N_MOMENT)
 
@@ -723,22 +728,41 @@ def _fill_harmless(setup, lane, constants):
 
 
 @numba.njit(inline="always", **_JIT)
-def _setup_lane(setup, lane, cell, month, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude,
-                elevation, lai, season, days, co2_ppm, o2_percent, c3_scalars, c4_scalars, constants):
-    """The day's quantities of one cell and month (canopy._prepare); False where the result is NaN."""
+def _setup_cell(cells, lane, cell, latitude, elevation, lai, co2_ppm, o2_percent, constants):
+    """The quantities of one cell that do not change with the month (canopy._prepare)."""
     latitude_deg = latitude[cell]
     elevation_m = elevation[cell]
     leaf_area = lai[cell]
+    valid = (elevation_m >= -500.0 and elevation_m <= 9000.0 and latitude_deg >= -90.0 and latitude_deg <= 90.0
+             and leaf_area >= 0.0 and leaf_area < np.inf and co2_ppm > 0.0 and o2_percent >= 0.0
+             and o2_percent <= 100.0)
+    if not valid:
+        latitude_deg = elevation_m = 0.0
+        leaf_area = 1.0
+    pressure = 101.3 * ((293.0 - 0.0065 * elevation_m) / 293.0) ** 5.26  # FAO-56 eq. 7
+    phi = math.radians(latitude_deg)
+    kd_scattered = constants[3] * math.sqrt(1.0 - constants[2])
+    cells[_C_VALID, lane] = 1.0 if valid else 0.0
+    cells[_C_SIN_PHI, lane] = math.sin(phi)
+    cells[_C_COS_PHI, lane] = math.cos(phi)
+    cells[_C_TAN_PHI, lane] = math.tan(phi)
+    cells[_C_LAI, lane] = leaf_area
+    cells[_C_E_KD, lane] = -math.expm1(-kd_scattered * leaf_area)
+    cells[_C_CO2_PER_RATIO, lane] = co2_ppm * pressure * 1e-3  # rubisco.co2_partial_pressure_pa, Ci = ratio Ca
+    cells[_C_O2, lane] = o2_percent * pressure * 10.0  # rubisco.o2_partial_pressure_pa
+
+
+@numba.njit(inline="always", **_JIT)
+def _setup_lane(setup, cells, lane, cell, month, tmin, tmax, shortwave, water, humidity, humidity_kind, season,
+                sin_declination, cos_declination, tan_declination, relative_distance, c3_scalars, c4_scalars,
+                constants):
+    """The day's quantities of one cell and month (canopy._prepare); False where the result is NaN."""
     t_low = tmin[cell, month]
     t_high = tmax[cell, month]
     daily_shortwave = shortwave[cell, month]
     w = water[cell, month]
-    doy = days[month]
-    if not (season[cell, month] and elevation_m >= -500.0 and elevation_m <= 9000.0
-            and latitude_deg >= -90.0 and latitude_deg <= 90.0 and leaf_area >= 0.0 and leaf_area < np.inf
-            and co2_ppm > 0.0 and o2_percent >= 0.0 and o2_percent <= 100.0
-            and t_low >= -60.0 and t_high <= 60.0 and t_low <= t_high and daily_shortwave >= 0.0
-            and daily_shortwave < np.inf and doy >= 1.0 and doy <= 366.0 and w >= 0.0 and w <= 1.0):
+    if not (cells[_C_VALID, lane] == 1.0 and season[cell, month] and t_low >= -60.0 and t_high <= 60.0
+            and t_low <= t_high and daily_shortwave >= 0.0 and daily_shortwave < np.inf and w >= 0.0 and w <= 1.0):
         return False
     if humidity_kind == HUMIDITY_VPD or humidity_kind == HUMIDITY_VAPOUR_PRESSURE:
         given = humidity[cell, month]
@@ -747,15 +771,10 @@ def _setup_lane(setup, lane, cell, month, tmin, tmax, shortwave, water, humidity
         setup[_S_HUMIDITY, lane] = given
     else:  # atmosphere.actual_vapour_pressure_from_tmin, FAO-56 eqs. 11, 48
         setup[_S_HUMIDITY, lane] = 0.6108 * math.exp(17.27 * t_low / (t_low + 237.3))
-    pressure = 101.3 * ((293.0 - 0.0065 * elevation_m) / 293.0) ** 5.26  # FAO-56 eq. 7
-    # light.solar_declination, inverse_relative_distance, sunset_hour_angle (FAO-56 eqs. 23-25)
-    two_pi = 2.0 * math.pi
-    phi = math.radians(latitude_deg)
-    declination = 0.409 * math.sin(two_pi * doy / 365.0 - 1.39)
-    relative_distance = 1.0 + 0.033 * math.cos(two_pi * doy / 365.0)
-    omega_s = math.acos(min(max(-math.tan(phi) * math.tan(declination), -1.0), 1.0))
-    a = math.sin(phi) * math.sin(declination)
-    b = math.cos(phi) * math.cos(declination)
+    # light.sunset_hour_angle (FAO-56 eq. 25); sin β = a + b cos ω
+    omega_s = math.acos(min(max(-cells[_C_TAN_PHI, lane] * tan_declination, -1.0), 1.0))
+    a = cells[_C_SIN_PHI, lane] * sin_declination
+    b = cells[_C_COS_PHI, lane] * cos_declination
     sin_omega = math.sin(omega_s)
     # light.extraterrestrial_radiation (FAO-56 eq. 21), the daily clearness and diffuse share
     extraterrestrial = 24.0 * 60.0 / math.pi * 0.0820 * relative_distance * (omega_s * a + b * sin_omega)
@@ -765,7 +784,6 @@ def _setup_lane(setup, lane, cell, month, tmin, tmax, shortwave, water, humidity
     integral_sin2 = 12.0 / math.pi * (2.0 * a * a * omega_s + 4.0 * a * b * sin_omega
                                       + b * b * (omega_s + sin_omega * math.cos(omega_s)))
     day_hours = 24.0 / math.pi * omega_s  # light.day_length, FAO-56 eq. 34
-    kd_scattered = constants[3] * math.sqrt(1.0 - constants[2])
     setup[_S_OMEGA, lane] = omega_s
     setup[_S_A, lane] = a
     setup[_S_B, lane] = b
@@ -777,19 +795,19 @@ def _setup_lane(setup, lane, cell, month, tmin, tmax, shortwave, water, humidity
     setup[_S_AMPLITUDE_T, lane] = 0.5 * (t_high - t_low)
     setup[_S_HALF_DAY_S, lane] = 0.5 * day_hours * 3600.0
     setup[_S_HALF_NIGHT_H, lane] = 0.5 * (24.0 - day_hours)
-    setup[_S_LAI, lane] = leaf_area
-    setup[_S_E_KD, lane] = -math.expm1(-kd_scattered * leaf_area)
+    setup[_S_LAI, lane] = cells[_C_LAI, lane]
+    setup[_S_E_KD, lane] = cells[_C_E_KD, lane]
     setup[_S_WATER, lane] = w
-    setup[_S_CO2_PER_RATIO, lane] = co2_ppm * pressure * 1e-3  # rubisco.co2_partial_pressure_pa, Ci = ratio Ca
-    setup[_S_O2, lane] = o2_percent * pressure * 10.0  # rubisco.o2_partial_pressure_pa
+    setup[_S_CO2_PER_RATIO, lane] = cells[_C_CO2_PER_RATIO, lane]
+    setup[_S_O2, lane] = cells[_C_O2, lane]
     setup[_S_C3_SCALE, lane] = w if c3_scalars[3] == 1.0 else 1.0  # stomata.capacity_scale
     setup[_S_C4_SCALE, lane] = w if c4_scalars[3] == 1.0 else 1.0
     return True
 
 
-@numba.njit(**_JIT)
-def _monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season,
-                   days, co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
+@numba.njit(inline="always", **_JIT)
+def _monthly_cells(c4_model, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai,
+                   season, days, co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
                    table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out):
     """Fill out[0..4, cell, month] with C3 net, gross, photorespiration and C4 net, gross [g C m-2 d-1].
 
@@ -798,31 +816,60 @@ def _monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitu
     """
     n = tmin.shape[0]
     setup = _setup_array()
+    cells = _cell_array()
     moment = _moment_array()
     acc = _acc_array()
-    collatz = c4_scalars[4] == MODEL_COLLATZ1992
     to_carbon = constants[7]
+    two_pi = 2.0 * math.pi
     for start in range(0, n, BATCH):
+        for lane in range(BATCH):
+            if start + lane < n:
+                _setup_cell(cells, lane, start + lane, latitude, elevation, lai, co2_ppm, o2_percent, constants)
+            else:
+                cells[_C_VALID, lane] = 0.0
         for month in range(12):
+            # light.solar_declination, inverse_relative_distance (FAO-56 eqs. 23, 24)
+            doy = days[month]
+            doy_valid = doy >= 1.0 and doy <= 366.0
+            declination = 0.409 * math.sin(two_pi * doy / 365.0 - 1.39)
+            relative_distance = 1.0 + 0.033 * math.cos(two_pi * doy / 365.0)
+            sin_declination = math.sin(declination)
+            cos_declination = math.cos(declination)
+            tan_declination = math.tan(declination)
             for lane in range(BATCH):
                 cell = start + lane
-                valid = cell < n and _setup_lane(
-                    setup, lane, cell, month, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude,
-                    elevation, lai, season, days, co2_ppm, o2_percent, c3_scalars, c4_scalars, constants)
+                valid = doy_valid and cells[_C_VALID, lane] == 1.0 and _setup_lane(
+                    setup, cells, lane, cell, month, tmin, tmax, shortwave, water, humidity, humidity_kind, season,
+                    sin_declination, cos_declination, tan_declination, relative_distance, c3_scalars, c4_scalars,
+                    constants)
                 if not valid:
                     _fill_harmless(setup, lane, constants)
                 for field in range(_N_ACC):
                     acc[field, lane] = 0.0
                 acc[_A_BAD, lane] = 0.0 if valid else 1.0
-            if collatz:
-                _integrate_batch(MODEL_COLLATZ1992, setup, moment, acc, humidity_kind, c3_scalars, c3_table,
-                                 c4_scalars, c4_table, table_start, table_inverse_step, day_nodes, day_weights,
-                                 night_nodes, night_weights, constants)
-            else:
-                _integrate_batch(MODEL_VC2000, setup, moment, acc, humidity_kind, c3_scalars, c3_table,
-                                 c4_scalars, c4_table, table_start, table_inverse_step, day_nodes, day_weights,
-                                 night_nodes, night_weights, constants)
+            _integrate_batch(c4_model, setup, moment, acc, humidity_kind, c3_scalars, c3_table, c4_scalars, c4_table,
+                             table_start, table_inverse_step, day_nodes, day_weights, night_nodes, night_weights,
+                             constants)
             for lane in range(min(BATCH, n - start)):
                 good = acc[_A_BAD, lane] == 0.0
                 for field in range(5):
                     out[field, start + lane, month] = acc[field, lane] * to_carbon if good else np.nan
+
+
+# One compiled entry point per C4 model, so that a run compiles (once, then numba's cache) only its own.
+@numba.njit(**_JIT)
+def _monthly_cells_collatz(tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
+                           co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
+                           table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out):
+    _monthly_cells(MODEL_COLLATZ1992, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
+                   co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
+                   table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out)
+
+
+@numba.njit(**_JIT)
+def _monthly_cells_caemmerer(tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
+                           co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
+                           table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out):
+    _monthly_cells(MODEL_VC2000, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
+                   co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
+                   table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out)
