@@ -244,16 +244,10 @@ def monthly_canopy_assimilation(
     n = int(np.prod(shape, dtype=np.int64))
 
     def cells_by_month(values, name):
-        array = np.asarray(values)
-        if array.shape != shape + (12,):
-            raise ValueError(f"{name}: expected shape {shape + (12,)}, got {array.shape}")
-        return np.ascontiguousarray(array.reshape(n, 12))
+        return _kernel_array(values, np.float32, shape + (12,), (n, 12), name)
 
     def cells(values, name, default):
-        if values is None:
-            return np.full(n, default, np.float64)
-        array = np.broadcast_to(np.asarray(values), shape)
-        return np.ascontiguousarray(array.reshape(n))
+        return _kernel_array(default if values is None else values, np.float32, shape, (n,), name)
 
     if vpd_kpa is not None:
         humidity_kind, humidity = HUMIDITY_VPD, cells_by_month(vpd_kpa, "vpd_kpa")
@@ -262,9 +256,10 @@ def monthly_canopy_assimilation(
         humidity = cells_by_month(actual_vapour_pressure_kpa, "actual_vapour_pressure_kpa")
     else:
         humidity_kind, humidity = HUMIDITY_FROM_TMIN, np.zeros((1, 12), np.float32)
-    season = (np.ones((n, 12), np.bool_) if in_season is None
-              else np.ascontiguousarray(np.broadcast_to(np.asarray(in_season, bool), shape + (12,)).reshape(n, 12)))
-    days = np.asarray(day_of_year, np.float64).reshape(12)
+    season = _kernel_array(True if in_season is None else in_season, np.bool_, shape + (12,), (n, 12), "in_season")
+    days = np.asarray(day_of_year, np.float64)
+    if days.shape != (12,) or not np.all(days == days.round()):
+        raise ValueError(f"day_of_year: expected 12 whole days, got {day_of_year!r}")
     day_nodes, day_weights = np.polynomial.legendre.leggauss(_canopy.DAY_GAUSS_POINTS)
     night_nodes, night_weights = np.polynomial.legendre.leggauss(_canopy.NIGHT_GAUSS_POINTS)
     out = np.empty((5, n, 12), np.float64)
@@ -279,6 +274,20 @@ def monthly_canopy_assimilation(
     )
     out = out.reshape((5,) + shape + (12,))
     return MonthlyCanopyAssimilation(*out)
+
+
+def _kernel_array(values, dtype, shape, flat_shape, name) -> np.ndarray:
+    """``values`` broadcast to ``shape``, as a writeable C-contiguous array of ``dtype`` and ``flat_shape``.
+
+    Every call then has the same numba type signature, so the kernel is compiled (or loaded from the
+    cache) once, whatever dtype, memory layout or read-only flag the caller's arrays have.
+    """
+    array = np.asarray(values)
+    try:
+        array = np.broadcast_to(array, shape)
+    except ValueError:
+        raise ValueError(f"{name}: expected shape {shape} (or one that broadcasts to it), got {array.shape}") from None
+    return np.require(array.reshape(flat_shape), dtype=dtype, requirements=["C", "A", "W"])
 
 
 def _constants() -> np.ndarray:
@@ -836,6 +845,7 @@ def _monthly_cells(c4_model, tmin, tmax, shortwave, water, humidity, humidity_ki
             sin_declination = math.sin(declination)
             cos_declination = math.cos(declination)
             tan_declination = math.tan(declination)
+            any_valid = False
             for lane in range(BATCH):
                 cell = start + lane
                 valid = doy_valid and cells[_C_VALID, lane] == 1.0 and _setup_lane(
@@ -847,9 +857,11 @@ def _monthly_cells(c4_model, tmin, tmax, shortwave, water, humidity, humidity_ki
                 for field in range(_N_ACC):
                     acc[field, lane] = 0.0
                 acc[_A_BAD, lane] = 0.0 if valid else 1.0
-            _integrate_batch(c4_model, setup, moment, acc, humidity_kind, c3_scalars, c3_table, c4_scalars, c4_table,
-                             table_start, table_inverse_step, day_nodes, day_weights, night_nodes, night_weights,
-                             constants)
+                any_valid = any_valid or valid
+            if any_valid:  # a batch of nodata or out-of-season cells is not computed at all
+                _integrate_batch(c4_model, setup, moment, acc, humidity_kind, c3_scalars, c3_table, c4_scalars,
+                                 c4_table, table_start, table_inverse_step, day_nodes, day_weights, night_nodes,
+                                 night_weights, constants)
             for lane in range(min(BATCH, n - start)):
                 good = acc[_A_BAD, lane] == 0.0
                 for field in range(5):

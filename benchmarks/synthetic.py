@@ -1,0 +1,165 @@
+"""A seeded synthetic region of any size, for benchmarks and scale tests. INVENTED DATA.
+
+The "Kessarine Basin synthetic grid" is a made-up landscape, not a real place: a 400 km square in
+EPSG:32740, placed in open ocean at about 24-28° S 56-60° E (like the demo region) only so that day
+length and sun angles are realistic. Its climate is a few smooth analytic fields (a seasonal cycle, an
+elevation gradient, seeded plane waves) on a coarse 2 km input grid, written as 12-band GeoTIFFs; the
+target grid has ``size`` x ``size`` cells over the same square, so every size samples the same invented
+climate and the cost per cell can be compared across sizes. A small invented lake is nodata.
+
+Two uses:
+
+* :func:`write_region` writes the inputs and a ready-to-run config (YAML) into a folder;
+* :func:`cell_inputs` returns in-memory arrays of ``n`` cells x 12 months for kernel benchmarks.
+
+Usage: ``python benchmarks/synthetic.py --size 2000 --out /tmp/region`` (prints the config path).
+Deliberately does not import the ``suitability`` package: the inputs stay independent of the code they
+exercise.
+"""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+import numpy as np
+import rasterio
+import yaml
+from rasterio.transform import from_origin
+
+SEED = 5281
+NOTE = ("Kessarine Basin synthetic grid: INVENTED data for benchmarks, made by benchmarks/synthetic.py; "
+        "placed in open ocean near 26 S 58 E only for realistic sun angles. Not a real place.")
+CRS = "EPSG:32740"
+XMIN, YMIN, SIDE_M = 300_000.0, 7_000_000.0, 400_000.0
+INPUT_CELL_M = 2_000.0
+NODATA = -9999.0
+MONTHS = np.arange(1, 13)
+
+
+def _waves(x, y, seed, n_modes=12, wavelengths=(30e3, 200e3)):
+    """Smooth seeded field of roughly unit amplitude: a sum of plane waves."""
+    rng = np.random.RandomState(seed)
+    lam = rng.uniform(*wavelengths, n_modes)
+    theta, phase = rng.uniform(0, 2 * np.pi, (2, n_modes))
+    amp = lam / lam.sum()
+    return sum(a * np.cos(2 * np.pi / w * (np.cos(t) * x + np.sin(t) * y) + p)
+               for a, w, t, p in zip(amp, lam, theta, phase))
+
+
+def _fields(x, y, seed):
+    """Invented elevation [m] and monthly tmin, tmax [°C], shortwave [MJ m-2 d-1], water [0-1]."""
+    east, north = (x - XMIN) / SIDE_M, (y - YMIN) / SIDE_M  # 0..1 across the square
+    elevation = np.clip(150.0 + 1600.0 * east * (1.0 - north) + 250.0 * _waves(x, y, seed), 0.0, 3500.0)
+    season = np.cos(2 * np.pi * (MONTHS - 1.0) / 12.0)[:, None, None]  # southern summer in January
+    tmean = 19.0 + 5.0 * season - 0.0065 * elevation + 1.5 * _waves(x, y, seed + 1)
+    diurnal = 9.0 + 3.0 * north + 1.0 * _waves(x, y, seed + 2)
+    tmin = tmean - 0.5 * diurnal
+    tmax = tmean + 0.5 * diurnal
+    cloud = 0.5 + 0.25 * _waves(x, y, seed + 3) + 0.15 * season
+    shortwave = (19.0 + 7.0 * season) * (1.0 - 0.45 * np.clip(cloud, 0.0, 1.0))
+    water = np.clip(0.55 + 0.3 * season + 0.25 * _waves(x, y, seed + 4) - 0.2 * east, 0.05, 1.0)
+    lake = ((x - (XMIN + 0.55 * SIDE_M)) / 9e3) ** 2 + ((y - (YMIN + 0.4 * SIDE_M)) / 5e3) ** 2 < 1.0
+    return elevation, tmin, tmax, shortwave, water, lake
+
+
+def _write(path: Path, bands: np.ndarray, transform, description: str) -> None:
+    profile = dict(driver="GTiff", width=bands.shape[-1], height=bands.shape[-2], count=bands.shape[0],
+                   dtype="float32", crs=CRS, transform=transform, nodata=NODATA, tiled=True, blockxsize=256,
+                   blockysize=256, compress="deflate", predictor=3)
+    with rasterio.open(path, "w", **profile) as dst:
+        dst.write(bands.astype(np.float32))
+        dst.update_tags(note=NOTE, description=description)
+
+
+def write_region(folder: Path | str, size: int, *, seed: int = SEED, scenarios: int = 3, chunk_size: int = 512,
+                 scheduler: str = "threads", workers: int | None = None, engine: str = "compiled",
+                 months: list[int] | None = None, layers="all", datacube: bool = False,
+                 output_folder: Path | str | None = None) -> Path:
+    """Write the invented inputs and a config for a ``size`` x ``size`` target grid; return the config path.
+
+    scenarios: 1-3 of (baseline 420 ppm, co2_700, warming_3c). months: season months (default all 12).
+    The outputs go to ``output_folder`` (default ``folder/out``).
+    """
+    folder = Path(folder)
+    data = folder / "data"
+    data.mkdir(parents=True, exist_ok=True)
+    n_in = int(SIDE_M / INPUT_CELL_M) + 2  # one extra cell each side, so bilinear sampling has neighbours
+    x0, y0 = XMIN - INPUT_CELL_M, YMIN + SIDE_M + INPUT_CELL_M
+    transform = from_origin(x0, y0, INPUT_CELL_M, INPUT_CELL_M)
+    x = x0 + INPUT_CELL_M * (np.arange(n_in) + 0.5)
+    y = y0 - INPUT_CELL_M * (np.arange(n_in) + 0.5)
+    xx, yy = np.meshgrid(x, y)
+    elevation, tmin, tmax, shortwave, water, lake = _fields(xx, yy, seed)
+    for monthly in (tmin, tmax, water):
+        monthly[:, lake] = NODATA
+    _write(data / "elevation.tif", elevation[None], transform, "elevation [m], invented")
+    _write(data / "tmin.tif", tmin, transform, "monthly mean daily minimum temperature [degC], invented")
+    _write(data / "tmax.tif", tmax, transform, "monthly mean daily maximum temperature [degC], invented")
+    _write(data / "shortwave.tif", shortwave, transform, "monthly mean daily shortwave [MJ m-2 d-1], invented")
+    _write(data / "water_availability.tif", water, transform, "monthly water availability [0-1], invented")
+
+    all_scenarios = [
+        {"name": "baseline", "co2_ppm": 420},
+        {"name": "co2_700", "description": "CO2 raised to 700 ppm", "co2_ppm": 700},
+        {"name": "warming_3c", "description": "present CO2, 3 degC warmer", "co2_ppm": 420,
+         "temperature_offset_c": 3.0},
+    ]
+    compute = {"chunk_size": chunk_size, "scheduler": scheduler, "engine": engine}
+    if workers is not None:
+        compute["workers"] = workers
+    config = {
+        "region": {"name": "Kessarine Basin synthetic grid (invented)",
+                   "grid": {"crs": CRS, "resolution": SIDE_M / size,
+                            "bounds": [XMIN, YMIN, XMIN + SIDE_M, YMIN + SIDE_M]}},
+        "climate": {
+            "tmin": {"path": "data/tmin.tif", "units": "degC"},
+            "tmax": {"path": "data/tmax.tif", "units": "degC"},
+            "shortwave": {"path": "data/shortwave.tif", "units": "MJ m-2 d-1"},
+            "water_availability": {"path": "data/water_availability.tif", "units": "fraction"},
+            "elevation": {"path": "data/elevation.tif", "units": "m"},
+        },
+        "season": {"months": months or list(range(1, 13))},
+        "scenarios": all_scenarios[:scenarios],
+        "baseline": "baseline",
+        "output": {"folder": str(output_folder or folder / "out"), "layers": layers, "datacube": datacube,
+                   "overwrite": True},
+        "compute": compute,
+    }
+    path = folder / f"synthetic_{size}.yaml"
+    header = f"# {NOTE}\n"
+    path.write_text(header + yaml.safe_dump(config, sort_keys=False))
+    return path
+
+
+def cell_inputs(n_cells: int, seed: int = SEED) -> dict[str, np.ndarray]:
+    """In-memory inputs for ``n_cells`` cells scattered over the synthetic square (lake cells included).
+
+    Returns float32 arrays: tmin, tmax [°C], shortwave [MJ m-2 d-1], water_availability [0-1], each
+    (n_cells, 12); latitude [degrees north] and elevation [m], each (n_cells,). Latitude follows from the
+    northing by the spherical approximation 1° = 111.32 km about 26.5° S, which is plenty for a benchmark.
+    """
+    rng = np.random.default_rng(seed)
+    x = XMIN + SIDE_M * rng.random(n_cells)
+    y = YMIN + SIDE_M * rng.random(n_cells)
+    elevation, tmin, tmax, shortwave, water, lake = _fields(x[None, :], y[None, :], seed)
+    monthly = {"tmin": tmin, "tmax": tmax, "shortwave": shortwave, "water_availability": water}
+    result = {name: np.ascontiguousarray(values[:, 0, :].T, np.float32) for name, values in monthly.items()}
+    for name in ("tmin", "tmax", "water_availability"):
+        result[name][lake[0]] = np.nan
+    result["elevation"] = np.asarray(elevation[0], np.float32)
+    result["latitude"] = np.asarray(-26.5 + (y - (YMIN + 0.5 * SIDE_M)) / 111_320.0, np.float32)
+    return result
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--size", type=int, required=True, help="cells per side of the target grid")
+    parser.add_argument("--out", type=Path, required=True, help="folder for the inputs and the config")
+    parser.add_argument("--scenarios", type=int, default=3)
+    args = parser.parse_args()
+    print(write_region(args.out, args.size, scenarios=args.scenarios))
+
+
+if __name__ == "__main__":
+    main()
