@@ -10,7 +10,7 @@ from __future__ import annotations
 import pytest
 import yaml
 
-from .conftest import EXIT_CONFIG, assert_clean_error, cli, demo_config, snapshot, write_config
+from .conftest import EXIT_CONFIG, assert_clean_error, cli, demo_config, run_subprocess, snapshot, write_config
 
 
 def _refused(tmp_path, output_folder, config_or_text, *needles):
@@ -99,3 +99,15 @@ def test_climate_layer_names_that_would_escape_are_unknown_layers(tmp_path, outp
     config = demo_config()
     config["climate"][name] = config["climate"].pop("elevation")
     _refused(tmp_path, output_folder, config, f"climate.{name}", f"unknown layer '{name}'", "valid layers")
+
+
+def test_debug_shows_the_traceback_and_plain_runs_do_not(tmp_path):
+    config = demo_config()
+    config["clases"] = config.pop("classes")
+    path = write_config(tmp_path, config)
+    plain = run_subprocess("check", path)
+    assert plain.returncode == EXIT_CONFIG and "Traceback" not in plain.stderr, plain.stderr
+    assert "did you mean 'classes'?" in plain.stderr
+    debug = run_subprocess("check", path, "--debug")
+    assert debug.returncode != 0
+    assert "Traceback (most recent call last)" in debug.stderr and "ConfigError" in debug.stderr, debug.stderr

@@ -96,6 +96,15 @@ def test_truncated_geotiff(tmp_path, output_folder):
     _refused(tmp_path, output_folder, _water_config(bad), str(bad), "'water_availability'", "truncated")
 
 
+def test_truncated_netcdf(tmp_path, output_folder):
+    bad = tmp_path / "temperature.nc"
+    data = TEMPERATURE.read_bytes()
+    bad.write_bytes(data[: int(len(data) * 0.6)])
+    config = demo_config()
+    config["climate"]["tmin"]["path"] = str(bad)
+    _refused(tmp_path, output_folder, config, str(bad), "'tmin'", "unreadable or truncated file")
+
+
 def test_geotiff_without_crs(tmp_path, output_folder):
     bad = _copy_raster(WATER, tmp_path / "water_no_crs.tif", crs=None)
     _refused(tmp_path, output_folder, _water_config(bad), str(bad), "'water_availability'", "no CRS",
