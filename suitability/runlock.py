@@ -13,7 +13,8 @@ and taken over.
 
 The owner removes the file when it is done. A waiting process may have opened the file just before it
 was removed; it then holds a lock on a file that no longer has a name, so after locking, the file's
-identity is compared with the one at the path and the attempt repeated if they differ.
+identity is compared with the one at the path and the attempt repeated if they differ. POSIX only
+(``fcntl.flock``, ``os.pread``).
 """
 
 from __future__ import annotations
