@@ -72,24 +72,30 @@ def _write(path: Path, bands: np.ndarray, transform, description: str) -> None:
         dst.update_tags(note=NOTE, description=description)
 
 
-def write_region(folder: Path | str, size: int, *, seed: int = SEED, scenarios: int = 3, chunk_size: int = 512,
-                 scheduler: str = "threads", workers: int | None = None, engine: str = "compiled",
+def write_region(folder: Path | str, size: int, *, rows: int | None = None, seed: int = SEED, scenarios: int = 3,
+                 chunk_size: int = 512, scheduler: str = "threads", workers: int | None = None, engine: str = "compiled",
                  months: list[int] | None = None, layers="all", datacube: bool = False,
-                 output_folder: Path | str | None = None) -> Path:
+                 output_folder: Path | str | None = None, inputs_on_target_grid: bool = False) -> Path:
     """Write the invented inputs and a config for a ``size`` x ``size`` target grid; return the config path.
 
+    rows: fewer rows than ``size`` keep the southern strip of the square (same cell size).
     scenarios: 1-3 of (baseline 420 ppm, co2_700, warming_3c). months: season months (default all 12).
-    The outputs go to ``output_folder`` (default ``folder/out``).
+    The outputs go to ``output_folder`` (default ``folder/out``). inputs_on_target_grid: write the inputs
+    on the target grid itself (no resampling in the run) instead of the coarse 2 km input grid.
     """
     folder = Path(folder)
     data = folder / "data"
     data.mkdir(parents=True, exist_ok=True)
-    n_in = int(SIDE_M / INPUT_CELL_M) + 2  # one extra cell each side, so bilinear sampling has neighbours
-    x0, y0 = XMIN - INPUT_CELL_M, YMIN + SIDE_M + INPUT_CELL_M
-    transform = from_origin(x0, y0, INPUT_CELL_M, INPUT_CELL_M)
-    x = x0 + INPUT_CELL_M * (np.arange(n_in) + 0.5)
-    y = y0 - INPUT_CELL_M * (np.arange(n_in) + 0.5)
-    xx, yy = np.meshgrid(x, y)
+    rows = rows or size
+    if inputs_on_target_grid:
+        cell = SIDE_M / size
+        x0, y0, n_x, n_y = XMIN, YMIN + cell * rows, size, rows
+    else:  # one extra input cell each side, so bilinear sampling has neighbours
+        cell = INPUT_CELL_M
+        n_x = n_y = int(SIDE_M / cell) + 2
+        x0, y0 = XMIN - cell, YMIN + SIDE_M + cell
+    transform = from_origin(x0, y0, cell, cell)
+    xx, yy = np.meshgrid(x0 + cell * (np.arange(n_x) + 0.5), y0 - cell * (np.arange(n_y) + 0.5))
     elevation, tmin, tmax, shortwave, water, lake = _fields(xx, yy, seed)
     for monthly in (tmin, tmax, water):
         monthly[:, lake] = NODATA
@@ -111,7 +117,7 @@ def write_region(folder: Path | str, size: int, *, seed: int = SEED, scenarios: 
     config = {
         "region": {"name": "Kessarine Basin synthetic grid (invented)",
                    "grid": {"crs": CRS, "resolution": SIDE_M / size,
-                            "bounds": [XMIN, YMIN, XMIN + SIDE_M, YMIN + SIDE_M]}},
+                            "bounds": [XMIN, YMIN, XMIN + SIDE_M, YMIN + SIDE_M * rows / size]}},
         "climate": {
             "tmin": {"path": "data/tmin.tif", "units": "degC"},
             "tmax": {"path": "data/tmax.tif", "units": "degC"},
@@ -126,7 +132,7 @@ def write_region(folder: Path | str, size: int, *, seed: int = SEED, scenarios: 
                    "overwrite": True},
         "compute": compute,
     }
-    path = folder / f"synthetic_{size}.yaml"
+    path = folder / f"synthetic_{size}x{rows}.yaml"
     header = f"# {NOTE}\n"
     path.write_text(header + yaml.safe_dump(config, sort_keys=False))
     return path
