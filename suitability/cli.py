@@ -202,6 +202,7 @@ def _check(config):
     if problems:
         raise InputDataError(f"{problems} problem(s) found in the inputs of {config}; see the table above")
     console.print("[green]Config and inputs look usable.[/]")
+    _print_caution()
 
 
 @app.command()
@@ -237,6 +238,7 @@ def curves(
 def _curves(co2, absorbed_par, out):
     from .curves import write_curves
 
+    _print_caution()
     paths = write_curves(co2, out, absorbed_par=absorbed_par)
     for path in paths.values():
         console.print(f"Wrote {path}")
