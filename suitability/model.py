@@ -16,11 +16,13 @@ runs on the numpy engine. Everything after the daily values (season sums, indica
 
 from __future__ import annotations
 
+import itertools
 import warnings
 from dataclasses import dataclass
 from typing import Any, Mapping, Sequence
 
 import dask
+import dask.array
 import numpy as np
 import xarray as xr
 
@@ -107,28 +109,58 @@ def evaluate(
     climate = _with_latitude(climate)
     names = tuple(n for n in _MONTHLY_INPUTS + _STATIC_INPUTS if n in climate)
     _check_inputs(names)
-    arrays, core_dims = [], []
+    spatial_dims = climate["latitude"].dims
+    arrays = []
     for name in names:
         layer = climate[name]
         if "month" in layer.dims:
-            layer = layer.sel(month=list(range(1, 13)))
+            layer = layer.sel(month=list(range(1, 13))).transpose("month", *spatial_dims)
             if layer.chunks is not None:
                 layer = layer.chunk({"month": -1})
-            core_dims.append(["month"])
         else:
-            core_dims.append([])
-        arrays.append(layer.astype(np.float32))
-    stacked = xr.apply_ufunc(
-        _evaluate_block,
-        *arrays,
-        input_core_dims=core_dims,
-        output_core_dims=[["layer"]],
-        kwargs={"names": names, "settings": settings},
-        dask="parallelized",
-        output_dtypes=[np.float32],
-        dask_gufunc_kwargs={"output_sizes": {"layer": _N_STACKED}},
-    )
+            layer = layer.transpose(*spatial_dims)
+        arrays.append(layer.astype(np.float32).data)
+    if any(isinstance(array, dask.array.Array) for array in arrays):
+        stacked = _map_blocks(arrays, names, settings, len(spatial_dims))
+    else:
+        stacked = _evaluate_block(*arrays, names=names, settings=settings)
+    coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
+    stacked = xr.DataArray(stacked, dims=("layer",) + spatial_dims, coords=coords)
     return _unstack(stacked, settings)
+
+
+def _map_blocks(arrays, names, settings: ModelSettings, n_spatial: int):
+    """:func:`_evaluate_block` block by block over dask (or numpy) inputs; (layer, *spatial) float32.
+
+    Each output block is ONE task that computes its own input blocks (a few small tasks: read, resample,
+    scenario offsets) and then the model. Left as separate tasks, the input blocks hang off shared
+    roots (e.g. a coarse climate raster read as one chunk, needed by every block), and dask's schedulers
+    then resample the inputs of every block of the region ahead of the model and hold them all in memory
+    (measured: peak memory growing with the region, 2.6 GB for 3072² cells). Embedded, a block's inputs
+    exist only while its task runs, so memory stays bounded by the blocks in flight.
+    """
+    spatial_chunks = next(a.chunks[-n_spatial:] for a in arrays if isinstance(a, dask.array.Array))
+    arrays = [dask.array.asarray(array) for array in arrays]
+    aligned = [array.rechunk(array.chunks[:-n_spatial] + spatial_chunks) for array in arrays]
+    name = "evaluate-" + dask.base.tokenize(aligned, names, settings)
+    graph = {}
+    for index in itertools.product(*(range(len(c)) for c in spatial_chunks)):
+        blocks = tuple(array.blocks[(0,) * (array.ndim - n_spatial) + index] for array in aligned)
+        graph[(name, 0) + index] = (_evaluate_embedded, _BlockInputs(blocks), names, settings)
+    return dask.array.Array(graph, name, chunks=((_N_STACKED,),) + spatial_chunks, dtype=np.float32,
+                            meta=np.empty((0,) * (n_spatial + 1), np.float32))
+
+
+@dataclass(frozen=True)
+class _BlockInputs:
+    """The input blocks of one output block, as small dask arrays (opaque to the outer graph)."""
+
+    arrays: tuple
+
+
+def _evaluate_embedded(inputs: _BlockInputs, names: Sequence[str], settings: ModelSettings) -> np.ndarray:
+    values = dask.compute(*inputs.arrays, scheduler="sync")
+    return _evaluate_block(*values, names=names, settings=settings)
 
 
 def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None,
@@ -154,12 +186,14 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
 
 
 def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSettings) -> np.ndarray:
-    """Evaluate one block of cells. Monthly arrays arrive as (..., 12), static ones as (...).
+    """Evaluate one block of cells. Monthly arrays arrive as (12, ...), static ones as (...).
 
-    Returns (..., n_layers) float32: the seasonal layers, then 12 monthly C3 and 12 monthly C4 totals.
+    Returns (n_layers, ...) float32: the seasonal layers, then 12 monthly C3 and 12 monthly C4 totals.
     """
     data = dict(zip(names, arrays))
     shape = data["latitude"].shape
+    data = {name: np.moveaxis(values, 0, -1) if values.ndim == len(shape) + 1 else values
+            for name, values in data.items()}  # months last inside: (..., 12)
     elevation = data.get("elevation", np.zeros(shape, np.float32))
     lai = data.get("lai", np.full(shape, settings.lai, np.float32))
     in_season = _season_mask(data, settings, shape)
@@ -183,15 +217,15 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
     crossover = _crossover_by_pressure(atmosphere.air_pressure_from_elevation(elevation), settings)
     seasonal = [season_c3, season_c4, advantage, classes, months_favoured, share, crossover]
-    out = np.empty(shape + (_N_STACKED,), np.float32)
+    out = np.empty((_N_STACKED,) + shape, np.float32)
     for i, layer in enumerate(seasonal):
         values = np.asarray(layer, dtype=np.float64)
         if SEASONAL_LAYERS[i] != "pathway_class":
             values = np.where(nodata, np.nan, values)
-        out[..., i] = values
+        out[i] = values
     first = len(SEASONAL_LAYERS)
-    out[..., first:first + 12] = np.where(valid[..., None], monthly["C3"], np.nan)
-    out[..., first + 12:first + 24] = np.where(valid[..., None], monthly["C4"], np.nan)
+    out[first:first + 12] = np.moveaxis(np.where(valid[..., None], monthly["C3"], np.nan), -1, 0)
+    out[first + 12:first + 24] = np.moveaxis(np.where(valid[..., None], monthly["C4"], np.nan), -1, 0)
     return out
 
 
@@ -319,7 +353,7 @@ def _unstack(stacked: xr.DataArray, settings: ModelSettings) -> xr.Dataset:
     first = len(SEASONAL_LAYERS)
     for j, name in enumerate(MONTHLY_LAYERS):
         block = stacked.isel(layer=slice(first + 12 * j, first + 12 * (j + 1)))
-        block = block.rename(layer="month").assign_coords(month=np.arange(1, 13)).transpose("month", ...)
+        block = block.rename(layer="month").assign_coords(month=np.arange(1, 13))
         layers[name] = block
     result = xr.Dataset(layers)
     scenario = settings.scenario

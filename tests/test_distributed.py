@@ -98,7 +98,7 @@ def cluster(tmp_path):
         deadline = time.monotonic() + 60
         while True:  # the scheduler may need a moment before it accepts connections
             try:
-                with Client(address, timeout=5) as client:
+                with Client(address, timeout=5, set_as_default=False) as client:
                     client.wait_for_workers(2, timeout=max(1.0, deadline - time.monotonic()))
                 break
             except OSError:
@@ -110,7 +110,7 @@ def cluster(tmp_path):
         try:  # the quick way: the scheduler tells its workers to close, then closes itself
             from distributed import Client
 
-            with Client(address, timeout=5) as client:
+            with Client(address, timeout=5, set_as_default=False) as client:
                 client.shutdown()
         except Exception:  # noqa: BLE001 - fall back on signals below
             pass
