@@ -15,7 +15,7 @@ Same equations, arranged for speed (each step keeps the numpy model's results to
   the shaded leaf of both pathways. The quadrature is exactly that of the numpy model
   (:data:`~suitability.physiology.canopy.DAY_GAUSS_POINTS` Gauss-Legendre points over daylight,
   :data:`~suitability.physiology.canopy.NIGHT_GAUSS_POINTS` at night).
-* Temperature-only terms (Kc, Ko, Γ*/O, Vcmax, Jmax, Tp, Rd and the C4 enzyme terms) are tabulated
+* Temperature-only terms (Kc, Kc/Ko, Γ*/O, Vcmax, Jmax, Rd, e°(T) and the C4 enzyme terms) are tabulated
   every :data:`TABLE_STEP_C` °C from −60 to 60 °C by the numpy physiology functions themselves
   (``rubisco_constants``, ``capacity_temperature_factors``, the responses of ``c4``) with the resolved
   parameters, and interpolated linearly. The linear-interpolation error is at most h²/8 · max|f''/f|;
@@ -23,8 +23,10 @@ Same equations, arranged for speed (each step keeps the numpy model's results to
   |f''/f| ≤ 1.69 K⁻², so with h = 0.01 K the error is below 2.2e-5 relative (derived here), and below
   2e-7 for the Arrhenius terms. Every parameter set and override of :mod:`.physiology.params` is
   therefore supported: the kernel takes the numbers from ``resolve_params``.
-* Arithmetic is float64 inside (inputs and outputs float32/float64 as given); no fast-math flags
-  (nodata NaN must propagate, and a cell's numbers must not depend on where it sits in a block).
+* Arithmetic is float64 inside (inputs float32, outputs float64). Of the fast-math flags only
+  "contract" (fused multiply-add) is used: nodata NaN must propagate, and a cell's numbers must not
+  depend on where it sits in a block. The exponential, sine and cosine in the vectorised loops are
+  polynomials accurate to a few 1e-16 (see :func:`_expm1`, :func:`_sincos`), not libm calls.
 
 Each cell is computed independently, in a fixed order, with no reduction across cells: results are
 bitwise identical whatever the block (chunk) size, the number of workers or the scheduler.
@@ -48,6 +50,7 @@ import numpy as np
 
 from .physiology import canopy as _canopy
 from .physiology import light as _light
+from .physiology.atmosphere import saturation_vapour_pressure
 from .physiology.c3 import capacity_temperature_factors
 from .physiology.c4 import CAEMMERER_2021_ACTIVATION, PEPC_KINETICS
 from .physiology.params import resolve_params
@@ -60,14 +63,16 @@ TABLE_STEP_C = 0.01
 TABLE_RANGE_C = (-60.0, 60.0)
 
 # Column layout of the temperature tables (one row per temperature).
-C3_KC, C3_KO, C3_GAMMA_PER_O2, C3_VCMAX, C3_JMAX, C3_TPU, C3_RD = range(7)
+# The C3 table also holds e°(T), the saturation vapour pressure [kPa] of the moment (both pathways).
+C3_KC, C3_KC_OVER_KO, C3_GAMMA_PER_O2, C3_VCMAX, C3_JMAX, C3_RD, C3_SATURATION_VP = range(7)
 COLLATZ_ENZYME, COLLATZ_RESPIRATION, COLLATZ_K = range(3)
 VC_KC, VC_KO, VC_GAMMA_PER_O2, VC_KP, VC_VCMAX, VC_VPMAX, VC_VPR, VC_RD, VC_JMAX = range(9)
 
 # Layout of the scalar parameter vectors.
 # both pathways: 0 g1, 1 fixed Ci/Ca, 2 stomatal model is "fixed" (1.0) or Medlyn (0.0),
 # 3 water stress also scales the carboxylation capacity (1.0 / 0.0), 4 model code (below).
-# C3: 5 theta, 6 spectral correction f, 7 Jmax unlimited (1.0 / 0.0), 8 Tp unlimited (1.0 / 0.0).
+# C3: 5 theta, 6 spectral correction f, 7 Jmax unlimited (1.0 / 0.0), 8 Tp unlimited (1.0 / 0.0),
+# 9 Tp25 / Vcmax25 (Tp follows Vcmax's temperature response, c3.c3_assimilation).
 # Collatz C4: 5 alpha, 6 theta, 7 beta.   von Caemmerer C4: 5 theta, 6 f, 7 gbs [µmol m-2 s-1 Pa-1],
 # 8 x, 9 Rm/Rd.
 MODEL_FVCB, MODEL_COLLATZ1992, MODEL_VC2000 = 0, 1, 2
@@ -124,12 +129,13 @@ def _c3_tables(p: Mapping, t: np.ndarray) -> tuple[list[float], np.ndarray]:
     vcmax_f, jmax_f, rd_f = capacity_temperature_factors(t, p["vcmax_temperature_response"],
                                                          p["growth_temperature_c"])
     jmax_unlimited, tpu_unlimited = math.isinf(p["jmax25"]), math.isinf(p["tpu25"])
-    columns = [kc, ko, gamma_per_o2, p["vcmax25"] * vcmax_f,
+    columns = [kc, kc / ko, gamma_per_o2, p["vcmax25"] * vcmax_f,
                np.zeros_like(t) if jmax_unlimited else p["jmax25"] * jmax_f,
-               np.zeros_like(t) if tpu_unlimited else p["tpu25"] * vcmax_f,
-               p["rd25"] * rd_f]
+               p["rd25"] * rd_f, saturation_vapour_pressure(t)]
+    # With Vcmax25 = 0 there is no carboxylation, so Tp never limits and the ratio does not matter.
+    tpu_ratio = 0.0 if tpu_unlimited or p["vcmax25"] == 0 else p["tpu25"] / p["vcmax25"]
     scalars = _stomatal_scalars(p) + [float(p["theta"]), float(p["spectral_correction"]),
-                                      1.0 if jmax_unlimited else 0.0, 1.0 if tpu_unlimited else 0.0]
+                                      1.0 if jmax_unlimited else 0.0, 1.0 if tpu_unlimited else 0.0, tpu_ratio]
     return scalars, np.stack([np.broadcast_to(np.asarray(c, np.float64), t.shape) for c in columns], axis=1)
 
 
@@ -314,9 +320,12 @@ def _constants() -> np.ndarray:
 # cosine inside those loops are therefore polynomial (below) instead of libm calls. The last batch is
 # padded with harmless lanes, so every cell runs through the same instructions wherever it sits.
 #
-# error_model="numpy": a division by zero gives inf/NaN as in numpy instead of raising. No fast-math.
+# error_model="numpy": a division by zero gives inf/NaN as in numpy instead of raising. Of numba's
+# fast-math flags only "contract" (a·b + c as one fused multiply-add): it keeps NaN and inf semantics
+# ("nnan"/"ninf" would drop nodata), and every cell runs through the same instructions, so the results
+# stay independent of the cell's place in a batch.
 # ---------------------------------------------------------------------------------------------------------
-_JIT = dict(cache=True, nogil=True, error_model="numpy", _nrt=False)
+_JIT = dict(cache=True, nogil=True, error_model="numpy", _nrt=False, fastmath={"contract"})
 #: Cells per batch (a multiple of every SIMD width).
 BATCH = 64
 #: Below this argument exp() is taken as exp(−80) < 2e-35, nothing next to the 1 it is subtracted from.
@@ -473,31 +482,35 @@ def _lerp(table, row, fraction, column):
 # moment and shared by the sunlit and the shaded leaf) and the part that depends on the absorbed light.
 
 @numba.njit(inline="always", **_JIT)
-def _c3_state(table, row, fraction, co2_pa, o2_pa, capacity_scale):
-    """c3.c3_assimilation / c3.fvcb_rates, light-independent terms [Pa, µmol m-2 s-1]."""
-    kc = _lerp(table, row, fraction, C3_KC)
-    ko = _lerp(table, row, fraction, C3_KO)
+def _c3_state(table, row, fraction, scalars, co2_pa, o2_pa, capacity_scale):
+    """c3.c3_assimilation / c3.fvcb_rates, light-independent terms [Pa, µmol m-2 s-1]. Divisions are
+    done once here and shared by the sunlit and shaded leaf (they limit the vectorised loop's speed)."""
+    vcmax_unscaled = _lerp(table, row, fraction, C3_VCMAX)
     gamma_star = _lerp(table, row, fraction, C3_GAMMA_PER_O2) * o2_pa
-    vcmax = _lerp(table, row, fraction, C3_VCMAX) * capacity_scale
-    rate_rubisco = vcmax / (co2_pa + kc * (1.0 + o2_pa / ko))
+    # Km = Kc (1 + O/Ko) = Kc + O · Kc/Ko (rubisco.effective_michaelis_constant)
+    km = _lerp(table, row, fraction, C3_KC) + o2_pa * _lerp(table, row, fraction, C3_KC_OVER_KO)
+    rate_rubisco = vcmax_unscaled * capacity_scale / (co2_pa + km)
     light_denominator = 4.0 * co2_pa + 8.0 * gamma_star
-    return (rate_rubisco, light_denominator, _lerp(table, row, fraction, C3_JMAX),
-            3.0 * _lerp(table, row, fraction, C3_TPU), gamma_star, _lerp(table, row, fraction, C3_RD))
+    positive = light_denominator > 0.0
+    inverse_light_denominator = 1.0 / (light_denominator if positive else 1.0) if positive else np.inf
+    inverse_co2 = 1.0 / (co2_pa if co2_pa > 0.0 else 1.0)
+    tpu3 = 3.0 * scalars[9] * vcmax_unscaled
+    return (rate_rubisco, inverse_light_denominator, _lerp(table, row, fraction, C3_JMAX), tpu3, gamma_star,
+            _lerp(table, row, fraction, C3_RD), inverse_co2)
 
 
 @numba.njit(inline="always", **_JIT)
 def _c3_light(state, scalars, absorbed_par, co2_pa):
     """c3.fvcb_rates for one absorbed PAR [µmol m-2 s-1]: (net, gross, photorespiration)."""
-    rate_rubisco, light_denominator, jmax, tpu3, gamma_star, rd = state
+    rate_rubisco, inverse_light_denominator, jmax, tpu3, gamma_star, rd, inverse_co2 = state
     i2 = absorbed_par * (1.0 - scalars[6]) / 2.0
     saturating = _hyperbola(i2, jmax, scalars[5])
     electron_transport = i2 if scalars[7] == 1.0 else saturating
-    positive = light_denominator > 0.0
-    rate_light = electron_transport / (light_denominator if positive else 1.0) if positive else np.inf
+    # J / (4C + 8Γ*), or inf where 4C + 8Γ* = 0 (c3.fvcb_rates)
+    rate_light = electron_transport * inverse_light_denominator if inverse_light_denominator < np.inf else np.inf
     rate = rate_light if rate_light < rate_rubisco else rate_rubisco
     tpu_limited = scalars[8] != 1.0 and tpu3 < rate * co2_pa
-    rate_tpu = tpu3 / (co2_pa if tpu_limited else 1.0)
-    rate = rate_tpu if tpu_limited else rate
+    rate = tpu3 * inverse_co2 if tpu_limited else rate
     gross = rate * (co2_pa - gamma_star)
     return gross - rd, gross, rate * gamma_star
 
@@ -560,19 +573,19 @@ def _moment(c4_model, setup, lane, temperature, sunlit_par, shaded_par, sunlit_l
     valid = temperature >= -60.0 and temperature <= 60.0
     t = temperature if valid else 25.0
     # atmosphere.vapour_pressure_deficit with e° of FAO-56 eq. 11, or the given VPD
-    saturation = 0.6108 * (1.0 + _expm1(17.27 * t / (t + 237.3)))
+    position = (t - table_start) * table_inverse_step
+    row = min(max(int(math.floor(position)), 0), last_row)
+    fraction = position - row
+    saturation = _lerp(c3_table, row, fraction, C3_SATURATION_VP)  # atmosphere.saturation_vapour_pressure
     vpd = setup[_S_HUMIDITY, lane] if humidity_kind == HUMIDITY_VPD else _non_negative(
         saturation - setup[_S_HUMIDITY, lane])
     sqrt_vpd = math.sqrt(vpd)
     water = setup[_S_WATER, lane]
     co2_per_ratio = setup[_S_CO2_PER_RATIO, lane]
     o2_pa = setup[_S_O2, lane]
-    position = (t - table_start) * table_inverse_step
-    row = min(max(int(math.floor(position)), 0), last_row)
-    fraction = position - row
     c3_co2_pa = co2_per_ratio * _ci_ratio(c3_scalars, sqrt_vpd, water)
     c4_co2_pa = co2_per_ratio * _ci_ratio(c4_scalars, sqrt_vpd, water)
-    state3 = _c3_state(c3_table, row, fraction, c3_co2_pa, o2_pa, setup[_S_C3_SCALE, lane])
+    state3 = _c3_state(c3_table, row, fraction, c3_scalars, c3_co2_pa, o2_pa, setup[_S_C3_SCALE, lane])
     state4 = _c4_state(c4_model, c4_table, row, fraction, c4_scalars, c4_co2_pa, o2_pa, setup[_S_C4_SCALE, lane])
     net_sun, gross_sun, photo_sun = _c3_light(state3, c3_scalars, sunlit_par, c3_co2_pa)
     net_shade, gross_shade, photo_shade = _c3_light(state3, c3_scalars, shaded_par, c3_co2_pa)
@@ -603,6 +616,7 @@ def _light_of_pair(setup, moment, node, constants):
     horizontal_reflection = (1.0 - root) / (1.0 + root)
     kd_scattered = constants[3] * root
     diffuse_transmitted = 1.0 - constants[4]
+    scattered_share = root / (root + 1.0)
     for lane in range(BATCH):
         # θ = π (t − 12) / 12 = ωs x, as N = 24 ωs / π (light.day_length)
         sin_theta, cos_theta = _sincos(setup[_S_OMEGA, lane] * node)
@@ -610,13 +624,9 @@ def _light_of_pair(setup, moment, node, constants):
         # light.shortwave_daily_course, global (c = 0.4) and diffuse (c = 0) [W m-2]
         sun_up = sin_b > 0.0
         sb = sin_b if sun_up else 0.0
-        integral_global = setup[_S_INTEGRAL_GLOBAL, lane]
-        integral_diffuse = setup[_S_INTEGRAL_DIFFUSE, lane]
-        global_w = (1e6 * setup[_S_SHORTWAVE, lane] * sb * (1.0 + atmospheric_factor * sb)
-                    / (integral_global if integral_global > 0.0 else 1.0))
-        global_w = global_w if (sun_up and integral_global > 0.0) else 0.0
-        diffuse_w = 1e6 * setup[_S_DIFFUSE, lane] * sb / (integral_diffuse if integral_diffuse > 0.0 else 1.0)
-        diffuse_w = diffuse_w if (sun_up and integral_diffuse > 0.0) else 0.0
+        # setup holds 1 / ∫ (0 where the integral is 0: no daylight, no radiation)
+        global_w = 1e6 * setup[_S_SHORTWAVE, lane] * sb * (1.0 + atmospheric_factor * sb) * setup[_S_INTEGRAL_GLOBAL, lane]
+        diffuse_w = 1e6 * setup[_S_DIFFUSE, lane] * sb * setup[_S_INTEGRAL_DIFFUSE, lane]
         diffuse_w = global_w if diffuse_w > global_w else diffuse_w
         diffuse_par = diffuse_w * par_per_shortwave
         beam_par = global_w * par_per_shortwave - diffuse_par
@@ -624,7 +634,8 @@ def _light_of_pair(setup, moment, node, constants):
         # E(k1 + k2) = E1 + E2 − E1 E2, so only two exponentials depend on the moment.
         leaf_area = setup[_S_LAI, lane]
         e_kd = setup[_S_E_KD, lane]
-        kb = 0.5 / (sin_b if sin_b > min_sin_elevation else min_sin_elevation)
+        sin_floor = sin_b if sin_b > min_sin_elevation else min_sin_elevation
+        kb = 0.5 / sin_floor
         kb_scattered = kb * root
         beam_reflection = -_expm1(-2.0 * horizontal_reflection * kb / (1.0 + kb))
         absorbed_beam = (1.0 - beam_reflection) * beam_par
@@ -633,14 +644,14 @@ def _light_of_pair(setup, moment, node, constants):
         e_kbs = -_expm1(-kb_scattered * leaf_area)
         e_2kb = e_kb * (2.0 - e_kb)
         diffuse_to_sunlit = kd_scattered / (kd_scattered + kb) * (e_kd + e_kb - e_kd * e_kb)
-        scattered_to_sunlit = kb_scattered / (kb_scattered + kb) * (e_kbs + e_kb - e_kbs * e_kb)
+        scattered_to_sunlit = scattered_share * (e_kbs + e_kb - e_kbs * e_kb)  # kb'/(kb' + kb), a constant
         direct = beam_par * (1.0 - scattering)
         sunlit = (direct * e_kb + absorbed_diffuse * diffuse_to_sunlit
                   + absorbed_beam * scattered_to_sunlit - direct * e_2kb / 2.0)
         shaded = (absorbed_diffuse * (e_kd - diffuse_to_sunlit)
                   + absorbed_beam * (e_kbs - scattered_to_sunlit)
                   - direct * (e_kb - e_2kb / 2.0))
-        sunlit_lai = e_kb / kb
+        sunlit_lai = e_kb * (2.0 * sin_floor)  # E(kb) / kb
         shaded_lai = _non_negative(leaf_area - sunlit_lai)
         sunlit_par = _non_negative(sunlit) / (sunlit_lai if sunlit_lai > 0.0 else 1.0)
         shaded_par = _non_negative(shaded) / (shaded_lai if shaded_lai > 0.0 else 1.0)
@@ -796,8 +807,11 @@ def _setup_lane(setup, cells, lane, cell, month, tmin, tmax, shortwave, water, h
     setup[_S_OMEGA, lane] = omega_s
     setup[_S_A, lane] = a
     setup[_S_B, lane] = b
-    setup[_S_INTEGRAL_GLOBAL, lane] = 3600.0 * (integral_sin + constants[1] * integral_sin2)
-    setup[_S_INTEGRAL_DIFFUSE, lane] = 3600.0 * integral_sin
+    integral_global = 3600.0 * (integral_sin + constants[1] * integral_sin2)
+    integral_diffuse = 3600.0 * integral_sin
+    # Stored as inverses, 0 where the integral is not positive (light.shortwave_daily_course gives 0 there).
+    setup[_S_INTEGRAL_GLOBAL, lane] = 1.0 / integral_global if integral_global > 0.0 else 0.0
+    setup[_S_INTEGRAL_DIFFUSE, lane] = 1.0 / integral_diffuse if integral_diffuse > 0.0 else 0.0
     setup[_S_SHORTWAVE, lane] = daily_shortwave
     setup[_S_DIFFUSE, lane] = _diffuse_fraction_daily(clearness) * daily_shortwave
     setup[_S_MEAN_T, lane] = 0.5 * (t_high + t_low)
