@@ -13,6 +13,7 @@ from typing import Iterable
 import numpy as np
 import pandas as pd
 
+from .outputs import write_csv
 from .physiology import crossover_temperature, leaf_assimilation
 
 LEAF_TEMPERATURES_C = np.arange(0.0, 50.5, 0.5)
@@ -49,8 +50,8 @@ def write_curves(co2_ppm: Iterable[float], folder: Path, *, absorbed_par: float 
     folder.mkdir(parents=True, exist_ok=True)
     curves, crossings = leaf_curves(list(co2_ppm), absorbed_par=absorbed_par)
     paths = {"curves": folder / "leaf_curves.csv", "crossover": folder / "crossover.csv", "figure": folder / "leaf_curves.png"}
-    _atomic(paths["curves"], lambda p: curves.to_csv(p, index=False))
-    _atomic(paths["crossover"], lambda p: crossings.to_csv(p, index=False))
+    write_csv(curves, paths["curves"])
+    write_csv(crossings, paths["crossover"])
     figure, axis = plt.subplots(figsize=(7, 4.5), dpi=120)
     colours = plt.get_cmap("viridis")(np.linspace(0.1, 0.85, len(crossings)))
     for colour, (co2, group) in zip(colours, curves.groupby("co2_ppm", sort=False)):

@@ -56,6 +56,7 @@ import numpy as np
 import rioxarray  # noqa: F401  (registers the .rio accessor used on layers and datasets)
 import xarray as xr
 
+from .runlock import process_alive
 from .errors import ConfigError, OutputError
 from .runtime import compute, write_lock
 from .variables import CLASS_C3, CLASS_C4, CLASS_COLOURS_RGB, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA, OUTPUT_VARIABLES
@@ -406,7 +407,7 @@ def remove_leftovers(folder) -> list[Path]:
         for path in parent.glob(".*"):
             match = _TEMPORARY_WITH_PID.match(path.name)
             if match:
-                abandoned = not _process_alive(int(match.group(1)))
+                abandoned = not process_alive(int(match.group(1)))
             else:
                 abandoned = _TEMPORARY_WITHOUT_PID.match(path.name) is not None
             if abandoned and path.is_file():
@@ -446,18 +447,8 @@ def _remove_abandoned_staging(folder: Path) -> None:
     host = socket.gethostname()
     for path in folder.glob(f"{STAGING_PREFIX}{host}-*"):
         pid_text = path.name[len(STAGING_PREFIX) + len(host) + 1:].split("-", 1)[0]
-        if pid_text.isdigit() and not _process_alive(int(pid_text)):
+        if pid_text.isdigit() and not process_alive(int(pid_text)):
             shutil.rmtree(path, ignore_errors=True)
-
-
-def _process_alive(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:
-        return True
-    return True
 
 
 def _lock_for(name: str, lock, path: Path):

@@ -43,6 +43,7 @@ from exactextract import exact_extract
 from exactextract.raster import NumPyRasterSource
 from rasterio.windows import Window
 
+from suitability.outputs import write_csv
 from suitability.errors import InputDataError, OutputError
 from suitability.variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED
 
@@ -464,14 +465,10 @@ def _atomic_target(path: Path) -> tuple[Path, Path]:
 
 def write_table_csv(table: pd.DataFrame, path: str | os.PathLike) -> Path:
     """Write the statistics table as CSV (UTF-8, no index) atomically: temporary name, then os.replace."""
-    target, temporary = _atomic_target(Path(path))
-    try:
-        table.to_csv(temporary, index=False, encoding="utf-8")
-        os.replace(temporary, target)
-    except OSError as exc:
-        temporary.unlink(missing_ok=True)
-        raise OutputError(f"{target}: cannot write the district table ({exc})") from exc
-    return target
+    path = Path(path)
+    if not path.parent.is_dir():
+        raise OutputError(f"{path}: folder {path.parent} does not exist; expected an existing output folder")
+    return write_csv(table, path)
 
 
 def write_table_geopackage(
