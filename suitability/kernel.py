@@ -239,6 +239,53 @@ def monthly_canopy_assimilation(
     Returns :class:`MonthlyCanopyAssimilation` (float64 arrays of shape (..., 12)).
     References: as :func:`suitability.physiology.daily_canopy_assimilation`.
     """
+    daily, _, shape = _run(5, np.ones(12), tmin_c=tmin_c, tmax_c=tmax_c, shortwave_mj=shortwave_mj,
+                           water_availability=water_availability, latitude_deg=latitude_deg,
+                           day_of_year=day_of_year, co2_ppm=co2_ppm, elevation_m=elevation_m, lai=lai,
+                           default_lai=default_lai, vpd_kpa=vpd_kpa,
+                           actual_vapour_pressure_kpa=actual_vapour_pressure_kpa, in_season=in_season,
+                           o2_percent=o2_percent, c3_params=c3_params, c4_params=c4_params)
+    daily = daily.reshape((5,) + shape + (12,))
+    return MonthlyCanopyAssimilation(c3_net=daily[_A_C3_NET], c3_gross=daily[_A_C3_GROSS],
+                                     c3_photorespiration=daily[_A_C3_PHOTO], c4_net=daily[_A_C4_NET],
+                                     c4_gross=daily[_A_C4_GROSS])
+
+
+@dataclass(frozen=True)
+class SeasonCanopyAssimilation:
+    """What the model needs of :func:`monthly_canopy_assimilation`, without storing the rest.
+
+    c3_net, c4_net : daily net assimilation on the representative day of each month [g C m-2 d-1],
+        (..., 12), NaN outside the season and for invalid cells.
+    c3_gross_total, c3_photorespiration_total : Σ over the season months of days x the daily C3 gross
+        assimilation and photorespiration [g C m-2], (...); NaN where a season month is invalid.
+    """
+
+    c3_net: np.ndarray
+    c4_net: np.ndarray
+    c3_gross_total: np.ndarray
+    c3_photorespiration_total: np.ndarray
+
+
+def season_canopy_assimilation(*, days_in_month, **inputs) -> SeasonCanopyAssimilation:
+    """:func:`monthly_canopy_assimilation` reduced to what :mod:`suitability.model` uses.
+
+    days_in_month : the 12 weights [day] of the season totals; every other argument as there.
+    """
+    weights = np.asarray(days_in_month, np.float64)
+    if weights.shape != (12,):
+        raise ValueError(f"days_in_month: expected 12 values, got {days_in_month!r}")
+    daily, totals, shape = _run(2, weights, **inputs)
+    daily = daily.reshape((2,) + shape + (12,))
+    totals = totals.reshape((2,) + shape)
+    return SeasonCanopyAssimilation(c3_net=daily[_A_C3_NET], c4_net=daily[_A_C4_NET],
+                                    c3_gross_total=totals[0], c3_photorespiration_total=totals[1])
+
+
+def _run(n_fields, weights, *, tmin_c, tmax_c, shortwave_mj, water_availability, latitude_deg, day_of_year,
+         co2_ppm, elevation_m=None, lai=None, default_lai=3.0, vpd_kpa=None, actual_vapour_pressure_kpa=None,
+         in_season=None, o2_percent=20.95, c3_params=None, c4_params=None):
+    """Prepare the arrays and run the compiled kernel; returns (daily (n_fields, n, 12), totals (2, n), shape)."""
     if vpd_kpa is not None and actual_vapour_pressure_kpa is not None:
         raise ValueError("give vpd_kpa or actual_vapour_pressure_kpa, not both")
     c3 = pathway_tables("C3", c3_params)
@@ -268,7 +315,8 @@ def monthly_canopy_assimilation(
         raise ValueError(f"day_of_year: expected 12 whole days, got {day_of_year!r}")
     day_nodes, day_weights = np.polynomial.legendre.leggauss(_canopy.DAY_GAUSS_POINTS)
     night_nodes, night_weights = np.polynomial.legendre.leggauss(_canopy.NIGHT_GAUSS_POINTS)
-    out = np.empty((5, n, 12), np.float64)
+    daily = np.empty((n_fields, n, 12), np.float64)
+    totals = np.zeros((2, n), np.float64)
     entry = _monthly_cells_collatz if c4.scalars[4] == MODEL_COLLATZ1992 else _monthly_cells_caemmerer
     entry(
         cells_by_month(tmin_c, "tmin_c"), cells_by_month(tmax_c, "tmax_c"),
@@ -276,10 +324,10 @@ def monthly_canopy_assimilation(
         humidity, humidity_kind, cells(latitude_deg, "latitude_deg", 0.0), cells(elevation_m, "elevation_m", 0.0),
         cells(lai, "lai", default_lai), season, days, float(co2_ppm), float(o2_percent),
         c3.scalars, c3.table, c4.scalars, c4.table, c3.start_c, 1.0 / c3.step_c,
-        day_nodes, day_weights, night_nodes, night_weights, _constants(), out,
+        day_nodes, day_weights, night_nodes, night_weights, _constants(),
+        np.require(weights, np.float64, ["C", "A", "W"]), daily, totals,
     )
-    out = out.reshape((5,) + shape + (12,))
-    return MonthlyCanopyAssimilation(*out)
+    return daily, totals, shape
 
 
 def _kernel_array(values, dtype, shape, flat_shape, name) -> np.ndarray:
@@ -341,7 +389,8 @@ _N_SETUP = 19
 (_C_VALID, _C_SIN_PHI, _C_COS_PHI, _C_TAN_PHI, _C_LAI, _C_E_KD, _C_CO2_PER_RATIO, _C_O2) = range(8)
 _N_CELL = 8
 # acc[field, lane]
-_A_C3_NET, _A_C3_GROSS, _A_C3_PHOTO, _A_C4_NET, _A_C4_GROSS, _A_BAD = range(6)
+# (the first fields are also the rows of the kernel's output, see _run)
+_A_C3_NET, _A_C4_NET, _A_C3_GROSS, _A_C3_PHOTO, _A_C4_GROSS, _A_BAD = range(6)
 _N_ACC = 6
 # moment[field, lane]
 (_M_TEMPERATURE_AFTER, _M_TEMPERATURE_BEFORE, _M_SUNLIT_PAR, _M_SHADED_PAR, _M_SUNLIT_LAI,
@@ -831,8 +880,11 @@ def _setup_lane(setup, cells, lane, cell, month, tmin, tmax, shortwave, water, h
 @numba.njit(inline="always", **_JIT)
 def _monthly_cells(c4_model, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai,
                    season, days, co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
-                   table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out):
-    """Fill out[0..4, cell, month] with C3 net, gross, photorespiration and C4 net, gross [g C m-2 d-1].
+                   table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, weights, out,
+                   totals):
+    """Fill out[field, cell, month] with the first out.shape[0] of C3 net, C4 net, C3 gross, C3
+    photorespiration, C4 gross [g C m-2 d-1], and add weights[month] x C3 gross and photorespiration of
+    the season months to totals[0, cell] and totals[1, cell] [g C m-2].
 
     Follows canopy._prepare, canopy._gauss_integral and canopy._canopy_rates (see there for the
     equations and sources). ``day_nodes`` must be symmetric about 0, as numpy's leggauss returns them.
@@ -877,25 +929,33 @@ def _monthly_cells(c4_model, tmin, tmax, shortwave, water, humidity, humidity_ki
                                  c4_table, table_start, table_inverse_step, day_nodes, day_weights, night_nodes,
                                  night_weights, constants)
             for lane in range(min(BATCH, n - start)):
+                cell = start + lane
                 good = acc[_A_BAD, lane] == 0.0
-                for field in range(5):
-                    out[field, start + lane, month] = acc[field, lane] * to_carbon if good else np.nan
+                for field in range(out.shape[0]):
+                    out[field, cell, month] = acc[field, lane] * to_carbon if good else np.nan
+                if season[cell, month]:  # as np.where(in_season, days * daily, 0).sum(): NaN propagates
+                    totals[0, cell] += weights[month] * (acc[_A_C3_GROSS, lane] * to_carbon if good else np.nan)
+                    totals[1, cell] += weights[month] * (acc[_A_C3_PHOTO, lane] * to_carbon if good else np.nan)
 
 
 # One compiled entry point per C4 model, so that a run compiles (once, then numba's cache) only its own.
 @numba.njit(**_JIT)
-def _monthly_cells_collatz(tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
-                           co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
-                           table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out):
-    _monthly_cells(MODEL_COLLATZ1992, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
-                   co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
-                   table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out)
+def _monthly_cells_collatz(
+        tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days, co2_ppm,
+        o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start, table_inverse_step, day_nodes,
+        day_weights, night_nodes, night_weights, constants, weights, out, totals):
+    _monthly_cells(
+        MODEL_COLLATZ1992, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days, co2_ppm,
+        o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start, table_inverse_step, day_nodes,
+        day_weights, night_nodes, night_weights, constants, weights, out, totals)
 
 
 @numba.njit(**_JIT)
-def _monthly_cells_caemmerer(tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
-                           co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
-                           table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out):
-    _monthly_cells(MODEL_VC2000, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
-                   co2_ppm, o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start,
-                   table_inverse_step, day_nodes, day_weights, night_nodes, night_weights, constants, out)
+def _monthly_cells_caemmerer(
+        tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days, co2_ppm,
+        o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start, table_inverse_step, day_nodes,
+        day_weights, night_nodes, night_weights, constants, weights, out, totals):
+    _monthly_cells(
+        MODEL_VC2000, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days, co2_ppm,
+        o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start, table_inverse_step, day_nodes,
+        day_weights, night_nodes, night_weights, constants, weights, out, totals)

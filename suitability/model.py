@@ -275,17 +275,15 @@ def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai):
         shortwave = data["shortwave"]
     else:  # mol m-2 d-1 of PAR back to MJ m-2 d-1 of shortwave, inverting light.par_from_shortwave
         shortwave = data["par"] / light.par_from_shortwave(1.0)
-    day = kernel.monthly_canopy_assimilation(
+    day = kernel.season_canopy_assimilation(
         tmin_c=data["tmin"], tmax_c=data["tmax"], shortwave_mj=shortwave,
         water_availability=data["water_availability"], latitude_deg=data["latitude"],
         day_of_year=REPRESENTATIVE_DAY, co2_ppm=settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent,
         elevation_m=elevation, lai=lai, in_season=in_season, c3_params=settings.c3_params,
-        c4_params=settings.c4_params, **humidity,
+        c4_params=settings.c4_params, days_in_month=DAYS_IN_MONTH, **humidity,
     )
     monthly = {"C3": day.c3_net * DAYS_IN_MONTH, "C4": day.c4_net * DAYS_IN_MONTH}
-    c3_gross = np.where(in_season, day.c3_gross * DAYS_IN_MONTH, 0.0).sum(axis=-1)
-    c3_photorespiration = np.where(in_season, day.c3_photorespiration * DAYS_IN_MONTH, 0.0).sum(axis=-1)
-    return monthly, c3_gross, c3_photorespiration
+    return monthly, day.c3_gross_total, day.c3_photorespiration_total
 
 
 def _crossover_by_pressure(pressure_kpa: np.ndarray, settings: ModelSettings) -> np.ndarray:

@@ -196,6 +196,24 @@ def test_a_cell_gives_the_same_bits_wherever_it_sits():
         assert np.isfinite(values).sum() > 1000  # the comparison covers real numbers, not only NaN
 
 
+def test_season_totals_are_the_day_weighted_sums_of_the_daily_values():
+    # Derived here (model.py): season total = Σ over season months of days x daily value; NaN if a
+    # season month is invalid; months outside the season do not count.
+    cells = random_cells(120, seed=9)
+    common = dict(tmin_c=cells["tmin"], tmax_c=cells["tmax"], shortwave_mj=cells["shortwave"],
+                  water_availability=cells["water"], latitude_deg=cells["latitude"], day_of_year=DAYS,
+                  co2_ppm=450.0, elevation_m=cells["elevation"], lai=cells["lai"], in_season=cells["season"])
+    daily = kernel.monthly_canopy_assimilation(**common)
+    season = kernel.season_canopy_assimilation(days_in_month=model.DAYS_IN_MONTH, **common)
+    assert np.array_equal(season.c3_net, daily.c3_net, equal_nan=True)
+    assert np.array_equal(season.c4_net, daily.c4_net, equal_nan=True)
+    for total, values in ((season.c3_gross_total, daily.c3_gross),
+                          (season.c3_photorespiration_total, daily.c3_photorespiration)):
+        expected = np.where(cells["season"], values * model.DAYS_IN_MONTH, 0.0).sum(axis=-1)
+        np.testing.assert_allclose(total, expected, rtol=1e-13, atol=0.0)
+        assert np.array_equal(np.isnan(total), np.isnan(expected)) and np.isnan(total).any()
+
+
 def test_polynomial_exp_and_sincos_match_numpy():
     # numpy's libm-backed expm1, sin and cos as the independent reference.
     x = np.concatenate([np.linspace(-80.0, 4.0, 20001), [-1e-12, 0.0, 1e-12, -200.0]])
@@ -273,8 +291,8 @@ def test_an_unsupported_leaf_model_runs_on_the_numpy_engine(monkeypatch):
     physiology = {"c4": {"parameter_set": "vc2000"}}
     reference = model.evaluate(data, None, physiology=physiology, engine="numpy").compute()
     calls = []
-    original = kernel.monthly_canopy_assimilation
-    monkeypatch.setattr(kernel, "monthly_canopy_assimilation", lambda **kw: calls.append(1) or original(**kw))
+    original = kernel.season_canopy_assimilation
+    monkeypatch.setattr(kernel, "season_canopy_assimilation", lambda **kw: calls.append(1) or original(**kw))
     model.evaluate(data, None, physiology=physiology, engine="compiled").compute(scheduler="synchronous")
     assert calls  # supported: the kernel ran
     calls.clear()

@@ -1,0 +1,276 @@
+"""`make bench`: kernel throughput against the plain-numpy baseline, and end-to-end runs on a size series.
+
+1. Kernel: the compiled kernel (suitability.kernel, the production path) and the plain-numpy
+   implementation of the same equations (benchmarks/numpy_baseline.py), side by side in this process on
+   the same invented cells (benchmarks/synthetic.py), plus the package's own numpy engine for reference.
+   Their results are compared (1e-4 target) and the daily integral is checked against the 96-step
+   reference (0.5 % target).
+2. End to end: `suitability run` on the invented synthetic region for each size (size² cells x 12 months
+   x 3 scenarios, every layer, COG outputs), each in its own process; wall time, cell-steps/s and the
+   peak resident memory the operating system reports for that process (os.wait4 ru_maxrss).
+3. Results: benchmarks/results/latest.json and latest.md (a markdown table).
+
+Timings are measurements of this machine at this moment (other work on it shows up in them); ratios
+are measured side by side in one run. Nothing here asserts a timing.
+
+Usage: python benchmarks/run.py [--sizes 500 1000 2000 4000] [--kernel-cells 131072] [--quick]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import platform
+import shutil
+import subprocess
+import sys
+import time
+from concurrent.futures import ThreadPoolExecutor
+from datetime import datetime, timezone
+from importlib import metadata
+from pathlib import Path
+
+import numpy as np
+
+REPO = Path(__file__).resolve().parents[1]
+if str(REPO) not in sys.path:
+    sys.path.insert(0, str(REPO))
+
+from benchmarks.numpy_baseline import monthly_canopy  # noqa: E402
+from benchmarks.synthetic import cell_inputs, write_region  # noqa: E402
+
+RESULTS = REPO / "benchmarks" / "results"
+SCRATCH = RESULTS / "tmp"
+#: Leaf evaluations per cell-step and pathway: sunlit + shaded at 14 daylight moments, one dark leaf at 3.
+LEAF_EVALUATIONS_PER_CELL_STEP = 2 * 14 + 3
+SCENARIOS = 3
+
+
+def machine() -> dict:
+    cpu = "unknown"
+    try:
+        for line in Path("/proc/cpuinfo").read_text().splitlines():
+            if line.startswith("model name"):
+                cpu = line.split(":", 1)[1].strip()
+                break
+    except OSError:
+        pass
+    memory_gib = None
+    try:
+        memory_gib = round(os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES") / 2**30, 1)
+    except (ValueError, OSError):
+        pass
+    versions = {}
+    for package in ("numpy", "numba", "llvmlite", "dask", "distributed", "rasterio", "xarray"):
+        try:
+            versions[package] = metadata.version(package)
+        except metadata.PackageNotFoundError:
+            versions[package] = None
+    return {"platform": platform.platform(), "python": platform.python_version(), "cpu": cpu,
+            "cores": os.cpu_count(), "memory_gib": memory_gib, "load_average_at_start": os.getloadavg(),
+            "packages": versions}
+
+
+def best_time(function, repeats: int) -> float:
+    best = float("inf")
+    for _ in range(repeats):
+        start = time.perf_counter()
+        function()
+        best = min(best, time.perf_counter() - start)
+    return best
+
+
+def kernel_benchmark(n_cells: int, n_baseline: int, n_package: int, repeats: int) -> dict:
+    from suitability import kernel, model
+    from suitability.physiology import canopy
+
+    days = model.REPRESENTATIVE_DAY
+    cells = cell_inputs(n_cells)
+
+    def run_kernel(part):
+        return kernel.monthly_canopy_assimilation(
+            tmin_c=part["tmin"], tmax_c=part["tmax"], shortwave_mj=part["shortwave"],
+            water_availability=part["water_availability"], latitude_deg=part["latitude"],
+            elevation_m=part["elevation"], day_of_year=days, co2_ppm=420.0)
+
+    start = time.perf_counter()
+    run_kernel({k: v[:64] for k, v in cells.items()})  # compile, or load from numba's cache
+    first_call_s = time.perf_counter() - start
+    one_thread_s = best_time(lambda: run_kernel(cells), repeats)
+    halves = [{k: v[: n_cells // 2] for k, v in cells.items()}, {k: v[n_cells // 2:] for k, v in cells.items()}]
+
+    def two_threads():
+        with ThreadPoolExecutor(2) as pool:
+            list(pool.map(run_kernel, halves))
+
+    two_threads_s = best_time(two_threads, repeats)
+
+    base_cells = {k: v[:n_baseline] for k, v in cells.items()}
+    baseline_s = best_time(lambda: monthly_canopy(base_cells, days, 420.0), max(1, repeats - 1))
+
+    package_cells = {k: v[:n_package] for k, v in cells.items()}
+
+    def package_numpy():
+        with np.errstate(all="ignore"):
+            for month in range(12):
+                for pathway in ("C3", "C4"):
+                    canopy.daily_canopy_assimilation(
+                        pathway, tmin_c=package_cells["tmin"][:, month], tmax_c=package_cells["tmax"][:, month],
+                        shortwave_mj=package_cells["shortwave"][:, month], latitude_deg=package_cells["latitude"],
+                        day_of_year=int(days[month]), co2_ppm=420.0, elevation_m=package_cells["elevation"],
+                        water_availability=package_cells["water_availability"][:, month], lai=3.0)
+
+    package_s = best_time(package_numpy, 1)
+
+    # Accuracy, on the baseline's cells: kernel vs plain numpy, and vs the 96-step reference.
+    result = run_kernel(base_cells)
+    baseline = monthly_canopy(base_cells, days, 420.0)
+    fields = ("c3_net", "c3_gross", "c3_photorespiration", "c4_net", "c4_gross")
+    differences = {}
+    for i, field in enumerate(fields):
+        gross = baseline[1] if field.startswith("c3") else baseline[4]
+        got = getattr(result, field)
+        differences[field] = float(np.nanmax(np.abs(got - baseline[i]) / np.maximum(np.abs(gross), 1e-12)))
+        differences[field + "_nan_pattern_equal"] = bool(np.array_equal(np.isnan(got), np.isnan(baseline[i])))
+    reference_errors = {}
+    sample = {k: v[:2000] for k, v in base_cells.items()}
+    sample_result = run_kernel(sample)
+    with np.errstate(all="ignore"):
+        for pathway in ("C3", "C4"):
+            worst = 0.0
+            for month in (0, 3, 6, 9):
+                reference = canopy.daily_canopy_assimilation_reference(
+                    pathway, tmin_c=sample["tmin"][:, month].astype(float), tmax_c=sample["tmax"][:, month].astype(float),
+                    shortwave_mj=sample["shortwave"][:, month].astype(float), latitude_deg=sample["latitude"].astype(float),
+                    day_of_year=int(days[month]), co2_ppm=420.0, elevation_m=sample["elevation"].astype(float),
+                    water_availability=sample["water_availability"][:, month].astype(float), lai=3.0, steps=96)
+                got = getattr(sample_result, f"{pathway.lower()}_gross")[:, month]
+                worst = max(worst, float(np.nanmax(np.abs(got - reference.gross) / np.abs(reference.gross))))
+            reference_errors[pathway] = worst
+
+    steps = lambda n: n * 12  # noqa: E731
+    kernel_rate = steps(n_cells) / one_thread_s
+    baseline_rate = steps(n_baseline) / baseline_s
+    return {
+        "cells": n_cells, "baseline_cells": n_baseline, "package_numpy_cells": n_package,
+        "first_call_s": round(first_call_s, 2),
+        "kernel_1_thread_cell_steps_per_s": kernel_rate,
+        "kernel_2_threads_cell_steps_per_s": steps(n_cells) / two_threads_s,
+        "numpy_baseline_1_thread_cell_steps_per_s": baseline_rate,
+        "package_numpy_engine_1_thread_cell_steps_per_s": steps(n_package) / package_s,
+        "kernel_over_numpy_baseline_per_core": kernel_rate / baseline_rate,
+        "kernel_over_package_numpy_per_core": kernel_rate / (steps(n_package) / package_s),
+        "leaf_evaluations_both_pathways_per_s_2_threads": steps(n_cells) / two_threads_s * LEAF_EVALUATIONS_PER_CELL_STEP,
+        "max_difference_kernel_vs_numpy_baseline_relative_to_gross": differences,
+        "max_relative_error_of_gross_vs_96_step_reference": reference_errors,
+    }
+
+
+def end_to_end(size: int, engine: str = "compiled", scenarios: int = SCENARIOS, keep: bool = False) -> dict:
+    folder = SCRATCH / f"region_{size}_{engine}"
+    shutil.rmtree(folder, ignore_errors=True)
+    config = write_region(folder, size, scenarios=scenarios, engine=engine, workers=os.cpu_count())
+    command = [str(Path(sys.executable).parent / "suitability"), "run", str(config), "--no-progress"]
+    start = time.perf_counter()
+    process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    _, status, usage = os.wait4(process.pid, 0)
+    wall = time.perf_counter() - start
+    stdout, stderr = process.stdout.read(), process.stderr.read()
+    process.stdout.close()
+    process.stderr.close()
+    code = os.waitstatus_to_exitcode(status)
+    row = {"size": size, "cells": size * size, "engine": engine, "scenarios": scenarios, "exit_code": code,
+           "wall_s": round(wall, 2), "cpu_s": round(usage.ru_utime + usage.ru_stime, 2),
+           "peak_rss_mib": round(usage.ru_maxrss / 1024, 1)}
+    row["cell_steps"] = size * size * 12 * scenarios
+    row["cell_steps_per_s"] = row["cell_steps"] / wall
+    manifest = folder / "out" / "manifest.json"
+    if code == 0 and manifest.exists():
+        data = json.loads(manifest.read_text())
+        row["timings"] = data["timings"]
+        row["output_mib"] = round(sum(f.stat().st_size for f in (folder / "out").rglob("*.tif")) / 2**20, 1)
+    else:
+        row["error"] = (stderr.decode(errors="replace") + stdout.decode(errors="replace"))[-2000:]
+    if not keep:
+        shutil.rmtree(folder, ignore_errors=True)
+    return row
+
+
+def markdown(results: dict) -> str:
+    k = results["kernel"]
+    lines = [
+        f"# Benchmark run {results['created']}",
+        "",
+        f"Machine: {results['machine']['cpu']}, {results['machine']['cores']} cores, "
+        f"{results['machine']['memory_gib']} GiB; load average at start {results['machine']['load_average_at_start']}.",
+        "Invented inputs (benchmarks/synthetic.py). One cell-step = one cell x one month, both pathways, "
+        f"the full daily canopy model ({LEAF_EVALUATIONS_PER_CELL_STEP} leaf evaluations per pathway).",
+        "",
+        "## Kernel (in memory, side by side)",
+        "",
+        "| path | threads | cell-steps/s | ratio to plain numpy (per core) |",
+        "|---|---|---|---|",
+        f"| compiled kernel | 1 | {k['kernel_1_thread_cell_steps_per_s'] / 1e6:.2f} M | "
+        f"{k['kernel_over_numpy_baseline_per_core']:.1f} |",
+        f"| compiled kernel | 2 | {k['kernel_2_threads_cell_steps_per_s'] / 1e6:.2f} M | |",
+        f"| plain numpy (benchmarks/numpy_baseline.py) | 1 | {k['numpy_baseline_1_thread_cell_steps_per_s'] / 1e6:.3f} M | 1.0 |",
+        f"| package numpy engine (physiology) | 1 | {k['package_numpy_engine_1_thread_cell_steps_per_s'] / 1e6:.3f} M | "
+        f"{k['numpy_baseline_1_thread_cell_steps_per_s'] and k['package_numpy_engine_1_thread_cell_steps_per_s'] / k['numpy_baseline_1_thread_cell_steps_per_s']:.2f} |",
+        "",
+        f"Leaf evaluations (both pathways) with 2 threads: {k['leaf_evaluations_both_pathways_per_s_2_threads'] / 1e6:.0f} M/s. "
+        f"First call (compile or cache load): {k['first_call_s']} s.",
+        "",
+        "Accuracy: kernel vs plain numpy, largest difference relative to gross assimilation: "
+        + ", ".join(f"{f} {v:.1e}" for f, v in k["max_difference_kernel_vs_numpy_baseline_relative_to_gross"].items()
+                    if not f.endswith("equal"))
+        + "; daily gross vs the 96-step reference: "
+        + ", ".join(f"{p} {v * 100:.2f} %" for p, v in k["max_relative_error_of_gross_vs_96_step_reference"].items()) + ".",
+        "",
+        "## End to end (`suitability run`, 12 months x 3 scenarios, all layers, COG)",
+        "",
+        "| cells | engine | wall s | cell-steps/s | peak RSS MiB | CPU s | outputs MiB |",
+        "|---|---|---|---|---|---|---|",
+    ]
+    for row in results["end_to_end"]:
+        if row.get("exit_code") != 0:
+            lines.append(f"| {row['size']}² | {row['engine']} | failed | | | | |")
+            continue
+        lines.append(f"| {row['size']}² | {row['engine']} | {row['wall_s']:.1f} | {row['cell_steps_per_s'] / 1e6:.2f} M | "
+                     f"{row['peak_rss_mib']:.0f} | {row['cpu_s']:.0f} | {row.get('output_mib', '')} |")
+    return "\n".join(lines) + "\n"
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description="suitability benchmarks")
+    parser.add_argument("--sizes", type=int, nargs="*", default=[500, 1000, 2000, 4000])
+    parser.add_argument("--numpy-engine-size", type=int, default=500,
+                        help="also run the numpy engine end to end at this size (0 = skip)")
+    parser.add_argument("--kernel-cells", type=int, default=131072)
+    parser.add_argument("--quick", action="store_true", help="small sizes, for a smoke test")
+    parser.add_argument("--out", type=Path, default=RESULTS)
+    args = parser.parse_args()
+    if args.quick:
+        args.sizes, args.kernel_cells, args.numpy_engine_size = [256, 512], 16384, 0
+    SCRATCH.mkdir(parents=True, exist_ok=True)
+    results = {"created": datetime.now(timezone.utc).isoformat(timespec="seconds"), "machine": machine()}
+    print("kernel ...", flush=True)
+    results["kernel"] = kernel_benchmark(args.kernel_cells, max(2048, args.kernel_cells // 8),
+                                         max(1024, args.kernel_cells // 32), repeats=3)
+    rows = []
+    if args.numpy_engine_size:
+        print(f"end to end {args.numpy_engine_size}² numpy engine ...", flush=True)
+        rows.append(end_to_end(args.numpy_engine_size, engine="numpy"))
+    for size in args.sizes:
+        print(f"end to end {size}² ...", flush=True)
+        rows.append(end_to_end(size))
+        print(f"  {rows[-1].get('wall_s')} s, peak {rows[-1].get('peak_rss_mib')} MiB", flush=True)
+    results["end_to_end"] = rows
+    args.out.mkdir(parents=True, exist_ok=True)
+    (args.out / "latest.json").write_text(json.dumps(results, indent=2) + "\n")
+    (args.out / "latest.md").write_text(markdown(results))
+    print(markdown(results))
+
+
+if __name__ == "__main__":
+    main()
