@@ -20,8 +20,11 @@ demo: $(STAMP)
 test: $(STAMP)
 	$(BIN)/python -m pytest -q -n 2 --timeout=900
 
+# Kernel vs plain numpy, and end-to-end runs on a size series (about 15 min on 2 cores); results in
+# benchmarks/results/. Pass options with BENCH_ARGS, e.g. make bench BENCH_ARGS="--sizes 500 1000".
+BENCH_ARGS ?=
 bench: $(STAMP)
-	$(BIN)/python benchmarks/run.py
+	$(BIN)/python benchmarks/run.py $(BENCH_ARGS)
 
 clean:
 	rm -rf out/ .pytest_cache .hypothesis
