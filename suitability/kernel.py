@@ -1,10 +1,19 @@
 """The daily sun/shade canopy model of both pathways, fused per cell and compiled with numba.
 
 :func:`monthly_canopy_assimilation` gives, for every cell and the representative day of every month of
-the season, what :func:`suitability.physiology.daily_canopy_assimilation` gives for C3 and for C4 (net,
-and for C3 gross and photorespiration), in one compiled pass over the cells. It is the production path of
-:mod:`suitability.model` (``compute.engine: compiled``); the numpy physiology stays the reference
-(``compute.engine: numpy``) and tests/test_kernel.py holds the two within 1e-4 relative.
+the season, what :func:`suitability.physiology.daily_canopy_assimilation` gives for C3 and for C4 (net
+and gross, and C3 photorespiration), in one compiled pass over the cells; :func:`season_canopy_assimilation`
+gives the part of it that :mod:`suitability.model` uses (monthly nets, season totals of C3 gross and
+photorespiration) without storing the rest. It is the production path of the model
+(``compute.engine: compiled``); the numpy physiology stays the reference (``compute.engine: numpy``) and
+tests/test_kernel.py holds the two within 1e-4 relative. Every leaf model of :mod:`.physiology.params`
+is supported (:data:`SUPPORTED_MODELS`, :func:`supports`); the model falls back to numpy for others.
+
+Compilation: on first use each of the two entry points (one per C4 model) takes about half a minute to
+compile on a 2-core machine; numba then keeps it in its on-disk cache (``__pycache__`` beside this file,
+or numba's user cache directory when that is read-only), so later processes, dask workers included, load
+it in well under a second. Every call is normalised to one type signature (:func:`_kernel_array`), so
+callers' dtypes or memory layouts never trigger another compilation.
 
 Same equations, arranged for speed (each step keeps the numpy model's results to well under 1e-4):
 
@@ -674,7 +683,8 @@ def _light_of_pair(setup, moment, node, constants):
         sun_up = sin_b > 0.0
         sb = sin_b if sun_up else 0.0
         # setup holds 1 / ∫ (0 where the integral is 0: no daylight, no radiation)
-        global_w = 1e6 * setup[_S_SHORTWAVE, lane] * sb * (1.0 + atmospheric_factor * sb) * setup[_S_INTEGRAL_GLOBAL, lane]
+        global_w = (1e6 * setup[_S_SHORTWAVE, lane] * sb * (1.0 + atmospheric_factor * sb)
+                    * setup[_S_INTEGRAL_GLOBAL, lane])
         diffuse_w = 1e6 * setup[_S_DIFFUSE, lane] * sb * setup[_S_INTEGRAL_DIFFUSE, lane]
         diffuse_w = global_w if diffuse_w > global_w else diffuse_w
         diffuse_par = diffuse_w * par_per_shortwave
@@ -945,7 +955,8 @@ def _monthly_cells_collatz(
         o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start, table_inverse_step, day_nodes,
         day_weights, night_nodes, night_weights, constants, weights, out, totals):
     _monthly_cells(
-        MODEL_COLLATZ1992, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days, co2_ppm,
+        MODEL_COLLATZ1992,
+        tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days, co2_ppm,
         o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start, table_inverse_step, day_nodes,
         day_weights, night_nodes, night_weights, constants, weights, out, totals)
 
@@ -956,6 +967,7 @@ def _monthly_cells_caemmerer(
         o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start, table_inverse_step, day_nodes,
         day_weights, night_nodes, night_weights, constants, weights, out, totals):
     _monthly_cells(
-        MODEL_VC2000, tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days, co2_ppm,
+        MODEL_VC2000,
+        tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days, co2_ppm,
         o2_percent, c3_scalars, c3_table, c4_scalars, c4_table, table_start, table_inverse_step, day_nodes,
         day_weights, night_nodes, night_weights, constants, weights, out, totals)

@@ -104,7 +104,8 @@ def assert_close_to_numpy(got, reference, season):
     assert np.array_equal(np.isnan(got["net"]), expected_nan)
     ok = ~expected_nan
     scale = np.abs(np.asarray(reference.gross)[ok]) + 1e-9
-    assert np.all(np.abs(got["net"][ok] - reference.net[ok]) <= KERNEL_TOLERANCE * np.maximum(scale, np.abs(reference.net[ok])))
+    bound = KERNEL_TOLERANCE * np.maximum(scale, np.abs(reference.net[ok]))
+    assert np.all(np.abs(got["net"][ok] - reference.net[ok]) <= bound)
     np.testing.assert_allclose(got["gross"][ok], reference.gross[ok], rtol=KERNEL_TOLERANCE, atol=1e-9)
     if "photorespiration" in got:
         np.testing.assert_allclose(got["photorespiration"][ok], reference.photorespiration[ok],
