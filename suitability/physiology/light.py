@@ -270,7 +270,7 @@ def diffuse_fraction_daily(clearness):
     Sd/Sg [-].
 
     Reference: Spitters et al. (1986) eq. 2 (after de Jong 1980); coefficients from memory, matching
-    published transcriptions.
+    published restatements.
     """
     tau = clearness
     fraction = where_valid(tau < 0.07, 1.0,
@@ -298,7 +298,7 @@ def diffuse_fraction_instantaneous(clearness, sin_elevation):
     Sdf/Sg [-].
 
     Reference: Spitters et al. (1986) eq. 20 (hourly relation; equation number and coefficients from
-    memory, matching published transcriptions).
+    memory, matching published restatements).
     """
     tau = clearness
     s = np.minimum(np.maximum(sin_elevation, 0.0), 1.0)

@@ -1,6 +1,7 @@
 """Property-based checks of the leaf models over realistic input ranges (hypothesis).
 
-Each property follows from the model equations (derived here): Rd >= 0 gives net <= gross; J, M and
+Each property follows from the model equations (derived here from Farquhar et al. 1980 and von Caemmerer
+2000 eqs. 2.1-2.14 for C3; Collatz et al. 1992 and von Caemmerer 2000 ch. 4 for C4): Rd >= 0 gives net <= gross; J, M and
 Aj increase with light; Wc, Wj (1 − Γ*/C) increase with C; the C3 photorespiration share is Γ*/Ci with
 Γ* rising with temperature and Ci proportional to Ca.
 """

@@ -187,10 +187,7 @@ def test_crossover_chart_plots_the_function_and_the_scenarios():
 
 
 def test_crossover_chart_with_the_physiology_function():
-    try:
-        function = figures.physiology_crossover()
-    except ImportError as exc:
-        pytest.skip(f"suitability.physiology.crossover_temperature is not available yet ({exc})")
+    function = figures.physiology_crossover()
     assert function.__module__.startswith("suitability.physiology")
     figure = figures.crossover_figure(23.5, [])
     line = next(line for line in figure.axes[0].lines if line.get_gid() == "crossover")
