@@ -500,6 +500,7 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
             forward_band_tags=True,
             colormap=COLOUR_TABLES.get(name) if categorical else None,
             quiet=True,
+            in_memory=False,  # a disk temporary keeps peak memory flat on large regions
         )
         with rasterio.open(cog) as check:
             units_kept = check.units[0] == variable.units
