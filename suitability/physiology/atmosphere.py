@@ -10,7 +10,9 @@ The private helper :func:`where_valid` is shared with ``light.py`` and ``canopy.
 
 from __future__ import annotations
 
-import numpy as np
+from . import array_ops as ops
+from .array_ops import in_range, where_valid  # noqa: F401  (re-exported)
+from .elementwise import equation
 
 #: Sea-level air pressure of FAO-56 eq. 7 [kPa].
 SEA_LEVEL_PRESSURE_KPA = 101.3
@@ -23,31 +25,7 @@ ELEVATION_RANGE_M = (-500.0, 9000.0)
 TEMPERATURE_RANGE_C = (-60.0, 60.0)
 
 
-def _is_xarray(value) -> bool:
-    return type(value).__module__.split(".")[0] == "xarray"
-
-
-def where_valid(valid, value, fill=np.nan):
-    """``value`` where ``valid`` is true, else ``fill``, keeping the array type of the inputs.
-
-    numpy and dask go through ``np.where`` (dask dispatches it lazily); xarray through ``xr.where`` so
-    that coordinates survive and dask-backed data stay lazy. A 0-d numpy result is returned as a scalar.
-    """
-    if _is_xarray(valid) or _is_xarray(value) or _is_xarray(fill):
-        import xarray as xr
-
-        return xr.where(valid, value, fill, keep_attrs=True)
-    result = np.where(valid, value, fill)
-    if isinstance(result, np.ndarray) and result.ndim == 0:
-        return result[()]
-    return result
-
-
-def in_range(value, low, high):
-    """True where ``low <= value <= high`` (false for NaN)."""
-    return (value >= low) & (value <= high)
-
-
+@equation
 def air_pressure_from_elevation(elevation_m):
     """Mean air pressure at an elevation, FAO-56 eq. 7.
 
@@ -63,12 +41,13 @@ def air_pressure_from_elevation(elevation_m):
 
     Reference: Allen et al. (1998) FAO-56, eq. 7 (standard atmosphere, 20 °C at sea level).
     """
-    valid = in_range(elevation_m, *ELEVATION_RANGE_M)
-    safe_z = where_valid(valid, elevation_m, 0.0)
+    valid = ops.in_range(elevation_m, ELEVATION_RANGE_M[0], ELEVATION_RANGE_M[1])
+    safe_z = ops.where_valid(valid, elevation_m, 0.0)
     pressure = SEA_LEVEL_PRESSURE_KPA * ((293.0 - 0.0065 * safe_z) / 293.0) ** 5.26
-    return where_valid(valid, pressure)
+    return ops.where_valid(valid, pressure)
 
 
+@equation
 def saturation_vapour_pressure(temperature_c):
     """Saturation vapour pressure over water, FAO-56 eq. 11.
 
@@ -84,11 +63,12 @@ def saturation_vapour_pressure(temperature_c):
 
     Reference: Allen et al. (1998) FAO-56, eq. 11 (Tetens form).
     """
-    valid = in_range(temperature_c, *TEMPERATURE_RANGE_C)
-    safe_t = where_valid(valid, temperature_c, 0.0)
-    return where_valid(valid, 0.6108 * np.exp(17.27 * safe_t / (safe_t + 237.3)))
+    valid = ops.in_range(temperature_c, TEMPERATURE_RANGE_C[0], TEMPERATURE_RANGE_C[1])
+    safe_t = ops.where_valid(valid, temperature_c, 0.0)
+    return ops.where_valid(valid, 0.6108 * ops.exp(17.27 * safe_t / (safe_t + 237.3)))
 
 
+@equation
 def mean_saturation_vapour_pressure(tmin_c, tmax_c):
     """Daily mean saturation vapour pressure, FAO-56 eq. 12.
 
@@ -105,9 +85,10 @@ def mean_saturation_vapour_pressure(tmin_c, tmax_c):
     Reference: Allen et al. (1998) FAO-56, eq. 12.
     """
     mean = 0.5 * (saturation_vapour_pressure(tmax_c) + saturation_vapour_pressure(tmin_c))
-    return where_valid(tmin_c <= tmax_c, mean)
+    return ops.where_valid(tmin_c <= tmax_c, mean)
 
 
+@equation
 def actual_vapour_pressure_from_dew_point(dew_point_c):
     """Actual vapour pressure from the dew point, FAO-56 eq. 14: ea = e°(Tdew).
 
@@ -124,6 +105,7 @@ def actual_vapour_pressure_from_dew_point(dew_point_c):
     return saturation_vapour_pressure(dew_point_c)
 
 
+@equation
 def actual_vapour_pressure_from_tmin(tmin_c):
     """Actual vapour pressure without humidity data, FAO-56 eq. 48: ea ≈ e°(Tmin).
 
@@ -143,6 +125,7 @@ def actual_vapour_pressure_from_tmin(tmin_c):
     return saturation_vapour_pressure(tmin_c)
 
 
+@equation
 def actual_vapour_pressure_from_relative_humidity(relative_humidity_percent, tmin_c, tmax_c):
     """Actual vapour pressure from mean relative humidity, FAO-56 eq. 19.
 
@@ -161,11 +144,12 @@ def actual_vapour_pressure_from_relative_humidity(relative_humidity_percent, tmi
 
     Reference: Allen et al. (1998) FAO-56, eq. 19.
     """
-    valid = in_range(relative_humidity_percent, 0.0, 100.0)
+    valid = ops.in_range(relative_humidity_percent, 0.0, 100.0)
     ea = relative_humidity_percent / 100.0 * mean_saturation_vapour_pressure(tmin_c, tmax_c)
-    return where_valid(valid, ea)
+    return ops.where_valid(valid, ea)
 
 
+@equation
 def vapour_pressure_deficit(temperature_c, actual_vapour_pressure_kpa):
     """Vapour pressure deficit of the air at a temperature, FAO-56 eqs. 11 and 13 form.
 
@@ -186,11 +170,20 @@ def vapour_pressure_deficit(temperature_c, actual_vapour_pressure_kpa):
     Reference: Allen et al. (1998) FAO-56, eq. 11 for e°(T); the deficit es − ea as in the text around
     eq. 19 ("vapour pressure deficit").
     """
-    valid = actual_vapour_pressure_kpa >= 0
-    deficit = np.maximum(saturation_vapour_pressure(temperature_c) - actual_vapour_pressure_kpa, 0.0)
-    return where_valid(valid, deficit)
+    return ops.where_valid(actual_vapour_pressure_kpa >= 0,
+                           saturation_deficit(saturation_vapour_pressure(temperature_c), actual_vapour_pressure_kpa))
 
 
+@equation
+def saturation_deficit(saturation_vapour_pressure_kpa, actual_vapour_pressure_kpa):
+    """D = max(e° − ea, 0) [kPa] from a saturation vapour pressure already computed (both in kPa).
+
+    The compiled engine tabulates e°(T) (:func:`saturation_vapour_pressure`) and calls this.
+    """
+    return ops.maximum(saturation_vapour_pressure_kpa - actual_vapour_pressure_kpa, 0.0)
+
+
+@equation
 def partial_pressure(mole_fraction, pressure_kpa):
     """Partial pressure of a gas from its mole fraction (Dalton's law): p = x · P.
 
@@ -206,10 +199,11 @@ def partial_pressure(mole_fraction, pressure_kpa):
     Reference: Dalton's law of partial pressures; total pressure from FAO-56 eq. 7
     (:func:`air_pressure_from_elevation`).
     """
-    valid = in_range(mole_fraction, 0.0, 1.0) & (pressure_kpa > 0)
-    return where_valid(valid, mole_fraction * pressure_kpa)
+    valid = ops.in_range(mole_fraction, 0.0, 1.0) & (pressure_kpa > 0)
+    return ops.where_valid(valid, mole_fraction * pressure_kpa)
 
 
+@equation
 def co2_partial_pressure_pa(co2_ppm, pressure_kpa):
     """CO2 partial pressure from its mole fraction in µmol mol-1 (ppm): p = 1e-6 · x · P · 1000.
 
@@ -227,6 +221,7 @@ def co2_partial_pressure_pa(co2_ppm, pressure_kpa):
     return partial_pressure(co2_ppm * 1e-6, pressure_kpa) * 1000.0
 
 
+@equation
 def o2_partial_pressure_kpa(o2_percent, pressure_kpa):
     """O2 partial pressure from its mole fraction in percent: p = x / 100 · P.
 
@@ -242,3 +237,21 @@ def o2_partial_pressure_kpa(o2_percent, pressure_kpa):
     Reference: Dalton's law, as :func:`partial_pressure`.
     """
     return partial_pressure(o2_percent / 100.0, pressure_kpa)
+
+
+@equation
+def o2_partial_pressure_pa(o2_percent, pressure_kpa):
+    """O2 partial pressure from its mole fraction in percent: p = x / 100 · P · 1000.
+
+    Parameters
+    ----------
+    o2_percent : O2 mole fraction [%].
+    pressure_kpa : air pressure [kPa].
+
+    Returns
+    -------
+    O2 partial pressure [Pa].
+
+    Reference: Dalton's law, as :func:`partial_pressure`.
+    """
+    return partial_pressure(o2_percent / 100.0, pressure_kpa) * 1000.0

@@ -35,8 +35,15 @@ from typing import NamedTuple
 
 import numpy as np
 
+from . import array_ops as ops
+from .elementwise import equation
+from .models import LeafModel, LeafRates, register_leaf_model
 from .rubisco import effective_michaelis_constant, rubisco_constants
-from .temperature import KELVIN_OFFSET, R_GAS, arrhenius, peaked_arrhenius, q10_response, where
+from .temperature import KELVIN_OFFSET, R_GAS, arrhenius, peaked_arrhenius, q10_response
+
+#: A capacity that never limits (an unlimited Jmax or Tp) [µmol m-2 s-1]. A large finite number rather
+#: than inf, so that tables of it can be interpolated and no inf - inf can arise.
+UNLIMITED_RATE = 1e30
 
 KATTGE_KNORR_2007 = {
     "vcmax_activation_energy": 71513.0,
@@ -102,6 +109,7 @@ def capacity_temperature_factors(temperature_c, response: str, growth_temperatur
     raise ValueError(f"unknown Vcmax temperature response {response!r}; valid: peaked, arrhenius, collatz1991")
 
 
+@equation
 def non_rectangular_hyperbola(rate_a, rate_b, curvature):
     """Smaller root of θ x² − (a + b) x + a b = 0: a smooth co-limitation of two rates [units of a, b].
 
@@ -112,16 +120,17 @@ def non_rectangular_hyperbola(rate_a, rate_b, curvature):
     total = rate_a + rate_b
     product = rate_a * rate_b
     # Rounding can push the discriminant a hair below zero when θ = 1 and a = b.
-    denominator = total + np.sqrt(np.maximum(total * total - 4.0 * curvature * product, 0.0))
+    denominator = total + ops.sqrt(ops.maximum(total * total - 4.0 * curvature * product, 0.0))
     # Both rates zero (darkness with closed stomata) is 0/0: the co-limited rate is then 0.
-    return where(denominator > 0, 2.0 * product / where(denominator > 0, denominator, 1.0), 0.0)
+    return ops.where(denominator > 0, 2.0 * product / ops.where(denominator > 0, denominator, 1.0), 0.0)
 
 
+@equation
 def electron_transport_rate(absorbed_par, jmax, theta, spectral_correction):
     """Potential electron transport rate J [µmol m-2 s-1], non-rectangular hyperbola.
 
     J = smaller root of θ J² − (I2 + Jmax) J + I2 Jmax = 0,  I2 = absorbed_par (1 − f)/2
-    (von Caemmerer 2000 eq. 2.14). A scalar ``jmax = inf`` means no saturation (J = I2).
+    (von Caemmerer 2000 eq. 2.14). ``jmax`` >= :data:`UNLIMITED_RATE` (or inf) means no saturation (J = I2).
 
     Parameters
     ----------
@@ -131,16 +140,17 @@ def electron_transport_rate(absorbed_par, jmax, theta, spectral_correction):
     spectral_correction : f [-]
     """
     i2 = absorbed_par * (1.0 - spectral_correction) / 2.0
-    if np.isscalar(jmax) and np.isinf(jmax):
-        return i2
-    return non_rectangular_hyperbola(i2, jmax, theta)
+    unlimited = jmax >= UNLIMITED_RATE
+    return ops.where(unlimited, i2, non_rectangular_hyperbola(i2, ops.where(unlimited, 1.0, jmax), theta))
 
 
+@equation
 def oxygenation_ratio(co2_pa, gamma_star_pa):
     """vo/vc = 2 Γ*/C [-] (Farquhar et al. 1980). C and Γ* in the same units (Pa here)."""
     return 2.0 * gamma_star_pa / co2_pa
 
 
+@equation
 def photorespiration_share(co2_pa, gamma_star_pa):
     """Share of gross carboxylation released by photorespiration, 0.5 vo/vc = Γ*/C [-]."""
     return gamma_star_pa / co2_pa
@@ -154,9 +164,19 @@ def fvcb_rates(co2_pa, o2_pa, absorbed_par, *, vcmax, jmax, tpu, rd, kc, ko, gam
     ----------
     co2_pa, o2_pa : CO2 and O2 partial pressures at Rubisco [Pa]
     absorbed_par : absorbed PAR [µmol m-2 s-1]
-    vcmax, jmax, tpu, rd : capacities and day respiration at leaf temperature [µmol m-2 s-1]
+    vcmax, jmax, tpu, rd : capacities and day respiration at leaf temperature [µmol m-2 s-1]; jmax or tpu
+        >= :data:`UNLIMITED_RATE` (or inf) never limit
     kc, ko, gamma_star : Rubisco constants [Pa]
     theta, spectral_correction : J curvature and f [-]
+
+    The keyword form of :func:`fvcb`.
+    """
+    return fvcb(co2_pa, o2_pa, absorbed_par, vcmax, jmax, tpu, rd, kc, ko, gamma_star, theta, spectral_correction)
+
+
+@equation
+def fvcb(co2_pa, o2_pa, absorbed_par, vcmax, jmax, tpu, rd, kc, ko, gamma_star, theta, spectral_correction):
+    """FvCB rates (:func:`fvcb_rates`, positional arguments in the same units) as :class:`C3Rates`.
 
     Each limiting rate is written vc = ρ C with ρ = Vcmax/(C + Km), J/(4C + 8Γ*) or 3 Tp / C; the smallest
     ρ limits, gross = ρ (C − Γ*) and photorespiration = ρ Γ*, which stays finite at C = 0.
@@ -166,16 +186,46 @@ def fvcb_rates(co2_pa, o2_pa, absorbed_par, *, vcmax, jmax, tpu, rd, kc, ko, gam
     light_denominator = 4.0 * co2_pa + 8.0 * gamma_star
     # Divisions are guarded rather than left to produce inf/NaN: under dask, np.errstate does not reach
     # the computation and the warnings would surface. C = Γ* = 0 (no CO2, no O2) leaves Rubisco limiting.
-    rate_light = where(light_denominator > 0, electron_transport / where(light_denominator > 0, light_denominator, 1.0),
-                       np.inf)
+    rate_light = ops.where(light_denominator > 0,
+                           electron_transport / ops.where(light_denominator > 0, light_denominator, 1.0), ops.inf)
     light_limited = rate_light < rate_rubisco
-    rate = np.minimum(rate_rubisco, rate_light)
+    rate = ops.minimum(rate_rubisco, rate_light)
     # TPU limits where 3 Tp < ρ C, i.e. where 3 Tp / C < ρ without dividing by a C that may be 0.
-    tpu_limited = 3.0 * tpu < rate * co2_pa
-    rate = where(tpu_limited, 3.0 * tpu / where(tpu_limited, co2_pa, 1.0), rate)
-    limitation = where(tpu_limited, 3, where(light_limited, 2, 1))
+    tpu_limited = (tpu < UNLIMITED_RATE) & (3.0 * tpu < rate * co2_pa)
+    rate = ops.where(tpu_limited, 3.0 * tpu / ops.where(tpu_limited, co2_pa, 1.0), rate)
+    limitation = ops.where(tpu_limited, 3, ops.where(light_limited, 2, 1))
     gross = rate * (co2_pa - gamma_star)
     return C3Rates(gross - rd, gross, rate * gamma_star, limitation)
+
+
+def fvcb_temperature_terms(temperature_c, params) -> tuple:
+    """Temperature terms of the FvCB model for the compiled engine's tables and the numpy engine.
+
+    Returns (Kc [Pa], Ko [Pa], Γ* per Pa of O2 [-], Vcmax, Jmax, Tp, Rd [µmol m-2 s-1]) at leaf temperature
+    ``temperature_c`` [°C] for a resolved C3 mapping; an unlimited Jmax or Tp is :data:`UNLIMITED_RATE`.
+    """
+    kc, ko, gamma_per_o2 = rubisco_constants(params["kinetics"], temperature_c, 1.0)  # Γ* ∝ O: at O = 1 Pa
+    vcmax_factor, jmax_factor, rd_factor = capacity_temperature_factors(
+        temperature_c, params["vcmax_temperature_response"], params["growth_temperature_c"]
+    )
+    jmax = UNLIMITED_RATE if math.isinf(params["jmax25"]) else params["jmax25"] * jmax_factor
+    tpu = UNLIMITED_RATE if math.isinf(params["tpu25"]) else params["tpu25"] * vcmax_factor  # Tp follows Vcmax
+    return (kc, ko, gamma_per_o2, params["vcmax25"] * vcmax_factor, jmax, tpu, params["rd25"] * rd_factor)
+
+
+def fvcb_constants(params) -> tuple:
+    """(θ, f) of a resolved C3 mapping."""
+    return (float(params["theta"]), float(params["spectral_correction"]))
+
+
+@equation
+def fvcb_leaf_rates(terms, constants, absorbed_par, co2_pa, o2_pa, capacity_scale):
+    """The FvCB leaf from its temperature terms (:func:`fvcb_temperature_terms`) and constants
+    (:func:`fvcb_constants`): absorbed PAR [µmol m-2 s-1], CO2 and O2 at Rubisco [Pa], ``capacity_scale``
+    [-] on Vcmax. Returns :class:`~suitability.physiology.models.LeafRates`."""
+    rates = fvcb(co2_pa, o2_pa, absorbed_par, terms[3] * capacity_scale, terms[4], terms[5], terms[6],
+                 terms[0], terms[1], terms[2] * o2_pa, constants[0], constants[1])
+    return LeafRates(rates.net, rates.gross, rates.photorespiration, rates.limitation, ops.nan, ops.nan)
 
 
 def c3_assimilation(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0) -> C3Rates:
@@ -189,19 +239,23 @@ def c3_assimilation(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity
     params : mapping from ``resolve_params("C3", ...)``
     capacity_scale : factor on Vcmax (non-stomatal water stress) [-]
     """
-    kc, ko, gamma_star = rubisco_constants(params["kinetics"], temperature_c, o2_pa)
-    vcmax_factor, jmax_factor, rd_factor = capacity_temperature_factors(
-        temperature_c, params["vcmax_temperature_response"], params["growth_temperature_c"]
-    )
-    # An unlimited (inf) Jmax or Tp stays a plain inf so that no inf * 0 or inf - inf can appear.
-    jmax = math.inf if math.isinf(params["jmax25"]) else params["jmax25"] * jmax_factor
-    tpu = math.inf if math.isinf(params["tpu25"]) else params["tpu25"] * vcmax_factor
-    return fvcb_rates(
-        co2_pa, o2_pa, absorbed_par,
-        vcmax=params["vcmax25"] * vcmax_factor * capacity_scale,
-        jmax=jmax,
-        tpu=tpu,
-        rd=params["rd25"] * rd_factor,
-        kc=kc, ko=ko, gamma_star=gamma_star,
-        theta=params["theta"], spectral_correction=params["spectral_correction"],
-    )
+    rates = fvcb_leaf_rates(fvcb_temperature_terms(temperature_c, params), fvcb_constants(params), absorbed_par,
+                            co2_pa, o2_pa, capacity_scale)
+    return C3Rates(rates.net, rates.gross, rates.photorespiration, rates.limitation)
+
+
+def fvcb_quantum_yield(temperature_c, co2_pa, o2_pa, params):
+    """C3 light-limited quantum yield φ0 (C − Γ*)/(C + 2Γ*), φ0 = (1 − f)/8 [mol CO2 (mol absorbed photons)-1].
+
+    The initial slope of FvCB gross assimilation against absorbed PAR (Farquhar et al. 1980; the form of
+    Ehleringer et al. 1997 and Collatz et al. 1998). temperature_c [°C]; co2_pa, o2_pa at Rubisco [Pa].
+    """
+    gamma_star = rubisco_constants(params["kinetics"], temperature_c, o2_pa).gamma_star
+    return (1.0 - params["spectral_correction"]) / 8.0 * (co2_pa - gamma_star) / (co2_pa + 2.0 * gamma_star)
+
+
+FVCB = register_leaf_model(LeafModel(
+    name="fvcb", pathway="C3", temperature_terms=fvcb_temperature_terms, constants=fvcb_constants,
+    rates=fvcb_leaf_rates, quantum_yield=fvcb_quantum_yield,
+    limitation_codes={0: "invalid input", 1: "Rubisco", 2: "electron transport", 3: "triose-phosphate use"},
+))

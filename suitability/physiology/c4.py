@@ -40,11 +40,12 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
-import numpy as np
-
+from . import array_ops as ops
 from .c3 import electron_transport_rate, non_rectangular_hyperbola
+from .elementwise import equation
+from .models import LeafModel, LeafRates, register_leaf_model
 from .rubisco import STANDARD_PRESSURE_KPA, effective_michaelis_constant, rubisco_constants
-from .temperature import arrhenius, gaussian_response, q10_response, where
+from .temperature import arrhenius, gaussian_response, q10_response
 
 PEPC_KINETICS = {
     "caemmerer2000_c4": {"kp25_pa": 80e-6 * 1e5, "kp_activation_energy": 38300.0},
@@ -72,6 +73,43 @@ class C4Rates(NamedTuple):
     leakiness: object
 
 
+def collatz_temperature_terms(temperature_c, params) -> tuple:
+    """Temperature terms of the Collatz et al. (1992) C4 leaf (module docstring).
+
+    Returns (Vt [µmol m-2 s-1], Rd,t [µmol m-2 s-1], kt per Pa of CO2 [µmol m-2 s-1 Pa-1]) at leaf
+    temperature ``temperature_c`` [°C] for a resolved C4 mapping with ``model == "collatz1992"``:
+    Vt = Vmax Q10^((T−25)/10) / [(1 + e^(0.3(Tlow − T)))(1 + e^(0.3(T − Thigh)))],
+    Rd,t = Rd Q10^((T−25)/10) / (1 + e^(1.3(T − Tresp))), kt = k Q10^((T−25)/10) · 1e3 / 101.325
+    (k [mol m-2 s-1] times the CO2 mole fraction at standard pressure, so that kt · C [Pa] is in µmol m-2 s-1).
+    """
+    q10 = q10_response(temperature_c, params["q10"])
+    exp = ops.exp
+    enzyme = params["vmax25"] * q10 / ((1.0 + exp(0.3 * (params["low_temperature_c"] - temperature_c)))
+                                       * (1.0 + exp(0.3 * (temperature_c - params["high_temperature_c"]))))
+    respiration = params["rd25"] * q10 / (1.0 + exp(1.3 * (temperature_c - params["respiration_high_temperature_c"])))
+    return (enzyme, respiration, params["k25"] * q10 * (1e3 / STANDARD_PRESSURE_KPA))
+
+
+def collatz_constants(params) -> tuple:
+    """(α, θ, β) of a resolved Collatz (1992) C4 mapping."""
+    return (float(params["alpha"]), float(params["theta"]), float(params["beta"]))
+
+
+@equation
+def collatz_leaf_rates(terms, constants, absorbed_par, co2_pa, o2_pa, capacity_scale):
+    """Collatz et al. (1992) C4 leaf from :func:`collatz_temperature_terms` and :func:`collatz_constants`:
+    absorbed PAR [µmol m-2 s-1], intercellular CO2 [Pa] (O2 [Pa] unused: the model has no
+    photorespiration), ``capacity_scale`` [-] on Vmax. Returns
+    :class:`~suitability.physiology.models.LeafRates`."""
+    enzyme = terms[0] * capacity_scale
+    light = constants[0] * absorbed_par
+    co2_limited = terms[2] * co2_pa
+    enzyme_light = non_rectangular_hyperbola(enzyme, light, constants[1])
+    gross = non_rectangular_hyperbola(enzyme_light, co2_limited, constants[2])
+    limitation = ops.where((co2_limited < enzyme) & (co2_limited < light), 3, ops.where(light < enzyme, 2, 1))
+    return LeafRates(gross - terms[1], gross, 0.0 * gross, limitation, ops.nan, ops.nan)
+
+
 def collatz_c4_rates(temperature_c, absorbed_par, co2_pa, params, capacity_scale=1.0) -> C4Rates:
     """Collatz et al. (1992) C4 leaf (module docstring).
 
@@ -83,65 +121,75 @@ def collatz_c4_rates(temperature_c, absorbed_par, co2_pa, params, capacity_scale
     params : resolved C4 mapping with ``model == "collatz1992"``
     capacity_scale : factor on Vmax (non-stomatal water stress) [-]
     """
-    q10 = q10_response(temperature_c, params["q10"])
-    enzyme = (
-        params["vmax25"] * capacity_scale * q10
-        / ((1.0 + np.exp(0.3 * (params["low_temperature_c"] - temperature_c)))
-           * (1.0 + np.exp(0.3 * (temperature_c - params["high_temperature_c"]))))
-    )
-    respiration = params["rd25"] * q10 / (1.0 + np.exp(1.3 * (temperature_c - params["respiration_high_temperature_c"])))
-    light = params["alpha"] * absorbed_par
-    # k [mol m-2 s-1] times the CO2 mole fraction at standard pressure, in µmol m-2 s-1.
-    co2_limited = params["k25"] * q10 * co2_pa * (1e3 / STANDARD_PRESSURE_KPA)
-    enzyme_light = non_rectangular_hyperbola(enzyme, light, params["theta"])
-    gross = non_rectangular_hyperbola(enzyme_light, co2_limited, params["beta"])
-    limitation = where(
-        (co2_limited < enzyme) & (co2_limited < light), 3, where(light < enzyme, 2, 1)
-    )
-    nan = gross * np.nan
-    return C4Rates(gross - respiration, gross, gross * 0.0, limitation, nan, nan)
+    rates = collatz_leaf_rates(collatz_temperature_terms(temperature_c, params), collatz_constants(params),
+                               absorbed_par, co2_pa, 0.0, capacity_scale)
+    nan = rates.gross * ops.nan
+    return C4Rates(rates.net, rates.gross, rates.photorespiration, rates.limitation, nan, nan)
 
 
+def collatz_quantum_yield(temperature_c, co2_pa, o2_pa, params):
+    """Collatz et al. (1992) C4 quantum yield: α, independent of temperature, CO2 and O2 [mol mol-1]."""
+    return params["alpha"] + 0.0 * (temperature_c + co2_pa + o2_pa)
+
+
+@equation
 def _smaller_root_monic(b, c):
     # Smaller root of A² + bA + c = 0 as 2c / (−b + √(b² − 4c)) (no cancellation when c is small). The
     # denominator is twice the larger root, which may be negative (darkness, low Cm); where it is 0 the
     # smaller root is −b.
-    denominator = np.sqrt(np.maximum(b * b - 4.0 * c, 0.0)) - b
+    denominator = ops.sqrt(ops.maximum(b * b - 4.0 * c, 0.0)) - b
     nonzero = denominator != 0
-    return where(nonzero, 2.0 * c / where(nonzero, denominator, 1.0), -b)
+    return ops.where(nonzero, 2.0 * c / ops.where(nonzero, denominator, 1.0), -b)
 
 
-def caemmerer_c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0) -> C4Rates:
-    """von Caemmerer (2000) C4 leaf with bundle-sheath leakiness (module docstring).
+def caemmerer_temperature_terms(temperature_c, params) -> tuple:
+    """Temperature terms of the von Caemmerer (2000) C4 leaf (module docstring).
 
-    Parameters
-    ----------
-    temperature_c : leaf temperature [°C]
-    absorbed_par : absorbed PAR [µmol m-2 s-1]
-    co2_pa : mesophyll (= intercellular) CO2 partial pressure [Pa]
-    o2_pa : mesophyll O2 partial pressure [Pa]
-    params : resolved C4 mapping with ``model == "vc2000"``
-    capacity_scale : factor on Vcmax and Vpmax (non-stomatal water stress) [-]
+    Returns (Kc [Pa], Ko [Pa], γ* per Pa of O2 [-], Kp [Pa], Vcmax, Vpmax, Vpr, Rd, Jmax [µmol m-2 s-1]) at
+    leaf temperature ``temperature_c`` [°C] for a resolved C4 mapping with ``model == "vc2000"``.
     """
     constants = CAEMMERER_2021_ACTIVATION
-    kc, ko, gamma_star = rubisco_constants(params["kinetics"], temperature_c, o2_pa)  # Γ* = γ* Om, in Pa
+    kc, ko, gamma_per_o2 = rubisco_constants(params["kinetics"], temperature_c, 1.0)  # Γ* = γ* Om
     pepc = PEPC_KINETICS[params["kinetics"]]
-    kp = pepc["kp25_pa"] * arrhenius(temperature_c, pepc["kp_activation_energy"])
-    vcmax = params["vcmax25"] * capacity_scale * arrhenius(temperature_c, constants["vcmax_activation_energy"])
     vp_factor = arrhenius(temperature_c, constants["vpmax_activation_energy"])
-    vpmax = params["vpmax25"] * capacity_scale * vp_factor
-    vpr = params["vpr25"] * vp_factor
-    rd = params["rd25"] * arrhenius(temperature_c, constants["rd_activation_energy"])
-    rm = params["rm_fraction"] * rd
-    jmax = params["jmax25"] * gaussian_response(temperature_c, params["jmax_optimum_c"], params["jmax_width_c"])
-    electron_transport = electron_transport_rate(absorbed_par, jmax, params["theta"], params["spectral_correction"])
+    return (kc, ko, gamma_per_o2,
+            pepc["kp25_pa"] * arrhenius(temperature_c, pepc["kp_activation_energy"]),
+            params["vcmax25"] * arrhenius(temperature_c, constants["vcmax_activation_energy"]),
+            params["vpmax25"] * vp_factor,
+            params["vpr25"] * vp_factor,
+            params["rd25"] * arrhenius(temperature_c, constants["rd_activation_energy"]),
+            params["jmax25"] * gaussian_response(temperature_c, params["jmax_optimum_c"], params["jmax_width_c"]))
+
+
+def caemmerer_constants(params) -> tuple:
+    """(θ, f, gbs [µmol m-2 s-1 Pa-1], x, Rm/Rd) of a resolved von Caemmerer (2000) C4 mapping."""
     # gbs [mol m-2 s-1 bar-1] -> [µmol m-2 s-1 Pa-1]: 1e6 µmol/mol over 1e5 Pa/bar.
-    gbs = params["gbs"] * 10.0
-    x = params["x"]
+    return (float(params["theta"]), float(params["spectral_correction"]), float(params["gbs"]) * 10.0,
+            float(params["x"]), float(params["rm_fraction"]))
+
+
+@equation
+def caemmerer_leaf_rates(terms, constants, absorbed_par, co2_pa, o2_pa, capacity_scale):
+    """von Caemmerer (2000) C4 leaf from :func:`caemmerer_temperature_terms` and :func:`caemmerer_constants`:
+    absorbed PAR [µmol m-2 s-1], mesophyll CO2 and O2 [Pa], ``capacity_scale`` [-] on Vcmax and Vpmax.
+    Returns :class:`~suitability.physiology.models.LeafRates` (equations in the module docstring)."""
+    kc = terms[0]
+    ko = terms[1]
+    gamma_star = terms[2] * o2_pa
+    kp = terms[3]
+    vcmax = terms[4] * capacity_scale
+    vpmax = terms[5] * capacity_scale
+    vpr = terms[6]
+    rd = terms[7]
+    jmax = terms[8]
+    rm = constants[4] * rd
+    gbs = constants[2]
+    x = constants[3]
+    electron_transport = electron_transport_rate(absorbed_par, jmax, constants[0], constants[1])
     km = effective_michaelis_constant(kc, ko, o2_pa)
 
     pepc_co2_limited = co2_pa * vpmax / (co2_pa + kp)
-    vp_enzyme = np.minimum(pepc_co2_limited, vpr)
+    vp_enzyme = ops.minimum(pepc_co2_limited, vpr)
     mesophyll_supply = vp_enzyme - rm + gbs * co2_pa
     enzyme_limited = _smaller_root_monic(
         -(mesophyll_supply + vcmax - rd + gbs * km),
@@ -156,27 +204,71 @@ def caemmerer_c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capac
     )
 
     is_light_limited = light_limited < enzyme_limited
-    net = np.minimum(enzyme_limited, light_limited)
-    vp = where(is_light_limited, vp_light, vp_enzyme)
+    net = ops.minimum(enzyme_limited, light_limited)
+    vp = ops.where(is_light_limited, vp_light, vp_enzyme)
     leak = vp - net - rm
     bundle_sheath_co2 = co2_pa + leak / gbs
     light_denominator = 3.0 * bundle_sheath_co2 + 7.0 * gamma_star
-    photorespiration = where(
+    photorespiration = ops.where(
         is_light_limited,
-        bundle_sheath_electron * 3.0 * gamma_star / where(light_denominator > 0, light_denominator, 1.0),
+        bundle_sheath_electron * 3.0 * gamma_star / ops.where(light_denominator > 0, light_denominator, 1.0),
         vcmax * gamma_star / (bundle_sheath_co2 + km),
     )
     co2_limited = (pepc_co2_limited < vpr) & (mesophyll_supply < vcmax - rd)
-    limitation = where(is_light_limited, 2, where(co2_limited, 3, 1))
+    limitation = ops.where(is_light_limited, 2, ops.where(co2_limited, 3, 1))
     # Leakiness is undefined without PEP carboxylation (darkness): NaN there.
-    leakiness = where(vp > 0, leak / where(vp > 0, vp, 1.0), np.nan)
-    return C4Rates(net, net + rd, photorespiration, limitation, bundle_sheath_co2, leakiness)
+    leakiness = ops.where(vp > 0, leak / ops.where(vp > 0, vp, 1.0), ops.nan)
+    return LeafRates(net, net + rd, photorespiration, limitation, bundle_sheath_co2, leakiness)
+
+
+def caemmerer_c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0) -> C4Rates:
+    """von Caemmerer (2000) C4 leaf with bundle-sheath leakiness (module docstring).
+
+    Parameters
+    ----------
+    temperature_c : leaf temperature [°C]
+    absorbed_par : absorbed PAR [µmol m-2 s-1]
+    co2_pa : mesophyll (= intercellular) CO2 partial pressure [Pa]
+    o2_pa : mesophyll O2 partial pressure [Pa]
+    params : resolved C4 mapping with ``model == "vc2000"``
+    capacity_scale : factor on Vcmax and Vpmax (non-stomatal water stress) [-]
+    """
+    return C4Rates(*caemmerer_leaf_rates(caemmerer_temperature_terms(temperature_c, params),
+                                         caemmerer_constants(params), absorbed_par, co2_pa, o2_pa, capacity_scale))
+
+
+#: Absorbed PAR between which the von Caemmerer C4 light response is differenced for its quantum yield
+#: [µmol m-2 s-1]: the linear range over which quantum yields are measured (Ehleringer & Björkman 1977).
+QUANTUM_YIELD_PAR_RANGE = (50.0, 150.0)
+
+
+def caemmerer_quantum_yield(temperature_c, co2_pa, o2_pa, params):
+    """von Caemmerer (2000) C4 quantum yield: the slope of gross assimilation between the absorbed PAR of
+    :data:`QUANTUM_YIELD_PAR_RANGE` [mol CO2 (mol absorbed photons)-1]; temperature [°C], CO2, O2 [Pa]."""
+    low, high = QUANTUM_YIELD_PAR_RANGE
+    gross_low = caemmerer_c4_rates(temperature_c, low, co2_pa, o2_pa, params).gross
+    gross_high = caemmerer_c4_rates(temperature_c, high, co2_pa, o2_pa, params).gross
+    return (gross_high - gross_low) / (high - low)
 
 
 def c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0) -> C4Rates:
-    """C4 leaf rates with the model named by ``params["model"]`` ("collatz1992" or "vc2000")."""
-    if params["model"] == "collatz1992":
-        return collatz_c4_rates(temperature_c, absorbed_par, co2_pa, params, capacity_scale)
-    if params["model"] == "vc2000":
-        return caemmerer_c4_rates(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale)
-    raise ValueError(f"unknown C4 model {params['model']!r}; valid: collatz1992, vc2000")
+    """C4 leaf rates with the registered model named by ``params["model"]``."""
+    from .models import leaf_model
+
+    model = leaf_model(params["model"], "C4")
+    return C4Rates(*model.rates(model.temperature_terms(temperature_c, params), model.constants(params),
+                                absorbed_par, co2_pa, o2_pa, capacity_scale))
+
+
+COLLATZ1992 = register_leaf_model(LeafModel(
+    name="collatz1992", pathway="C4", temperature_terms=collatz_temperature_terms, constants=collatz_constants,
+    rates=collatz_leaf_rates, quantum_yield=collatz_quantum_yield,
+    limitation_codes={0: "invalid input", 1: "enzyme (Rubisco / PEP regeneration)", 2: "light",
+                      3: "CO2 (PEP carboxylase)"},
+))
+VC2000 = register_leaf_model(LeafModel(
+    name="vc2000", pathway="C4", temperature_terms=caemmerer_temperature_terms, constants=caemmerer_constants,
+    rates=caemmerer_leaf_rates, quantum_yield=caemmerer_quantum_yield,
+    limitation_codes={0: "invalid input", 1: "enzyme (Rubisco / PEP regeneration)", 2: "light",
+                      3: "CO2 (PEP carboxylase)"},
+))

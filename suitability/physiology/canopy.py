@@ -54,25 +54,23 @@ from typing import Any
 
 import numpy as np
 
-from .atmosphere import (
-    _is_xarray,
-    actual_vapour_pressure_from_tmin,
-    air_pressure_from_elevation,
-    in_range,
-    vapour_pressure_deficit,
-    where_valid,
-)
+from . import array_ops as ops
+from .array_ops import in_range, where_valid
+from .array_ops import is_xarray as _is_xarray
+from .atmosphere import actual_vapour_pressure_from_tmin, air_pressure_from_elevation, vapour_pressure_deficit
+from .elementwise import equation
 from .leaf import leaf_assimilation
 from .light import (
     day_length,
     daylight_integral_of_sin_elevation,
+    diffuse_absorption,
     diffuse_fraction_daily,
     extraterrestrial_radiation,
     par_from_shortwave,
     shortwave_daily_course,
     sin_solar_elevation,
     solar_declination,
-    sun_shade_absorbed_par,
+    sun_shade_absorbed_par_given,
 )
 from .params import resolve_params
 
@@ -106,6 +104,7 @@ class CanopyAssimilation:
     photorespiration: Any
 
 
+@equation
 def daily_temperature(tmin_c, tmax_c, solar_hour):
     """Air temperature through the day, a cosine between Tmin and Tmax peaking at 14:00 solar time.
 
@@ -122,8 +121,43 @@ def daily_temperature(tmin_c, tmax_c, solar_hour):
 
     Reference: common practice, no source (the form of Goudriaan & van Laar 1994, from memory).
     """
-    phase = 2.0 * np.pi * (solar_hour - HOUR_OF_MAXIMUM_TEMPERATURE) / 24.0
-    return 0.5 * (tmax_c + tmin_c) + 0.5 * (tmax_c - tmin_c) * np.cos(phase)
+    phase = 2.0 * ops.pi * (solar_hour - HOUR_OF_MAXIMUM_TEMPERATURE) / 24.0
+    return 0.5 * (tmax_c + tmin_c) + 0.5 * (tmax_c - tmin_c) * ops.cos(phase)
+
+
+@equation
+def daylight_moment(day_length_h, node, weight):
+    """Solar hour [h] and quadrature weight [s] of the Gauss-Legendre ``node`` x (weight w) over the
+    daylight period of N = ``day_length_h`` hours: t = 12 + (N/2) x, weight w (N/2) 3600."""
+    return 12.0 + 0.5 * day_length_h * node, weight * 0.5 * day_length_h * _SECONDS_PER_HOUR
+
+
+@equation
+def night_moment(day_length_h, node, weight):
+    """Solar hour [h] (negative hours are evening) and quadrature weight [s] of the Gauss-Legendre
+    ``node`` over the night around midnight: t = ((24 − N)/2) x, weight w ((24 − N)/2) 3600."""
+    half_night_h = 0.5 * (24.0 - day_length_h)
+    return half_night_h * node, weight * half_night_h * _SECONDS_PER_HOUR
+
+
+@equation
+def canopy_light(shortwave_mj, diffuse_shortwave_mj, sin_elevation, daylight_integral_s, daylight_integral_sin_s,
+                 lai, diffuse_absorbed_share):
+    """Sun/shade absorbed PAR of the canopy at one moment (:class:`~.light.SunShadeLight`).
+
+    The daily global radiation [MJ m-2 d-1] is spread over the day as sin β (1 + 0.4 sin β) and the daily
+    diffuse radiation [MJ m-2 d-1] as sin β (its daylight integral ``daylight_integral_sin_s`` [s]), the
+    diffuse flux capped at the global one (module docstring); both become PAR
+    (:func:`~.light.par_from_shortwave`), split into beam and diffuse, and are absorbed by the sunlit and
+    shaded leaves (de Pury & Farquhar 1997). ``sin_elevation`` [-]; ``daylight_integral_s`` [s];
+    ``lai`` [m2 m-2]; ``diffuse_absorbed_share`` from :func:`~.light.diffuse_absorption` of ``lai`` [-].
+    """
+    shortwave_w = shortwave_daily_course(shortwave_mj, sin_elevation, daylight_integral_s)
+    diffuse_w = ops.minimum(shortwave_daily_course(diffuse_shortwave_mj, sin_elevation, daylight_integral_sin_s, 0.0),
+                            shortwave_w)
+    par = par_from_shortwave(shortwave_w)
+    diffuse_par = par_from_shortwave(diffuse_w)
+    return sun_shade_absorbed_par_given(par - diffuse_par, diffuse_par, lai, sin_elevation, diffuse_absorbed_share)
 
 
 @dataclass(frozen=True)
@@ -162,12 +196,8 @@ def _leaf(day: _Day, temperature_c, absorbed_par):
 def _canopy_rates(day: _Day, solar_hour):
     """Net, gross and photorespiration of the canopy at one moment [µmol m-2 ground s-1]."""
     sin_b = sin_solar_elevation(day.latitude_deg, day.declination, solar_hour)
-    shortwave_w = shortwave_daily_course(day.shortwave_mj, sin_b, day.daylight_integral_s)
-    diffuse_w = np.minimum(shortwave_daily_course(day.diffuse_shortwave_mj, sin_b, day.daylight_integral_sin_s,
-                                                  atmospheric_factor=0.0), shortwave_w)
-    par = par_from_shortwave(shortwave_w)
-    diffuse_par = par_from_shortwave(diffuse_w)
-    light = sun_shade_absorbed_par(par - diffuse_par, diffuse_par, day.lai, sin_b)
+    light = canopy_light(day.shortwave_mj, day.diffuse_shortwave_mj, sin_b, day.daylight_integral_s,
+                         day.daylight_integral_sin_s, day.lai, diffuse_absorption(day.lai))
     temperature = daily_temperature(day.tmin_c, day.tmax_c, solar_hour)
     sun = _leaf(day, temperature, light.sunlit_absorbed_per_leaf)
     shade = _leaf(day, temperature, light.shaded_absorbed_per_leaf)
@@ -221,21 +251,18 @@ def _result(valid, net_umol, gross_umol, photorespiration_umol) -> CanopyAssimil
 def _gauss_integral(pathway, params, day_gauss_points, **inputs) -> CanopyAssimilation:
     """:func:`daily_canopy_assimilation` on in-memory (numpy or scalar) inputs."""
     day, valid = _prepare(pathway, params=params, **inputs)
-    day_half_s = 0.5 * day.day_length_h * _SECONDS_PER_HOUR
-    night_half_s = 0.5 * (24.0 - day.day_length_h) * _SECONDS_PER_HOUR
-
     net = gross = photorespiration = 0.0
     nodes, weights = np.polynomial.legendre.leggauss(day_gauss_points)
     for node, weight in zip(nodes, weights):
-        hour = 12.0 + 0.5 * day.day_length_h * node
+        hour, seconds = daylight_moment(day.day_length_h, node, weight)
         rate_net, rate_gross, rate_photorespiration = _canopy_rates(day, hour)
-        net = net + weight * day_half_s * rate_net
-        gross = gross + weight * day_half_s * rate_gross
-        photorespiration = photorespiration + weight * day_half_s * rate_photorespiration
+        net = net + seconds * rate_net
+        gross = gross + seconds * rate_gross
+        photorespiration = photorespiration + seconds * rate_photorespiration
     nodes, weights = np.polynomial.legendre.leggauss(NIGHT_GAUSS_POINTS)
     for node, weight in zip(nodes, weights):
-        hour = 0.5 * (24.0 - day.day_length_h) * node  # around midnight; negative hours are evening
-        net = net + weight * night_half_s * _dark_canopy_net(day, hour)
+        hour, seconds = night_moment(day.day_length_h, node, weight)
+        net = net + seconds * _dark_canopy_net(day, hour)
     return _result(valid, net, gross, photorespiration)
 
 

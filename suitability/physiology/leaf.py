@@ -19,18 +19,18 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .c3 import c3_assimilation
-from .c4 import c4_rates
-from .params import normalise_pathway, resolve_params
-from .rubisco import co2_partial_pressure_pa, o2_partial_pressure_pa
+from . import c3, c4  # noqa: F401  (registers the leaf models)
+from .array_ops import is_xarray as _is_xarray
+from .array_ops import where
+from .atmosphere import co2_partial_pressure_pa, o2_partial_pressure_pa
+from .models import LEAF_MODELS, leaf_model
+from .params import DEFAULT_SETS, normalise_pathway, resolve_params
 from .stomata import capacity_scale, intercellular_co2_ratio
-from .temperature import _is_xarray, where
 
-LIMITATION_CODES = {
-    "C3": {0: "invalid input", 1: "Rubisco", 2: "electron transport", 3: "triose-phosphate use"},
-    "C4": {0: "invalid input", 1: "enzyme (Rubisco / PEP regeneration)", 2: "light", 3: "CO2 (PEP carboxylase)"},
-}
-"""Meaning of ``LeafAssimilation.limitation`` per pathway."""
+LIMITATION_CODES = {pathway: LEAF_MODELS[resolve_params(pathway, name)["model"]].limitation_codes
+                    for pathway, name in DEFAULT_SETS.items()}
+"""Meaning of ``LeafAssimilation.limitation`` per pathway (of the default sets' models; every model's own
+codes are in its registry entry, :data:`suitability.physiology.models.LEAF_MODELS`)."""
 
 
 @dataclass(frozen=True)
@@ -135,19 +135,17 @@ def leaf_assimilation(pathway, temperature_c, absorbed_par, co2_ppm, *, o2_perce
         co2_pa = co2_partial_pressure_pa(ci_ppm, pressure)
         o2_pa = o2_partial_pressure_pa(o2, pressure)
         scale = capacity_scale(water, p)
-        if pathway == "C3":
-            rates = c3_assimilation(temperature, par, co2_pa, o2_pa, p, scale)
-            bundle_sheath = leakiness = rates.net * np.nan
-        else:
-            rates = c4_rates(temperature, par, co2_pa, o2_pa, p, scale)
-            bundle_sheath = rates.bundle_sheath_co2_pa / (pressure * 1e-3)
-            leakiness = rates.leakiness
+        model = leaf_model(p["model"], pathway)
+        rates = model.rates(model.temperature_terms(temperature, p), model.constants(p), par, co2_pa, o2_pa, scale)
+        broadcast = 0.0 * rates.net  # models without bundle-sheath terms return scalar NaN
+        bundle_sheath = broadcast + rates.bundle_sheath_co2_pa / (pressure * 1e-3)
+        leakiness = broadcast + rates.leakiness
         limitation = _finish(rates.limitation, valid, 0)
         return LeafAssimilation(
             net=_finish(rates.net, valid, np.nan),
             gross=_finish(rates.gross, valid, np.nan),
             photorespiration=_finish(rates.photorespiration, valid, np.nan),
-            limitation=limitation.astype(np.int8),
+            limitation=limitation.astype(np.int8) if hasattr(limitation, "astype") else np.int8(limitation),
             intercellular_co2=_finish(ci_ppm + 0.0 * rates.net, valid, np.nan),
             bundle_sheath_co2=_finish(bundle_sheath, valid, np.nan),
             leakiness=_finish(leakiness, valid, np.nan),

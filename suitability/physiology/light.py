@@ -12,12 +12,10 @@ Time of day is local apparent solar time in hours (12 = solar noon) throughout.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Any
+from typing import Any, NamedTuple
 
-import numpy as np
-
-from .atmosphere import in_range, where_valid
+from . import array_ops as ops
+from .elementwise import equation
 
 #: Solar constant of FAO-56 eq. 21, Gsc = 0.0820 MJ m-2 min-1, expressed per second [W m-2].
 SOLAR_CONSTANT_W_M2 = 0.0820e6 / 60.0
@@ -51,7 +49,8 @@ CANOPY_DIFFUSE_REFLECTION_PAR = 0.036
 MIN_SIN_ELEVATION = 1e-6
 
 
-def par_from_shortwave(shortwave, *, par_fraction=PAR_FRACTION_OF_SHORTWAVE,
+@equation
+def par_from_shortwave(shortwave, par_fraction=PAR_FRACTION_OF_SHORTWAVE,
                        photons_per_joule=PAR_PHOTONS_PER_JOULE):
     """Photosynthetically active photon flux from global shortwave radiation.
 
@@ -70,9 +69,10 @@ def par_from_shortwave(shortwave, *, par_fraction=PAR_FRACTION_OF_SHORTWAVE,
     -------
     PAR photon flux [µmol m-2 s-1] (or [mol m-2 d-1]).
     """
-    return where_valid(shortwave >= 0, shortwave * par_fraction * photons_per_joule)
+    return ops.where_valid(shortwave >= 0, shortwave * par_fraction * photons_per_joule)
 
 
+@equation
 def solar_declination(day_of_year):
     """Solar declination, FAO-56 eq. 24: δ = 0.409 sin(2π J / 365 − 1.39).
 
@@ -86,10 +86,11 @@ def solar_declination(day_of_year):
 
     Reference: Allen et al. (1998) FAO-56, eq. 24.
     """
-    valid = in_range(day_of_year, 1, 366)
-    return where_valid(valid, 0.409 * np.sin(2.0 * np.pi * day_of_year / 365.0 - 1.39))
+    valid = ops.in_range(day_of_year, 1, 366)
+    return ops.where_valid(valid, 0.409 * ops.sin(2.0 * ops.pi * day_of_year / 365.0 - 1.39))
 
 
+@equation
 def inverse_relative_distance(day_of_year):
     """Inverse relative Earth-Sun distance, FAO-56 eq. 23: dr = 1 + 0.033 cos(2π J / 365).
 
@@ -103,10 +104,11 @@ def inverse_relative_distance(day_of_year):
 
     Reference: Allen et al. (1998) FAO-56, eq. 23.
     """
-    valid = in_range(day_of_year, 1, 366)
-    return where_valid(valid, 1.0 + 0.033 * np.cos(2.0 * np.pi * day_of_year / 365.0))
+    valid = ops.in_range(day_of_year, 1, 366)
+    return ops.where_valid(valid, 1.0 + 0.033 * ops.cos(2.0 * ops.pi * day_of_year / 365.0))
 
 
+@equation
 def sunset_hour_angle(latitude_deg, declination_rad):
     """Sunset hour angle, FAO-56 eq. 25: ωs = arccos(−tan φ tan δ).
 
@@ -123,19 +125,27 @@ def sunset_hour_angle(latitude_deg, declination_rad):
 
     Reference: Allen et al. (1998) FAO-56, eq. 25.
     """
-    valid = in_range(latitude_deg, -90.0, 90.0)
-    phi = np.deg2rad(where_valid(valid, latitude_deg, 0.0))
-    # np.minimum/np.maximum rather than np.clip: they are ufuncs, which xarray and dask keep lazy.
-    omega = np.arccos(np.minimum(np.maximum(-np.tan(phi) * np.tan(declination_rad), -1.0), 1.0))
-    return where_valid(valid, omega)
+    valid = ops.in_range(latitude_deg, -90.0, 90.0)
+    phi = ops.deg2rad(ops.where_valid(valid, latitude_deg, 0.0))
+    # ops.minimum/ops.maximum rather than ops.clip: they are ufuncs, which xarray and dask keep lazy.
+    omega = ops.arccos(ops.minimum(ops.maximum(-ops.tan(phi) * ops.tan(declination_rad), -1.0), 1.0))
+    return ops.where_valid(valid, omega)
 
 
-def _sine_terms(latitude_deg, declination_rad):
-    """a = sin φ sin δ and b = cos φ cos δ, so that sin β = a + b cos ω."""
-    phi = np.deg2rad(latitude_deg)
-    return np.sin(phi) * np.sin(declination_rad), np.cos(phi) * np.cos(declination_rad)
+@equation
+def solar_elevation_terms(latitude_deg, declination_rad):
+    """a = sin φ sin δ and b = cos φ cos δ [-], so that sin β = a + b cos ω (see :func:`sin_solar_elevation`).
+
+    Parameters
+    ----------
+    latitude_deg : φ [degrees north].
+    declination_rad : δ [rad].
+    """
+    phi = ops.deg2rad(latitude_deg)
+    return ops.sin(phi) * ops.sin(declination_rad), ops.cos(phi) * ops.cos(declination_rad)
 
 
+@equation
 def extraterrestrial_radiation(latitude_deg, day_of_year):
     """Daily extraterrestrial radiation on a horizontal surface, FAO-56 eq. 21.
 
@@ -154,11 +164,12 @@ def extraterrestrial_radiation(latitude_deg, day_of_year):
     """
     declination = solar_declination(day_of_year)
     omega_s = sunset_hour_angle(latitude_deg, declination)
-    a, b = _sine_terms(latitude_deg, declination)
-    return 24.0 * 60.0 / np.pi * 0.0820 * inverse_relative_distance(day_of_year) * (
-        omega_s * a + b * np.sin(omega_s))
+    a, b = solar_elevation_terms(latitude_deg, declination)
+    return 24.0 * 60.0 / ops.pi * 0.0820 * inverse_relative_distance(day_of_year) * (
+        omega_s * a + b * ops.sin(omega_s))
 
 
+@equation
 def day_length(latitude_deg, day_of_year):
     """Daylight hours, FAO-56 eq. 34: N = 24 ωs / π.
 
@@ -173,9 +184,10 @@ def day_length(latitude_deg, day_of_year):
 
     Reference: Allen et al. (1998) FAO-56, eq. 34.
     """
-    return 24.0 / np.pi * sunset_hour_angle(latitude_deg, solar_declination(day_of_year))
+    return 24.0 / ops.pi * sunset_hour_angle(latitude_deg, solar_declination(day_of_year))
 
 
+@equation
 def sin_solar_elevation(latitude_deg, declination_rad, solar_hour):
     """Sine of the solar elevation: sin β = sin φ sin δ + cos φ cos δ cos ω, ω = π (t − 12) / 12.
 
@@ -194,10 +206,23 @@ def sin_solar_elevation(latitude_deg, declination_rad, solar_hour):
     Reference: Spitters et al. (1986) eq. 6 (equation number from memory); the hour angle as FAO-56
     eq. 31 in solar time.
     """
-    a, b = _sine_terms(latitude_deg, declination_rad)
-    return a + b * np.cos(np.pi * (solar_hour - 12.0) / 12.0)
+    a, b = solar_elevation_terms(latitude_deg, declination_rad)
+    return sin_solar_elevation_from_terms(a, b, solar_hour)
 
 
+@equation
+def sin_solar_elevation_from_terms(a, b, solar_hour):
+    """sin β = a + b cos ω with ω = π (t − 12) / 12, from a and b of :func:`solar_elevation_terms` [-].
+
+    Parameters
+    ----------
+    a, b : sin φ sin δ and cos φ cos δ [-].
+    solar_hour : t, local apparent solar time [h].
+    """
+    return a + b * ops.cos(ops.pi * (solar_hour - 12.0) / 12.0)
+
+
+@equation
 def daylight_integral_of_sin_elevation(latitude_deg, declination_rad,
                                        atmospheric_factor=DAILY_COURSE_ATMOSPHERIC_FACTOR):
     """Integral over the daylight period of sin β (1 + c sin β), in seconds.
@@ -219,14 +244,15 @@ def daylight_integral_of_sin_elevation(latitude_deg, declination_rad,
     The integral [s] (0 in polar night).
     """
     omega_s = sunset_hour_angle(latitude_deg, declination_rad)
-    a, b = _sine_terms(latitude_deg, declination_rad)
-    sin_w = np.sin(omega_s)
-    integral_sin = 24.0 / np.pi * (a * omega_s + b * sin_w)
-    integral_sin2 = 12.0 / np.pi * (2 * a * a * omega_s + 4 * a * b * sin_w
-                                    + b * b * (omega_s + sin_w * np.cos(omega_s)))
+    a, b = solar_elevation_terms(latitude_deg, declination_rad)
+    sin_w = ops.sin(omega_s)
+    integral_sin = 24.0 / ops.pi * (a * omega_s + b * sin_w)
+    integral_sin2 = 12.0 / ops.pi * (2 * a * a * omega_s + 4 * a * b * sin_w
+                                    + b * b * (omega_s + sin_w * ops.cos(omega_s)))
     return 3600.0 * (integral_sin + atmospheric_factor * integral_sin2)
 
 
+@equation
 def shortwave_daily_course(daily_shortwave_mj, sin_elevation, daylight_integral_s,
                            atmospheric_factor=DAILY_COURSE_ATMOSPHERIC_FACTOR):
     """Global radiation at one moment from the daily total, distributed as sin β (1 + 0.4 sin β).
@@ -247,12 +273,13 @@ def shortwave_daily_course(daily_shortwave_mj, sin_elevation, daylight_integral_
     Reference: Goudriaan & van Laar (1994); Spitters et al. (1986) (form from memory).
     """
     sun_up = (sin_elevation > 0) & (daylight_integral_s > 0)
-    safe_integral = where_valid(sun_up, daylight_integral_s, 1.0)
-    sin_b = np.maximum(sin_elevation, 0.0)
+    safe_integral = ops.where_valid(sun_up, daylight_integral_s, 1.0)
+    sin_b = ops.maximum(sin_elevation, 0.0)
     course = 1e6 * daily_shortwave_mj * sin_b * (1.0 + atmospheric_factor * sin_b) / safe_integral
-    return where_valid(daily_shortwave_mj >= 0, where_valid(sun_up, course, 0.0))
+    return ops.where_valid(daily_shortwave_mj >= 0, ops.where_valid(sun_up, course, 0.0))
 
 
+@equation
 def diffuse_fraction_daily(clearness):
     """Diffuse share of daily global radiation from the daily clearness τ = Sg / Ra.
 
@@ -273,12 +300,13 @@ def diffuse_fraction_daily(clearness):
     published restatements.
     """
     tau = clearness
-    fraction = where_valid(tau < 0.07, 1.0,
-                           where_valid(tau < 0.35, 1.0 - 2.3 * (tau - 0.07) ** 2,
-                                       where_valid(tau < 0.75, 1.33 - 1.46 * tau, 0.23)))
-    return where_valid(tau >= 0, fraction)
+    fraction = ops.where_valid(tau < 0.07, 1.0,
+                           ops.where_valid(tau < 0.35, 1.0 - 2.3 * (tau - 0.07) ** 2,
+                                       ops.where_valid(tau < 0.75, 1.33 - 1.46 * tau, 0.23)))
+    return ops.where_valid(tau >= 0, fraction)
 
 
+@equation
 def diffuse_fraction_instantaneous(clearness, sin_elevation):
     """Diffuse share of global radiation at one moment from the clearness τ = Sg / (Gsc dr sin β).
 
@@ -301,15 +329,16 @@ def diffuse_fraction_instantaneous(clearness, sin_elevation):
     memory, matching published restatements).
     """
     tau = clearness
-    s = np.minimum(np.maximum(sin_elevation, 0.0), 1.0)
+    s = ops.minimum(ops.maximum(sin_elevation, 0.0), 1.0)
     clear_limit = 0.847 - 1.61 * s + 1.04 * s * s
     knee = (1.47 - clear_limit) / 1.66
-    fraction = where_valid(tau < 0.22, 1.0,
-                           where_valid(tau < 0.35, 1.0 - 6.4 * (tau - 0.22) ** 2,
-                                       where_valid(tau < knee, 1.47 - 1.66 * tau, clear_limit)))
-    return where_valid(tau >= 0, fraction)
+    fraction = ops.where_valid(tau < 0.22, 1.0,
+                           ops.where_valid(tau < 0.35, 1.0 - 6.4 * (tau - 0.22) ** 2,
+                                       ops.where_valid(tau < knee, 1.47 - 1.66 * tau, clear_limit)))
+    return ops.where_valid(tau >= 0, fraction)
 
 
+@equation
 def beam_extinction_coefficient(sin_elevation):
     """Extinction coefficient of the direct beam for black leaves of spherical angle distribution.
 
@@ -325,9 +354,10 @@ def beam_extinction_coefficient(sin_elevation):
 
     Reference: de Pury & Farquhar (1997) Table A1 (spherical leaf angle distribution).
     """
-    return 0.5 / np.maximum(sin_elevation, MIN_SIN_ELEVATION)
+    return 0.5 / ops.maximum(sin_elevation, MIN_SIN_ELEVATION)
 
 
+@equation
 def scattered_extinction_coefficient(black_leaf_coefficient, scattering=LEAF_SCATTERING_PAR):
     """Extinction coefficient of beam (or diffuse) plus scattered light: k' = k √(1 − σ).
 
@@ -342,9 +372,10 @@ def scattered_extinction_coefficient(black_leaf_coefficient, scattering=LEAF_SCA
 
     Reference: de Pury & Farquhar (1997) Table A1 (kb' = kb √(1 − σ), kd' = 0.719).
     """
-    return black_leaf_coefficient * np.sqrt(1.0 - scattering)
+    return black_leaf_coefficient * ops.sqrt(1.0 - scattering)
 
 
+@equation
 def canopy_beam_reflection(beam_extinction, scattering=LEAF_SCATTERING_PAR):
     """Canopy reflection coefficient for beam irradiance of a deep canopy.
 
@@ -361,11 +392,12 @@ def canopy_beam_reflection(beam_extinction, scattering=LEAF_SCATTERING_PAR):
 
     Reference: de Pury & Farquhar (1997) Table A1 (after Goudriaan 1977) (from memory).
     """
-    root = np.sqrt(1.0 - scattering)
+    root = ops.sqrt(1.0 - scattering)
     horizontal = (1.0 - root) / (1.0 + root)
-    return 1.0 - np.exp(-2.0 * horizontal * beam_extinction / (1.0 + beam_extinction))
+    return ops.one_minus_exp_neg(2.0 * horizontal * beam_extinction / (1.0 + beam_extinction))
 
 
+@equation
 def sunlit_leaf_area_index(lai, beam_extinction):
     """Sunlit leaf area per ground area: Lsun = (1 − exp(−kb L)) / kb.
 
@@ -380,11 +412,10 @@ def sunlit_leaf_area_index(lai, beam_extinction):
 
     Reference: de Pury & Farquhar (1997) eq. 18 (equation number from memory).
     """
-    return -np.expm1(-beam_extinction * lai) / beam_extinction
+    return ops.one_minus_exp_neg(beam_extinction * lai) / beam_extinction
 
 
-@dataclass(frozen=True)
-class SunShadeLight:
+class SunShadeLight(NamedTuple):
     """PAR absorbed by the sunlit and shaded leaves of a canopy (de Pury & Farquhar 1997).
 
     Per-ground fields are [µmol m-2 ground s-1]; per-leaf fields [µmol m-2 leaf s-1] are the mean over
@@ -400,14 +431,25 @@ class SunShadeLight:
     shaded_absorbed_per_leaf: Any
 
 
-def _one_minus_exp(x):
-    return -np.expm1(-x)
+@equation
+def diffuse_absorption(lai, scattering=LEAF_SCATTERING_PAR, diffuse_extinction=DIFFUSE_EXTINCTION_BLACK_LEAVES):
+    """E(kd') = 1 − exp(−kd' L), the share of diffuse light the canopy intercepts [-].
+
+    kd' = kd √(1 − σ) (:func:`scattered_extinction_coefficient`). It depends on the canopy only, so a
+    caller that evaluates many moments of one day computes it once (:func:`sun_shade_absorbed_par_given`).
+
+    Parameters
+    ----------
+    lai : L [m2 m-2].
+    scattering : σ [-]; diffuse_extinction : kd for black leaves [-].
+    """
+    return ops.one_minus_exp_neg(scattered_extinction_coefficient(diffuse_extinction, scattering) * lai)
 
 
-def sun_shade_absorbed_par(beam_par, diffuse_par, lai, sin_elevation, *,
-                           scattering=LEAF_SCATTERING_PAR,
+@equation
+def sun_shade_absorbed_par(beam_par, diffuse_par, lai, sin_elevation, scattering=LEAF_SCATTERING_PAR,
                            diffuse_extinction=DIFFUSE_EXTINCTION_BLACK_LEAVES,
-                           diffuse_reflection=CANOPY_DIFFUSE_REFLECTION_PAR) -> SunShadeLight:
+                           diffuse_reflection=CANOPY_DIFFUSE_REFLECTION_PAR):
     """Absorbed PAR of the sunlit and the shaded leaves of a canopy, de Pury & Farquhar (1997).
 
     With kb = 0.5/sin β, kb' = kb √(1−σ), kd' = kd √(1−σ), ρcb from :func:`canopy_beam_reflection`,
@@ -420,8 +462,10 @@ def sun_shade_absorbed_par(beam_par, diffuse_par, lai, sin_elevation, *,
     shaded   Ish  = (1−ρcd) Id [E(kd') − kd'/(kd'+kb) E(kd'+kb)]
                   + Ib [(1−ρcb) (E(kb') − kb'/(kb'+kb) E(kb'+kb)) − (1−σ) (E(kb) − E(2 kb)/2)]
 
-    The shaded part is computed from its own integral (not as Ic − Isun), so Isun + Ish = Ic is a
-    check of the algebra. Leaf capacity and absorptance are not scaled through the canopy here.
+    E of a sum of coefficients follows from E of each, E(k1 + k2) = E1 + E2 − E1 E2 (exact), so only
+    E(kb), E(kb') and E(kd') take an exponential. The shaded part is computed from its own integral (not
+    as Ic − Isun), so Isun + Ish = Ic is a check of the algebra. Leaf capacity and absorptance are not
+    scaled through the canopy here.
 
     Parameters
     ----------
@@ -439,44 +483,51 @@ def sun_shade_absorbed_par(beam_par, diffuse_par, lai, sin_elevation, *,
 
     Reference: de Pury & Farquhar (1997) eqs. 13-20 and Table A1 (equation numbers from memory).
     """
+    return sun_shade_absorbed_par_given(beam_par, diffuse_par, lai, sin_elevation,
+                                        diffuse_absorption(lai, scattering, diffuse_extinction), scattering,
+                                        diffuse_extinction, diffuse_reflection)
+
+
+@equation
+def sun_shade_absorbed_par_given(beam_par, diffuse_par, lai, sin_elevation, diffuse_absorbed_share,
+                                 scattering=LEAF_SCATTERING_PAR,
+                                 diffuse_extinction=DIFFUSE_EXTINCTION_BLACK_LEAVES,
+                                 diffuse_reflection=CANOPY_DIFFUSE_REFLECTION_PAR):
+    """:func:`sun_shade_absorbed_par` with E(kd') given (``diffuse_absorbed_share``, from
+    :func:`diffuse_absorption` of the same ``lai`` and coefficients) [-]."""
     valid = (beam_par >= 0) & (diffuse_par >= 0) & (lai >= 0)
     kb = beam_extinction_coefficient(sin_elevation)
     kb_s = scattered_extinction_coefficient(kb, scattering)
     kd_s = scattered_extinction_coefficient(diffuse_extinction, scattering)
-    rho_cb = canopy_beam_reflection(kb, scattering)
-    absorbed_beam = (1.0 - rho_cb) * beam_par
+    absorbed_beam = (1.0 - canopy_beam_reflection(kb, scattering)) * beam_par
     absorbed_diffuse = (1.0 - diffuse_reflection) * diffuse_par
+    direct = beam_par * (1.0 - scattering)
+    e_kd = diffuse_absorbed_share
+    e_kb = ops.one_minus_exp_neg(kb * lai)
+    e_kbs = ops.one_minus_exp_neg(kb_s * lai)
+    e_2kb = e_kb * (2.0 - e_kb)
+    diffuse_to_sunlit = kd_s / (kd_s + kb) * (e_kd + e_kb - e_kd * e_kb)
+    scattered_to_sunlit = kb_s / (kb_s + kb) * (e_kbs + e_kb - e_kbs * e_kb)
+    canopy = absorbed_beam * e_kbs + absorbed_diffuse * e_kd
+    sunlit = (direct * e_kb + absorbed_diffuse * diffuse_to_sunlit
+              + absorbed_beam * scattered_to_sunlit - direct * e_2kb / 2.0)
+    shaded = (absorbed_diffuse * (e_kd - diffuse_to_sunlit)
+              + absorbed_beam * (e_kbs - scattered_to_sunlit)
+              - direct * (e_kb - e_2kb / 2.0))
 
-    def e(k):
-        return _one_minus_exp(k * lai)
-
-    diffuse_to_sunlit = kd_s / (kd_s + kb) * e(kd_s + kb)
-    scattered_to_sunlit = kb_s / (kb_s + kb) * e(kb_s + kb)
-    canopy = absorbed_beam * e(kb_s) + absorbed_diffuse * e(kd_s)
-    sunlit = (beam_par * (1.0 - scattering) * e(kb)
-              + absorbed_diffuse * diffuse_to_sunlit
-              + absorbed_beam * scattered_to_sunlit - beam_par * (1.0 - scattering) * e(2.0 * kb) / 2.0)
-    shaded = (absorbed_diffuse * (e(kd_s) - diffuse_to_sunlit)
-              + absorbed_beam * (e(kb_s) - scattered_to_sunlit)
-              - beam_par * (1.0 - scattering) * (e(kb) - e(2.0 * kb) / 2.0))
-
-    sunlit_lai = sunlit_leaf_area_index(lai, kb)
-    shaded_lai = np.maximum(lai - sunlit_lai, 0.0)
+    sunlit_lai = e_kb / kb  # sunlit_leaf_area_index, with E(kb) already at hand
+    shaded_lai = ops.maximum(lai - sunlit_lai, 0.0)
     # Rounding can leave a tiny negative absorbed flux for very thin canopies: clip, it has no area.
-    sunlit_per_leaf = where_valid(sunlit_lai > 0, np.maximum(sunlit, 0.0)
-                                  / where_valid(sunlit_lai > 0, sunlit_lai, 1.0), 0.0)
-    shaded_per_leaf = where_valid(shaded_lai > 0, np.maximum(shaded, 0.0)
-                                  / where_valid(shaded_lai > 0, shaded_lai, 1.0), 0.0)
-
-    def masked(x):
-        return where_valid(valid, x)
-
+    sunlit_per_leaf = ops.where(sunlit_lai > 0, ops.maximum(sunlit, 0.0)
+                                / ops.where(sunlit_lai > 0, sunlit_lai, 1.0), 0.0)
+    shaded_per_leaf = ops.where(shaded_lai > 0, ops.maximum(shaded, 0.0)
+                                / ops.where(shaded_lai > 0, shaded_lai, 1.0), 0.0)
     return SunShadeLight(
-        sunlit_lai=masked(sunlit_lai),
-        shaded_lai=masked(shaded_lai),
-        sunlit_absorbed=masked(sunlit),
-        shaded_absorbed=masked(shaded),
-        canopy_absorbed=masked(canopy),
-        sunlit_absorbed_per_leaf=masked(sunlit_per_leaf),
-        shaded_absorbed_per_leaf=masked(shaded_per_leaf),
+        ops.where_valid(valid, sunlit_lai),
+        ops.where_valid(valid, shaded_lai),
+        ops.where_valid(valid, sunlit),
+        ops.where_valid(valid, shaded),
+        ops.where_valid(valid, canopy),
+        ops.where_valid(valid, sunlit_per_leaf),
+        ops.where_valid(valid, shaded_per_leaf),
     )

@@ -36,6 +36,8 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
+from .atmosphere import co2_partial_pressure_pa, o2_partial_pressure_pa  # noqa: F401  (re-exported)
+from .elementwise import equation
 from .temperature import arrhenius, q10_response
 
 STANDARD_PRESSURE_KPA = 101.325
@@ -94,16 +96,7 @@ class RubiscoConstants(NamedTuple):
     gamma_star: object
 
 
-def co2_partial_pressure_pa(co2_ppm, pressure_kpa):
-    """CO2 partial pressure [Pa] from mole fraction [µmol mol-1] and air pressure [kPa]: p = x · P."""
-    return co2_ppm * pressure_kpa * 1e-3
-
-
-def o2_partial_pressure_pa(o2_percent, pressure_kpa):
-    """O2 partial pressure [Pa] from mole fraction [%] and air pressure [kPa]: p = x · P."""
-    return o2_percent * pressure_kpa * 10.0
-
-
+@equation
 def effective_michaelis_constant(kc, ko, o2):
     """Km = Kc (1 + O/Ko), the Michaelis constant for CO2 in the presence of O2 [units of kc].
 

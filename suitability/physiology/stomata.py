@@ -14,11 +14,11 @@ capacities by W; ``capacity_scale`` returns that factor.
 
 from __future__ import annotations
 
-import numpy as np
+from . import array_ops as ops
+from .elementwise import equation
 
-from .temperature import weak_scalar, where
 
-
+@equation
 def medlyn_ci_ratio(vpd_kpa, g1, water_availability=1.0):
     """Ci/Ca = g1 W / (g1 W + √D) [-] (Medlyn et al. 2011 with g0 = 0; g1 scaled by water availability).
 
@@ -29,9 +29,9 @@ def medlyn_ci_ratio(vpd_kpa, g1, water_availability=1.0):
     water_availability : W [-], 0 (none) .. 1 (unstressed)
     """
     slope = g1 * water_availability
-    denominator = slope + weak_scalar(np.sqrt(vpd_kpa))
+    denominator = slope + ops.weak_scalar(ops.sqrt(vpd_kpa))
     # Closed stomata in saturated air (W = 0 and D = 0) is 0/0; closed stomata win: Ci/Ca = 0.
-    return where(denominator > 0, slope / where(denominator > 0, denominator, 1.0), 0.0)
+    return ops.where(denominator > 0, slope / ops.where(denominator > 0, denominator, 1.0), 0.0)
 
 
 def intercellular_co2_ratio(vpd_kpa, water_availability, params):
@@ -51,3 +51,23 @@ def intercellular_co2_ratio(vpd_kpa, water_availability, params):
 def capacity_scale(water_availability, params):
     """Factor on the carboxylation capacities: W if ``water_stress_on_vcmax`` else 1 [-]."""
     return water_availability if params["water_stress_on_vcmax"] else 1.0
+
+
+def stomatal_constants(params) -> tuple:
+    """(g1 [kPa^0.5], fixed Ci/Ca [-], 1.0 if the stomatal model is "fixed" else 0.0, 1.0 if water stress
+    also scales the carboxylation capacities else 0.0) of a resolved parameter mapping, for
+    :func:`ci_ratio_given` and :func:`capacity_scale_given`."""
+    return (float(params["g1"]), float(params["ci_ratio"]), 1.0 if params["stomatal_model"] == "fixed" else 0.0,
+            1.0 if params["water_stress_on_vcmax"] else 0.0)
+
+
+@equation
+def ci_ratio_given(vpd_kpa, water_availability, constants):
+    """Ci/Ca [-] of :func:`intercellular_co2_ratio` from :func:`stomatal_constants` instead of a mapping."""
+    return ops.where(constants[2] == 1.0, constants[1], medlyn_ci_ratio(vpd_kpa, constants[0], water_availability))
+
+
+@equation
+def capacity_scale_given(water_availability, constants):
+    """:func:`capacity_scale` from :func:`stomatal_constants` instead of a mapping [-]."""
+    return ops.where(constants[3] == 1.0, water_availability, 1.0)

@@ -1,4 +1,4 @@
-"""Temperature response functions, and the elementwise selection helper the physiology modules share.
+"""Temperature response functions.
 
 Every response here is *normalised*: it returns the factor by which a rate or constant at 25 °C is
 multiplied, so ``k(T) = k25 * response(T)``. All functions are pure numpy broadcasting (ufuncs and
@@ -17,6 +17,9 @@ from __future__ import annotations
 
 import numpy as np
 
+from .array_ops import is_xarray as _is_xarray  # noqa: F401  (re-exported)
+from .array_ops import weak_scalar, where  # noqa: F401  (re-exported)
+
 R_GAS = 8.314
 """Universal gas constant [J mol-1 K-1], the value used by Bernacchi et al. (2001) and Medlyn et al. (2002)."""
 
@@ -25,31 +28,6 @@ KELVIN_OFFSET = 273.15
 
 REFERENCE_TEMPERATURE_K = 298.15
 """25 °C, the reference temperature of all normalised responses [K]."""
-
-
-def _is_xarray(value) -> bool:
-    # Checked by module name so that numpy-only callers never pay for importing xarray.
-    return type(value).__module__.split(".")[0] == "xarray"
-
-
-def where(condition, if_true, if_false):
-    """Elementwise ``condition ? if_true : if_false`` that keeps the kind of its inputs.
-
-    ``xarray.where`` when any argument is an xarray object (dask-backed ones stay lazy), ``numpy.where``
-    otherwise (which dispatches to ``dask.array.where`` for bare dask arrays).
-    """
-    if _is_xarray(condition) or _is_xarray(if_true) or _is_xarray(if_false):
-        import xarray as xr
-
-        return xr.where(condition, if_true, if_false)
-    return np.where(condition, if_true, if_false)
-
-
-def weak_scalar(value):
-    """A numpy scalar or 0-d array as a Python float, which does not upcast float32 arrays (NEP 50)."""
-    if isinstance(value, (np.generic, np.ndarray)) and np.ndim(value) == 0:
-        return float(value)
-    return value
 
 
 def arrhenius(temperature_c, activation_energy):
