@@ -61,6 +61,7 @@ from .atmosphere import actual_vapour_pressure_from_tmin, air_pressure_from_elev
 from .elementwise import equation
 from .leaf import leaf_assimilation
 from .light import (
+    daily_clearness,
     day_length,
     daylight_integral_of_sin_elevation,
     diffuse_absorption,
@@ -123,6 +124,17 @@ def daily_temperature(tmin_c, tmax_c, solar_hour):
     """
     phase = 2.0 * ops.pi * (solar_hour - HOUR_OF_MAXIMUM_TEMPERATURE) / 24.0
     return 0.5 * (tmax_c + tmin_c) + 0.5 * (tmax_c - tmin_c) * ops.cos(phase)
+
+
+@equation
+def valid_day_inputs(tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year, lai, pressure_kpa):
+    """True where a day's inputs can be computed: finite Tmin <= Tmax [°C], shortwave >= 0 and finite
+    [MJ m-2 d-1], latitude −90..90 [°], day 1-366, LAI >= 0 and finite [m2 m-2], a finite air pressure
+    [kPa] (NaN from an elevation out of range). The leaf model checks its own inputs per moment."""
+    return (ops.in_range(tmin_c, -1e300, tmax_c) & ops.in_range(tmax_c, tmin_c, 1e300)
+            & ops.in_range(shortwave_mj, 0.0, 1e300) & ops.in_range(latitude_deg, -90.0, 90.0)
+            & ops.in_range(day_of_year, 1.0, 366.0) & ops.in_range(lai, 0.0, 1e300)
+            & ops.in_range(pressure_kpa, 0.0, 1e300))
 
 
 @equation
@@ -218,15 +230,12 @@ def _prepare(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year
     ``params`` is already resolved (:func:`_run`); the leaf model accepts the resolved mapping as it is.
     """
     pressure = air_pressure_from_elevation(elevation_m)
-    valid = (np.isfinite(tmin_c) & np.isfinite(tmax_c) & (tmin_c <= tmax_c) & (shortwave_mj >= 0)
-             & in_range(latitude_deg, -90.0, 90.0) & in_range(day_of_year, 1, 366) & (lai >= 0)
-             & np.isfinite(pressure))
+    valid = valid_day_inputs(tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year, lai, pressure)
     if actual_vapour_pressure_kpa is None:
         actual_vapour_pressure_kpa = actual_vapour_pressure_from_tmin(tmin_c)
     declination = solar_declination(day_of_year)
     extraterrestrial = extraterrestrial_radiation(latitude_deg, day_of_year)
-    sun_rises = extraterrestrial > 0
-    clearness = where_valid(sun_rises, shortwave_mj / where_valid(sun_rises, extraterrestrial, 1.0), 0.0)
+    clearness = daily_clearness(shortwave_mj, extraterrestrial)
     day = _Day(
         pathway=pathway, tmin_c=tmin_c, tmax_c=tmax_c, shortwave_mj=shortwave_mj,
         latitude_deg=latitude_deg, declination=declination,

@@ -31,7 +31,7 @@ from . import scalar_ops
 #: numba options of every compiled equation. error_model="numpy": a division by zero gives inf/NaN as
 #: in numpy. Of the fast-math flags only "contract" (fused multiply-add): NaN and inf semantics stay
 #: (nodata must propagate) and a cell's numbers do not depend on its place in a batch.
-JIT_OPTIONS = dict(nogil=True, error_model="numpy", fastmath={"contract"})
+JIT_OPTIONS = dict(nogil=True, error_model="numpy", fastmath={"contract"}, _nrt=False)
 
 _EQUATION = "__suitability_equation__"
 _TEMPLATE = "__suitability_template__"

@@ -280,6 +280,19 @@ def shortwave_daily_course(daily_shortwave_mj, sin_elevation, daylight_integral_
 
 
 @equation
+def daily_clearness(shortwave_mj, extraterrestrial_mj):
+    """Daily clearness τ = Sg / Ra [-]; 0 where the sun does not rise (Ra = 0).
+
+    Parameters
+    ----------
+    shortwave_mj : daily global radiation Sg [MJ m-2 d-1].
+    extraterrestrial_mj : daily extraterrestrial radiation Ra (:func:`extraterrestrial_radiation`) [MJ m-2 d-1].
+    """
+    sun_rises = extraterrestrial_mj > 0
+    return ops.where_valid(sun_rises, shortwave_mj / ops.where_valid(sun_rises, extraterrestrial_mj, 1.0), 0.0)
+
+
+@equation
 def diffuse_fraction_daily(clearness):
     """Diffuse share of daily global radiation from the daily clearness τ = Sg / Ra.
 

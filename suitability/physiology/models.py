@@ -38,7 +38,7 @@ class LeafRates(NamedTuple):
     leakiness: Any
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class LeafModel:
     """One entry of :data:`LEAF_MODELS` (module docstring)."""
 

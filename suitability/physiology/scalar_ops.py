@@ -17,7 +17,7 @@ import math
 
 import numba
 
-_JIT = dict(inline="always", nogil=True, error_model="numpy", fastmath={"contract"})
+_JIT = dict(inline="always", nogil=True, error_model="numpy", fastmath={"contract"}, _nrt=False)
 _INV_FACTORIAL = tuple(1.0 / math.factorial(k) for k in range(23))
 #: Below −80 an exponential is below 2e-35, nothing next to the 1 it is subtracted from.
 _EXP_FLOOR = -80.0
