@@ -8,37 +8,14 @@ from __future__ import annotations
 
 import csv
 import itertools
-import math
 
 import pytest
-from scipy.optimize import brentq
 
 from suitability.curves import leaf_curves, write_curves
 from suitability.physiology.crossover import crossover_temperature
 from suitability.physiology.params import PARAMETER_SETS
 
-R = 8.314  # J mol-1 K-1
-
-
-def hand_crossover_collatz_alpha(alpha: float, co2_ppm: float, o2_percent: float = 20.95) -> float:
-    """Crossover [°C] of the default C3 set (f = 0.32, Bernacchi Γ*) against a Collatz C4 yield ``alpha``.
-
-    Derived here, independently of the package code:
-    C3 light-limited yield φ3 = φ0 (C − Γ*)/(C + 2Γ*), φ0 = (1 − f)/8 (Farquhar et al. 1980; the form of
-    Ehleringer et al. 1997 and Collatz et al. 1998); C4 yield = α (Collatz et al. 1992).
-    φ3 = α  <=>  Γ* = C (φ0 − α)/(φ0 + 2α)   (C and Γ* as mole fractions at the same pressure).
-    Γ*(T) = 42.75 µmol mol-1 · exp[37830 (Tk − 298.15)/(298.15 R Tk)] at O = 210 mmol mol-1
-    (Bernacchi et al. 2001, Table 1), scaled in proportion to O (Γ* = 0.5 O/τ, Farquhar et al. 1980).
-    Solved for T with scipy's brentq on 0-50 °C.
-    """
-    phi0 = (1.0 - 0.32) / 8.0  # f = 0.32: the documented default of the bernacchi2001 set (params.py)
-    gamma_needed = co2_ppm * (phi0 - alpha) / (phi0 + 2.0 * alpha)
-
-    def gamma_star(t_c):
-        tk = t_c + 273.15
-        return 42.75 * (o2_percent / 21.0) * math.exp(37830.0 * (tk - 298.15) / (298.15 * R * tk))
-
-    return brentq(lambda t: gamma_star(t) - gamma_needed, 0.0, 50.0, xtol=1e-12)
+from hand_derived import crossover_with_collatz_c4  # derived here from published equations (see there)
 
 
 def test_alpha_override_moves_the_crossover_of_the_curves():
@@ -47,9 +24,9 @@ def test_alpha_override_moves_the_crossover_of_the_curves():
     c4 = {"parameter_set": "collatz1992", "alpha": 0.04}
     _, crossings = leaf_curves([420.0], c4_params=c4)
     got = float(crossings.loc[0, "crossover_temperature_c"])
-    expected = hand_crossover_collatz_alpha(0.04, 420.0)  # derived here (see the helper): 45.64 °C
+    expected = crossover_with_collatz_c4(0.04, 420.0)  # derived here (hand_derived.py): 45.64 °C
     assert got == pytest.approx(expected, abs=1e-6)
-    default = hand_crossover_collatz_alpha(0.0625, 420.0)  # derived here: 26.05 °C with the default alpha
+    default = crossover_with_collatz_c4(0.0625, 420.0)  # derived here: 26.05 °C with the default alpha
     assert got - default > 15.0  # the old behaviour (default parameters) gave the default value
 
 
@@ -68,5 +45,5 @@ def test_write_curves_passes_the_parameters_to_the_crossover_table(tmp_path):
     paths = write_curves([420.0], tmp_path, c4_params=c4)
     with open(paths["crossover"], newline="") as handle:
         rows = list(csv.DictReader(handle))
-    assert float(rows[0]["crossover_temperature_c"]) == pytest.approx(hand_crossover_collatz_alpha(0.04, 420.0),
-                                                                       abs=1e-6)  # derived here (helper above)
+    assert float(rows[0]["crossover_temperature_c"]) == pytest.approx(crossover_with_collatz_c4(0.04, 420.0),
+                                                                       abs=1e-6)  # derived here (hand_derived.py)
