@@ -128,6 +128,11 @@ def test_temperature_rule_season_excludes_cold_months():
     # derived here: the 6 °C column has a cosine of amplitude 3 °C, so months near July (mean < 5 °C) drop out
     assert np.isnan(monthly[6, 0, 0]) and np.isfinite(monthly[0, 0, 0])
     assert np.isfinite(monthly[:, 0, 1]).all()
+    # Exactly: the mean is 6 + 3 cos(2π (m - 1)/12) < 5 °C where cos(2π (m - 1)/12) < -1/3, i.e. for
+    # (m - 1) · 30° between 109.5° and 250.5°: months 5 to 9 (derived here). The 25 °C column keeps all months.
+    dropped = [int(m) for m in result["month"].values[np.isnan(monthly[:, 0, 0])]]
+    assert dropped == [5, 6, 7, 8, 9]
+    assert np.isfinite(monthly[:, :, 1]).all()
 
 
 def test_missing_layer_is_a_clear_error():
