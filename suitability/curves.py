@@ -26,7 +26,10 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
     co2_ppm: ambient CO2 mole fractions [µmol mol-1]. absorbed_par: [µmol m-2 s-1]. vpd_kpa: [kPa].
     Returns (curves, crossovers): curves has columns co2_ppm, leaf_temperature_c, c3_net, c4_net
     [µmol m-2 s-1]; crossovers has co2_ppm and crossover_temperature_c [°C].
+    c3_params, c4_params: anything ``resolve_params`` accepts (None = the default set); they are used for
+    the curves and for the crossover temperatures alike.
     """
+    crossover_params = {"C3": c3_params, "C4": c4_params}
     rows, crossings = [], []
     for co2 in co2_ppm:
         c3 = leaf_assimilation("C3", LEAF_TEMPERATURES_C, absorbed_par, co2, vpd_kpa=vpd_kpa, params=c3_params)
@@ -35,12 +38,16 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
             "co2_ppm": co2, "leaf_temperature_c": LEAF_TEMPERATURES_C,
             "c3_net": np.asarray(c3.net), "c4_net": np.asarray(c4.net),
         }))
-        crossings.append({"co2_ppm": co2, "crossover_temperature_c": float(crossover_temperature(co2))})
+        crossings.append({"co2_ppm": co2, "crossover_temperature_c": float(crossover_temperature(co2, params=crossover_params))})
     return pd.concat(rows, ignore_index=True), pd.DataFrame(crossings)
 
 
-def write_curves(co2_ppm: Iterable[float], folder: Path, *, absorbed_par: float = 1500.0) -> dict[str, Path]:
-    """Write ``leaf_curves.csv``, ``crossover.csv`` and ``leaf_curves.png`` into ``folder``."""
+def write_curves(co2_ppm: Iterable[float], folder: Path, *, absorbed_par: float = 1500.0, c3_params=None,
+                 c4_params=None) -> dict[str, Path]:
+    """Write ``leaf_curves.csv``, ``crossover.csv`` and ``leaf_curves.png`` into ``folder``.
+
+    c3_params, c4_params: as in :func:`leaf_curves` (None = the default sets).
+    """
     import matplotlib
 
     matplotlib.use("Agg")
@@ -48,7 +55,8 @@ def write_curves(co2_ppm: Iterable[float], folder: Path, *, absorbed_par: float 
 
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
-    curves, crossings = leaf_curves(list(co2_ppm), absorbed_par=absorbed_par)
+    curves, crossings = leaf_curves(list(co2_ppm), absorbed_par=absorbed_par, c3_params=c3_params,
+                                   c4_params=c4_params)
     paths = {"curves": folder / "leaf_curves.csv", "crossover": folder / "crossover.csv", "figure": folder / "leaf_curves.png"}
     write_csv(curves, paths["curves"])
     write_csv(crossings, paths["crossover"])

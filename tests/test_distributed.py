@@ -28,6 +28,8 @@ from benchmarks.synthetic import write_region  # noqa: E402  (the repository roo
 
 BIN = Path(sys.executable).parent
 
+pytestmark = pytest.mark.slow  # a dask cluster and CLI runs in new processes
+
 
 def pixel_hashes(folder: Path) -> dict[str, str]:
     """sha256 of the pixel values (not the file bytes: compression and layout may differ) of every map."""

@@ -2,8 +2,9 @@
 
 Main checks:
 * the kernel gives the numbers of the numpy physiology (suitability.physiology.daily_canopy_assimilation,
-  itself tested against published values in tests/physiology) within 1e-4 relative, for every parameter
-  set, several overrides and the three humidity inputs, on random inputs with invalid and NaN cells;
+  itself tested against published values in tests/physiology) within 1e-4 relative, for every C3 x C4
+  parameter-set pair of suitability.physiology.params.PARAMETER_SETS x the three humidity inputs, and
+  for several overrides, on random inputs with invalid and NaN cells (public kernel functions only);
 * its daily integral is within 0.5 % of the 96-step reference integration of the same model (the
   accuracy target of the performance issue);
 * a cell's result does not depend on where it sits in a batch or block (bitwise);
@@ -27,7 +28,7 @@ from suitability import kernel, model
 from suitability.errors import ConfigError
 from suitability.physiology import canopy
 from suitability.physiology.light import extraterrestrial_radiation
-from suitability.physiology.params import resolve_params
+from suitability.physiology.params import PARAMETER_SETS, resolve_params
 from suitability.runtime import compute_context
 
 REPO = Path(__file__).resolve().parents[1]
@@ -39,7 +40,6 @@ KERNEL_TOLERANCE = 1e-4  # the issue's target: kernel equals the numpy physiolog
 
 PARAMETER_CASES = {
     "defaults": (None, None),
-    "collatz1991+vc2000": ("collatz1991", "vc2000"),
     "overrides-a": ({"parameter_set": "bernacchi2001", "vcmax_temperature_response": "arrhenius",
                      "stomatal_model": "fixed", "water_stress_on_vcmax": True, "tpu25": 9.0},
                     {"parameter_set": "vc2000", "kinetics": "caemmerer2021_c4", "water_stress_on_vcmax": True}),
@@ -112,22 +112,26 @@ def assert_close_to_numpy(got, reference, season):
                                    rtol=KERNEL_TOLERANCE, atol=1e-9)
 
 
-@pytest.mark.parametrize("case,humidity_kind", [
-    ("defaults", "from tmin"), ("defaults", "vpd"), ("defaults", "vapour pressure"),
-    ("collatz1991+vc2000", "from tmin"), ("overrides-a", "vpd"), ("overrides-b", "from tmin"),
-])
-def test_kernel_equals_numpy_physiology(case, humidity_kind):
-    # Derived here: the kernel evaluates the equations of suitability.physiology (whose tests cite the
-    # published sources), so it must reproduce its daily values within 1e-4 relative (issue target).
-    c3_params, c4_params = PARAMETER_CASES[case]
-    cells = random_cells(160, seed=11 + len(case))
-    rng = np.random.default_rng(5)
-    humidity = {}
-    if humidity_kind == "vpd":
-        humidity = {"vpd_kpa": rng.uniform(0.0, 4.0, (160, 12)).astype(np.float32)}
+HUMIDITY_KINDS = ("from tmin", "vpd", "vapour pressure")
+
+
+def humidity_inputs(kind, n, seed=5):
+    """The three humidity inputs of the kernel: none (VPD from Tmin as dew point), VPD, actual vapour pressure."""
+    rng = np.random.default_rng(seed)
+    if kind == "vpd":
+        humidity = {"vpd_kpa": rng.uniform(0.0, 4.0, (n, 12)).astype(np.float32)}
         humidity["vpd_kpa"][13, 3] = -0.5  # invalid
-    elif humidity_kind == "vapour pressure":
-        humidity = {"actual_vapour_pressure_kpa": rng.uniform(0.0, 3.0, (160, 12)).astype(np.float32)}
+        return humidity
+    if kind == "vapour pressure":
+        return {"actual_vapour_pressure_kpa": rng.uniform(0.0, 3.0, (n, 12)).astype(np.float32)}
+    assert kind == "from tmin"
+    return {}
+
+
+def check_kernel_against_numpy(c3_params, c4_params, humidity_kind, n, seed):
+    """The public kernel function against the numpy physiology, every month and both pathways."""
+    cells = random_cells(n, seed=seed)
+    humidity = humidity_inputs(humidity_kind, n)
     co2 = 520.0
     result = run_kernel(cells, co2, c3_params, c4_params, **humidity)
     for month in range(12):
@@ -139,9 +143,34 @@ def test_kernel_equals_numpy_physiology(case, humidity_kind):
             if pathway == "C3":
                 got["photorespiration"] = result.c3_photorespiration[:, month]
             assert_close_to_numpy(got, reference, season)
+            assert np.isfinite(got["net"]).sum() >= n // 2  # the comparison covers real numbers, not only NaN
     # The invalid cells of random_cells are NaN in every month (or in the month that was invalid).
     assert np.isnan(result.c3_net[[6, 9, 10, 11]]).all()
     assert np.isnan(result.c4_net[5, 2]) and np.isnan(result.c4_net[7, 4]) and np.isnan(result.c4_net[8, 7])
+    if humidity_kind == "vpd":
+        assert np.isnan(result.c3_net[13, 3]) and np.isnan(result.c4_net[13, 3])  # the invalid VPD
+
+
+# Every published C3 set x every C4 set (read from the registry, so a new set is covered without an edit
+# here) x every humidity input kind.
+SET_PAIRS = [(c3, c4, kind) for c3 in PARAMETER_SETS["C3"] for c4 in PARAMETER_SETS["C4"] for kind in HUMIDITY_KINDS]
+
+
+@pytest.mark.parametrize("c3_set,c4_set,humidity_kind", SET_PAIRS)
+def test_kernel_equals_numpy_physiology_for_every_set_pair(c3_set, c4_set, humidity_kind):
+    # Derived here: the kernel evaluates the equations of suitability.physiology (whose tests cite the
+    # published sources), so it must reproduce its daily values within 1e-4 relative (issue target).
+    check_kernel_against_numpy(c3_set, c4_set, humidity_kind, n=48, seed=17)
+
+
+@pytest.mark.parametrize("case,humidity_kind", [
+    ("defaults", "from tmin"), ("overrides-a", "vpd"), ("overrides-a", "vapour pressure"),
+    ("overrides-b", "from tmin"), ("overrides-b", "vpd"),
+])
+def test_kernel_equals_numpy_physiology_with_overrides(case, humidity_kind):
+    # Derived here, as above, for the default sets (None) and overrides of model options and values.
+    c3_params, c4_params = PARAMETER_CASES[case]
+    check_kernel_against_numpy(c3_params, c4_params, humidity_kind, n=160, seed=11 + len(case))
 
 
 def realistic_days(count, seed):

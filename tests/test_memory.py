@@ -15,11 +15,15 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
+
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
 from benchmarks.synthetic import write_region  # noqa: E402  (the repository root holds benchmarks/)
 
 PEAK_RSS_BOUND_BYTES = 1.5 * 2**30
+
+pytestmark = pytest.mark.slow  # a new process runs the pipeline on 6.6 million cells
 
 
 def test_peak_memory_of_a_large_region_stays_under_the_bound(tmp_path):

@@ -13,6 +13,8 @@ import xarray as xr
 import suitability
 from suitability.model import SEASONAL_LAYERS
 
+from hand_derived import crossover_with_collatz_c4, gamma_star_umol_mol, saturation_vapour_pressure_kpa
+
 
 def synthetic_climate(mean_temperature_c, *, chunks=None) -> xr.Dataset:
     """A 2 x len(T) grid whose columns differ in mean temperature; a mild seasonal cycle; well watered."""
@@ -34,12 +36,49 @@ def synthetic_climate(mean_temperature_c, *, chunks=None) -> xr.Dataset:
     return ds.chunk({"month": -1, "y": 1, "x": 2}) if chunks else ds
 
 
-def test_every_layer_is_returned_with_its_shape():
+def test_every_layer_is_returned_with_its_shape_and_its_defining_relation():
     result = suitability.evaluate(synthetic_climate([10.0, 28.0]), {"co2_ppm": 420})
     for name in SEASONAL_LAYERS:
         assert result[name].shape == (2, 2), name
     assert result["c3_monthly_assimilation"].shape == (12, 2, 2)
     assert result["pathway_class"].dtype == np.uint8
+    a3, a4 = (result[f"{p}_assimilation"].values.astype(float) for p in ("c3", "c4"))
+    m3, m4 = (result[f"{p}_monthly_assimilation"].values.astype(float) for p in ("c3", "c4"))
+    # Derived here (model.py): with every month in the season, the season total is the sum of the months.
+    np.testing.assert_allclose(a3, m3.sum(axis=0), rtol=1e-5)
+    np.testing.assert_allclose(a4, m4.sum(axis=0), rtol=1e-5)
+    assert (a3 > 0).all() and (a4 > 0).all()  # well watered and lit: both gain carbon (so no clipping below)
+    # DESIGN.md: pathway advantage = (A4 - A3) / (A4 + A3).
+    np.testing.assert_allclose(result["pathway_advantage"].values, (a4 - a3) / (a4 + a3), rtol=0, atol=1e-6)
+    # DESIGN.md / indicators.py: class 3 above the margin (0.05), 1 below -0.05, else 2.
+    advantage = result["pathway_advantage"].values
+    expected_class = np.where(advantage > 0.05, 3, np.where(advantage < -0.05, 1, 2))
+    np.testing.assert_array_equal(result["pathway_class"].values, expected_class)
+    # Derived here: months favouring C4 = months whose own index (M4 - M3)/(M4 + M3) exceeds the margin.
+    monthly_index = (m4 - m3) / (m4 + m3)
+    np.testing.assert_array_equal(result["c4_favoured_months"].values, (monthly_index > 0.05).sum(axis=0))
+    # The crossover of the default sets at 420 ppm and sea level, derived here from Bernacchi et al. (2001)
+    # Γ* and the Collatz et al. (1992) C4 yield alpha = 0.0625 (tests/hand_derived.py): 26.05 °C in every
+    # cell (the yields do not depend on air pressure; every cell here is at 0 m).
+    np.testing.assert_allclose(result["crossover_temperature"].values, crossover_with_collatz_c4(0.0625, 420.0),
+                               rtol=0, atol=1e-4)
+    # Photorespiration share = 0.5 vo / vc = Γ*/Ci at every instant (FvCB identity, von Caemmerer 2000
+    # eq. 2.1 and 2.3), so the season's share lies between the smallest and largest instantaneous Γ*/Ci:
+    # Γ* at the coldest and warmest leaf temperatures (Tmin and Tmax of the months, Bernacchi et al. 2001);
+    # Ci between Ca (lower bound of the share) and Ca g1/(g1 + √D) (Medlyn et al. 2011, g1 5.25 of the
+    # default set from Lin et al. 2015), D at most e°(Tmax) - e°(Tmin) with the dew point at Tmin (FAO-56
+    # eqs. 11 and 48). Derived here; the bounds are a factor of about 3 apart.
+    share = result["photorespiration_share"].values[0]
+    climate = synthetic_climate([10.0, 28.0])
+    for column in range(2):
+        tmin = climate["tmin"].values[:, 0, column].astype(float)
+        tmax = climate["tmax"].values[:, 0, column].astype(float)
+        lowest = min(gamma_star_umol_mol(t) for t in tmin) / 420.0
+        highest = max(gamma_star_umol_mol(hi) * (5.25 + np.sqrt(saturation_vapour_pressure_kpa(hi)
+                                                                - saturation_vapour_pressure_kpa(lo)))
+                      / (5.25 * 420.0) for lo, hi in zip(tmin, tmax))
+        assert lowest < share[column] < highest, (column, lowest, share[column], highest)
+    assert share[1] > share[0]  # Γ* rises with temperature (Bernacchi et al. 2001): more at 28 than 10 °C
 
 
 def test_season_totals_are_sums_of_the_monthly_totals():
@@ -89,6 +128,11 @@ def test_temperature_rule_season_excludes_cold_months():
     # derived here: the 6 °C column has a cosine of amplitude 3 °C, so months near July (mean < 5 °C) drop out
     assert np.isnan(monthly[6, 0, 0]) and np.isfinite(monthly[0, 0, 0])
     assert np.isfinite(monthly[:, 0, 1]).all()
+    # Exactly: the mean is 6 + 3 cos(2π (m - 1)/12) < 5 °C where cos(2π (m - 1)/12) < -1/3, i.e. for
+    # (m - 1) · 30° between 109.5° and 250.5°: months 5 to 9 (derived here). The 25 °C column keeps all months.
+    dropped = [int(m) for m in result["month"].values[np.isnan(monthly[:, 0, 0])]]
+    assert dropped == [5, 6, 7, 8, 9]
+    assert np.isfinite(monthly[:, :, 1]).all()
 
 
 def test_missing_layer_is_a_clear_error():

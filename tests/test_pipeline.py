@@ -110,3 +110,99 @@ def test_datacube_has_monthly_values(demo_run):
     with xr.open_dataset(demo_run.layers["baseline"]["datacube"]) as cube:
         assert cube["c3_monthly_assimilation"].sizes["month"] == 12
         assert np.isfinite(cube["c4_monthly_assimilation"].values).any()
+    # Derived here (model.py): the demo's season is all twelve months, so each seasonal map is the sum of
+    # the datacube's monthly values, cell by cell, with nodata in the same cells (float32 rounding).
+    gains = {}
+    for scenario in ("baseline", "co2_only"):
+        with xr.open_dataset(demo_run.layers[scenario]["datacube"]) as cube:
+            for pathway in ("c3", "c4"):
+                monthly = cube[f"{pathway}_monthly_assimilation"].transpose("month", "y", "x").values.astype(float)
+                with rasterio.open(demo_run.layers[scenario][f"{pathway}_assimilation"]) as src:
+                    season = src.read(1).astype(float)
+                assert monthly.shape == (12,) + season.shape
+                np.testing.assert_array_equal(np.isnan(season), np.isnan(monthly).any(axis=0))
+                np.testing.assert_allclose(monthly.sum(axis=0), season, rtol=1e-5, atol=1e-3)
+                gains[scenario, pathway] = np.nansum(season)
+    # CO2 enrichment at fixed climate raises C3 assimilation relatively more than C4 (Ainsworth & Long 2005,
+    # New Phytol 165:351; Leakey et al. 2009, J Exp Bot 60:2859; direction only, from memory).
+    c3_gain = gains["co2_only", "c3"] / gains["baseline", "c3"]
+    c4_gain = gains["co2_only", "c4"] / gains["baseline", "c4"]
+    assert c3_gain > 1.0 and c3_gain > c4_gain, (c3_gain, c4_gain)
+
+
+def _declared_output_layers() -> dict:
+    """The declared output layers: suitability.variables' output mapping, whichever name it has now."""
+    from suitability import variables
+
+    for name in ("OUTPUT_LAYERS", "OUTPUT_REGISTRY", "OUTPUT_VARIABLES"):
+        declared = getattr(variables, name, None)
+        if declared:
+            return dict(declared)
+    raise AssertionError("suitability.variables declares no output layers (OUTPUT_VARIABLES or a registry)")
+
+
+def _is_change_layer(name: str, entry) -> bool:
+    """A layer against the baseline: the entry's own kind where it declares one, else the pipeline's list."""
+    kind = getattr(entry, "kind", None)
+    if kind is not None:
+        return "change" in str(getattr(kind, "value", kind)).lower()
+    from suitability import pipeline
+
+    return name in pipeline.CHANGE_LAYERS
+
+
+def _is_categorical(entry) -> bool:
+    """Categorical as declared; without such a field, the glossary's rule (resampled by "mode")."""
+    categorical = getattr(entry, "categorical", None)
+    return bool(categorical) if categorical is not None else entry.resampling == "mode"
+
+
+def test_every_declared_output_layer_is_produced(demo_run):
+    # Project contract (DESIGN.md "Names we use"; the output glossary in suitability/variables.py): the demo
+    # config asks for all layers, so every declared seasonal layer exists for every scenario and every
+    # change layer for every scenario but the baseline, as a readable GeoTIFF with the declared units, the
+    # nodata of its kind (uint8/255 for categorical layers, float32/NaN otherwise) and values inside the
+    # declared valid range.
+    declared = _declared_output_layers()
+    assert len(declared) >= 9  # the nine layers of DESIGN.md, at least
+    change = {name for name, entry in declared.items() if _is_change_layer(name, entry)}
+    assert change and change != set(declared)
+    baseline = load_config(DEMO).baseline
+    assert set(demo_run.layers) == {"baseline", "co2_only", "warming_only", "co2_and_warming"}
+    for scenario, layers in demo_run.layers.items():
+        maps = {name for name, path in layers.items() if path.suffix == ".tif"}
+        expected = set(declared) - change if scenario == baseline else set(declared)
+        assert maps == expected, (scenario, sorted(maps ^ expected))
+        on_disk = {p.stem for p in (demo_run.layers[scenario]["pathway_class"].parent).glob("*.tif")}
+        assert on_disk == expected, scenario
+        for name in expected:
+            entry = declared[name]
+            with rasterio.open(layers[name]) as src:
+                values = src.read(1)
+                assert src.count == 1 and src.units[0] == entry.units, (scenario, name, src.units)
+                if _is_categorical(entry):
+                    assert src.dtypes[0] == "uint8" and src.nodata == 255, (scenario, name)
+                    valid = values[values != 255]
+                else:
+                    assert src.dtypes[0] == "float32" and np.isnan(src.nodata), (scenario, name)
+                    valid = values[~np.isnan(values)]
+            assert valid.size > 0, (scenario, name)
+            low, high = entry.valid_range
+            assert low <= valid.min() and valid.max() <= high, (scenario, name, valid.min(), valid.max())
+
+
+def test_change_layers_are_the_differences_against_the_baseline(demo_run):
+    # Derived here from the definitions (DESIGN.md; indicators.py): advantage_change = scenario advantage
+    # minus baseline advantage; class_transition = baseline class * 10 + scenario class, 255 where either
+    # is nodata.
+    def read(scenario, name):
+        with rasterio.open(demo_run.layers[scenario][name]) as src:
+            return src.read(1)
+
+    base_advantage, base_class = read("baseline", "pathway_advantage"), read("baseline", "pathway_class")
+    for scenario in ("co2_only", "warming_only", "co2_and_warming"):
+        advantage, classes = read(scenario, "pathway_advantage"), read(scenario, "pathway_class")
+        np.testing.assert_allclose(read(scenario, "advantage_change"), advantage - base_advantage, rtol=0, atol=1e-6)
+        expected = np.where((base_class == 255) | (classes == 255), 255,
+                            base_class.astype(int) * 10 + classes.astype(int))
+        np.testing.assert_array_equal(read(scenario, "class_transition"), expected)

@@ -190,6 +190,14 @@ def test_invalid_elements_are_nan_and_the_rest_computed():
                                               lai=lai, elevation_m=elevation)
     for field in (result.net, result.gross, result.photorespiration):
         assert np.isfinite(field).tolist() == [True] + [False] * 6
+    # Derived here: elements are independent, so the valid element equals the same day computed alone.
+    alone = canopy.daily_canopy_assimilation("C3", tmin_c=10.0, tmax_c=25.0, shortwave_mj=20.0, latitude_deg=20.0,
+                                             day_of_year=100, co2_ppm=400.0, lai=3.0, elevation_m=0.0)
+    for name in ("net", "gross", "photorespiration"):
+        assert getattr(result, name)[0] == pytest.approx(float(getattr(alone, name)), rel=1e-12), name
+    # FvCB: photorespiration = vc Γ*/C < gross = vc (1 - Γ*/C) while C > 2 Γ* (about 100 µmol mol-1 or less
+    # at 25 °C, Bernacchi et al. 2001); net = gross - Rd < gross.
+    assert 0.0 < result.photorespiration[0] < result.gross[0] and result.net[0] < result.gross[0]
 
 
 def test_unknown_parameter_set_is_a_clear_error():

@@ -113,7 +113,20 @@ def test_every_set_names_its_source_and_resolves():
         for name in sets:
             p = resolve_params(pathway, name)
             assert p["parameter_set"] == name and len(p["source"]) > 20
-            assert leaf_assimilation(pathway, 25.0, 1000.0, 400.0, params=name).net > 0
+            leaf = leaf_assimilation(pathway, 25.0, 1000.0, 400.0, params=name)
+            assert leaf.net > 0
+            # Day respiration is positive at 25 °C, so net < gross (FvCB: A = gross - Rd; Collatz 1992: An = A - Rd).
+            assert leaf.net < leaf.gross
+            # Light limits: at most one CO2 per 8 absorbed photons for any leaf (the minimum quantum
+            # requirement of oxygenic photosynthesis, from memory); tighter by the model's own initial slope:
+            # FvCB: J <= I2 = Q (1 - f)/2 (smaller root of von Caemmerer 2000 eq. 2.14) and the light-limited
+            # rate J (C - Γ*)/(4C + 8Γ*) < J/4 (Farquhar et al. 1980), so gross < Q (1 - f)/8; Collatz et al.
+            # (1992): A <= M <= α Q (smaller roots of their two quadratics). Derived here from those forms.
+            assert leaf.gross < 1000.0 / 8.0
+            if p["model"] == "fvcb":
+                assert leaf.gross < 1000.0 * (1.0 - p["spectral_correction"]) / 8.0
+            elif p["model"] == "collatz1992":
+                assert leaf.gross <= 1000.0 * p["alpha"]
 
 
 def test_defaults_and_read_only():

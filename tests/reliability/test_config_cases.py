@@ -101,6 +101,7 @@ def test_climate_layer_names_that_would_escape_are_unknown_layers(tmp_path, outp
     _refused(tmp_path, output_folder, config, f"climate.{name}", f"unknown layer '{name}'", "valid layers")
 
 
+@pytest.mark.slow  # the CLI in two new processes
 def test_debug_shows_the_traceback_and_plain_runs_do_not(tmp_path):
     config = demo_config()
     config["clases"] = config.pop("classes")

@@ -23,6 +23,8 @@ from suitability.runlock import LOCK_NAME
 
 from .conftest import SUITABILITY, cli, demo_config, write_config
 
+pytestmark = pytest.mark.slow  # real runs in a new process, interrupted, then resumed
+
 
 def _long_config(tmp_path) -> Path:
     # Three scenarios over six months: several seconds per scenario on two cores.

@@ -80,6 +80,7 @@ def test_stale_lock_of_a_dead_process_is_taken_over_by_a_run(tmp_path):
     assert not (folder / LOCK_NAME).exists() and (folder / "manifest.json").exists()
 
 
+@pytest.mark.slow  # a run in a new process
 def test_second_run_into_the_same_folder_refuses_naming_the_lock_and_the_pid(tmp_path):
     config = write_config(tmp_path, demo_config(months=range(1, 5), scenarios=2))
     folder = tmp_path / "out"

@@ -16,6 +16,7 @@ import subprocess
 import sys
 from pathlib import Path
 
+import pytest
 import yaml
 
 import suitability
@@ -41,6 +42,7 @@ def _scenarios(count: int) -> list[dict]:
     ]
 
 
+@pytest.mark.slow  # two runs in new processes, one of twenty scenarios
 def test_twenty_scenarios_need_about_the_memory_of_one(tmp_path, finished_run):
     # finished_run has already run the model once in this session (and compiled what is compiled on first
     # use), so neither measured run pays for that.
@@ -115,6 +117,7 @@ def test_no_shell_is_ever_invoked_by_the_package():
 _SHELLS = {"sh", "bash", "dash", "zsh", "ksh", "csh", "tcsh", "fish", "cmd", "cmd.exe", "powershell"}
 
 
+@pytest.mark.slow  # a whole run with PDF briefs
 def test_a_run_invokes_no_shell(tmp_path, monkeypatch):
     # A run with briefs (HTML and PDF) on the threads scheduler, watching every way of starting a program.
     # Libraries may start helper programs directly (ctypes.util runs "ldconfig -p" to find the PDF

@@ -134,6 +134,7 @@ print(json.dumps({"exit": run.returncode, "stderr": run.stderr, "files": files})
 """
 
 
+@pytest.mark.slow  # a run in a new process on a small file system
 def test_disk_full_on_a_real_small_file_system(tmp_path):
     # A 1100 KiB tmpfs, private to a new mount namespace (unshare: util-linux), holds the first scenario
     # (about 350 KB) but not the second: GDAL's own writes fail with ENOSPC there.

@@ -199,6 +199,7 @@ def _page_texts(path: Path) -> list[str]:
     return [page.extract_text() for page in pypdf.PdfReader(path).pages]
 
 
+@pytest.mark.slow  # reads the rendered PDFs
 def test_pdf_pages_and_text(run):
     pages = _page_texts(run["paths"]["vellmark_uplands_hotter.pdf"])
     # The template's five sections each start a page: overview, maps, districts, why, assumptions/act.
@@ -220,6 +221,7 @@ def test_pdf_pages_and_text(run):
         assert "page" in page and "not yield forecasts" in page  # the footer on every page
 
 
+@pytest.mark.slow  # reads the rendered PDFs
 def test_per_district_brief_covers_every_scenario(run):
     text = " ".join(" ".join(_page_texts(run["paths"]["vellmark_uplands_orvanne.pdf"])).split())
     assert "Today, C4 crops have the advantage on 30 % of Orvanne's mapped land." in text
@@ -234,6 +236,7 @@ CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic
                   "--disable-background-networking", "--disable-component-update", "--disable-sync"]
 
 
+@pytest.mark.slow  # headless Chromium
 @pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed (apt-get install chromium)")
 def test_html_renders_in_headless_chromium(run, tmp_path):
     html = run["paths"]["vellmark_uplands_hotter.html"]

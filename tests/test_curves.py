@@ -1,0 +1,49 @@
+"""`suitability curves` (suitability/curves.py): the crossover temperatures use the caller's parameters.
+
+The leaf curves and the crossover table must describe the same plants: with a non-default parameter set
+or an override the crossover is the one of those parameters, not of the default sets.
+"""
+
+from __future__ import annotations
+
+import csv
+import itertools
+
+import pytest
+
+from suitability.curves import leaf_curves, write_curves
+from suitability.physiology.crossover import crossover_temperature
+from suitability.physiology.params import PARAMETER_SETS
+
+from hand_derived import crossover_with_collatz_c4  # derived here from published equations (see there)
+
+
+def test_alpha_override_moves_the_crossover_of_the_curves():
+    # Collatz et al. (1992) fitted alpha = 0.04 (the set's own docstring names this override); the default
+    # set uses 0.0625. A smaller C4 yield needs a warmer leaf before C3 falls below it.
+    c4 = {"parameter_set": "collatz1992", "alpha": 0.04}
+    _, crossings = leaf_curves([420.0], c4_params=c4)
+    got = float(crossings.loc[0, "crossover_temperature_c"])
+    expected = crossover_with_collatz_c4(0.04, 420.0)  # derived here (hand_derived.py): 45.64 °C
+    assert got == pytest.approx(expected, abs=1e-6)
+    default = crossover_with_collatz_c4(0.0625, 420.0)  # derived here: 26.05 °C with the default alpha
+    assert got - default > 15.0  # the old behaviour (default parameters) gave the default value
+
+
+@pytest.mark.parametrize("c3_set, c4_set", list(itertools.product(PARAMETER_SETS["C3"], PARAMETER_SETS["C4"])))
+def test_crossover_of_the_curves_equals_the_physiology_for_every_set_pair(c3_set, c4_set):
+    # Same equations, same parameters: the table must equal a direct call of
+    # suitability.physiology.crossover.crossover_temperature with those parameters.
+    co2 = [280.0, 420.0, 700.0]
+    _, crossings = leaf_curves(co2, c3_params=c3_set, c4_params=c4_set)
+    direct = crossover_temperature(co2, params={"C3": c3_set, "C4": c4_set})
+    assert crossings["crossover_temperature_c"].tolist() == pytest.approx(list(direct), abs=1e-9)
+
+
+def test_write_curves_passes_the_parameters_to_the_crossover_table(tmp_path):
+    c4 = {"parameter_set": "collatz1992", "alpha": 0.04}
+    paths = write_curves([420.0], tmp_path, c4_params=c4)
+    with open(paths["crossover"], newline="") as handle:
+        rows = list(csv.DictReader(handle))
+    assert float(rows[0]["crossover_temperature_c"]) == pytest.approx(crossover_with_collatz_c4(0.04, 420.0),
+                                                                       abs=1e-6)  # derived here (hand_derived.py)
