@@ -9,9 +9,10 @@ the same time, so the physiology runs once per cell and month whatever the numbe
 Two engines evaluate the daily canopy model inside a block, chosen by ``engine`` (config
 ``compute.engine``): "compiled" (default), the fused numba kernel of :mod:`suitability.kernel`, and
 "numpy", the physiology package called month by month and pathway by pathway (the reference the
-kernel is tested against, within 1e-4 relative). The kernel supports every leaf model of
-:mod:`suitability.physiology.params`; a leaf model it does not know (:func:`suitability.kernel.supports`)
-runs on the numpy engine. Everything after the daily values (season sums, indicators) is shared.
+kernel is tested against, within 1e-4 relative). Both run the same equations (:mod:`suitability.kernel`).
+A registered leaf model that is marked as not compiled (:func:`suitability.kernel.supports`) runs on the
+numpy engine, with a warning once per pair of models. Everything after the daily values (season sums,
+indicators) is shared.
 """
 
 from __future__ import annotations
@@ -158,6 +159,20 @@ class _BlockInputs:
     arrays: tuple
 
 
+_WARNED_NUMPY_ENGINE: set = set()
+
+
+def _warn_numpy_engine(c3_params, c4_params) -> None:
+    """Say once per pair of leaf models that they run on the (much slower) numpy engine."""
+    models = tuple(kernel.pathway_tables(p, params).model for p, params in (("C3", c3_params), ("C4", c4_params)))
+    key = tuple(m.name for m in models)
+    if key not in _WARNED_NUMPY_ENGINE:
+        _WARNED_NUMPY_ENGINE.add(key)
+        missing = ", ".join(m.name for m in models if not m.compiled)
+        warnings.warn(f"leaf model {missing} is not available in the compiled engine; running the numpy engine, "
+                      "about 20 times slower (compute.engine: numpy says so explicitly)", RuntimeWarning, stacklevel=3)
+
+
 def _evaluate_embedded(inputs: _BlockInputs, names: Sequence[str], settings: ModelSettings) -> np.ndarray:
     values = dask.compute(*inputs.arrays, scheduler="sync")
     return _evaluate_block(*values, names=names, settings=settings)
@@ -173,10 +188,14 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
     threshold = _get(season, "min_mean_temperature_c", None)
     if months is None and threshold is None:
         months = list(range(1, 13))
+    c3_params, c4_params = _pathway_params(physiology, "c3"), _pathway_params(physiology, "c4")
+    if engine == "compiled" and not kernel.supports(c3_params, c4_params):
+        _warn_numpy_engine(c3_params, c4_params)
+        engine = "numpy"
     return ModelSettings(
         scenario=ScenarioSettings.from_any(scenario),
-        c3_params=_pathway_params(physiology, "c3"),
-        c4_params=_pathway_params(physiology, "c4"),
+        c3_params=c3_params,
+        c4_params=c4_params,
         season_months=tuple(int(m) for m in months) if months is not None and threshold is None else None,
         season_min_temperature_c=None if threshold is None else float(threshold),
         contested_margin=float(_get(classes, "contested_margin", 0.05)),
@@ -197,7 +216,7 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     elevation = data.get("elevation", np.zeros(shape, np.float32))
     lai = data.get("lai", np.full(shape, settings.lai, np.float32))
     in_season = _season_mask(data, settings, shape)
-    if settings.engine == "compiled" and kernel.supports(settings.c3_params, settings.c4_params):
+    if settings.engine == "compiled":
         monthly, c3_gross, c3_photorespiration = _compiled_months(data, settings, in_season, elevation, lai)
     else:
         monthly, c3_gross, c3_photorespiration = _numpy_months(data, settings, in_season, elevation, lai)

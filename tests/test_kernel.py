@@ -244,18 +244,6 @@ def test_season_totals_are_the_day_weighted_sums_of_the_daily_values():
         assert np.array_equal(np.isnan(total), np.isnan(expected)) and np.isnan(total).any()
 
 
-def test_polynomial_exp_and_sincos_match_numpy():
-    # numpy's libm-backed expm1, sin and cos as the independent reference.
-    x = np.concatenate([np.linspace(-80.0, 4.0, 20001), [-1e-12, 0.0, 1e-12, -200.0]])
-    got = np.array([kernel._expm1(v) for v in x])
-    expected = np.expm1(np.maximum(x, -80.0))  # below −80 the kernel takes exp(x) as exp(−80), documented
-    np.testing.assert_allclose(got, expected, rtol=2e-14, atol=0.0)
-    angles = np.linspace(-np.pi, np.pi, 20001)
-    sin_cos = np.array([kernel._sincos(a) for a in angles])
-    np.testing.assert_allclose(sin_cos[:, 0], np.sin(angles), rtol=0, atol=2e-15)
-    np.testing.assert_allclose(sin_cos[:, 1], np.cos(angles), rtol=0, atol=2e-15)
-
-
 @pytest.mark.parametrize("pathway,params", [("C3", "bernacchi2001"), ("C3", "collatz1991"),
                                             ("C4", "collatz1992"), ("C4", "vc2000")])
 def test_temperature_tables_interpolate_within_the_derived_bound(pathway, params):
@@ -264,16 +252,15 @@ def test_temperature_tables_interpolate_within_the_derived_bound(pathway, params
     # evaluated at the temperatures themselves (they wrap the numpy physiology functions).
     tables = kernel.pathway_tables(pathway, params)
     temperatures = np.random.default_rng(2).uniform(-59.0, 59.0, 4000)
-    p = dict(resolve_params(pathway, params))
-    builder = {"fvcb": kernel._c3_tables, "collatz1992": kernel._collatz_tables,
-               "vc2000": kernel._caemmerer_tables}[p["model"]]
-    _, exact = builder(p, temperatures)
+    p = resolve_params(pathway, params)
+    terms = tables.model.temperature_terms(temperatures, p)
+    exact = np.stack([np.broadcast_to(np.asarray(t, float), temperatures.shape) for t in terms], axis=1)
     grid = tables.start_c + tables.step_c * np.arange(tables.table.shape[0])
     for column in range(exact.shape[1]):
         interpolated = np.interp(temperatures, grid, tables.table[:, column])
         scale = np.abs(exact[:, column])
-        if not scale.any():  # an unused column (no Jmax or TPU limit) is all zero
-            assert not tables.table[:, column].any()
+        if np.all(exact[:, column] == exact[0, column]):  # a constant (e.g. an unlimited Jmax or TPU)
+            assert np.all(tables.table[:, column] == exact[0, column])
             continue
         assert np.all(np.abs(interpolated - exact[:, column]) <= 2.2e-5 * scale + 1e-300)
 
@@ -315,19 +302,30 @@ def test_model_engines_agree(vpd, season):
     assert (reference["pathway_class"].values != 255).sum() > 1000
 
 
-def test_an_unsupported_leaf_model_runs_on_the_numpy_engine(monkeypatch):
-    # Project behaviour (model.py docstring): leaf models the kernel does not know fall back to numpy.
+def test_a_leaf_model_without_a_compiled_form_runs_on_the_numpy_engine_with_one_warning(monkeypatch):
+    # Project behaviour (model.py docstring, issue "one definition of every equation"): a registered model
+    # that the compiled engine cannot run is never silently slowed: a RuntimeWarning, once, then numpy.
+    import dataclasses
+    import warnings
+
+    from suitability.physiology import models
+
     data = synthetic_dataset(shape=(12, 14))
     physiology = {"c4": {"parameter_set": "vc2000"}}
     reference = model.evaluate(data, None, physiology=physiology, engine="numpy").compute()
+    monkeypatch.setitem(models.LEAF_MODELS, "vc2000", dataclasses.replace(models.LEAF_MODELS["vc2000"], compiled=False))
+    from suitability.kernel import tables
+    tables._cached_tables.cache_clear()
+    monkeypatch.setattr(model, "_WARNED_NUMPY_ENGINE", set())
     calls = []
     original = kernel.season_canopy_assimilation
     monkeypatch.setattr(kernel, "season_canopy_assimilation", lambda **kw: calls.append(1) or original(**kw))
-    model.evaluate(data, None, physiology=physiology, engine="compiled").compute(scheduler="synchronous")
-    assert calls  # supported: the kernel ran
-    calls.clear()
-    monkeypatch.setattr(kernel, "SUPPORTED_MODELS", {"C3": ("fvcb",), "C4": ("collatz1992",)})
-    fallback = model.evaluate(data, None, physiology=physiology, engine="compiled").compute(scheduler="synchronous")
+    with pytest.warns(RuntimeWarning, match="vc2000 is not available in the compiled engine"):
+        fallback = model.evaluate(data, None, physiology=physiology, engine="compiled").compute(scheduler="synchronous")
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", RuntimeWarning)
+        model.model_settings(physiology=physiology, engine="compiled")  # said once only
+    tables._cached_tables.cache_clear()
     assert not calls
     for name in reference.data_vars:
         assert np.array_equal(fallback[name].values, reference[name].values, equal_nan=True)
@@ -352,7 +350,8 @@ def test_one_compiled_signature_and_the_disk_cache_serves_a_fresh_process():
     cells = random_cells(20, seed=4)
     run_kernel(cells, 420.0)
     run_kernel({k: (v.astype(np.float64) if v.dtype == np.float32 else v) for k, v in cells.items()}, 420.0)
-    assert len(kernel._monthly_cells_collatz.signatures) == 1
+    entry = kernel.compiled_entry(kernel.pathway_tables("C3").model, kernel.pathway_tables("C4").model)
+    assert len(entry.signatures) == 1
     script = textwrap.dedent("""
         import numpy as np
         from suitability import kernel
@@ -360,7 +359,8 @@ def test_one_compiled_signature_and_the_disk_cache_serves_a_fresh_process():
             tmin_c=np.full((3, 12), 10.0), tmax_c=np.full((3, 12), 20.0), shortwave_mj=np.full((3, 12), 15.0),
             water_availability=np.ones((3, 12)), latitude_deg=np.zeros(3), day_of_year=np.arange(12) * 30 + 15,
             co2_ppm=420.0)
-        stats = kernel._monthly_cells_collatz.stats
+        entry = kernel.compiled_entry(kernel.pathway_tables("C3").model, kernel.pathway_tables("C4").model)
+        stats = entry.stats
         print(sum(stats.cache_hits.values()), sum(stats.cache_misses.values()))
     """)
     output = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, check=True, timeout=300)

@@ -56,7 +56,8 @@ LEAF_MODELS: dict[str, LeafModel] = {}
 
 
 def register_leaf_model(model: LeafModel) -> LeafModel:
-    """Add ``model`` to :data:`LEAF_MODELS` (a name may be registered once)."""
+    """Add ``model`` to :data:`LEAF_MODELS` (a name may be registered once). A parameter set selects it
+    with ``"model": name`` (:func:`suitability.physiology.params.register_parameter_set`)."""
     if model.pathway not in ("C3", "C4"):
         raise ValueError(f"leaf model {model.name!r}: pathway must be 'C3' or 'C4', got {model.pathway!r}")
     if model.name in LEAF_MODELS and LEAF_MODELS[model.name] != model:
@@ -69,6 +70,8 @@ def register_leaf_model(model: LeafModel) -> LeafModel:
 
 def leaf_model(name: str, pathway: str | None = None) -> LeafModel:
     """The registered model ``name``; ValueError listing the valid ones (of ``pathway`` if given)."""
+    from . import c3, c4  # noqa: F401  (the built-in models register themselves on import)
+
     model = LEAF_MODELS.get(name)
     if model is None or (pathway is not None and model.pathway != pathway):
         valid = sorted(n for n, m in LEAF_MODELS.items() if pathway is None or m.pathway == pathway)

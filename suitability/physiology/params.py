@@ -64,6 +64,8 @@ from functools import lru_cache
 from types import MappingProxyType
 from typing import Mapping
 
+from .models import leaf_model
+
 PARAMETER_SETS: dict[str, dict[str, dict]] = {
     "C3": {
         "bernacchi2001": {
@@ -164,7 +166,6 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
 DEFAULT_SETS = {"C3": "bernacchi2001", "C4": "collatz1992"}
 
 _CHOICES = {
-    "model": ("fvcb", "collatz1992", "vc2000"),
     "kinetics": ("bernacchi2001", "collatz1991", "caemmerer2000_c4", "caemmerer2021_c4"),
     "vcmax_temperature_response": ("peaked", "arrhenius", "collatz1991"),
     "stomatal_model": ("medlyn", "fixed"),
@@ -173,6 +174,26 @@ _OPTIONAL_NUMBERS = {"jmax25", "rd25", "tpu25"}
 _FRACTIONS = {"theta", "beta", "spectral_correction", "ci_ratio", "x", "rm_fraction"}
 _SIGNED = {"growth_temperature_c", "low_temperature_c", "high_temperature_c",
            "respiration_high_temperature_c", "jmax_optimum_c"}
+
+
+def register_parameter_set(pathway: str, name: str, values: Mapping) -> None:
+    """Add the parameter set ``name`` of ``pathway`` to :data:`PARAMETER_SETS` (a name may be added once).
+
+    ``values`` holds every key the set's model reads, a ``"model"`` naming a registered leaf model
+    (:mod:`.models`) and a ``"source"`` naming where the values come from. It is checked by resolving it.
+    """
+    pathway = normalise_pathway(pathway)
+    if name in PARAMETER_SETS[pathway]:
+        raise ValueError(f"{pathway} parameter set {name!r} exists already")
+    if not isinstance(values.get("source"), str) or not values["source"].strip():
+        raise ValueError(f"{pathway} parameter set {name!r} must name its source")
+    PARAMETER_SETS[pathway][name] = dict(values)
+    _resolve_cached.cache_clear()
+    try:
+        resolve_params(pathway, name)
+    except ValueError:
+        del PARAMETER_SETS[pathway][name]
+        raise
 
 
 def normalise_pathway(pathway) -> str:
@@ -189,6 +210,8 @@ def _check_value(pathway: str, key: str, value, default):
         if not isinstance(value, str):
             raise ValueError(f"{where} must be a string")
         return value
+    if key == "model":
+        return leaf_model(value, pathway).name  # ValueError listing the registered models of the pathway
     if key in _CHOICES:
         if value not in _CHOICES[key]:
             raise ValueError(f"{where} = {value!r}; valid: {', '.join(_CHOICES[key])}")
@@ -228,10 +251,7 @@ def _derive(pathway: str, merged: dict) -> dict:
     if "kinetics" in merged and c3_kinetics != (pathway == "C3"):
         valid = "bernacchi2001, collatz1991" if pathway == "C3" else "caemmerer2000_c4, caemmerer2021_c4"
         raise ValueError(f"{pathway} parameter 'kinetics' = {merged['kinetics']!r}; valid: {valid}")
-    if pathway == "C3" and merged["model"] != "fvcb":
-        raise ValueError(f"C3 parameter 'model' = {merged['model']!r}; valid: fvcb")
-    if pathway == "C4" and merged["model"] not in ("collatz1992", "vc2000"):
-        raise ValueError(f"C4 parameter 'model' = {merged['model']!r}; valid: collatz1992, vc2000")
+    leaf_model(merged["model"], pathway)  # ValueError listing the registered models of the pathway
     return merged
 
 
