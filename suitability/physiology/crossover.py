@@ -25,20 +25,17 @@ from typing import Mapping
 
 import numpy as np
 
-from .c4 import caemmerer_c4_rates
+from .array_ops import is_xarray as _is_xarray
+from .atmosphere import co2_partial_pressure_pa, o2_partial_pressure_pa
+from .c4 import QUANTUM_YIELD_PAR_RANGE  # noqa: F401  (re-exported)
+from .models import leaf_model
 from .params import normalise_pathway, resolve_params
-from .rubisco import co2_partial_pressure_pa, o2_partial_pressure_pa, rubisco_constants
-from .temperature import _is_xarray
 
 CROSSOVER_RANGE_C = (0.0, 50.0)
 """Leaf temperatures searched for a crossover [°C]."""
 
 BISECTION_STEPS = 36
 """Halvings of the 50 °C search interval: 50 / 2**36 < 1e-9 °C."""
-
-QUANTUM_YIELD_PAR_RANGE = (50.0, 150.0)
-"""Absorbed PAR between which the von Caemmerer C4 light response is differenced [µmol m-2 s-1]."""
-
 
 def c3_quantum_yield(temperature_c, co2_ppm, *, o2_percent=20.95, pressure_kpa=101.325, params=None):
     """C3 light-limited quantum yield [mol CO2 (mol absorbed photons)-1]: φ0 (C − Γ*)/(C + 2Γ*).
@@ -51,11 +48,7 @@ def c3_quantum_yield(temperature_c, co2_ppm, *, o2_percent=20.95, pressure_kpa=1
     pressure_kpa : air pressure [kPa]
     params : C3 parameters (see ``resolve_params``); φ0 = (1 − f)/8 from ``spectral_correction``
     """
-    p = resolve_params("C3", params)
-    co2 = co2_partial_pressure_pa(co2_ppm, pressure_kpa)
-    o2 = o2_partial_pressure_pa(o2_percent, pressure_kpa)
-    gamma_star = rubisco_constants(p["kinetics"], temperature_c, o2).gamma_star
-    return (1.0 - p["spectral_correction"]) / 8.0 * (co2 - gamma_star) / (co2 + 2.0 * gamma_star)
+    return _quantum_yield("C3", temperature_c, co2_ppm, o2_percent, pressure_kpa, params)
 
 
 def c4_quantum_yield(temperature_c, co2_ppm, *, o2_percent=20.95, pressure_kpa=101.325, params=None):
@@ -69,15 +62,15 @@ def c4_quantum_yield(temperature_c, co2_ppm, *, o2_percent=20.95, pressure_kpa=1
     pressure_kpa : air pressure [kPa]
     params : C4 parameters (see ``resolve_params``)
     """
-    p = resolve_params("C4", params)
-    if p["model"] == "collatz1992":
-        return p["alpha"] + 0.0 * (temperature_c + co2_ppm + o2_percent + pressure_kpa)
+    return _quantum_yield("C4", temperature_c, co2_ppm, o2_percent, pressure_kpa, params)
+
+
+def _quantum_yield(pathway, temperature_c, co2_ppm, o2_percent, pressure_kpa, params):
+    """The quantum yield of the leaf model the resolved parameters name (its registry entry)."""
+    p = resolve_params(pathway, params)
     co2 = co2_partial_pressure_pa(co2_ppm, pressure_kpa)
     o2 = o2_partial_pressure_pa(o2_percent, pressure_kpa)
-    low, high = QUANTUM_YIELD_PAR_RANGE
-    gross_low = caemmerer_c4_rates(temperature_c, low, co2, o2, p).gross
-    gross_high = caemmerer_c4_rates(temperature_c, high, co2, o2, p).gross
-    return (gross_high - gross_low) / (high - low)
+    return leaf_model(p["model"], pathway).quantum_yield(temperature_c, co2, o2, p)
 
 
 def _pathway_params(params) -> tuple[Mapping, Mapping]:
