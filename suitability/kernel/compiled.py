@@ -225,24 +225,35 @@ def _integrate_batch(setup, moment, acc, humidity_kind, c3_stomatal, c3_constant
             weight = night_weights[point]
             _dark_night(setup, moment, node, weight)
             temperature_row = _M_TEMPERATURE_AFTER
-        gross_share = 1.0 if daylight else 0.0  # gross and photorespiration count in daylight only
-        for lane in range(BATCH):
-            day_length_h = setup[_S_DAY_LENGTH, lane]
-            if daylight:
-                _, seconds = daylight_moment(day_length_h, node, weight)
-            else:
-                _, seconds = night_moment(day_length_h, node, weight)
-            rates = _moment_rates(setup, lane, moment[temperature_row, lane], moment[_M_SUNLIT_PAR, lane],
-                                  moment[_M_SHADED_PAR, lane], moment[_M_SUNLIT_LAI, lane],
-                                  moment[_M_SHADED_LAI, lane], humidity_kind, c3_stomatal, c3_constants, c3_table,
-                                  c4_stomatal, c4_constants, c4_table, saturation, table_start,
-                                  table_inverse_step, last_row)
-            acc[A_C3_NET, lane] += seconds * rates[0]
-            acc[A_C3_GROSS, lane] += gross_share * (seconds * rates[1])
-            acc[A_C3_PHOTO, lane] += gross_share * (seconds * rates[2])
-            acc[A_C4_NET, lane] += seconds * rates[3]
-            acc[A_C4_GROSS, lane] += gross_share * (seconds * rates[4])
-            acc[_A_BAD, lane] += rates[5]
+        if daylight:  # separate lane loops, so that each has no branch inside (LLVM vectorises them)
+            for lane in range(BATCH):
+                _, seconds = daylight_moment(setup[_S_DAY_LENGTH, lane], node, weight)
+                _accumulate(setup, moment, acc, lane, seconds, 1.0, temperature_row, humidity_kind, c3_stomatal,
+                            c3_constants, c3_table, c4_stomatal, c4_constants, c4_table, saturation, table_start,
+                            table_inverse_step, last_row)
+        else:  # gross and photorespiration count in daylight only
+            for lane in range(BATCH):
+                _, seconds = night_moment(setup[_S_DAY_LENGTH, lane], node, weight)
+                _accumulate(setup, moment, acc, lane, seconds, 0.0, temperature_row, humidity_kind, c3_stomatal,
+                            c3_constants, c3_table, c4_stomatal, c4_constants, c4_table, saturation, table_start,
+                            table_inverse_step, last_row)
+
+
+@template
+def _accumulate(setup, moment, acc, lane, seconds, gross_share, temperature_row, humidity_kind, c3_stomatal,
+                c3_constants, c3_table, c4_stomatal, c4_constants, c4_table, saturation, table_start,
+                table_inverse_step, last_row):
+    """Add one moment's canopy rates of one lane, weighted by ``seconds``, to acc."""
+    rates = _moment_rates(setup, lane, moment[temperature_row, lane], moment[_M_SUNLIT_PAR, lane],
+                          moment[_M_SHADED_PAR, lane], moment[_M_SUNLIT_LAI, lane], moment[_M_SHADED_LAI, lane],
+                          humidity_kind, c3_stomatal, c3_constants, c3_table, c4_stomatal, c4_constants, c4_table,
+                          saturation, table_start, table_inverse_step, last_row)
+    acc[A_C3_NET, lane] += seconds * rates[0]
+    acc[A_C3_GROSS, lane] += gross_share * (seconds * rates[1])
+    acc[A_C3_PHOTO, lane] += gross_share * (seconds * rates[2])
+    acc[A_C4_NET, lane] += seconds * rates[3]
+    acc[A_C4_GROSS, lane] += gross_share * (seconds * rates[4])
+    acc[_A_BAD, lane] += rates[5]
 
 
 @numba.njit(**_JIT)

@@ -186,13 +186,16 @@ def fvcb(co2_pa, o2_pa, absorbed_par, vcmax, jmax, tpu, rd, kc, ko, gamma_star, 
     light_denominator = 4.0 * co2_pa + 8.0 * gamma_star
     # Divisions are guarded rather than left to produce inf/NaN: under dask, np.errstate does not reach
     # the computation and the warnings would surface. C = Γ* = 0 (no CO2, no O2) leaves Rubisco limiting.
-    rate_light = ops.where(light_denominator > 0,
-                           electron_transport / ops.where(light_denominator > 0, light_denominator, 1.0), ops.inf)
+    # The inverses depend on CO2 and temperature only: a caller evaluating several leaves at one moment
+    # (sunlit, shaded) computes them once after inlining.
+    positive = light_denominator > 0
+    inverse_light_denominator = 1.0 / ops.where(positive, light_denominator, 1.0)
+    rate_light = ops.where(positive, electron_transport * inverse_light_denominator, ops.inf)
     light_limited = rate_light < rate_rubisco
     rate = ops.minimum(rate_rubisco, rate_light)
     # TPU limits where 3 Tp < ρ C, i.e. where 3 Tp / C < ρ without dividing by a C that may be 0.
     tpu_limited = (tpu < UNLIMITED_RATE) & (3.0 * tpu < rate * co2_pa)
-    rate = ops.where(tpu_limited, 3.0 * tpu / ops.where(tpu_limited, co2_pa, 1.0), rate)
+    rate = ops.where(tpu_limited, 3.0 * tpu * (1.0 / ops.where(co2_pa > 0, co2_pa, 1.0)), rate)
     limitation = ops.where(tpu_limited, 3, ops.where(light_limited, 2, 1))
     gross = rate * (co2_pa - gamma_star)
     return C3Rates(gross - rd, gross, rate * gamma_star, limitation)

@@ -16,6 +16,7 @@ from __future__ import annotations
 import math
 
 import numba
+import numpy as np
 
 _JIT = dict(inline="always", nogil=True, error_model="numpy", fastmath={"contract"}, _nrt=False)
 _INV_FACTORIAL = tuple(1.0 / math.factorial(k) for k in range(23))
@@ -136,7 +137,7 @@ def _sincos_reduced(angle):
 @numba.njit(**_JIT)
 def _reduce_angle(angle):
     # angle − 2π k into [−π, π]; exact enough for the few turns the equations use (|angle| < 100).
-    turns = math.floor(angle * (0.5 / math.pi) + 0.5)
+    turns = np.floor(angle * (0.5 / math.pi) + 0.5)
     return angle - (2.0 * math.pi) * turns
 
 
