@@ -25,17 +25,14 @@ import numpy as np
 import pandas as pd
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
 
+from suitability.caution import CAUTION
+from suitability.atomic import atomic_write, write_text_atomic
 from suitability.errors import ConfigError, OutputError
 from suitability.reports import figures
 from suitability.reports.zones import read_zones, write_table_csv, write_table_geopackage, zonal_statistics
 
 TEMPLATES = Path(__file__).with_name("templates")
 
-CAUTION = (
-    "Results are potential, model-based estimates of where C4 or C3 plants have the physiological advantage; "
-    "they are not yield forecasts. Local soils, irrigation, pests, markets and farmer knowledge are not "
-    "represented. Confirm with local agronomic advice, field trials and local regulations before acting."
-)
 
 #: The references the method section cites, in the order they appear.
 REFERENCES = (
@@ -241,21 +238,11 @@ def _environment() -> Environment:
     )
 
 
-def _write_atomic(target: Path, write: Callable[[Path], None]) -> Path:
-    temporary = target.with_name(f".{target.stem}.tmp{target.suffix}")
-    try:
-        write(temporary)
-        os.replace(temporary, target)
-    except Exception as exc:
-        temporary.unlink(missing_ok=True)
-        raise OutputError(f"{target}: cannot write the brief ({exc})") from exc
-    return target
-
-
 def _write_pdf(html: str, target: Path) -> Path:
     import weasyprint  # imported late: it is slow to import and only the PDF needs it
 
-    return _write_atomic(target, lambda path: weasyprint.HTML(string=html, base_url=str(TEMPLATES)).write_pdf(path))
+    return atomic_write(target, lambda path: weasyprint.HTML(string=html, base_url=str(TEMPLATES)).write_pdf(path),
+                        what="the brief")
 
 
 class _Figures:
@@ -365,7 +352,7 @@ def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.D
             html = render_html(context, table, context.scenario(context.baseline), drawn, district=district)
             pages.append((f"{region}_{slug(district)}", html))
     for stem, html in pages:
-        html_path = _write_atomic(out / f"{stem}.html", lambda p, h=html: p.write_text(h, encoding="utf-8"))
+        html_path = write_text_atomic(out / f"{stem}.html", html, what="the brief")
         pdf_path = _write_pdf(html, out / f"{stem}.pdf")
         written[html_path.name] = html_path
         written[pdf_path.name] = pdf_path

@@ -28,7 +28,6 @@ from __future__ import annotations
 import contextlib
 import math
 import os
-import tempfile
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -43,9 +42,10 @@ from exactextract import exact_extract
 from exactextract.raster import NumPyRasterSource
 from rasterio.windows import Window
 
+from suitability.atomic import atomic_write
 from suitability.outputs import write_csv
 from suitability.errors import InputDataError, OutputError
-from suitability.variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED
+from suitability.variables import CHANGE, CLASS_C3, CLASS_C4, CLASS_CONTESTED, layer_names
 
 #: Layers every scenario folder must hold for the statistics.
 SCENARIO_LAYERS = (
@@ -55,8 +55,8 @@ SCENARIO_LAYERS = (
     "c4_assimilation",
     "c4_favoured_months",
 )
-#: Extra layers every non-baseline scenario folder must hold.
-CHANGE_LAYERS = ("class_transition", "advantage_change")
+#: Extra layers every non-baseline scenario folder must hold: the registry's change layers.
+CHANGE_LAYERS = layer_names(CHANGE)
 
 #: Columns of the table returned by :func:`zonal_statistics`, in order, with their meaning.
 COLUMNS: dict[str, str] = {
@@ -453,22 +453,16 @@ def zonal_statistics(
     return pd.DataFrame(rows, columns=list(COLUMNS))
 
 
-def _atomic_target(path: Path) -> tuple[Path, Path]:
+def _existing_folder(path: str | os.PathLike) -> Path:
     path = Path(path)
     if not path.parent.is_dir():
         raise OutputError(f"{path}: folder {path.parent} does not exist; expected an existing output folder")
-    # The temporary keeps the real suffix (GDAL picks drivers by it) and starts with a dot (hidden).
-    handle, temporary = tempfile.mkstemp(prefix=f".{path.stem}.tmp-", suffix=path.suffix, dir=path.parent)
-    os.close(handle)
-    return path, Path(temporary)
+    return path
 
 
 def write_table_csv(table: pd.DataFrame, path: str | os.PathLike) -> Path:
     """Write the statistics table as CSV (UTF-8, no index) atomically: temporary name, then os.replace."""
-    path = Path(path)
-    if not path.parent.is_dir():
-        raise OutputError(f"{path}: folder {path.parent} does not exist; expected an existing output folder")
-    return write_csv(table, path)
+    return write_csv(table, _existing_folder(path))
 
 
 def write_table_geopackage(
@@ -484,15 +478,11 @@ def write_table_geopackage(
     with the table's columns as attributes. The file is built under a temporary name and os.replace'd.
     """
     zones = read_zones(zones_path, name_field)
-    target, temporary = _atomic_target(Path(path))
-    temporary.unlink()  # GDAL wants to create the GeoPackage itself
-    try:
+
+    def write(temporary: Path) -> None:
         for scenario in scenarios if scenarios is not None else table["scenario"].unique():
             attributes = table[table["scenario"] == scenario]
             layer = zones.merge(attributes, on="district", how="left")
             layer.to_file(temporary, layer=str(scenario), driver="GPKG", engine="pyogrio")
-        os.replace(temporary, target)
-    except Exception as exc:
-        temporary.unlink(missing_ok=True)
-        raise OutputError(f"{target}: cannot write the district GeoPackage ({exc})") from exc
-    return target
+
+    return atomic_write(_existing_folder(path), write, what="the district GeoPackage")
