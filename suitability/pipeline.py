@@ -151,7 +151,7 @@ def run(
                 tick = time.perf_counter()
                 result = evaluate(
                     climate, scenario, physiology=cfg.physiology, season=cfg.season, classes=cfg.classes,
-                    scenario_layers=own_layers.get(scenario.name),
+                    scenario_layers=own_layers.get(scenario.name), engine=runtime.engine,
                 )
                 layers = {name: result[name] for name in layer_names(scenario) if name in result}
                 if scenario.name != baseline:
