@@ -21,13 +21,13 @@ from dataclasses import dataclass, field
 from datetime import date
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
 
 from suitability.caution import CAUTION
 from suitability.atomic import atomic_write, write_text_atomic
 from suitability.errors import ConfigError, OutputError
+from suitability.indicators import warm_season_mean  # noqa: F401 - re-exported: the brief's warm-season rule
 from suitability.reports import figures
 from suitability.reports.zones import read_zones, write_table_csv, write_table_geopackage, zonal_statistics
 
@@ -361,29 +361,6 @@ def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.D
 
 # --- from a run config -------------------------------------------------------------------------------------
 
-def warm_season_mean(monthly_mean_c: Sequence[float], months: int = 3) -> float:
-    """Mean of the ``months`` warmest values of a region's 12 monthly mean temperatures [deg C].
-
-    The warm season is taken as the three warmest months (common practice, no source).
-    """
-    values = np.asarray(monthly_mean_c, dtype="float64")
-    values = values[np.isfinite(values)]
-    if values.size < months:
-        raise ValueError(f"expected at least {months} monthly temperatures, got {values.size}")
-    return float(np.mean(np.sort(values)[-months:]))
-
-
-def _regional_monthly_temperature(cfg) -> np.ndarray:
-    """Region-mean monthly mean air temperature of the baseline climate [deg C], one value per month."""
-    from suitability.grid import TargetGrid  # imported late: only a run config needs the input stack
-    from suitability.inputs import load_climate
-
-    grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
-    climate = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
-    mean = climate["tmean"] if "tmean" in climate else (climate["tmin"] + climate["tmax"]) / 2
-    return mean.astype("float64").mean(dim=("y", "x"), skipna=True).compute().to_numpy()
-
-
 def _parameter_set_text(pathway_config) -> str:
     name = pathway_config.parameter_set or "default"
     if pathway_config.overrides:
@@ -392,16 +369,17 @@ def _parameter_set_text(pathway_config) -> str:
     return name
 
 
-def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, caution: str = CAUTION,
-                              tool_version: str = "", generated: date | None = None,
-                              warm_season_temperature_c: float | None = None) -> BriefContext:
+def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, warm_season_temperature_c: float,
+                              caution: str = CAUTION, tool_version: str = "",
+                              generated: date | None = None) -> BriefContext:
     """The BriefContext of a run config (``suitability.config.RunConfig``) whose outputs are written.
 
-    The warm-season temperature is computed from the baseline climate inputs unless given [deg C].
+    warm_season_temperature_c: the region's warm-season mean air temperature today [deg C], as the
+    pipeline computed it from the baseline climate (:func:`suitability.indicators.warm_season_mean`).
     """
     if cfg.brief is None:
         raise ConfigError("the config has no 'brief' section (zones, name_field)")
-    baseline = cfg.baseline or cfg.scenarios[0].name
+    baseline = cfg.baseline
     scenarios = tuple(
         ScenarioInfo(
             name=s.name, co2_ppm=s.co2_ppm, output_folder=Path(scenario_folders[s.name]),
@@ -410,8 +388,6 @@ def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, caut
         )
         for s in cfg.scenarios
     )
-    if warm_season_temperature_c is None:
-        warm_season_temperature_c = warm_season_mean(_regional_monthly_temperature(cfg))
     return BriefContext(
         region=cfg.region.name,
         generated=generated or date.today(),
