@@ -42,12 +42,11 @@ import dask
 from dask.callbacks import Callback
 from dask.utils import SerializableLock
 
-from .config import ENGINES, ComputeConfig, validate_section
+from .config import ENGINES, LOCAL_SCHEDULERS, ComputeConfig, validate_section
 from .errors import ConfigError
 
 #: GDAL block cache per process [MB] (see the module docstring for the choice).
 GDAL_CACHE_MB = 256
-LOCAL_SCHEDULERS = ("threads", "processes", "local-cluster")
 CONNECT_TIMEOUT_S = 10
 
 _ACTIVE_BAR: contextvars.ContextVar[ProgressReport | None] = contextvars.ContextVar("suitability_bar", default=None)

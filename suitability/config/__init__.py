@@ -7,6 +7,7 @@ the section models (``RunConfig``, ``ScenarioConfig``, ...) and the message help
 from .loading import dotted_key, format_validation_error, load_config, validate_config, validate_section
 from .schema import (
     ENGINES,
+    LOCAL_SCHEDULERS,
     MONTH_FIELD,
     BriefConfig,
     ClassesConfig,
@@ -31,5 +32,5 @@ __all__ = [
     "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
     "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
     "ComputeConfig", "BriefConfig", "load_config", "validate_config", "validate_section", "parse_crs",
-    "is_month_pattern", "MONTH_FIELD", "ENGINES", "dotted_key", "format_validation_error",
+    "is_month_pattern", "MONTH_FIELD", "ENGINES", "LOCAL_SCHEDULERS", "dotted_key", "format_validation_error",
 ]

@@ -381,7 +381,7 @@ class OutputConfig(_Section):
         return list(OUTPUT_VARIABLES) if self.layers == "all" else list(self.layers)
 
 
-_SCHEDULERS = ("threads", "processes", "local-cluster")
+LOCAL_SCHEDULERS = ("threads", "processes", "local-cluster")
 #: Values of ``compute.engine``: the compiled (numba) kernel or the numpy physiology (see suitability.model).
 ENGINES = ("compiled", "numpy")
 
@@ -404,7 +404,7 @@ class ComputeConfig(_Section):
     @field_validator("scheduler")
     @classmethod
     def _known_scheduler(cls, value: str) -> str:
-        if value in _SCHEDULERS:
+        if value in LOCAL_SCHEDULERS:
             return value
         if "://" in value:
             parts = urlsplit(value)
@@ -415,7 +415,7 @@ class ComputeConfig(_Section):
             if parts.scheme in ("tcp", "tls") and parts.hostname and port:
                 return value
             raise ValueError(f"scheduler address {value!r}: expected tcp://host:port or tls://host:port")
-        raise ValueError(f"expected one of {', '.join(_SCHEDULERS)} or a scheduler address tcp://host:port{_did_you_mean(value, _SCHEDULERS)}")
+        raise ValueError(f"expected one of {', '.join(LOCAL_SCHEDULERS)} or a scheduler address tcp://host:port{_did_you_mean(value, LOCAL_SCHEDULERS)}")
 
     @field_validator("memory_limit")
     @classmethod
@@ -559,4 +559,5 @@ __all__ = [
     "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
     "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
     "ComputeConfig", "BriefConfig", "parse_crs", "is_month_pattern", "MONTH_FIELD", "ENGINES",
+    "LOCAL_SCHEDULERS",
 ]

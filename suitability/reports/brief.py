@@ -24,8 +24,8 @@ from pathlib import Path
 import pandas as pd
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
 
-from suitability.caution import CAUTION
 from suitability.atomic import atomic_write, write_text_atomic
+from suitability.caution import CAUTION
 from suitability.errors import ConfigError, OutputError
 from suitability.indicators import warm_season_mean  # noqa: F401 - re-exported: the brief's warm-season rule
 from suitability.reports import figures
