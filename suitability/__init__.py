@@ -7,7 +7,8 @@ forecasts; defer to local agronomic advice, field trials and local regulations.
 
 from __future__ import annotations
 
-__version__ = "0.1.0"
+from ._version import __version__
+
 __all__ = ["run", "evaluate", "load_config", "RunResult", "__version__"]
 
 

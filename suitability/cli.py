@@ -23,6 +23,7 @@ from rich.markup import escape
 from rich.panel import Panel
 from rich.table import Table
 
+from .caution import CAUTION
 from .errors import SuitabilityError
 
 app = typer.Typer(
@@ -45,10 +46,6 @@ class _LazyConsole:
 console = _LazyConsole(stderr=False)
 errors = _LazyConsole(stderr=True)
 
-CAUTION_SHORT = (
-    "Potential, model-based estimates, not yield forecasts. Confirm with local agronomic advice, "
-    "field trials and local regulations before acting."
-)
 
 
 def _quiet_library_noise() -> None:
@@ -268,7 +265,7 @@ def _init(path, force):
 
 
 def _print_caution() -> None:
-    console.print(Panel(CAUTION_SHORT, title="caution", border_style="yellow"))
+    console.print(Panel(CAUTION, title="caution", border_style="yellow"))
 
 
 def _percent(share) -> str:

@@ -6,13 +6,13 @@ parameter set does before running a region.
 
 from __future__ import annotations
 
-import os
 from pathlib import Path
 from typing import Iterable
 
 import numpy as np
 import pandas as pd
 
+from .atomic import atomic_write
 from .outputs import write_csv
 from .physiology import crossover_temperature, leaf_assimilation
 
@@ -71,16 +71,6 @@ def write_curves(co2_ppm: Iterable[float], folder: Path, *, absorbed_par: float 
     axis.grid(alpha=0.3)
     axis.legend(fontsize=7, ncol=2)
     figure.tight_layout()
-    _atomic(paths["figure"], lambda p: figure.savefig(p, format="png"))
+    atomic_write(paths["figure"], lambda p: figure.savefig(p, format="png"), what="the figure")
     plt.close(figure)
     return paths
-
-
-def _atomic(path: Path, write) -> None:
-    temporary = path.with_name(f".{path.name}.tmp-{os.getpid()}")
-    try:
-        write(temporary)
-        os.replace(temporary, path)
-    finally:
-        if temporary.exists():
-            temporary.unlink()

@@ -186,24 +186,27 @@ class TargetGrid:
         Projections: A Working Manual, USGS Prof. Paper 1395, eq. 3-12; on a sphere q = 2 sin phi), with a
         and e of the CRS's ellipsoid.
         """
-        factor = self.crs.axis_info[0].unit_conversion_factor
-        if not self.is_geographic:
-            factor_y = self.crs.axis_info[1].unit_conversion_factor
-            rows = np.full(self.height, self.resolution[0] * factor * self.resolution[1] * factor_y)
-        else:
-            # factor converts the CRS's angular unit (usually degrees) to radians
-            edges = (self.transform.f + self.transform.e * np.arange(self.height + 1)) * factor
-            edges = np.clip(edges, -math.pi / 2, math.pi / 2)
-            ellipsoid = self.crs.ellipsoid
-            q = _authalic_q(edges, ellipsoid.semi_major_metre, ellipsoid.semi_minor_metre)
-            delta_lambda = self.resolution[0] * factor
-            rows = ellipsoid.semi_major_metre ** 2 / 2.0 * delta_lambda * np.abs(np.diff(q))
+        rows = self.row_cell_area_m2(np.arange(self.height))
         ychunks, xchunks = self._spatial_chunks(chunk)
         column = dsa.from_array(rows[:, None], chunks=(ychunks, 1))
         data = dsa.broadcast_to(column, self.shape, chunks=(ychunks, xchunks))
         out = self._wrap(data, "cell_area")
         out.attrs.update(units="m2", long_name="cell area" + (" in the map plane" if not self.is_geographic else ""))
         return out
+
+    def row_cell_area_m2(self, rows) -> np.ndarray:
+        """Area [m2] of a cell in each of the grid rows ``rows`` (numpy, float64); see :meth:`cell_area_m2`."""
+        rows = np.asarray(rows)
+        factor = self.crs.axis_info[0].unit_conversion_factor
+        if not self.is_geographic:
+            factor_y = self.crs.axis_info[1].unit_conversion_factor
+            return np.full(rows.shape, self.resolution[0] * factor * self.resolution[1] * factor_y, dtype="float64")
+        # factor converts the CRS's angular unit (usually degrees) to radians
+        top = np.clip((self.transform.f + self.transform.e * rows) * factor, -math.pi / 2, math.pi / 2)
+        bottom = np.clip((self.transform.f + self.transform.e * (rows + 1)) * factor, -math.pi / 2, math.pi / 2)
+        ellipsoid = self.crs.ellipsoid
+        return ellipsoidal_zone_area_m2(top, bottom, self.resolution[0] * factor, ellipsoid.semi_major_metre,
+                                        ellipsoid.inverse_flattening)
 
     def _wrap(self, data, name: str) -> xr.DataArray:
         out = xr.DataArray(data, dims=("y", "x"), coords=self.coords(), name=name)
@@ -280,9 +283,21 @@ def _snap_up(value: float, step: float) -> int:
     return int(nearest) if abs(cells - nearest) <= _SNAP_TOLERANCE else math.ceil(cells)
 
 
-def _authalic_q(phi: np.ndarray, a: float, b: float) -> np.ndarray:
-    """Snyder (1987) eq. 3-12: q(phi) [-] for the ellipsoid with semi-axes a, b [m]; 2 sin(phi) on a sphere."""
-    e2 = 1.0 - (b / a) ** 2
+def ellipsoidal_zone_area_m2(lat1_rad, lat2_rad, width_rad, semi_major_m, inverse_flattening):
+    """Area of the ellipsoidal quadrangle between two parallels, ``width_rad`` of longitude wide [m2].
+
+    A = (a^2 / 2) |q(phi_2) - q(phi_1)| delta_lambda (Snyder 1987, eq. 3-12 for q).
+    lat1_rad, lat2_rad: bounding latitudes [rad]; width_rad: longitude extent [rad]; semi_major_m: a [m];
+    inverse_flattening: 1/f [-] (0 for a sphere).
+    """
+    flattening = 0.0 if not inverse_flattening else 1.0 / inverse_flattening
+    e2 = flattening * (2.0 - flattening)
+    dq = np.abs(_authalic_q(lat2_rad, e2) - _authalic_q(lat1_rad, e2))
+    return 0.5 * semi_major_m * semi_major_m * dq * width_rad
+
+
+def _authalic_q(phi, e2: float):
+    """Snyder (1987) eq. 3-12: q(phi) [-] for an ellipsoid of squared eccentricity e2; 2 sin(phi) on a sphere."""
     s = np.sin(phi)
     if e2 < 1e-15:
         return 2.0 * s
@@ -320,4 +335,4 @@ def _latitude_block(y: np.ndarray, x: np.ndarray, crs_wkt: str) -> np.ndarray:
     return np.asarray(lat, dtype=np.float32)
 
 
-__all__ = ["TargetGrid", "align_to_grid"]
+__all__ = ["TargetGrid", "align_to_grid", "ellipsoidal_zone_area_m2"]

@@ -81,6 +81,28 @@ def class_transition(baseline_class, scenario_class):
     return _where(nodata, CLASS_NODATA, code).astype(np.uint8)
 
 
+def regional_monthly_temperature(climate: xr.Dataset) -> xr.DataArray:
+    """Region-mean monthly mean air temperature [°C] of a climate dataset (lazy, dims (month,)).
+
+    The monthly mean is ``tmean`` where given, else (tmin + tmax) / 2; averaged over every cell with data
+    in float64 (float32 sums over millions of cells lose digits).
+    """
+    mean = climate["tmean"] if "tmean" in climate else (climate["tmin"] + climate["tmax"]) / 2
+    return mean.astype("float64").mean(dim=("y", "x"), skipna=True)
+
+
+def warm_season_mean(monthly_mean_c, months: int = 3) -> float:
+    """Mean of the ``months`` warmest values of a region's 12 monthly mean temperatures [deg C].
+
+    The warm season is taken as the three warmest months (common practice, no source).
+    """
+    values = np.asarray(monthly_mean_c, dtype="float64")
+    values = values[np.isfinite(values)]
+    if values.size < months:
+        raise ValueError(f"expected at least {months} monthly temperatures, got {values.size}")
+    return float(np.mean(np.sort(values)[-months:]))
+
+
 def _as_uint16(values):
     # .astype keeps xarray and dask objects lazy; plain scalars become numpy scalars.
     return values.astype(np.uint16) if hasattr(values, "astype") else np.uint16(values)

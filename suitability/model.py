@@ -30,24 +30,17 @@ import xarray as xr
 from . import indicators, kernel
 from .physiology import crossover_temperature, daily_canopy_assimilation
 from .physiology import atmosphere, light
-from .runtime import ENGINE_CONFIG_KEY, ENGINES  # compute_context passes compute.engine under this key
+from .runtime import ENGINES
 from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario
-from .variables import CLASS_NODATA
+from .variables import CLASS_NODATA, DATACUBE, OUTPUT_LAYERS, SEASONAL, layer_names
 
 #: Day of year of the 15th of each month in a non-leap year; the representative day of the month.
 REPRESENTATIVE_DAY = np.array([15, 46, 74, 105, 135, 166, 196, 227, 258, 288, 319, 349])
 DAYS_IN_MONTH = np.array([31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.float64)
 
-SEASONAL_LAYERS = (
-    "c3_assimilation",
-    "c4_assimilation",
-    "pathway_advantage",
-    "pathway_class",
-    "c4_favoured_months",
-    "photorespiration_share",
-    "crossover_temperature",
-)
-MONTHLY_LAYERS = ("c3_monthly_assimilation", "c4_monthly_assimilation")
+# The registry (variables.OUTPUT_LAYERS) lists the layers; _evaluate_block returns them in this order.
+SEASONAL_LAYERS = layer_names(SEASONAL)
+MONTHLY_LAYERS = layer_names(DATACUBE)
 _N_STACKED = len(SEASONAL_LAYERS) + 12 * len(MONTHLY_LAYERS)
 _MONTHLY_INPUTS = ("tmin", "tmax", "shortwave", "par", "water_availability", "vpd", "humidity")
 _STATIC_INPUTS = ("elevation", "lai", "latitude")
@@ -98,8 +91,7 @@ def evaluate(
     physiology: config ``physiology`` section or mapping {"c3": {...}, "c4": {...}, "lai": ...}.
     season: config ``season`` section or mapping {"months": [...]} / {"min_mean_temperature_c": t}.
     classes: config ``classes`` section or mapping {"contested_margin": m}.
-    engine: "compiled" or "numpy"; None = the ``compute.engine`` of the active compute context, else
-        "compiled".
+    engine: "compiled" or "numpy" (the pipeline passes the config's ``compute.engine``); None = "compiled".
 
     Returns a Dataset with the layers of ``SEASONAL_LAYERS`` (y, x) and ``MONTHLY_LAYERS`` (month, y, x),
     assimilation in g C m-2 per season or month; ``pathway_class`` is uint8 with 255 as nodata.
@@ -181,7 +173,7 @@ def _evaluate_embedded(inputs: _BlockInputs, names: Sequence[str], settings: Mod
 def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None,
                    engine: str | None = None) -> ModelSettings:
     """Collect the model's settings from config sections or plain mappings (see :func:`evaluate`)."""
-    engine = engine if engine is not None else dask.config.get(ENGINE_CONFIG_KEY, None) or "compiled"
+    engine = engine if engine is not None else "compiled"
     if engine not in ENGINES:
         raise ValueError(f"engine: expected one of {', '.join(ENGINES)}, got {engine!r}")
     months = _get(season, "months", None)
@@ -239,7 +231,7 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     out = np.empty((_N_STACKED,) + shape, np.float32)
     for i, layer in enumerate(seasonal):
         values = np.asarray(layer, dtype=np.float64)
-        if SEASONAL_LAYERS[i] != "pathway_class":
+        if not OUTPUT_LAYERS[SEASONAL_LAYERS[i]].categorical:
             values = np.where(nodata, np.nan, values)
         out[i] = values
     first = len(SEASONAL_LAYERS)
@@ -364,7 +356,7 @@ def _unstack(stacked: xr.DataArray, settings: ModelSettings) -> xr.Dataset:
     layers = {}
     for i, name in enumerate(SEASONAL_LAYERS):
         layer = stacked.isel(layer=i)
-        if name == "pathway_class":
+        if OUTPUT_LAYERS[name].categorical:
             layer = layer.fillna(CLASS_NODATA).astype(np.uint8)
         layers[name] = layer
     first = len(SEASONAL_LAYERS)

@@ -16,9 +16,9 @@ Layers (:func:`write_layers`)
     is always whole. A run that is killed leaves only its hidden staging folder, which the next write
     into that folder removes (same host, process gone).
 
-    Float layers are float32 with NaN as nodata, predictor 3; class layers (those whose glossary entry in
-    :data:`suitability.variables.OUTPUT_VARIABLES` resamples by "mode") are uint8 with nodata 255,
-    predictor 2 and a colour table of our own. Tiles 512 x 512, ``BIGTIFF=IF_SAFER`` (without it, outputs
+    Float layers are float32 with NaN as nodata, predictor 3; class layers (those the registry
+    :data:`suitability.variables.OUTPUT_LAYERS` marks categorical) are uint8 with nodata 255,
+    predictor 2 and the registry's colour table. Tiles 512 x 512, ``BIGTIFF=IF_SAFER`` (without it, outputs
     near 4 GiB are silently truncated), DEFLATE (default) or ZSTD with a level. Overviews use the
     glossary's resampling (average for continuous, mode for classes). Band description = long name, band
     unit = canonical units, band tags ``long_name``/``units`` (plus the class legend), dataset tags = the
@@ -32,11 +32,11 @@ Layers (:func:`write_layers`)
 Datacube (:func:`write_datacube`): NetCDF4 with CF attributes, the CRS as a CF grid mapping (rioxarray),
     zlib compression, written chunk by chunk, under a temporary name and renamed.
 Manifest (:func:`write_manifest`): JSON (strict: NaN/inf become null), written atomically.
+Every file goes through :func:`suitability.atomic.atomic_write` (temporary name, then ``os.replace``).
 """
 
 from __future__ import annotations
 
-import errno
 import hashlib
 import json
 import math
@@ -56,35 +56,26 @@ import numpy as np
 import rioxarray  # noqa: F401  (registers the .rio accessor used on layers and datasets)
 import xarray as xr
 
+from .atomic import atomic_write, disk_full_hint, write_text_atomic
+from .config import CogConfig, validate_section
+from .errors import OutputError
 from .runlock import process_alive
-from .errors import ConfigError, OutputError
 from .runtime import compute, write_lock
-from .variables import CLASS_C3, CLASS_C4, CLASS_COLOURS_RGB, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA, OUTPUT_VARIABLES
+from .variables import (
+    CLASS_NODATA,
+    CLASS_TRANSITION_COLOURS,
+    OUTPUT_LAYERS,
+    OUTPUT_VARIABLES,
+    PATHWAY_CLASS_COLOURS,
+)
 
 TILE_SIZE = 512
 STAGING_PREFIX = ".suitability-staging-"
 GDAL_TIFF_OPTIONS = {"driver": "GTiff", "interleave": "pixel", "tiled": True, "blockxsize": TILE_SIZE,
                      "blockysize": TILE_SIZE, "BIGTIFF": "IF_SAFER"}
-COMPRESSIONS = ("deflate", "zstd")
 
-# Colour tables of our own (RGBA). Classes: 1 C3 favoured blue-green, 2 contested pale grey, 3 C4 favoured
-# amber. Transitions: kept classes take their class colour, moves toward C4 warm (stronger = darker),
-# moves toward C3 cool; nodata is transparent.
-_BLUE_GREEN, _PALE_GREY, _AMBER = (CLASS_COLOURS_RGB[c] + (255,) for c in (CLASS_C3, CLASS_CONTESTED, CLASS_C4))
-_TRANSPARENT = (0, 0, 0, 0)
-PATHWAY_CLASS_COLOURS = {CLASS_C3: _BLUE_GREEN, CLASS_CONTESTED: _PALE_GREY, CLASS_C4: _AMBER,
-                         CLASS_NODATA: _TRANSPARENT}
-CLASS_TRANSITION_COLOURS = {
-    11: _BLUE_GREEN, 22: _PALE_GREY, 33: _AMBER,
-    12: (247, 205, 150, 255), 23: (224, 112, 36, 255), 13: (176, 45, 28, 255),
-    21: (154, 208, 200, 255), 32: (150, 178, 222, 255), 31: (38, 66, 150, 255),
-    CLASS_NODATA: _TRANSPARENT,
-}
-COLOUR_TABLES = {"pathway_class": PATHWAY_CLASS_COLOURS, "class_transition": CLASS_TRANSITION_COLOURS}
-CLASS_LEGENDS = {
-    "pathway_class": dict(CLASS_NAMES),
-    "class_transition": {b * 10 + s: f"{CLASS_NAMES[b]} -> {CLASS_NAMES[s]}" for b in CLASS_NAMES for s in CLASS_NAMES},
-}
+#: Legends of the categorical layers (code -> label), from the registry.
+CLASS_LEGENDS = {name: layer.legend for name, layer in OUTPUT_LAYERS.items() if layer.categorical}
 
 
 @dataclass(frozen=True)
@@ -98,18 +89,15 @@ class CogOptions:
 
     @classmethod
     def from_any(cls, options: Any) -> CogOptions:
-        """From None, a mapping, a CogOptions, or any object with those attributes (the config model)."""
+        """From None, a CogOptions, the config's ``output.cog`` section (used as validated), or a mapping or
+        object with some of its keys (checked by the same schema, ``CogConfig``). A level that is not given
+        stays None (GDAL's default for the compression)."""
         if options is None or isinstance(options, CogOptions):
             return options or cls()
-        get = options.get if isinstance(options, Mapping) else (lambda key, default: getattr(options, key, default))
-        compression = str(get("compression", "deflate") or "deflate").lower()
-        level = get("level", None)
-        if compression not in COMPRESSIONS:
-            raise ConfigError(f"output.cog.compression: expected one of {list(COMPRESSIONS)}, got {compression!r}")
-        limit = 9 if compression == "deflate" else 22
-        if level is not None and (isinstance(level, bool) or not isinstance(level, int) or not 1 <= level <= limit):
-            raise ConfigError(f"output.cog.level: expected a whole number 1-{limit} for {compression}, got {level!r}")
-        return cls(compression, level, bool(get("overviews", True)))
+        checked = validate_section(CogConfig, options, "output.cog")
+        given = options if isinstance(options, Mapping) else vars(options) if hasattr(options, "__dict__") else {}
+        level = checked.level if isinstance(options, CogConfig) or given.get("level") is not None else None
+        return cls(checked.compression, level, checked.overviews)
 
     def creation_options(self, dtype: str) -> dict[str, Any]:
         """GDAL GTiff creation options for a band of ``dtype`` (predictor 3 floats, 2 integers)."""
@@ -121,8 +109,8 @@ class CogOptions:
 
 
 def is_class_layer(name: str) -> bool:
-    """True for categorical layers (uint8 codes, colour table): those the glossary resamples by mode."""
-    return OUTPUT_VARIABLES[name].resampling == "mode"
+    """True for categorical layers (uint8 codes, colour table), as the registry marks them."""
+    return OUTPUT_LAYERS[name].categorical
 
 
 class BlockWriter:
@@ -242,7 +230,7 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
 def write_datacube(ds: xr.Dataset, path) -> Path:
     """Write ``ds`` to NetCDF4 at ``path``: CF attributes, CRS as grid mapping, zlib, chunk by chunk, atomic.
 
-    ds: data variables on (…, y, x) with a CRS (rioxarray). Variables named in OUTPUT_VARIABLES get its
+    ds: data variables on (…, y, x) with a CRS (rioxarray). Variables of the registry OUTPUT_LAYERS get its
     long name and units where they have none. Returns the path.
     """
     path = Path(path)
@@ -252,7 +240,7 @@ def write_datacube(ds: xr.Dataset, path) -> Path:
         raise OutputError(f"{path}: the datacube has no CRS; write one with .rio.write_crs() first")
     ds = ds.copy()
     for name, variable in ds.data_vars.items():
-        known = OUTPUT_VARIABLES.get(str(name))
+        known = OUTPUT_LAYERS.get(str(name))
         if known is not None:
             variable.attrs.setdefault("long_name", known.long_name)
             variable.attrs.setdefault("units", known.units)
@@ -272,19 +260,11 @@ def write_datacube(ds: xr.Dataset, path) -> Path:
     # CF coordinate variables carry no fill value (xarray would add NaN to float x/y).
     encoding.update({name: {"_FillValue": None} for name, coord in ds.coords.items()
                      if coord.dtype.kind == "f" and name in ds.dims})
-    temporary = path.with_name(f".{path.name}.tmp-{os.getpid()}")
-    try:
-        delayed = ds.to_netcdf(temporary, engine="netcdf4", format="NETCDF4", encoding=encoding, compute=False)
-        compute(delayed)
-        os.replace(temporary, path)
-    except Exception as error:
-        temporary.unlink(missing_ok=True)
-        if isinstance(error, OutputError):
-            raise
-        raise OutputError(
-            f"{path}: writing the datacube failed: {type(error).__name__}: {error}{disk_full_hint(error, path.parent)}"
-        ) from error
-    return path
+
+    def write(temporary: Path) -> None:
+        compute(ds.to_netcdf(temporary, engine="netcdf4", format="NETCDF4", encoding=encoding, compute=False))
+
+    return atomic_write(path, write, what="the datacube")
 
 
 def write_manifest(manifest: Mapping[str, Any], path) -> Path:
@@ -292,17 +272,7 @@ def write_manifest(manifest: Mapping[str, Any], path) -> Path:
     path = Path(path)
     check_output_folder(path.parent, overwrite=True)
     text = json.dumps(_json_ready(manifest), indent=2, ensure_ascii=False, allow_nan=False)
-    temporary = path.with_name(f".{path.name}.tmp-{os.getpid()}")
-    try:
-        with open(temporary, "w", encoding="utf-8") as handle:
-            handle.write(text + "\n")
-            handle.flush()
-            os.fsync(handle.fileno())
-        os.replace(temporary, path)
-    except OSError as error:
-        temporary.unlink(missing_ok=True)
-        raise OutputError(f"{path}: cannot write the manifest: {error}{disk_full_hint(error, path.parent)}") from error
-    return path
+    return write_text_atomic(path, text + "\n", what="the manifest", sync=True)
 
 
 def file_checksum(path, block_size: int = 1 << 20) -> str:
@@ -377,15 +347,8 @@ def _class_codes(block: np.ndarray, name: str) -> np.ndarray:
 
 def write_csv(table, path) -> Path:
     """Write a pandas table as CSV (UTF-8, no index) atomically: temporary name, then os.replace."""
-    path = Path(path)
-    temporary = path.with_name(f".{path.name}.tmp-{os.getpid()}")
-    try:
-        table.to_csv(temporary, index=False, encoding="utf-8")
-        os.replace(temporary, path)
-    except OSError as error:
-        temporary.unlink(missing_ok=True)
-        raise OutputError(f"{path}: cannot write the table: {error}{disk_full_hint(error, path.parent)}") from error
-    return path
+    return atomic_write(path, lambda temporary: table.to_csv(temporary, index=False, encoding="utf-8"),
+                        what="the table")
 
 
 # Temporary names used while writing: ours carry the writer's process id; the briefs' do not.
@@ -416,32 +379,6 @@ def remove_leftovers(folder) -> list[Path]:
     return removed
 
 
-def disk_full_hint(error: BaseException, folder=None) -> str:
-    """'; the disk is full ...' when ``error`` (or what caused it) says so, or when ``folder``'s file system
-    has almost no free space left (GDAL often reports a full disk only as a failed seek or read); else ''."""
-    seen, full = error, False
-    while seen is not None and not full:
-        text = str(seen).lower()
-        full = (isinstance(seen, OSError) and seen.errno in (errno.ENOSPC, errno.EDQUOT, errno.EFBIG)) or any(
-            word in text for word in ("no space left", "disk full", "free disk space", "file too large", "quota exceeded"))
-        seen = seen.__cause__ or seen.__context__
-    free = None
-    if folder is not None:
-        try:
-            free = shutil.disk_usage(folder).free
-        except OSError:
-            pass
-    if not full and (free is None or free >= _NEARLY_FULL_BYTES):
-        return ""
-    left = f" ({free} bytes free on the disk of {folder})" if free is not None else ""
-    return (f"; the disk is full (or a file-size or quota limit was reached){left}: free space or choose another "
-            "output.folder, then run again (finished scenarios can be kept with --resume)")
-
-
-# Less free space than this after a failed write means the disk filled up.
-_NEARLY_FULL_BYTES = 8 * 1024 * 1024
-
-
 def _remove_abandoned_staging(folder: Path) -> None:
     """Remove staging folders left by killed runs: same host, process no longer alive."""
     host = socket.gethostname()
@@ -463,8 +400,8 @@ def _create_tiled_geotiff(path: Path, name: str, dtype, grid: _Grid, tags: Mappi
     import rasterio
     from rasterio.enums import ColorInterp
 
-    variable = OUTPUT_VARIABLES[name]
-    categorical = is_class_layer(name)
+    variable = OUTPUT_LAYERS[name]
+    categorical = variable.categorical
     profile = dict(options.creation_options(dtype), width=grid.width, height=grid.height, count=1,
                    dtype=np.dtype(dtype).name, crs=grid.crs, transform=grid.transform,
                    nodata=CLASS_NODATA if categorical else np.nan, SPARSE_OK=True)
@@ -476,7 +413,7 @@ def _create_tiled_geotiff(path: Path, name: str, dtype, grid: _Grid, tags: Mappi
         if categorical:
             band_tags.update({f"class_{code}": label for code, label in CLASS_LEGENDS[name].items()})
             dst.colorinterp = [ColorInterp.palette]
-            dst.write_colormap(1, COLOUR_TABLES[name])
+            dst.write_colormap(1, variable.colours)
         dst.update_tags(1, **band_tags)
 
 
@@ -485,8 +422,8 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
     from rasterio.shutil import copy
     from rio_cogeo.cogeo import cog_translate, cog_validate
 
-    variable = OUTPUT_VARIABLES[name]
-    categorical = is_class_layer(name)
+    variable = OUTPUT_LAYERS[name]
+    categorical = variable.categorical
     cog = tiled.with_name(tiled.name.replace(".tmp-", ".cog-"))
     with rasterio.open(tiled) as src:
         dtype = src.dtypes[0]
@@ -498,7 +435,7 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
             overview_level=None if options.overviews else 0,
             overview_resampling=variable.resampling,
             forward_band_tags=True,
-            colormap=COLOUR_TABLES.get(name) if categorical else None,
+            colormap=variable.colours if categorical else None,
             quiet=True,
             in_memory=False,  # a disk temporary keeps peak memory flat on large regions
         )

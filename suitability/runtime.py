@@ -18,9 +18,9 @@ processes, and by setting GDAL's limit directly (``rasterio.env.set_gdal_config`
 scheduler and on the workers of an existing scheduler. A ``GDAL_CACHEMAX`` the user exported wins; the
 limit of this process is restored on exit.
 
-The model engine (``compute.engine``: "compiled", the numba kernel, or "numpy") is passed to
-:func:`suitability.model.evaluate` through the dask config key ``suitability.engine`` for the duration of
-the context. The compiled kernel runs without numba threads (``nogil``, one block per dask thread or
+The model engine (``compute.engine``: "compiled", the numba kernel, or "numpy") is carried by the
+:class:`Runtime` (``runtime.engine``), and the pipeline passes it to :func:`suitability.model.evaluate` as
+an argument. The compiled kernel runs without numba threads (``nogil``, one block per dask thread or
 worker), so no numba threading layer is involved whatever the scheduler: numba's default layer is not safe
 when several dask threads call a parallel kernel at once, and one thread per core avoids oversubscription.
 
@@ -40,17 +40,13 @@ from typing import Any
 
 import dask
 from dask.callbacks import Callback
-from dask.utils import SerializableLock, parse_bytes
+from dask.utils import SerializableLock
 
+from .config import ENGINES, LOCAL_SCHEDULERS, ComputeConfig, validate_section
 from .errors import ConfigError
 
-#: Values of ``compute.engine`` and the dask config key that carries it to the model (see the docstring).
-ENGINES = ("compiled", "numpy")
-ENGINE_CONFIG_KEY = "suitability.engine"
 #: GDAL block cache per process [MB] (see the module docstring for the choice).
 GDAL_CACHE_MB = 256
-TILE_SIZE = 512
-LOCAL_SCHEDULERS = ("threads", "processes", "local-cluster")
 CONNECT_TIMEOUT_S = 10
 
 _ACTIVE_BAR: contextvars.ContextVar[ProgressReport | None] = contextvars.ContextVar("suitability_bar", default=None)
@@ -63,7 +59,8 @@ class Runtime:
     scheduler: "threads", "local-cluster" (also used for the "processes" setting) or "distributed"
         (a client to an existing scheduler). client: the distributed Client, None for threads.
     workers: worker threads (threads) or worker processes. chunk_size: cells per chunk side, a multiple of
-    512. show_progress: default of :meth:`progress` (the library default is silent).
+    512. show_progress: default of :meth:`progress` (the library default is silent). engine: the model
+    engine of ``compute.engine``, for :func:`suitability.model.evaluate`.
     """
 
     scheduler: str
@@ -72,6 +69,7 @@ class Runtime:
     chunk_size: int
     show_progress: bool = False
     address: str | None = field(default=None)
+    engine: str = "compiled"
 
     def write_lock(self, name: str):
         """A lock shared by every writer of the named output, valid on this runtime's workers."""
@@ -90,41 +88,25 @@ class Runtime:
 def compute_context(compute_config: Any = None, *, progress: bool = False) -> Iterator[Runtime]:
     """Open the scheduler named by ``compute_config`` and yield the :class:`Runtime`; close it on exit.
 
-    compute_config: any object with attributes ``scheduler`` (str), ``workers`` (int), ``threads_per_worker``
-        (int or None), ``memory_limit`` (str such as "2GiB", per worker, or None), ``chunk_size``
-        (int, a multiple of 512) and ``engine`` ("compiled" or "numpy"); missing attributes take the
-        defaults (threads, all cores, 1, "auto", 512, "compiled").
+    compute_config: the config's ``compute`` section (:class:`~suitability.config.ComputeConfig`, used as
+        validated), or any object or mapping with some of its keys (``scheduler``, ``workers``,
+        ``threads_per_worker``, ``memory_limit``, ``chunk_size``, ``engine``), checked by the same schema;
+        missing keys take the defaults (threads, all cores, 1 thread per worker, "auto", 512, "compiled").
     progress: whether :meth:`Runtime.progress` shows bars by default.
     Raises ConfigError naming the ``compute.*`` key when a value cannot be used.
     """
-    scheduler = str(getattr(compute_config, "scheduler", None) or "threads")
-    workers = _positive_int(getattr(compute_config, "workers", None), "compute.workers", default=os.cpu_count() or 1)
-    threads_per_worker = _positive_int(
-        getattr(compute_config, "threads_per_worker", None), "compute.threads_per_worker", default=1
-    )
-    chunk_size = _positive_int(getattr(compute_config, "chunk_size", None), "compute.chunk_size", default=TILE_SIZE)
-    if chunk_size % TILE_SIZE:
-        raise ConfigError(f"compute.chunk_size: expected a multiple of {TILE_SIZE} cells, got {chunk_size}")
-    engine = getattr(compute_config, "engine", None) or "compiled"
-    if engine not in ENGINES:
-        raise ConfigError(f"compute.engine: expected one of {list(ENGINES)}, got {engine!r}")
-    memory_limit = getattr(compute_config, "memory_limit", None)
-    if memory_limit is not None:
-        try:
-            parse_bytes(memory_limit)
-        except (ValueError, TypeError) as error:
-            raise ConfigError(
-                f"compute.memory_limit: expected a size such as '2GiB', got {memory_limit!r}"
-            ) from error
-
-    with dask.config.set({ENGINE_CONFIG_KEY: engine}):
-        yield from _open_scheduler(scheduler, workers, threads_per_worker, chunk_size, memory_limit, progress)
+    settings = validate_section(ComputeConfig, compute_config if compute_config is not None else {}, "compute")
+    yield from _open_scheduler(settings, progress)
 
 
-def _open_scheduler(scheduler, workers, threads_per_worker, chunk_size, memory_limit, progress):
+def _open_scheduler(settings: ComputeConfig, progress: bool):
+    scheduler, chunk_size, engine = settings.scheduler, settings.chunk_size, settings.engine
+    workers = settings.workers or os.cpu_count() or 1
+    threads_per_worker = settings.threads_per_worker or 1
+    memory_limit = settings.memory_limit
     if scheduler == "threads":
         with _gdal_cache_in_this_process(), dask.config.set(scheduler="threads", num_workers=workers):
-            yield Runtime("threads", None, workers, chunk_size, progress)
+            yield Runtime("threads", None, workers, chunk_size, progress, engine=engine)
     elif scheduler in ("processes", "local-cluster"):
         from distributed import Client, LocalCluster
 
@@ -136,8 +118,8 @@ def _open_scheduler(scheduler, workers, threads_per_worker, chunk_size, memory_l
             dashboard_address=":0",  # any free port: several runs (or users) may share the machine
             env={} if "GDAL_CACHEMAX" in os.environ else {"GDAL_CACHEMAX": str(GDAL_CACHE_MB)},
         ) as cluster, Client(cluster, set_as_default=True) as client:
-            yield Runtime("local-cluster", client, workers, chunk_size, progress, cluster.scheduler_address)
-    elif scheduler.startswith(("tcp://", "tls://")):
+            yield Runtime("local-cluster", client, workers, chunk_size, progress, cluster.scheduler_address, engine)
+    else:  # the schema allows only a tcp:// or tls:// scheduler address besides the local schedulers
         from distributed import Client
 
         try:
@@ -150,14 +132,9 @@ def _open_scheduler(scheduler, workers, threads_per_worker, chunk_size, memory_l
         try:
             client.run(_limit_gdal_cache, GDAL_CACHE_MB)
             n_workers = len(client.scheduler_info().get("workers", {}))
-            yield Runtime("distributed", client, n_workers, chunk_size, progress, scheduler)
+            yield Runtime("distributed", client, n_workers, chunk_size, progress, scheduler, engine)
         finally:
             client.close()
-    else:
-        raise ConfigError(
-            f"compute.scheduler: expected one of {list(LOCAL_SCHEDULERS)} or a scheduler address "
-            f"'tcp://host:port', got {scheduler!r}"
-        )
 
 
 def active_client():
@@ -290,14 +267,6 @@ def progress(description: str, enabled: bool = True, *, console=None) -> Iterato
         _ACTIVE_BAR.reset(token)
 
 
-def _positive_int(value, key: str, default: int) -> int:
-    if value is None:
-        return default
-    if isinstance(value, bool) or not isinstance(value, int) or value < 1:
-        raise ConfigError(f"{key}: expected a positive whole number, got {value!r}")
-    return value
-
-
 def _limit_gdal_cache(megabytes: int) -> int | None:
     """Set GDAL's block cache limit in this process unless GDAL_CACHEMAX is exported; return the old limit [bytes]."""
     if "GDAL_CACHEMAX" in os.environ:
@@ -330,4 +299,5 @@ __all__: Sequence[str] = (
     "active_client",
     "ProgressReport",
     "GDAL_CACHE_MB",
+    "ENGINES",
 )

@@ -3,6 +3,11 @@
 Inputs are converted to the canonical units listed here before any computation; outputs are written in
 them. Docs, the config checker and the writers all read this table, so a layer's units are defined once.
 Units are CF/UDUNITS strings that ``pint`` (with the ``cf_xarray`` registry) parses.
+
+:data:`OUTPUT_LAYERS` is the one registry of output layers: what the model returns per scenario
+("seasonal"), what the pipeline derives against the baseline ("change") and what goes into the monthly
+NetCDF ("datacube"), with units, legend, colours and the indicator that computes each. Adding an output
+layer is one entry here plus its computation and tests (see DEVELOPERS.md).
 """
 
 from __future__ import annotations
@@ -48,21 +53,6 @@ INPUT_VARIABLES: dict[str, Variable] = {
     ]
 }
 
-OUTPUT_VARIABLES: dict[str, Variable] = {
-    v.name: v
-    for v in [
-        Variable("c3_assimilation", "g m-2", "seasonal potential canopy net assimilation of a C3 canopy, as carbon", (-1e4, 1e5), "average", False),
-        Variable("c4_assimilation", "g m-2", "seasonal potential canopy net assimilation of a C4 canopy, as carbon", (-1e4, 1e5), "average", False),
-        Variable("pathway_advantage", "1", "normalised C4 minus C3 advantage (A4 - A3) / (A4 + A3)", (-1.0, 1.0), "average", False),
-        Variable("pathway_class", "1", "favoured pathway: 1 C3, 2 contested, 3 C4, 255 nodata", (1.0, 3.0), "mode", False),
-        Variable("c4_favoured_months", "1", "number of season months in which C4 is favoured", (0.0, 12.0), "average", False),
-        Variable("photorespiration_share", "1", "share of C3 gross carboxylation released by photorespiration", (0.0, 1.0), "average", False),
-        Variable("crossover_temperature", "degC", "temperature above which C4 light-limited quantum yield exceeds C3", (0.0, 50.0), "average", False),
-        Variable("advantage_change", "1", "change of the pathway advantage against the baseline", (-2.0, 2.0), "average", False),
-        Variable("class_transition", "1", "baseline class * 10 + scenario class; 255 nodata", (11.0, 33.0), "mode", False),
-    ]
-}
-
 # Aliases that mean the same quantity with the opposite sense or another name.
 WATER_LAYERS = ("water_availability", "water_stress")
 RADIATION_LAYERS = ("shortwave", "par")
@@ -76,3 +66,99 @@ CLASS_NAMES = {CLASS_C3: "C3 favoured", CLASS_CONTESTED: "contested", CLASS_C4: 
 #: Class colours as RGB, shared by the GeoTIFF colour tables and the brief figures: blue-green C3 favoured,
 #: pale grey contested, amber C4 favoured (from the colour-blind-safe set of Okabe & Ito 2008).
 CLASS_COLOURS_RGB = {CLASS_C3: (0, 158, 115), CLASS_CONTESTED: (221, 221, 221), CLASS_C4: (230, 159, 0)}
+
+# Colour tables of our own (RGBA). Classes take their class colour; transitions: kept classes take their
+# class colour, moves toward C4 warm (stronger = darker), moves toward C3 cool; nodata is transparent.
+_TRANSPARENT = (0, 0, 0, 0)
+_CLASS_RGBA = {code: rgb + (255,) for code, rgb in CLASS_COLOURS_RGB.items()}
+PATHWAY_CLASS_COLOURS = {**_CLASS_RGBA, CLASS_NODATA: _TRANSPARENT}
+CLASS_TRANSITION_COLOURS = {
+    11: _CLASS_RGBA[CLASS_C3], 22: _CLASS_RGBA[CLASS_CONTESTED], 33: _CLASS_RGBA[CLASS_C4],
+    12: (247, 205, 150, 255), 23: (224, 112, 36, 255), 13: (176, 45, 28, 255),
+    21: (154, 208, 200, 255), 32: (150, 178, 222, 255), 31: (38, 66, 150, 255),
+    CLASS_NODATA: _TRANSPARENT,
+}
+PATHWAY_CLASS_LEGEND = dict(CLASS_NAMES)
+CLASS_TRANSITION_LEGEND = {
+    b * 10 + s: f"{CLASS_NAMES[b]} -> {CLASS_NAMES[s]}" for b in CLASS_NAMES for s in CLASS_NAMES
+}
+
+SEASONAL, CHANGE, DATACUBE = "seasonal", "change", "datacube"
+
+
+@dataclass(frozen=True)
+class OutputLayer:
+    """One output layer of the registry.
+
+    name: file stem (``<name>.tif``) or NetCDF variable name; units, long_name: as written in the metadata.
+    kind: "seasonal" (one (y, x) layer per scenario, from the model), "change" (a scenario against the
+        baseline, written for every scenario but the baseline) or "datacube" (monthly (month, y, x), in the
+        NetCDF datacube only).
+    valid_range: (min, max) of valid values. resampling: overview resampling ("mode" for classes).
+    indicator: how it is computed: the name of the function in :mod:`suitability.indicators` (for
+        "seasonal" and "datacube" layers the model calls it inside its block function; "season_total" and
+        "monthly_total" are the model's own sums and "crossover_temperature" the physiology's solver).
+    compares: for change layers, the seasonal layer of baseline and scenario passed to ``indicator``.
+    legend / colours: for categorical layers, code -> label and code -> RGBA (GeoTIFF colour table).
+    required: always written whatever ``output.layers`` asks, because change layers or briefs need it.
+    """
+
+    name: str
+    units: str
+    long_name: str
+    valid_range: tuple[float, float]
+    resampling: str
+    kind: str
+    indicator: str
+    compares: str | None = None
+    legend: dict[int, str] | None = None
+    colours: dict[int, tuple[int, int, int, int]] | None = None
+    required: bool = False
+
+    @property
+    def categorical(self) -> bool:
+        """Class codes (uint8, nodata 255, colour table) rather than a continuous quantity."""
+        return self.legend is not None
+
+
+_CARBON = "g m-2"
+
+#: The registry of output layers, in the order the model returns them and the writers list them.
+OUTPUT_LAYERS: dict[str, OutputLayer] = {
+    layer.name: layer
+    for layer in [
+        OutputLayer("c3_assimilation", _CARBON, "seasonal potential canopy net assimilation of a C3 canopy, as carbon",
+                    (-1e4, 1e5), "average", SEASONAL, "season_total"),
+        OutputLayer("c4_assimilation", _CARBON, "seasonal potential canopy net assimilation of a C4 canopy, as carbon",
+                    (-1e4, 1e5), "average", SEASONAL, "season_total"),
+        OutputLayer("pathway_advantage", "1", "normalised C4 minus C3 advantage (A4 - A3) / (A4 + A3)",
+                    (-1.0, 1.0), "average", SEASONAL, "advantage_index", required=True),
+        OutputLayer("pathway_class", "1", "favoured pathway: 1 C3, 2 contested, 3 C4, 255 nodata",
+                    (1.0, 3.0), "mode", SEASONAL, "pathway_class", legend=PATHWAY_CLASS_LEGEND,
+                    colours=PATHWAY_CLASS_COLOURS, required=True),
+        OutputLayer("c4_favoured_months", "1", "number of season months in which C4 is favoured",
+                    (0.0, 12.0), "average", SEASONAL, "c4_favoured_months"),
+        OutputLayer("photorespiration_share", "1", "share of C3 gross carboxylation released by photorespiration",
+                    (0.0, 1.0), "average", SEASONAL, "photorespiration_share"),
+        OutputLayer("crossover_temperature", "degC", "temperature above which C4 light-limited quantum yield exceeds C3",
+                    (0.0, 50.0), "average", SEASONAL, "crossover_temperature"),
+        OutputLayer("advantage_change", "1", "change of the pathway advantage against the baseline",
+                    (-2.0, 2.0), "average", CHANGE, "advantage_change", compares="pathway_advantage"),
+        OutputLayer("class_transition", "1", "baseline class * 10 + scenario class; 255 nodata",
+                    (11.0, 33.0), "mode", CHANGE, "class_transition", compares="pathway_class",
+                    legend=CLASS_TRANSITION_LEGEND, colours=CLASS_TRANSITION_COLOURS),
+        OutputLayer("c3_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C3 canopy, as carbon",
+                    (-1e4, 1e5), "average", DATACUBE, "monthly_total"),
+        OutputLayer("c4_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C4 canopy, as carbon",
+                    (-1e4, 1e5), "average", DATACUBE, "monthly_total"),
+    ]
+}
+
+
+def layer_names(*kinds: str) -> tuple[str, ...]:
+    """Names of the registered output layers of the given kinds, in registry order."""
+    return tuple(name for name, layer in OUTPUT_LAYERS.items() if layer.kind in kinds)
+
+
+#: The GeoTIFF layers a run can write (``output.layers`` chooses among them): seasonal and change layers.
+OUTPUT_VARIABLES: dict[str, OutputLayer] = {name: OUTPUT_LAYERS[name] for name in layer_names(SEASONAL, CHANGE)}

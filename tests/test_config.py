@@ -24,10 +24,10 @@ from suitability.config import (
     dotted_key,
     is_month_pattern,
     load_config,
-    month_path,
     validate_config,
 )
 from suitability.errors import ConfigError
+from suitability.inputs import month_path  # the inputs expand the pattern the schema validates
 from suitability.physiology import PARAMETER_SETS
 from suitability.variables import INPUT_VARIABLES, OUTPUT_VARIABLES
 

@@ -332,11 +332,13 @@ def test_a_leaf_model_without_a_compiled_form_runs_on_the_numpy_engine_with_one_
 
 
 def test_engine_comes_from_the_compute_section():
-    # Project contract (suitability/templates/starter.yaml, compute.engine): numpy | compiled.
+    # Project contract (suitability/templates/starter.yaml, compute.engine): numpy | compiled. The runtime
+    # carries the config's engine and the pipeline passes it to the model as an argument (no global).
     assert model.model_settings().engine == "compiled"
-    with compute_context(SimpleNamespace(scheduler="threads", workers=1, engine="numpy")):
-        assert model.model_settings().engine == "numpy"
-    assert model.model_settings().engine == "compiled"
+    with compute_context(SimpleNamespace(scheduler="threads", workers=1, engine="numpy")) as runtime:
+        assert runtime.engine == "numpy"
+        assert model.model_settings().engine == "compiled"
+        assert model.model_settings(engine=runtime.engine).engine == "numpy"
     with pytest.raises(ConfigError, match="compute.engine"):
         with compute_context(SimpleNamespace(scheduler="threads", workers=1, engine="fast")):
             pass

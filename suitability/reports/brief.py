@@ -21,21 +21,18 @@ from dataclasses import dataclass, field
 from datetime import date
 from pathlib import Path
 
-import numpy as np
 import pandas as pd
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
 
+from suitability.atomic import atomic_write, write_text_atomic
+from suitability.caution import CAUTION
 from suitability.errors import ConfigError, OutputError
+from suitability.indicators import warm_season_mean  # noqa: F401 - re-exported: the brief's warm-season rule
 from suitability.reports import figures
 from suitability.reports.zones import read_zones, write_table_csv, write_table_geopackage, zonal_statistics
 
 TEMPLATES = Path(__file__).with_name("templates")
 
-CAUTION = (
-    "Results are potential, model-based estimates of where C4 or C3 plants have the physiological advantage; "
-    "they are not yield forecasts. Local soils, irrigation, pests, markets and farmer knowledge are not "
-    "represented. Confirm with local agronomic advice, field trials and local regulations before acting."
-)
 
 #: The references the method section cites, in the order they appear.
 REFERENCES = (
@@ -241,21 +238,11 @@ def _environment() -> Environment:
     )
 
 
-def _write_atomic(target: Path, write: Callable[[Path], None]) -> Path:
-    temporary = target.with_name(f".{target.stem}.tmp{target.suffix}")
-    try:
-        write(temporary)
-        os.replace(temporary, target)
-    except Exception as exc:
-        temporary.unlink(missing_ok=True)
-        raise OutputError(f"{target}: cannot write the brief ({exc})") from exc
-    return target
-
-
 def _write_pdf(html: str, target: Path) -> Path:
     import weasyprint  # imported late: it is slow to import and only the PDF needs it
 
-    return _write_atomic(target, lambda path: weasyprint.HTML(string=html, base_url=str(TEMPLATES)).write_pdf(path))
+    return atomic_write(target, lambda path: weasyprint.HTML(string=html, base_url=str(TEMPLATES)).write_pdf(path),
+                        what="the brief")
 
 
 class _Figures:
@@ -365,7 +352,7 @@ def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.D
             html = render_html(context, table, context.scenario(context.baseline), drawn, district=district)
             pages.append((f"{region}_{slug(district)}", html))
     for stem, html in pages:
-        html_path = _write_atomic(out / f"{stem}.html", lambda p, h=html: p.write_text(h, encoding="utf-8"))
+        html_path = write_text_atomic(out / f"{stem}.html", html, what="the brief")
         pdf_path = _write_pdf(html, out / f"{stem}.pdf")
         written[html_path.name] = html_path
         written[pdf_path.name] = pdf_path
@@ -373,29 +360,6 @@ def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.D
 
 
 # --- from a run config -------------------------------------------------------------------------------------
-
-def warm_season_mean(monthly_mean_c: Sequence[float], months: int = 3) -> float:
-    """Mean of the ``months`` warmest values of a region's 12 monthly mean temperatures [deg C].
-
-    The warm season is taken as the three warmest months (common practice, no source).
-    """
-    values = np.asarray(monthly_mean_c, dtype="float64")
-    values = values[np.isfinite(values)]
-    if values.size < months:
-        raise ValueError(f"expected at least {months} monthly temperatures, got {values.size}")
-    return float(np.mean(np.sort(values)[-months:]))
-
-
-def _regional_monthly_temperature(cfg) -> np.ndarray:
-    """Region-mean monthly mean air temperature of the baseline climate [deg C], one value per month."""
-    from suitability.grid import TargetGrid  # imported late: only a run config needs the input stack
-    from suitability.inputs import load_climate
-
-    grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
-    climate = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
-    mean = climate["tmean"] if "tmean" in climate else (climate["tmin"] + climate["tmax"]) / 2
-    return mean.astype("float64").mean(dim=("y", "x"), skipna=True).compute().to_numpy()
-
 
 def _parameter_set_text(pathway_config) -> str:
     name = pathway_config.parameter_set or "default"
@@ -405,16 +369,17 @@ def _parameter_set_text(pathway_config) -> str:
     return name
 
 
-def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, caution: str = CAUTION,
-                              tool_version: str = "", generated: date | None = None,
-                              warm_season_temperature_c: float | None = None) -> BriefContext:
+def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, warm_season_temperature_c: float,
+                              caution: str = CAUTION, tool_version: str = "",
+                              generated: date | None = None) -> BriefContext:
     """The BriefContext of a run config (``suitability.config.RunConfig``) whose outputs are written.
 
-    The warm-season temperature is computed from the baseline climate inputs unless given [deg C].
+    warm_season_temperature_c: the region's warm-season mean air temperature today [deg C], as the
+    pipeline computed it from the baseline climate (:func:`suitability.indicators.warm_season_mean`).
     """
     if cfg.brief is None:
         raise ConfigError("the config has no 'brief' section (zones, name_field)")
-    baseline = cfg.baseline or cfg.scenarios[0].name
+    baseline = cfg.baseline
     scenarios = tuple(
         ScenarioInfo(
             name=s.name, co2_ppm=s.co2_ppm, output_folder=Path(scenario_folders[s.name]),
@@ -423,8 +388,6 @@ def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, caut
         )
         for s in cfg.scenarios
     )
-    if warm_season_temperature_c is None:
-        warm_season_temperature_c = warm_season_mean(_regional_monthly_temperature(cfg))
     return BriefContext(
         region=cfg.region.name,
         generated=generated or date.today(),

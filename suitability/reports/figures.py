@@ -29,7 +29,8 @@ from matplotlib.figure import Figure
 from matplotlib.patches import Patch, Rectangle
 from rasterio.enums import Resampling
 
-from suitability.errors import InputDataError, OutputError
+from suitability.atomic import atomic_write
+from suitability.errors import InputDataError
 from suitability.reports.zones import zones_on_grid
 from suitability.variables import CLASS_C3, CLASS_C4, CLASS_COLOURS_RGB, CLASS_CONTESTED, CLASS_NAMES
 
@@ -387,12 +388,4 @@ def crossover_png(
 
 def save_png(data: bytes, path: str | os.PathLike) -> Path:
     """Write PNG bytes to ``path`` atomically (temporary name in the same folder, then os.replace)."""
-    target = Path(path)
-    temporary = target.with_name(f".{target.name}.tmp")
-    try:
-        temporary.write_bytes(data)
-        os.replace(temporary, target)
-    except OSError as exc:
-        temporary.unlink(missing_ok=True)
-        raise OutputError(f"{target}: cannot write the figure ({exc})") from exc
-    return target
+    return atomic_write(path, lambda temporary: temporary.write_bytes(data), what="the figure")

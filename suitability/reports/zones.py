@@ -5,19 +5,9 @@ the polygon touches, the fraction of the cell it covers. A cell's weight in ever
 
     w_i = coverage_i * cell_area_i                                                      [m2]
 
-so partial cells count in proportion to the land they contribute. Cell areas:
-
-- projected grids: the planar cell area |a*e - b*d| of the affine transform, times the square of the CRS
-  axis unit in metres (areas in the map plane of the grid's CRS, as a GIS reports them for that CRS);
-- geographic grids: the area of the ellipsoidal quadrangle between two parallels and two meridians,
-
-      A = (a^2 / 2) * |q(phi_2) - q(phi_1)| * delta_lambda                              [m2]
-      q(phi) = (1 - e^2) * [ sin(phi) / (1 - e^2 sin^2(phi))
-                             - 1 / (2e) * ln((1 - e sin(phi)) / (1 + e sin(phi))) ]
-
-  with a the semi-major axis [m], e the eccentricity of the grid CRS's ellipsoid and delta_lambda the cell
-  width [rad] (Snyder 1987, Map Projections - A Working Manual, USGS Prof. Paper 1395, eq. 3-12 for q;
-  the zone area follows from the authalic latitude). For a sphere (e = 0) q(phi) = 2 sin(phi).
+so partial cells count in proportion to the land they contribute. Cell areas are those of the run's
+target grid (:meth:`suitability.grid.TargetGrid.row_cell_area_m2`): the map-plane area on projected grids,
+the exact ellipsoidal quadrangle (Snyder 1987, eq. 3-12) on geographic ones.
 
 Weighted means use the weights of the cells where that layer has data; the standard deviation is the
 weighted population standard deviation sqrt(sum w (x - m)^2 / sum w).
@@ -28,7 +18,6 @@ from __future__ import annotations
 import contextlib
 import math
 import os
-import tempfile
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -43,9 +32,11 @@ from exactextract import exact_extract
 from exactextract.raster import NumPyRasterSource
 from rasterio.windows import Window
 
+from suitability.atomic import atomic_write
 from suitability.outputs import write_csv
 from suitability.errors import InputDataError, OutputError
-from suitability.variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED
+from suitability.grid import TargetGrid, ellipsoidal_zone_area_m2  # noqa: F401 - the area formula is re-exported
+from suitability.variables import CHANGE, CLASS_C3, CLASS_C4, CLASS_CONTESTED, layer_names
 
 #: Layers every scenario folder must hold for the statistics.
 SCENARIO_LAYERS = (
@@ -55,8 +46,8 @@ SCENARIO_LAYERS = (
     "c4_assimilation",
     "c4_favoured_months",
 )
-#: Extra layers every non-baseline scenario folder must hold.
-CHANGE_LAYERS = ("class_transition", "advantage_change")
+#: Extra layers every non-baseline scenario folder must hold: the registry's change layers.
+CHANGE_LAYERS = layer_names(CHANGE)
 
 #: Columns of the table returned by :func:`zonal_statistics`, in order, with their meaning.
 COLUMNS: dict[str, str] = {
@@ -90,89 +81,21 @@ _SQUARE_METRES_PER_HECTARE = 1.0e4
 _FULL_COVERAGE = 0.999
 
 
-@dataclass(frozen=True)
-class OutputGrid:
-    """The grid of the output rasters, read from one of them.
-
-    crs: the rasters' CRS. transform: affine, north-up. width, height: cells.
-    """
-
-    crs: pyproj.CRS
-    transform: rasterio.Affine
-    width: int
-    height: int
-
-    @classmethod
-    def from_raster(cls, path: Path) -> OutputGrid:
-        """Read the grid of ``path``; a missing CRS or a rotated or south-up grid is an error."""
-        with _open_raster(path) as dataset:
-            if dataset.crs is None:
-                raise InputDataError(f"{path}: the raster has no CRS; expected the CRS of the output grid")
-            transform = dataset.transform
-            if transform.b != 0 or transform.d != 0 or transform.e >= 0:
-                raise InputDataError(
-                    f"{path}: expected a north-up grid without rotation, found transform {tuple(transform)[:6]}"
-                )
-            return cls(pyproj.CRS.from_user_input(dataset.crs.to_wkt()), transform, dataset.width, dataset.height)
-
-    @property
-    def is_geographic(self) -> bool:
-        return bool(self.crs.is_geographic)
-
-    @property
-    def bounds(self) -> tuple[float, float, float, float]:
-        """(xmin, ymin, xmax, ymax) in the grid CRS."""
-        t = self.transform
-        return (t.c, t.f + t.e * self.height, t.c + t.a * self.width, t.f)
-
-    def row_cell_area_m2(self, rows: np.ndarray) -> np.ndarray:
-        """Area [m2] of the cells in grid rows ``rows`` (see the module docstring for the formulas)."""
-        t = self.transform
-        unit = self.crs.axis_info[0].unit_conversion_factor  # metres (projected) or radians (geographic)
-        rows = np.asarray(rows)
-        if not self.is_geographic:
-            return np.full(rows.shape, abs(t.a * t.e) * unit * unit, dtype="float64")
-        top = (t.f + t.e * rows) * unit
-        bottom = (t.f + t.e * (rows + 1)) * unit
-        ellipsoid = self.crs.ellipsoid
-        return ellipsoidal_zone_area_m2(
-            top, bottom, abs(t.a) * unit, ellipsoid.semi_major_metre, ellipsoid.inverse_flattening
-        )
-
-    def same_as(self, other: OutputGrid, tolerance: float = 1e-6) -> bool:
-        """True if ``other`` has the same CRS, shape and (to ``tolerance`` of a cell) the same transform."""
-        if (self.width, self.height) != (other.width, other.height) or not self.crs.equals(other.crs):
-            return False
-        mine, theirs = np.array(tuple(self.transform)[:6]), np.array(tuple(other.transform)[:6])
-        return bool(np.all(np.abs(mine - theirs) <= tolerance * abs(self.transform.a)))
+#: The grid of the output rasters is the run's target grid; kept under this name for the zonal code.
+OutputGrid = TargetGrid
 
 
-def authalic_q(latitude_rad, eccentricity):
-    """Snyder's q(phi) (Snyder 1987, eq. 3-12) [-].
-
-    latitude_rad: geodetic latitude [rad]. eccentricity: first eccentricity e of the ellipsoid [-].
-    q = (1 - e^2) [sin(phi) / (1 - e^2 sin^2(phi)) - 1/(2e) ln((1 - e sin(phi)) / (1 + e sin(phi)))];
-    for e = 0 the limit is 2 sin(phi).
-    """
-    sin_phi = np.sin(latitude_rad)
-    if eccentricity == 0:
-        return 2.0 * sin_phi
-    e = eccentricity
-    e_sin = e * sin_phi
-    return (1.0 - e * e) * (sin_phi / (1.0 - e_sin * e_sin) - np.log((1.0 - e_sin) / (1.0 + e_sin)) / (2.0 * e))
-
-
-def ellipsoidal_zone_area_m2(lat1_rad, lat2_rad, width_rad, semi_major_m, inverse_flattening):
-    """Area of the ellipsoidal quadrangle between two parallels, ``width_rad`` of longitude wide [m2].
-
-    A = (a^2 / 2) |q(phi_2) - q(phi_1)| delta_lambda (Snyder 1987, eq. 3-12 for q).
-    lat1_rad, lat2_rad: bounding latitudes [rad]; width_rad: longitude extent [rad]; semi_major_m: a [m];
-    inverse_flattening: 1/f [-] (0 for a sphere).
-    """
-    flattening = 0.0 if not inverse_flattening else 1.0 / inverse_flattening
-    eccentricity = math.sqrt(flattening * (2.0 - flattening))
-    dq = np.abs(authalic_q(lat2_rad, eccentricity) - authalic_q(lat1_rad, eccentricity))
-    return 0.5 * semi_major_m * semi_major_m * dq * width_rad
+def output_grid(path: Path) -> TargetGrid:
+    """Read the grid of an output raster; a missing CRS or a rotated or south-up grid is an error."""
+    with _open_raster(path) as dataset:
+        if dataset.crs is None:
+            raise InputDataError(f"{path}: the raster has no CRS; expected the CRS of the output grid")
+        transform = dataset.transform
+        if transform.b != 0 or transform.d != 0 or transform.e >= 0:
+            raise InputDataError(
+                f"{path}: expected a north-up grid without rotation, found transform {tuple(transform)[:6]}"
+            )
+        return TargetGrid(pyproj.CRS.from_user_input(dataset.crs.to_wkt()), transform, dataset.width, dataset.height)
 
 
 def read_zones(zones_path: str | os.PathLike, name_field: str) -> gpd.GeoDataFrame:
@@ -228,7 +151,7 @@ def zones_on_grid(zones: gpd.GeoDataFrame, grid_crs: pyproj.CRS) -> gpd.GeoDataF
     )
 
 
-def geometry_area_m2(geometry, grid: OutputGrid) -> float:
+def geometry_area_m2(geometry, grid: TargetGrid) -> float:
     """Area of ``geometry`` (in the grid CRS) [m2], measured as the cell areas are.
 
     Projected: planar area times the squared axis unit. Geographic: geodesic area on the grid's ellipsoid
@@ -264,7 +187,7 @@ class _DistrictCells:
         return Window(c0, r0, int(self.cols.max()) - c0 + 1, int(self.rows.max()) - r0 + 1)
 
 
-def _district_cells(geometry, grid: OutputGrid, template: NumPyRasterSource, crs) -> _DistrictCells:
+def _district_cells(geometry, grid: TargetGrid, template: NumPyRasterSource, crs) -> _DistrictCells:
     features = gpd.GeoDataFrame({"id": [0]}, geometry=[geometry], crs=crs)
     result = exact_extract(template, features, ["cell_id", "coverage"], output="pandas")
     cell_ids = np.asarray(result["cell_id"].iloc[0], dtype="int64")
@@ -273,7 +196,7 @@ def _district_cells(geometry, grid: OutputGrid, template: NumPyRasterSource, crs
     return _DistrictCells(rows, cols, coverage * grid.row_cell_area_m2(rows))
 
 
-def _grid_template(grid: OutputGrid) -> NumPyRasterSource:
+def _grid_template(grid: TargetGrid) -> NumPyRasterSource:
     # A zero-memory stand-in raster: only the grid geometry matters for cell ids and coverage.
     xmin, ymin, xmax, ymax = grid.bounds
     cells = np.broadcast_to(np.uint8(0), (grid.height, grid.width))
@@ -299,9 +222,10 @@ def _scenario_layer_paths(folder: Path, scenario: str, is_baseline: bool) -> dic
     return paths
 
 
-def _open_on_grid(path: Path, grid: OutputGrid, stack: contextlib.ExitStack):
+def _open_on_grid(path: Path, grid: TargetGrid, stack: contextlib.ExitStack):
     """Open ``path`` for the duration of ``stack``, after checking it lies on ``grid``."""
-    if not OutputGrid.from_raster(path).same_as(grid):
+    other = output_grid(path)
+    if not grid.same_grid(other.crs, other.transform, other.shape):
         raise InputDataError(
             f"{path}: the raster is not on the grid of the other outputs; expected the CRS, shape and "
             f"transform of the baseline's pathway_class.tif"
@@ -378,7 +302,7 @@ def _flags(coverage_share: float, valid_share: float, repaired: bool, empty: boo
     return "; ".join(notes)
 
 
-def _district_rows(on_grid: gpd.GeoDataFrame, grid: OutputGrid, datasets: Mapping, baseline: str) -> list[dict]:
+def _district_rows(on_grid: gpd.GeoDataFrame, grid: TargetGrid, datasets: Mapping, baseline: str) -> list[dict]:
     template = _grid_template(grid)
     grid_box = shapely.box(*grid.bounds)
     rows: list[dict] = []
@@ -441,7 +365,7 @@ def zonal_statistics(
     layer_paths = {
         name: _scenario_layer_paths(Path(folder), name, name == baseline) for name, folder in scenario_folders.items()
     }
-    grid = OutputGrid.from_raster(layer_paths[baseline]["pathway_class"])
+    grid = output_grid(layer_paths[baseline]["pathway_class"])
     zones = read_zones(zones_path, name_field)
     on_grid = zones_on_grid(zones, grid.crs)
     with contextlib.ExitStack() as stack:
@@ -453,22 +377,16 @@ def zonal_statistics(
     return pd.DataFrame(rows, columns=list(COLUMNS))
 
 
-def _atomic_target(path: Path) -> tuple[Path, Path]:
+def _existing_folder(path: str | os.PathLike) -> Path:
     path = Path(path)
     if not path.parent.is_dir():
         raise OutputError(f"{path}: folder {path.parent} does not exist; expected an existing output folder")
-    # The temporary keeps the real suffix (GDAL picks drivers by it) and starts with a dot (hidden).
-    handle, temporary = tempfile.mkstemp(prefix=f".{path.stem}.tmp-", suffix=path.suffix, dir=path.parent)
-    os.close(handle)
-    return path, Path(temporary)
+    return path
 
 
 def write_table_csv(table: pd.DataFrame, path: str | os.PathLike) -> Path:
     """Write the statistics table as CSV (UTF-8, no index) atomically: temporary name, then os.replace."""
-    path = Path(path)
-    if not path.parent.is_dir():
-        raise OutputError(f"{path}: folder {path.parent} does not exist; expected an existing output folder")
-    return write_csv(table, path)
+    return write_csv(table, _existing_folder(path))
 
 
 def write_table_geopackage(
@@ -484,15 +402,11 @@ def write_table_geopackage(
     with the table's columns as attributes. The file is built under a temporary name and os.replace'd.
     """
     zones = read_zones(zones_path, name_field)
-    target, temporary = _atomic_target(Path(path))
-    temporary.unlink()  # GDAL wants to create the GeoPackage itself
-    try:
+
+    def write(temporary: Path) -> None:
         for scenario in scenarios if scenarios is not None else table["scenario"].unique():
             attributes = table[table["scenario"] == scenario]
             layer = zones.merge(attributes, on="district", how="left")
             layer.to_file(temporary, layer=str(scenario), driver="GPKG", engine="pyogrio")
-        os.replace(temporary, target)
-    except Exception as exc:
-        temporary.unlink(missing_ok=True)
-        raise OutputError(f"{target}: cannot write the district GeoPackage ({exc})") from exc
-    return target
+
+    return atomic_write(_existing_folder(path), write, what="the district GeoPackage")

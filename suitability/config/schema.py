@@ -1,15 +1,14 @@
-"""The YAML config: schema, loading and error messages.
+"""The config schema: a tree of pydantic v2 models, one per YAML section.
 
-The schema is a tree of pydantic v2 models, every one with ``extra="forbid"`` so a misspelt key is an error
-(with the closest valid key suggested), never silently ignored. :func:`load_config` reads the file with
-``yaml.safe_load`` semantics (plus a duplicate-key check) and turns every validation problem into one
-:class:`~suitability.errors.ConfigError` that names the file, the line, the dotted key
-(``scenarios[2].co2_ppm``) and what was expected.
+Every model has ``extra="forbid"``, so a misspelt key is an error (with the closest valid key suggested),
+never silently ignored. A validated :class:`RunConfig` is final: every later step reads its values as they
+are, without checking them again (:func:`suitability.config.validate_section` checks a single section given
+in Python, e.g. a compute section passed to :func:`suitability.runtime.compute_context`, with the same models).
 
 Paths: a relative path is resolved against the folder of the config file (``RunConfig.config_dir``) at
 load time, so every path in a validated config is absolute; ``~`` is expanded. A climate path may hold a
-``{month}`` placeholder in Python format syntax (``{month}`` or ``{month:02d}``), one file per month.
-Other braces in a path are kept literally.
+``{month}`` placeholder in Python format syntax (``{month}`` or ``{month:02d}``), one file per month
+(expanded by :func:`suitability.inputs.month_path`). Other braces in a path are kept literally.
 
 ``configs/demo.yaml`` and ``suitability/templates/starter.yaml`` show every section; the starter template
 documents each key with its default and unit.
@@ -22,13 +21,10 @@ import hashlib
 import json
 import os
 import re
-import types
-import typing
 from pathlib import Path
 from typing import Annotated, Any, Literal, Union
 from urllib.parse import urlsplit
 
-import yaml
 from pydantic import (
     AfterValidator,
     BaseModel,
@@ -36,18 +32,17 @@ from pydantic import (
     Field,
     PrivateAttr,
     RootModel,
-    ValidationError,
     ValidationInfo,
     field_validator,
     model_validator,
 )
 from pydantic_core import PydanticCustomError
 
-from .errors import ConfigError
-from .variables import INPUT_VARIABLES, OUTPUT_VARIABLES
+from ..variables import INPUT_VARIABLES, OUTPUT_VARIABLES
 
 # ----------------------------------------------------------------------------------------------- paths
 
+#: The ``{month}`` / ``{month:<format>}`` placeholder of a climate path (one file per month).
 MONTH_FIELD = re.compile(r"\{month(?::(?P<spec>[^{}]*))?\}")
 _SCENARIO_NAME = re.compile(r"^[A-Za-z0-9_-]+$")
 # Above this many cells (400 GB per float32 layer) a grid is almost surely a units slip, such as a
@@ -65,11 +60,6 @@ def _resolve_path(value: Path, info: ValidationInfo) -> Path:
 ConfigPath = Annotated[Path, AfterValidator(_resolve_path)]
 _Finite = Annotated[float, Field(allow_inf_nan=False)]
 _Positive = Annotated[float, Field(gt=0, allow_inf_nan=False)]
-
-
-def month_path(path: str | Path, month: int) -> Path:
-    """The file of ``month`` (1..12) for a ``{month}`` pattern path; other braces are left as they are."""
-    return Path(MONTH_FIELD.sub(lambda m: format(month, m.group("spec") or ""), str(path)))
 
 
 def is_month_pattern(path: str | Path) -> bool:
@@ -186,9 +176,6 @@ class LayerSpec(_Section):
     @property
     def is_month_pattern(self) -> bool:
         return is_month_pattern(self.path)
-
-    def month_path(self, month: int) -> Path:
-        return month_path(self.path, month)
 
 
 class ClimateLayers(RootModel[dict[str, LayerSpec]]):
@@ -318,7 +305,7 @@ class PhysiologyConfig(_Section):
     def _parameters_known(cls, value: PathwayConfig, info: ValidationInfo) -> PathwayConfig:
         # Imported here: physiology is independent of the config, and importing it at module level
         # would make `import suitability.config` pull in the whole science stack.
-        from .physiology import resolve_params
+        from ..physiology import resolve_params
 
         try:
             resolve_params(info.field_name.upper(), value.as_params())
@@ -394,7 +381,9 @@ class OutputConfig(_Section):
         return list(OUTPUT_VARIABLES) if self.layers == "all" else list(self.layers)
 
 
-_SCHEDULERS = ("threads", "processes", "local-cluster")
+LOCAL_SCHEDULERS = ("threads", "processes", "local-cluster")
+#: Values of ``compute.engine``: the compiled (numba) kernel or the numpy physiology (see suitability.model).
+ENGINES = ("compiled", "numpy")
 
 
 class ComputeConfig(_Section):
@@ -403,7 +392,7 @@ class ComputeConfig(_Section):
     workers: Annotated[int, Field(ge=1)] | None = None
     threads_per_worker: Annotated[int, Field(ge=1)] | None = None
     memory_limit: str | None = None
-    engine: Literal["compiled", "numpy"] = "compiled"
+    engine: Literal[ENGINES] = "compiled"
 
     @field_validator("chunk_size")
     @classmethod
@@ -415,7 +404,7 @@ class ComputeConfig(_Section):
     @field_validator("scheduler")
     @classmethod
     def _known_scheduler(cls, value: str) -> str:
-        if value in _SCHEDULERS:
+        if value in LOCAL_SCHEDULERS:
             return value
         if "://" in value:
             parts = urlsplit(value)
@@ -426,7 +415,7 @@ class ComputeConfig(_Section):
             if parts.scheme in ("tcp", "tls") and parts.hostname and port:
                 return value
             raise ValueError(f"scheduler address {value!r}: expected tcp://host:port or tls://host:port")
-        raise ValueError(f"expected one of {', '.join(_SCHEDULERS)} or a scheduler address tcp://host:port{_did_you_mean(value, _SCHEDULERS)}")
+        raise ValueError(f"expected one of {', '.join(LOCAL_SCHEDULERS)} or a scheduler address tcp://host:port{_did_you_mean(value, LOCAL_SCHEDULERS)}")
 
     @field_validator("memory_limit")
     @classmethod
@@ -522,7 +511,12 @@ class RunConfig(_Section):
 
     @property
     def baseline_scenario(self) -> ScenarioConfig:
-        return self.scenario(self.baseline or self.scenarios[0].name)
+        """The baseline scenario. ``baseline`` was resolved at validation (the first scenario if not given)."""
+        return self.scenario(self.baseline)
+
+    def scenarios_baseline_first(self) -> list[ScenarioConfig]:
+        """The scenarios in config order with the baseline moved first (change layers need it written)."""
+        return sorted(self.scenarios, key=lambda s: s.name != self.baseline)
 
     def scenario(self, name: str) -> ScenarioConfig:
         for scenario in self.scenarios:
@@ -534,6 +528,7 @@ class RunConfig(_Section):
         """sha256 (hex) of the canonical JSON of the validated config: sorted keys, absolute paths, defaults filled."""
         canonical = json.dumps(self.model_dump(mode="json"), sort_keys=True, separators=(",", ":"), ensure_ascii=False)
         return hashlib.sha256(canonical.encode("utf-8")).hexdigest()
+
 
 
 # ----------------------------------------------------------------------------------------------- helpers
@@ -560,191 +555,9 @@ def _did_you_mean(value: str, valid) -> str:
     return f" (did you mean {close[0]!r}?)" if close else ""
 
 
-# ----------------------------------------------------------------------------------------------- loading
-
-
-class _UniqueKeyLoader(yaml.SafeLoader):
-    """SafeLoader that rejects a key given twice in one mapping (plain safe_load keeps the last silently)."""
-
-
-def _no_duplicate_keys(loader: _UniqueKeyLoader, node: yaml.MappingNode, deep: bool = False):
-    seen: dict[Any, int] = {}
-    for key_node, _ in node.value:
-        key = loader.construct_object(key_node, deep=deep)
-        if key in seen:
-            raise yaml.constructor.ConstructorError(
-                None, None, f"key {key!r} is given twice (first on line {seen[key]})", key_node.start_mark
-            )
-        seen[key] = key_node.start_mark.line + 1
-    return loader.construct_mapping(node, deep=deep)
-
-
-_UniqueKeyLoader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _no_duplicate_keys)
-
-
-def load_config(path: str | Path) -> RunConfig:
-    """Read and validate a YAML config. Raises ConfigError naming the file, line, key and what was expected."""
-    path = Path(path).expanduser()
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise ConfigError(f"{path}: config file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ConfigError(f"{path}: cannot read the config file ({exc})") from None
-    try:
-        data = yaml.load(text, Loader=_UniqueKeyLoader)  # noqa: S506 - a SafeLoader subclass
-    except yaml.YAMLError as exc:
-        raise ConfigError(f"{path}: {_yaml_problem(exc)}") from None
-    if data is None:
-        raise ConfigError(f"{path}: the config file is empty; expected the sections region, climate, scenarios, ...")
-    if not isinstance(data, dict):
-        raise ConfigError(f"{path}: expected a mapping of sections (region, climate, scenarios, ...), got {type(data).__name__}")
-    context = {"config_dir": path.parent.absolute(), "source_path": path}
-    try:
-        return RunConfig.model_validate(data, context=context)
-    except ValidationError as exc:
-        raise ConfigError(format_validation_error(exc, path, _key_lines(text))) from None
-
-
-def validate_config(data: dict, config_dir: str | Path | None = None) -> RunConfig:
-    """Validate a config given as a Python mapping; relative paths resolve against ``config_dir`` (default cwd).
-
-    Raises ConfigError with the same messages as :func:`load_config`.
-    """
-    source = "<config>"
-    try:
-        return RunConfig.model_validate(data, context={"config_dir": Path(config_dir or Path.cwd()).absolute()})
-    except ValidationError as exc:
-        raise ConfigError(format_validation_error(exc, source, {})) from None
-
-
-def _yaml_problem(exc: yaml.YAMLError) -> str:
-    mark = getattr(exc, "problem_mark", None) or getattr(exc, "context_mark", None)
-    problem = getattr(exc, "problem", None) or str(exc)
-    context = getattr(exc, "context", None)
-    where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark is not None else ""
-    # An unclosed quote or bracket is found only at the end of the file; where it starts is what to fix.
-    started = getattr(exc, "context_mark", None)
-    if context and started is not None and mark is not None and started.line != mark.line:
-        context = f"{context} that starts on line {started.line + 1}, column {started.column + 1}"
-    return f"{where}YAML error: {problem}" + (f" ({context})" if context else "")
-
-
-def _key_lines(text: str) -> dict[tuple, int]:
-    """Line number (1-based) of every key and list item in the YAML text, by location tuple."""
-    lines: dict[tuple, int] = {}
-
-    def walk(node, loc: tuple) -> None:
-        lines[loc] = node.start_mark.line + 1
-        if isinstance(node, yaml.MappingNode):
-            for key_node, value_node in node.value:
-                key = key_node.value
-                lines[loc + (key,)] = key_node.start_mark.line + 1
-                walk(value_node, loc + (key,))
-                lines[loc + (key,)] = key_node.start_mark.line + 1
-        elif isinstance(node, yaml.SequenceNode):
-            for i, item in enumerate(node.value):
-                walk(item, loc + (i,))
-
-    try:
-        root = yaml.compose(text, Loader=yaml.SafeLoader)
-    except yaml.YAMLError:
-        return lines
-    if root is not None:
-        walk(root, ())
-    return lines
-
-
-def format_validation_error(exc: ValidationError, source: str | Path, lines: dict[tuple, int]) -> str:
-    """One message listing every problem as ``line N, dotted.key: what was expected``."""
-    problems = []
-    for error in exc.errors(include_url=False):
-        loc = tuple(error["loc"])
-        if error["type"] == "unknown_key":
-            loc = loc + (error["ctx"]["key"],)
-        elif error["type"] == "located":
-            loc = loc + tuple(error["ctx"]["at"])
-        key = dotted_key(loc) or "(top level)"
-        line = _line_of(loc, lines)
-        where = f"line {line}, " if line else ""
-        problems.append(f"{where}{key}: {_explain(error, loc)}")
-    head = f"{source}: {len(problems)} problem{'s' if len(problems) > 1 else ''} in the config"
-    return head + "\n" + "\n".join(f"  - {p}" for p in problems)
-
-
-def dotted_key(loc: tuple) -> str:
-    """('scenarios', 2, 'co2_ppm') -> 'scenarios[2].co2_ppm'."""
-    text = ""
-    for part in loc:
-        text += f"[{part}]" if isinstance(part, int) else (f".{part}" if text else str(part))
-    return text
-
-
-def _line_of(loc: tuple, lines: dict[tuple, int]) -> int | None:
-    for end in range(len(loc), -1, -1):
-        if loc[:end] in lines:
-            return lines[loc[:end]]
-    return None
-
-
-def _explain(error: dict, loc: tuple) -> str:
-    kind, message = error["type"], error["msg"]
-    if kind == "extra_forbidden":
-        valid = _valid_keys(loc[:-1])
-        return f"unknown key{_did_you_mean(str(loc[-1]), valid)}" + (f" (valid keys here: {', '.join(valid)})" if valid else "")
-    if kind == "missing":
-        return "required key is missing"
-    if kind in ("unknown_key", "located"):
-        return message
-    if kind in _PLAIN_WORDS:  # pydantic names Python classes here; say it in the words of a YAML file
-        return f"{_PLAIN_WORDS[kind]} (got {error.get('input')!r})"
-    message = message.removeprefix("Value error, ").removeprefix("Assertion failed, ")
-    if kind not in ("value_error", "assertion_error"):
-        message = f"{message[0].lower()}{message[1:]} (got {error.get('input')!r})"
-    return message
-
-
-_PLAIN_WORDS = {
-    "model_type": "expected a section of 'key: value' entries",
-    "dict_type": "expected a section of 'key: value' entries",
-    "model_attributes_type": "expected a section of 'key: value' entries",
-    "path_type": "expected a file or folder path as text",
-}
-
-
-def _valid_keys(loc: tuple) -> list[str]:
-    """Field names of the model found at ``loc`` in the schema (empty if it is not a model)."""
-    node: Any = RunConfig
-    for part in loc:
-        node = _strip_optional(node)
-        if isinstance(part, int):
-            args = typing.get_args(node)
-            node = args[0] if args else None
-        elif isinstance(node, type) and issubclass(node, RootModel):
-            node = typing.get_args(node.model_fields["root"].annotation)[1]
-        elif isinstance(node, type) and issubclass(node, BaseModel) and part in node.model_fields:
-            node = node.model_fields[part].annotation
-        else:
-            return []
-    node = _strip_optional(node)
-    if isinstance(node, type) and issubclass(node, BaseModel) and not issubclass(node, RootModel):
-        return list(node.model_fields)
-    return []
-
-
-def _strip_optional(node: Any) -> Any:
-    while typing.get_origin(node) is Annotated:
-        node = typing.get_args(node)[0]
-    if typing.get_origin(node) in (Union, types.UnionType):
-        members = [a for a in typing.get_args(node) if a is not type(None)]
-        if len(members) == 1:
-            return _strip_optional(members[0])
-    return node
-
-
 __all__ = [
     "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
     "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
-    "ComputeConfig", "BriefConfig", "load_config", "validate_config", "parse_crs", "month_path",
-    "is_month_pattern", "dotted_key", "format_validation_error",
+    "ComputeConfig", "BriefConfig", "parse_crs", "is_month_pattern", "MONTH_FIELD", "ENGINES",
+    "LOCAL_SCHEDULERS",
 ]

@@ -1,0 +1,8 @@
+"""The caution every output carries, written once: the CLI prints it, briefs show it, GeoTIFF tags, the
+NetCDF datacube, the manifest and :class:`suitability.pipeline.RunResult` hold it."""
+
+CAUTION = (
+    "Results are potential, model-based estimates of where C4 or C3 plants have the physiological "
+    "advantage; they are not yield forecasts. Local soils, irrigation, pests, markets and farmer knowledge "
+    "are not represented. Confirm with local agronomic advice, field trials and local regulations before acting."
+)

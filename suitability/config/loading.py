@@ -1,0 +1,219 @@
+"""Reading a YAML config and saying what is wrong with it.
+
+:func:`load_config` reads the file with ``yaml.safe_load`` semantics (plus a duplicate-key check) and turns
+every validation problem into one :class:`~suitability.errors.ConfigError` that names the file, the line,
+the dotted key (``scenarios[2].co2_ppm``) and what was expected.
+"""
+
+from __future__ import annotations
+
+import types
+import typing
+from pathlib import Path
+from typing import Annotated, Any, Union
+
+import yaml
+from pydantic import BaseModel, RootModel, ValidationError
+
+from ..errors import ConfigError
+from .schema import RunConfig, _did_you_mean
+
+class _UniqueKeyLoader(yaml.SafeLoader):
+    """SafeLoader that rejects a key given twice in one mapping (plain safe_load keeps the last silently)."""
+
+
+def _no_duplicate_keys(loader: _UniqueKeyLoader, node: yaml.MappingNode, deep: bool = False):
+    seen: dict[Any, int] = {}
+    for key_node, _ in node.value:
+        key = loader.construct_object(key_node, deep=deep)
+        if key in seen:
+            raise yaml.constructor.ConstructorError(
+                None, None, f"key {key!r} is given twice (first on line {seen[key]})", key_node.start_mark
+            )
+        seen[key] = key_node.start_mark.line + 1
+    return loader.construct_mapping(node, deep=deep)
+
+
+_UniqueKeyLoader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _no_duplicate_keys)
+
+
+def load_config(path: str | Path) -> RunConfig:
+    """Read and validate a YAML config. Raises ConfigError naming the file, line, key and what was expected."""
+    path = Path(path).expanduser()
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise ConfigError(f"{path}: config file not found") from None
+    except (OSError, UnicodeDecodeError) as exc:
+        raise ConfigError(f"{path}: cannot read the config file ({exc})") from None
+    try:
+        data = yaml.load(text, Loader=_UniqueKeyLoader)  # noqa: S506 - a SafeLoader subclass
+    except yaml.YAMLError as exc:
+        raise ConfigError(f"{path}: {_yaml_problem(exc)}") from None
+    if data is None:
+        raise ConfigError(f"{path}: the config file is empty; expected the sections region, climate, scenarios, ...")
+    if not isinstance(data, dict):
+        raise ConfigError(f"{path}: expected a mapping of sections (region, climate, scenarios, ...), got {type(data).__name__}")
+    context = {"config_dir": path.parent.absolute(), "source_path": path}
+    try:
+        return RunConfig.model_validate(data, context=context)
+    except ValidationError as exc:
+        raise ConfigError(format_validation_error(exc, path, _key_lines(text))) from None
+
+
+def validate_config(data: dict, config_dir: str | Path | None = None) -> RunConfig:
+    """Validate a config given as a Python mapping; relative paths resolve against ``config_dir`` (default cwd).
+
+    Raises ConfigError with the same messages as :func:`load_config`.
+    """
+    source = "<config>"
+    try:
+        return RunConfig.model_validate(data, context={"config_dir": Path(config_dir or Path.cwd()).absolute()})
+    except ValidationError as exc:
+        raise ConfigError(format_validation_error(exc, source, {})) from None
+
+
+def validate_section(model: type[BaseModel], data: Any, key: str) -> BaseModel:
+    """One config section given in Python (a mapping or an object with its attributes), validated by its model.
+
+    For library callers that pass a section without a whole config (e.g. ``compute_context(settings)``): the
+    schema is the only place that says what is valid. An instance of ``model`` is returned as it is (it was
+    validated when built); otherwise the attributes ``model`` knows are read (missing or None ones take the
+    model's defaults). Raises ConfigError naming ``key.<field>`` and what was expected.
+    """
+    if isinstance(data, model):
+        return data
+    if isinstance(data, dict):
+        values = {k: v for k, v in data.items() if v is not None}
+    else:
+        values = {k: getattr(data, k) for k in model.model_fields if getattr(data, k, None) is not None}
+    try:
+        return model.model_validate(values)
+    except ValidationError as exc:
+        problems = [f"{dotted_key((key,) + tuple(e['loc']))}: {_explain(e, tuple(e['loc']))}"
+                    for e in exc.errors(include_url=False)]
+        raise ConfigError("; ".join(problems)) from None
+
+
+def _yaml_problem(exc: yaml.YAMLError) -> str:
+    mark = getattr(exc, "problem_mark", None) or getattr(exc, "context_mark", None)
+    problem = getattr(exc, "problem", None) or str(exc)
+    context = getattr(exc, "context", None)
+    where = f"line {mark.line + 1}, column {mark.column + 1}: " if mark is not None else ""
+    # An unclosed quote or bracket is found only at the end of the file; where it starts is what to fix.
+    started = getattr(exc, "context_mark", None)
+    if context and started is not None and mark is not None and started.line != mark.line:
+        context = f"{context} that starts on line {started.line + 1}, column {started.column + 1}"
+    return f"{where}YAML error: {problem}" + (f" ({context})" if context else "")
+
+
+def _key_lines(text: str) -> dict[tuple, int]:
+    """Line number (1-based) of every key and list item in the YAML text, by location tuple."""
+    lines: dict[tuple, int] = {}
+
+    def walk(node, loc: tuple) -> None:
+        lines[loc] = node.start_mark.line + 1
+        if isinstance(node, yaml.MappingNode):
+            for key_node, value_node in node.value:
+                key = key_node.value
+                lines[loc + (key,)] = key_node.start_mark.line + 1
+                walk(value_node, loc + (key,))
+                lines[loc + (key,)] = key_node.start_mark.line + 1
+        elif isinstance(node, yaml.SequenceNode):
+            for i, item in enumerate(node.value):
+                walk(item, loc + (i,))
+
+    try:
+        root = yaml.compose(text, Loader=yaml.SafeLoader)
+    except yaml.YAMLError:
+        return lines
+    if root is not None:
+        walk(root, ())
+    return lines
+
+
+def format_validation_error(exc: ValidationError, source: str | Path, lines: dict[tuple, int]) -> str:
+    """One message listing every problem as ``line N, dotted.key: what was expected``."""
+    problems = []
+    for error in exc.errors(include_url=False):
+        loc = tuple(error["loc"])
+        if error["type"] == "unknown_key":
+            loc = loc + (error["ctx"]["key"],)
+        elif error["type"] == "located":
+            loc = loc + tuple(error["ctx"]["at"])
+        key = dotted_key(loc) or "(top level)"
+        line = _line_of(loc, lines)
+        where = f"line {line}, " if line else ""
+        problems.append(f"{where}{key}: {_explain(error, loc)}")
+    head = f"{source}: {len(problems)} problem{'s' if len(problems) > 1 else ''} in the config"
+    return head + "\n" + "\n".join(f"  - {p}" for p in problems)
+
+
+def dotted_key(loc: tuple) -> str:
+    """('scenarios', 2, 'co2_ppm') -> 'scenarios[2].co2_ppm'."""
+    text = ""
+    for part in loc:
+        text += f"[{part}]" if isinstance(part, int) else (f".{part}" if text else str(part))
+    return text
+
+
+def _line_of(loc: tuple, lines: dict[tuple, int]) -> int | None:
+    for end in range(len(loc), -1, -1):
+        if loc[:end] in lines:
+            return lines[loc[:end]]
+    return None
+
+
+def _explain(error: dict, loc: tuple) -> str:
+    kind, message = error["type"], error["msg"]
+    if kind == "extra_forbidden":
+        valid = _valid_keys(loc[:-1])
+        return f"unknown key{_did_you_mean(str(loc[-1]), valid)}" + (f" (valid keys here: {', '.join(valid)})" if valid else "")
+    if kind == "missing":
+        return "required key is missing"
+    if kind in ("unknown_key", "located"):
+        return message
+    if kind in _PLAIN_WORDS:  # pydantic names Python classes here; say it in the words of a YAML file
+        return f"{_PLAIN_WORDS[kind]} (got {error.get('input')!r})"
+    message = message.removeprefix("Value error, ").removeprefix("Assertion failed, ")
+    if kind not in ("value_error", "assertion_error"):
+        message = f"{message[0].lower()}{message[1:]} (got {error.get('input')!r})"
+    return message
+
+
+_PLAIN_WORDS = {
+    "model_type": "expected a section of 'key: value' entries",
+    "dict_type": "expected a section of 'key: value' entries",
+    "model_attributes_type": "expected a section of 'key: value' entries",
+    "path_type": "expected a file or folder path as text",
+}
+
+
+def _valid_keys(loc: tuple) -> list[str]:
+    """Field names of the model found at ``loc`` in the schema (empty if it is not a model)."""
+    node: Any = RunConfig
+    for part in loc:
+        node = _strip_optional(node)
+        if isinstance(part, int):
+            args = typing.get_args(node)
+            node = args[0] if args else None
+        elif isinstance(node, type) and issubclass(node, RootModel):
+            node = typing.get_args(node.model_fields["root"].annotation)[1]
+        elif isinstance(node, type) and issubclass(node, BaseModel) and part in node.model_fields:
+            node = node.model_fields[part].annotation
+        else:
+            return []
+    node = _strip_optional(node)
+    if isinstance(node, type) and issubclass(node, BaseModel) and not issubclass(node, RootModel):
+        return list(node.model_fields)
+    return []
+
+
+def _strip_optional(node: Any) -> Any:
+    while typing.get_origin(node) is Annotated:
+        node = typing.get_args(node)[0]
+    if typing.get_origin(node) in (Union, types.UnionType):
+        members = [a for a in typing.get_args(node) if a is not type(None)]
+        if len(members) == 1:
+            return _strip_optional(members[0])
+    return node

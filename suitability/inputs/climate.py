@@ -1,0 +1,129 @@
+"""Opening the climate layers of a config in canonical units, and aligning them on the target grid.
+
+Every layer comes out as a dask-backed float32 DataArray, NaN for nodata, in the units of
+:mod:`suitability.variables`, with dims ``(month, y, x)`` (month = 1..12) or ``(y, x)`` for static layers.
+Which reader opens a path is decided by :mod:`.readers`; units by :mod:`.units`; the sample checks by
+:mod:`.checks`.
+"""
+
+from __future__ import annotations
+
+import warnings
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from ..errors import InputDataError
+from ..grid import TargetGrid, align_to_grid
+from ..variables import INPUT_VARIABLES
+from .checks import check_plausible, coverage_share, read_sample
+from .native import Native
+from .raster import read_raster
+from .readers import absolute, read_native
+from .units import linear_conversion, output_name
+
+
+class InputCoverageWarning(UserWarning):
+    """A layer covers only part of the region; cells outside it are NaN."""
+
+
+def open_layer(name: str, spec: Any, config_dir: str | Path | None = None, *, chunk: int = 512) -> xr.DataArray:
+    """Open one climate layer lazily on its own grid, float32, in canonical units, nodata and invalid values NaN.
+
+    name: config layer name (a key of ``variables.INPUT_VARIABLES``); spec: its LayerSpec (path, variable,
+    units, resampling, nodata, band); config_dir: folder that relative paths are taken from.
+    Returns a DataArray named after :func:`output_name`, with the CRS written and ``units`` in attrs.
+    Raises InputDataError naming the file, the layer and what was expected.
+    """
+    converted, _ = open_converted(name, spec, config_dir, chunk)
+    low, high = INPUT_VARIABLES[converted.name].valid_range
+    out = converted.where((converted >= low) & (converted <= high))
+    out.attrs = converted.attrs
+    return out
+
+
+def open_converted(name: str, spec: Any, config_dir, chunk: int) -> tuple[xr.DataArray, Native]:
+    """The layer in canonical units before the valid-range mask, and what was read."""
+    if name not in INPUT_VARIABLES:
+        raise InputDataError(f"unknown layer {name!r}; expected one of {', '.join(INPUT_VARIABLES)}")
+    variable = INPUT_VARIABLES[name]
+    path = absolute(spec.path, config_dir)
+    native = read_native(name, spec, path, variable.monthly, chunk)
+    where = f"{path}: layer {name!r}" + (f" (variable {spec.variable!r})" if getattr(spec, "variable", None) else "")
+    declared = getattr(spec, "units", None) or native.file_units
+    if not declared:
+        raise InputDataError(f"{where}: no units; declare them in the config (e.g. units: K) since the file has no 'units' attribute")
+    try:
+        result_name = output_name(name, declared)
+        canonical = INPUT_VARIABLES[result_name].units
+        scale, offset = linear_conversion(declared, "1" if name == "water_stress" else canonical)
+    except ValueError as exc:
+        hint = "" if "expected" in str(exc) else f"; expected units convertible to {INPUT_VARIABLES[name].units}"
+        raise InputDataError(f"{where}: {exc}{hint}") from None
+
+    sample = read_sample(native.data, where)
+    check_plausible(name, declared, scale, offset, sample, where)
+    if not np.isfinite(sample).any() and not bool(native.data.notnull().any().compute()):
+        raise InputDataError(f"{where}: every cell is nodata; expected some valid values")
+
+    data = native.data
+    if (scale, offset) != (1.0, 0.0):
+        data = data * np.float32(scale) + np.float32(offset)
+    if name == "water_stress":
+        data = 1.0 - data
+    data = data.astype(np.float32)
+    data.name = result_name
+    data.attrs = {
+        "units": canonical, "long_name": INPUT_VARIABLES[result_name].long_name, "source": str(path),
+        "source_layer": name, "declared_units": str(declared),
+    }
+    return data, native
+
+
+def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path | None = None, chunk: int = 512) -> xr.Dataset:
+    """All layers of a climate section (or a scenario's overrides) aligned lazily on ``grid``.
+
+    climate_config: mapping layer name -> LayerSpec (the config's ``climate`` or a scenario's ``climate``).
+    Returns a Dataset keyed by output name (``par`` / ``water_availability`` where converted) with
+    monthly layers (month, y, x), month = 1..12, static layers (y, x), chunks {"month": -1, "y": chunk,
+    "x": chunk}, coordinates exactly the grid's. A layer not reaching the region is an InputDataError; one
+    covering it partly gives an InputCoverageWarning with the share covered (cells outside are NaN).
+    """
+    layers: dict[str, xr.DataArray] = {}
+    for name, spec in climate_config.items():
+        layer = open_layer(name, spec, config_dir, chunk=chunk)
+        path = absolute(spec.path, config_dir)
+        share = coverage_share(layer, grid)
+        if share <= 0.0:
+            raise InputDataError(
+                f"{path}: layer {name!r} does not overlap the region (layer bounds {tuple(round(b, 4) for b in layer.rio.bounds())} "
+                f"in {layer.rio.crs}; region bounds {grid.bounds} in {grid.crs.to_string()})"
+            )
+        if share < 1.0 - 1e-6:
+            warnings.warn(f"{path}: layer {name!r} covers {share:.1%} of the region; cells outside it are NaN",
+                          InputCoverageWarning, stacklevel=2)
+        resampling = getattr(spec, "resampling", None) or INPUT_VARIABLES[name].resampling
+        if layer.name in layers:
+            raise InputDataError(f"{path}: layer {name!r} gives {layer.name!r}, which another layer already gives")
+        layers[layer.name] = align_to_grid(layer, grid, resampling, chunk)
+    # Every monthly layer was checked to hold each month 1..12 once (sorted), so their months agree.
+    dataset = xr.Dataset(layers)
+    return dataset.rio.write_crs(grid.crs.to_wkt())
+
+
+def load_mask(region_config: Any, grid: TargetGrid, config_dir: str | Path | None = None, chunk: int = 512) -> xr.DataArray | None:
+    """The region's ``mask`` on the grid as a lazy boolean (y, x): True where the mask is non-zero and not
+    nodata (nearest-neighbour resampling). None if the region has no mask."""
+    mask_path = getattr(region_config, "mask", None)
+    if mask_path is None:
+        return None
+    path = absolute(mask_path, config_dir)
+    if not path.exists():
+        raise InputDataError(f"{path}: the region mask does not exist")
+    native = read_raster("mask", path, chunk=chunk).data.astype(np.float32)
+    aligned = align_to_grid(native, grid, "nearest", chunk)
+    keep = aligned.notnull() & (aligned != 0)
+    keep.name = "mask"
+    return keep

@@ -1,0 +1,143 @@
+"""What ``suitability check`` reports about every input, without computing the model."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+import xarray as xr
+
+from ..errors import InputDataError
+from ..grid import TargetGrid
+from ..variables import INPUT_VARIABLES
+from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, read_sample
+from .climate import open_converted
+from .raster import read_raster
+from .readers import absolute
+from .units import units_differ
+
+
+@dataclass
+class LayerReport:
+    """What :func:`inspect_inputs` found about one input layer (no model computed).
+
+    layer: config layer name; output_name: the name it is returned under (``par``, ``water_availability``).
+    scenario: None for the baseline climate, else the scenario whose override this is.
+    path: the file (pattern as written for ``{month}`` paths); driver: "GTiff", "netCDF", "Zarr", ...
+    crs: CRS as text; native_resolution: (x, y) cell size in CRS units.
+    declared_units: the config's units, else the file's; file_units: the file's units attribute;
+    canonical_units: the units it is converted to. overlap_share: share of the region inside the layer's
+    extent [0-1]; nodata_share / out_of_range_share: shares of a sample of the layer within the region
+    (see :func:`.checks.read_sample`) that are nodata / outside the valid range after conversion. problems: errors that
+    stop a run; warnings: notes.
+    """
+
+    layer: str
+    path: str
+    scenario: str | None = None
+    output_name: str | None = None
+    driver: str | None = None
+    crs: str | None = None
+    native_resolution: tuple[float, float] | None = None
+    declared_units: str | None = None
+    file_units: str | None = None
+    canonical_units: str | None = None
+    overlap_share: float | None = None
+    nodata_share: float | None = None
+    out_of_range_share: float | None = None
+    problems: list[str] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+
+
+def inspect_inputs(config: Any) -> list[LayerReport]:
+    """Open every input of ``config`` (baseline climate, scenario overrides, region mask) and report on it.
+
+    Reads only metadata and samples of at most 256 x 256 cells per time step; never computes the model.
+    Problems that would stop a run are listed per layer in ``problems`` rather than raised, so one check
+    shows all of them.
+    """
+    reports: list[LayerReport] = []
+    try:
+        grid = TargetGrid.from_region(config.region, config.config_dir)
+    except (InputDataError, ValueError) as exc:
+        grid = None
+        reports.append(LayerReport(layer="region", path=str(getattr(config.region, "like", "") or ""), problems=[str(exc)]))
+    entries: list[tuple[str | None, str, Any]] = [(None, n, s) for n, s in config.climate.items()]
+    for scenario in config.scenarios:
+        entries += [(scenario.name, n, s) for n, s in (scenario.climate.items() if scenario.climate else ())]
+    for scenario, name, spec in entries:
+        reports.append(_inspect_layer(name, spec, config.config_dir, grid, scenario))
+    if getattr(config.region, "mask", None) is not None and grid is not None:
+        reports.append(_inspect_mask(config.region, grid, config.config_dir))
+    return reports
+
+
+def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, scenario: str | None) -> LayerReport:
+    report = LayerReport(layer=name, path=str(spec.path), scenario=scenario, declared_units=getattr(spec, "units", None))
+    try:
+        converted, native = open_converted(name, spec, config_dir, SAMPLE_SIDE * 2)
+    except InputDataError as exc:
+        report.problems.append(str(exc))
+        return report
+    report.output_name = converted.name
+    report.driver = native.driver
+    report.file_units = native.file_units
+    report.declared_units = report.declared_units or native.file_units
+    report.canonical_units = converted.attrs["units"]
+    crs = converted.rio.crs
+    report.crs = crs.to_string() if crs is not None else None
+    res_x, res_y = converted.rio.resolution(recalc=True)
+    report.native_resolution = (abs(float(res_x)), abs(float(res_y)))
+    if spec.units and native.file_units and units_differ(spec.units, native.file_units):
+        report.warnings.append(f"declared units {spec.units!r} override the file's {native.file_units!r}")
+    if grid is None:
+        return report
+    report.overlap_share = coverage_share(converted, grid)
+    if report.overlap_share <= 0.0:
+        report.problems.append("does not overlap the region")
+        return report
+    if report.overlap_share < 1.0 - 1e-6:
+        report.warnings.append(f"covers {report.overlap_share:.1%} of the region; cells outside are NaN")
+    resampling = getattr(spec, "resampling", None) or INPUT_VARIABLES[name].resampling
+    ratio = cells_per_grid_cell(converted, grid)
+    if ratio is not None and ratio > 4.0 and resampling in ("nearest", "bilinear", "cubic"):
+        report.warnings.append(f"about {ratio:.0f} layer cells per grid cell: '{resampling}' uses only the cells next to "
+                               "each grid cell centre; resampling: average uses them all")
+    sample = read_sample(_region_window(converted, grid), f"{spec.path}: layer {name!r}")
+    valid = np.isfinite(sample)
+    report.nodata_share = float(1.0 - valid.mean()) if sample.size else None
+    low, high = INPUT_VARIABLES[converted.name].valid_range
+    inside = (sample[valid] >= low) & (sample[valid] <= high)
+    report.out_of_range_share = float(1.0 - inside.mean()) if inside.size else None
+    if report.nodata_share == 1.0:
+        report.problems.append("no valid value within the region (on a sample)")
+    if report.out_of_range_share:
+        report.warnings.append(f"{report.out_of_range_share:.1%} of sampled values are outside {low:g}..{high:g} "
+                               f"{converted.attrs['units']} and become nodata")
+    return report
+
+
+def _inspect_mask(region: Any, grid: TargetGrid, config_dir) -> LayerReport:
+    report = LayerReport(layer="mask", path=str(region.mask))
+    try:
+        native = read_raster("mask", absolute(region.mask, config_dir), chunk=SAMPLE_SIDE * 2)
+    except InputDataError as exc:
+        report.problems.append(str(exc))
+        return report
+    report.driver = native.driver
+    report.crs = native.data.rio.crs.to_string()
+    report.overlap_share = coverage_share(native.data, grid)
+    if report.overlap_share <= 0.0:
+        report.problems.append("does not overlap the region")
+    return report
+
+
+def _region_window(data: xr.DataArray, grid: TargetGrid) -> xr.DataArray:
+    """The part of a native-grid layer that lies under the region's bounds (in the layer's CRS)."""
+    from pyproj import CRS, Transformer
+
+    to_layer = Transformer.from_crs(grid.crs, CRS.from_user_input(data.rio.crs.to_wkt()), always_xy=True)
+    xmin, ymin, xmax, ymax = to_layer.transform_bounds(*grid.bounds, densify_pts=21)
+    window = data.sel(x=slice(xmin, xmax), y=slice(ymax, ymin))
+    return window if window.sizes["x"] and window.sizes["y"] else data

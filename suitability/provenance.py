@@ -1,0 +1,141 @@
+"""What a run records about itself, so that every number can be traced to its config, inputs and code.
+
+The manifest (``manifest.json``) holds the validated config and its hash, every input file with its size
+and sha256, every output with its size and sha256, the class summary, timings, Python, platform and
+package versions, and the caution. The same provenance goes, shorter, into every GeoTIFF's tags
+(:func:`scenario_tags`). The class summary (:func:`class_summary`) is the table the CLI prints.
+"""
+
+from __future__ import annotations
+
+import json
+import platform
+from datetime import datetime, timezone
+from importlib import metadata
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from ._version import __version__
+from .caution import CAUTION
+from .config import RunConfig
+from .inputs import layer_files
+from .outputs import file_checksum
+from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA
+
+MANIFEST_NAME = "manifest.json"
+#: Packages whose versions the manifest records.
+PACKAGES = ("numpy", "xarray", "dask", "distributed", "rasterio", "rioxarray", "rio-cogeo", "pyproj",
+            "odc-geo", "pydantic", "numba", "geopandas", "exactextract")
+
+
+def input_files(cfg: RunConfig, only=None) -> set[Path]:
+    """Every file the run reads: baseline climate, region mask and 'like' raster, scenarios' own layers.
+
+    only: the scenarios whose own layers count (all if None).
+    """
+    files: set[Path] = set()
+    for spec in cfg.climate.values():
+        files.update(layer_files(spec, cfg.config_dir))
+    for extra in (cfg.region.mask, cfg.region.like):
+        if extra is not None:
+            files.add(Path(extra))
+    for scenario in cfg.scenarios if only is None else only:
+        for spec in (scenario.climate or {}).values():
+            files.update(layer_files(spec, cfg.config_dir))
+    return files
+
+
+def input_checksums(cfg: RunConfig) -> dict[Path, str]:
+    """sha256 of every input file of the run, by path (sorted)."""
+    return {path: file_checksum(path) for path in sorted(input_files(cfg))}
+
+
+def output_records(paths: dict[str, Path]) -> dict[str, dict[str, Any]]:
+    """Output name -> {"path", "bytes", "sha256"} of written files."""
+    return {name: {"path": str(p), "bytes": p.stat().st_size, "sha256": file_checksum(p)} for name, p in paths.items()}
+
+
+def scenario_tags(scenario, config_hash: str, scenario_hash: str) -> dict[str, str]:
+    """Dataset tags of every GeoTIFF (and attributes of the datacube) of one scenario."""
+    return {
+        "scenario": scenario.name,
+        "scenario_description": scenario.description or "",
+        "co2_ppm": f"{scenario.co2_ppm:g}",
+        "o2_percent": f"{scenario.o2_percent:g}",
+        "temperature_offset_c": f"{scenario.temperature_offset_c:g}",
+        "config_hash": config_hash,
+        "scenario_hash": scenario_hash,
+        "tool": f"suitability {__version__}",
+        "caution": CAUTION,
+    }
+
+
+def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
+    """Share of valid cells per class for each scenario's ``pathway_class`` COG, read window by window."""
+    import rasterio
+
+    rows = []
+    for scenario, path in class_paths.items():
+        counts = np.zeros(256, np.int64)
+        with rasterio.open(path) as src:
+            for _, window in src.block_windows(1):
+                counts += np.bincount(src.read(1, window=window).ravel(), minlength=256)
+        valid = counts[[CLASS_C3, CLASS_CONTESTED, CLASS_C4]].sum()
+        row = {"scenario": scenario, "valid_cells": int(valid), "nodata_cells": int(counts[CLASS_NODATA])}
+        for code, label in CLASS_NAMES.items():
+            row[f"{label} %"] = round(100.0 * counts[code] / valid, 2) if valid else float("nan")
+        rows.append(row)
+    return pd.DataFrame(rows)
+
+
+def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, checksums=None, records=None,
+                   resumed=()) -> dict[str, Any]:
+    """The run manifest: enough to trace every number back to its config, inputs and code.
+
+    checksums: input path -> sha256 (computed here if None). records: scenario name -> {"scenario_hash",
+    "outputs"} as kept for resume (outputs are hashed here if None). resumed: scenarios not recomputed.
+    """
+    if checksums is None:
+        checksums = input_checksums(cfg)
+    inputs = [{"path": str(path), "bytes": path.stat().st_size, "sha256": checksums[path]} for path in sorted(checksums)]
+    if records is None:
+        records = {scenario: {"outputs": output_records(paths)} for scenario, paths in written.items()}
+    outputs = {scenario: record["outputs"] for scenario, record in records.items()}
+    return {
+        "tool": "suitability",
+        "tool_version": __version__,
+        "status": "complete",
+        "created": datetime.now(timezone.utc).isoformat(timespec="seconds"),
+        "config_file": str(cfg.source_path or ""),
+        "config_hash": config_hash,
+        "config": json.loads(cfg.model_dump_json()),
+        "inputs": inputs,
+        "outputs": outputs,
+        "scenario_records": records,
+        "resumed_scenarios": list(resumed),
+        "briefs": {k: str(v) for k, v in briefs.items()},
+        "summary": summary.to_dict(orient="records"),
+        "timings": {k: round(v, 3) for k, v in timings.items()},
+        "python": platform.python_version(),
+        "platform": platform.platform(),
+        "packages": package_versions(),
+        "caution": CAUTION,
+    }
+
+
+def package_versions() -> dict[str, str | None]:
+    """Installed version of each of :data:`PACKAGES` (None if not installed)."""
+    versions = {}
+    for package in PACKAGES:
+        try:
+            versions[package] = metadata.version(package)
+        except metadata.PackageNotFoundError:
+            versions[package] = None
+    return versions
+
+
+__all__ = ["MANIFEST_NAME", "input_files", "input_checksums", "output_records", "scenario_tags", "class_summary", "build_manifest",
+           "package_versions", "PACKAGES"]
