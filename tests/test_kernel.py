@@ -368,3 +368,36 @@ def test_one_compiled_signature_and_the_disk_cache_serves_a_fresh_process():
     output = subprocess.run([sys.executable, "-c", script], capture_output=True, text=True, check=True, timeout=300)
     hits, misses = (int(v) for v in output.stdout.split())
     assert (hits, misses) == (1, 0)
+
+
+def test_both_engines_match_the_independent_oracle():
+    # tests/oracle_canopy.py: the daily canopy model written a second time by hand, straight from the
+    # papers (FAO-56, Spitters et al. 1986, de Pury & Farquhar 1997, Bernacchi et al. 2001, Kattge &
+    # Knorr 2007, Collatz et al. 1992, Medlyn et al. 2011), for the default sets; within 1e-4 of gross.
+    from tests.oracle_canopy import monthly_canopy
+
+    cells = cell_inputs(300, seed=21)
+    days = model.REPRESENTATIVE_DAY
+    oracle = monthly_canopy(cells, days, 420.0)
+    compiled = kernel.monthly_canopy_assimilation(
+        tmin_c=cells["tmin"], tmax_c=cells["tmax"], shortwave_mj=cells["shortwave"],
+        water_availability=cells["water_availability"], latitude_deg=cells["latitude"],
+        elevation_m=cells["elevation"], day_of_year=days, co2_ppm=420.0)
+    fields = ("c3_net", "c3_gross", "c3_photorespiration", "c4_net", "c4_gross")
+    for index, field in enumerate(fields):
+        scale = np.abs(oracle[1 if field.startswith("c3") else 4])
+        got = getattr(compiled, field)
+        assert np.array_equal(np.isnan(got), np.isnan(oracle[index]))
+        assert np.nanmax(np.abs(got - oracle[index]) / scale) < KERNEL_TOLERANCE, field
+    month = 6
+    with np.errstate(all="ignore"):
+        for pathway, net_row in (("C3", 0), ("C4", 3)):
+            array_engine = canopy.daily_canopy_assimilation(
+                pathway, tmin_c=cells["tmin"][:, month].astype(float), tmax_c=cells["tmax"][:, month].astype(float),
+                shortwave_mj=cells["shortwave"][:, month].astype(float),
+                latitude_deg=cells["latitude"].astype(float), day_of_year=int(days[month]), co2_ppm=420.0,
+                elevation_m=cells["elevation"].astype(float),
+                water_availability=cells["water_availability"][:, month].astype(float))
+            expected = oracle[net_row, :, month]
+            scale = np.abs(oracle[net_row + 1, :, month])
+            assert np.nanmax(np.abs(array_engine.net - expected) / scale) < KERNEL_TOLERANCE

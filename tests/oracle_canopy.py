@@ -1,14 +1,13 @@
-"""The plain-numpy baseline: the daily sun/shade canopy model of both pathways, written as straight numpy.
+"""TEST ORACLE: an independent, hand-written numpy implementation of the daily canopy model.
 
-The same equations as :mod:`suitability.kernel` and :mod:`suitability.physiology` for the default
-parameter sets (C3 FvCB with Bernacchi et al. 2001 kinetics and Kattge & Knorr 2007 peaked Vcmax/Jmax
-responses; C4 Collatz et al. 1992; Medlyn et al. 2011 stomata, humidity from Tmin as dew point; FAO-56
-astronomy and air pressure; Spitters et al. 1986 daily course and diffuse share; de Pury & Farquhar 1997
-sun/shade canopy; 14 Gauss-Legendre points over daylight and 3 at night), vectorised over cells with
-whole-array numpy operations and exact exponentials (no tables, no compiled code). The numbers come from
-``resolve_params`` and the package's published constants, so the results must equal the kernel's within
-1e-4 (benchmarks/run.py checks it in every run). It is what a careful numpy implementation looks like,
-kept here as the yardstick of the kernel's speed; it does no input checking beyond NaN propagation.
+It is written here a second time on purpose, straight from the papers, without the package's equation
+functions: for the default parameter sets (C3 FvCB with Bernacchi et al. 2001 kinetics and Kattge & Knorr
+2007 peaked Vcmax/Jmax responses; C4 Collatz et al. 1992; Medlyn et al. 2011 stomata, humidity from Tmin
+as dew point; FAO-56 astronomy and air pressure; Spitters et al. 1986 daily course and diffuse share;
+de Pury & Farquhar 1997 sun/shade canopy; 14 Gauss-Legendre points over daylight and 3 at night),
+vectorised over cells with exact exponentials (no tables, no compiled code). It reads only published
+constants from the package. tests/test_kernel.py holds both engines to it within 1e-4; `make bench`
+also reports its speed beside the package's numpy engine. It is not used by the package.
 """
 
 from __future__ import annotations
