@@ -5,7 +5,8 @@ functions: for the default parameter sets (C3 FvCB with Bernacchi et al. 2001 ki
 2007 peaked Vcmax/Jmax responses; C4 Collatz et al. 1992; Medlyn et al. 2011 stomata, humidity from Tmin
 as dew point; FAO-56 astronomy and air pressure; Spitters et al. 1986 daily course and diffuse share;
 de Pury & Farquhar 1997 sun/shade canopy; 14 Gauss-Legendre points over daylight and 3 at night),
-vectorised over cells with exact exponentials (no tables, no compiled code). It reads only published
+with the soil's water supply limiting the day as Haxeltine & Prentice 1996 and Sitch et al. 2003 (5 mm d-1
+at field capacity), vectorised over cells with exact exponentials (no tables, no compiled code). It reads only published
 constants from the package. tests/test_kernel.py holds both engines to it within 1e-4; `make bench`
 also reports its speed beside the package's numpy engine. It is not used by the package.
 """
@@ -40,7 +41,8 @@ def _hyperbola(a, b, theta):
 
 
 def _leaves(temperature, absorbed, vpd, water, co2_ppm, pressure, o2_pa, c3, c4):
-    """C3 (net, gross, photorespiration) and C4 (net, gross) per leaf area [µmol m-2 s-1]."""
+    """C3 (net, gross, photorespiration) and C4 (net, gross) per leaf area [µmol m-2 s-1], and the C3 and
+    C4 transpiration [mol H2O m-2 s-1]."""
     tk = temperature + KELVIN_OFFSET
     sqrt_vpd = np.sqrt(vpd)
     # C3: FvCB with Bernacchi (2001) Kc, Ko, Γ* and Kattge & Knorr (2007) capacities
@@ -55,8 +57,7 @@ def _leaves(temperature, absorbed, vpd, water, co2_ppm, pressure, o2_pa, c3, c4)
     jmax = c3["jmax25"] * _peaked(tk, kk["jmax_activation_energy"], kk["deactivation_energy"],
                                   kk["jmax_entropy_intercept"] + kk["jmax_entropy_slope"] * tg)
     rd = c3["rd25"] * _arrhenius(tk, BERNACCHI_CAPACITY_ACTIVATION["rd"])
-    slope = c3["g1"] * water
-    ci = co2_ppm * np.where(slope + sqrt_vpd > 0, slope / np.where(slope + sqrt_vpd > 0, slope + sqrt_vpd, 1.0), 0.0)
+    ci = co2_ppm * c3["g1"] / (c3["g1"] + sqrt_vpd)
     c = ci * pressure * 1e-3
     electron = _hyperbola(absorbed * (1.0 - c3["spectral_correction"]) / 2.0, jmax, c3["theta"])
     rate = np.minimum(vcmax / (c + kc * (1.0 + o2_pa / ko)), electron / (4.0 * c + 8.0 * gamma_star))
@@ -66,11 +67,14 @@ def _leaves(temperature, absorbed, vpd, water, co2_ppm, pressure, o2_pa, c3, c4)
     enzyme = c4["vmax25"] * q10 / ((1.0 + np.exp(0.3 * (c4["low_temperature_c"] - temperature)))
                                    * (1.0 + np.exp(0.3 * (temperature - c4["high_temperature_c"]))))
     respiration = c4["rd25"] * q10 / (1.0 + np.exp(1.3 * (temperature - c4["respiration_high_temperature_c"])))
-    slope = c4["g1"] * water
-    ci4 = co2_ppm * np.where(slope + sqrt_vpd > 0, slope / np.where(slope + sqrt_vpd > 0, slope + sqrt_vpd, 1.0), 0.0)
+    ci4 = co2_ppm * c4["g1"] / (c4["g1"] + sqrt_vpd)
     co2_limited = c4["k25"] * q10 * ci4 * pressure * 1e-3 * (1e3 / STANDARD_PRESSURE_KPA)
     gross4 = _hyperbola(_hyperbola(enzyme, c4["alpha"] * absorbed, c4["theta"]), co2_limited, c4["beta"])
-    return gross3 - rd, gross3, rate * gamma_star, gross4 - respiration, gross4
+    net3, net4 = gross3 - rd, gross4 - respiration
+    # Transpiration with stomata at the Medlyn optimum: gs = 1.6 A/(Ca − Ci), E = gs D/P, shut where A <= 0.
+    water3 = np.where((net3 > 0) & (co2_ppm > ci), 1.6 * net3 / np.maximum(co2_ppm - ci, 1e-300) * vpd / pressure, 0.0)
+    water4 = np.where((net4 > 0) & (co2_ppm > ci4), 1.6 * net4 / np.maximum(co2_ppm - ci4, 1e-300) * vpd / pressure, 0.0)
+    return net3, gross3, rate * gamma_star, net4, gross4, water3, water4
 
 
 def daily_canopy(tmin, tmax, shortwave, water, latitude, elevation, lai, day_of_year, co2_ppm, o2_percent=20.95):
@@ -102,7 +106,7 @@ def daily_canopy(tmin, tmax, shortwave, water, latitude, elevation, lai, day_of_
     rho_h = (1 - root) / (1 + root)
     kd = light.DIFFUSE_EXTINCTION_BLACK_LEAVES * root
     par_per_w = light.PAR_FRACTION_OF_SHORTWAVE * light.PAR_PHOTONS_PER_JOULE
-    totals = [np.zeros_like(tmin, dtype=np.float64) for _ in range(5)]
+    totals = [np.zeros_like(tmin, dtype=np.float64) for _ in range(7)]
 
     def e(k):
         return -np.expm1(-k * lai)
@@ -144,8 +148,19 @@ def daily_canopy(tmin, tmax, shortwave, water, latitude, elevation, lai, day_of_
         seconds = w * 0.5 * (24 - day_hours) * 3600
         totals[0] += seconds * dark[0] * lai
         totals[3] += seconds * dark[3] * lai
+    # Supply and demand (Haxeltine & Prentice 1996; Sitch et al. 2003): the soil supplies 5 mm d-1 x W;
+    # where the day's transpiration (mol H2O m-2 x 18.015 g mol-1 = mm) exceeds it, gross and
+    # photorespiration scale by supply/demand and respiration goes on.
+    supply = 5.0 * water
+    for net, gross, photo, transpired in ((0, 1, 2, 5), (3, 4, None, 6)):
+        demand = totals[transpired] * 18.015e-3
+        share = np.where(demand > supply, supply / np.where(demand > supply, demand, 1.0), 1.0)
+        totals[net] = totals[net] - (1.0 - share) * totals[gross]
+        totals[gross] = share * totals[gross]
+        if photo is not None:
+            totals[photo] = share * totals[photo]
     valid = np.isfinite(tmin) & np.isfinite(tmax) & np.isfinite(shortwave) & np.isfinite(water) & np.isfinite(lai)
-    return tuple(np.where(valid, total * CARBON, np.nan) for total in totals)
+    return tuple(np.where(valid, total * CARBON, np.nan) for total in totals[:5])
 
 
 def monthly_canopy(cells: dict, day_of_year, co2_ppm) -> np.ndarray:

@@ -131,24 +131,16 @@ def test_datacube_has_monthly_values(demo_run):
 
 
 def _declared_output_layers() -> dict:
-    """The declared output layers: suitability.variables' output mapping, whichever name it has now."""
+    """The declared GeoTIFF output layers: the seasonal and change entries of the registry
+    (suitability.variables.OUTPUT_LAYERS; datacube layers go to the NetCDF datacube, tested elsewhere)."""
     from suitability import variables
 
-    for name in ("OUTPUT_LAYERS", "OUTPUT_REGISTRY", "OUTPUT_VARIABLES"):
-        declared = getattr(variables, name, None)
-        if declared:
-            return dict(declared)
-    raise AssertionError("suitability.variables declares no output layers (OUTPUT_VARIABLES or a registry)")
+    return {name: variables.OUTPUT_LAYERS[name] for name in variables.layer_names("seasonal", "change")}
 
 
 def _is_change_layer(name: str, entry) -> bool:
-    """A layer against the baseline: the entry's own kind where it declares one, else the pipeline's list."""
-    kind = getattr(entry, "kind", None)
-    if kind is not None:
-        return "change" in str(getattr(kind, "value", kind)).lower()
-    from suitability import pipeline
-
-    return name in pipeline.CHANGE_LAYERS
+    """A layer against the baseline, as the registry entry declares it."""
+    return entry.kind == "change"
 
 
 def _is_categorical(entry) -> bool:

@@ -37,6 +37,7 @@ import numpy as np
 from ..physiology import canopy as _canopy
 from ..physiology.elementwise import specialise
 from ..physiology.models import LeafModel
+from ..physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from . import compiled as _compiled
 from .compiled import (
     A_C3_GROSS,
@@ -96,6 +97,7 @@ def monthly_canopy_assimilation(
     *, tmin_c, tmax_c, shortwave_mj, water_availability, latitude_deg, day_of_year, co2_ppm,
     elevation_m=None, lai=None, default_lai=3.0, vpd_kpa=None, actual_vapour_pressure_kpa=None,
     in_season=None, o2_percent=20.95, c3_params=None, c4_params=None,
+    max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY,
 ) -> MonthlyCanopyAssimilation:
     """Daily C3 and C4 canopy assimilation on 12 representative days per cell, by the compiled kernel.
 
@@ -116,6 +118,8 @@ def monthly_canopy_assimilation(
         (..., 12); neither: ea = e°(Tmin) (FAO-56 eq. 48). At most one of the two.
     in_season : bool (..., 12): months to compute (others NaN); None = all.
     c3_params, c4_params : as :func:`suitability.physiology.resolve_params` accepts.
+    max_water_supply_mm : the soil's daily water supply at field capacity [mm d-1]
+        (:mod:`suitability.physiology.water`).
 
     Returns :class:`MonthlyCanopyAssimilation` (float64 arrays of shape (..., 12)).
     References: as :func:`suitability.physiology.daily_canopy_assimilation`.
@@ -125,7 +129,8 @@ def monthly_canopy_assimilation(
                            day_of_year=day_of_year, co2_ppm=co2_ppm, elevation_m=elevation_m, lai=lai,
                            default_lai=default_lai, vpd_kpa=vpd_kpa,
                            actual_vapour_pressure_kpa=actual_vapour_pressure_kpa, in_season=in_season,
-                           o2_percent=o2_percent, c3_params=c3_params, c4_params=c4_params)
+                           o2_percent=o2_percent, c3_params=c3_params, c4_params=c4_params,
+                           max_water_supply_mm=max_water_supply_mm)
     daily = daily.reshape((5,) + shape + (12,))
     return MonthlyCanopyAssimilation(c3_net=daily[A_C3_NET], c3_gross=daily[A_C3_GROSS],
                                      c3_photorespiration=daily[A_C3_PHOTO], c4_net=daily[A_C4_NET],
@@ -165,7 +170,8 @@ def season_canopy_assimilation(*, days_in_month, **inputs) -> SeasonCanopyAssimi
 
 def _run(n_fields, weights, *, tmin_c, tmax_c, shortwave_mj, water_availability, latitude_deg, day_of_year,
          co2_ppm, elevation_m=None, lai=None, default_lai=3.0, vpd_kpa=None, actual_vapour_pressure_kpa=None,
-         in_season=None, o2_percent=20.95, c3_params=None, c4_params=None):
+         in_season=None, o2_percent=20.95, c3_params=None, c4_params=None,
+         max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY):
     """Prepare the arrays and run the compiled kernel; returns (daily (n_fields, n, 12), totals (2, n), shape)."""
     if vpd_kpa is not None and actual_vapour_pressure_kpa is not None:
         raise ValueError("give vpd_kpa or actual_vapour_pressure_kpa, not both")
@@ -206,7 +212,7 @@ def _run(n_fields, weights, *, tmin_c, tmax_c, shortwave_mj, water_availability,
         cells(lai, "lai", default_lai), season, days, float(co2_ppm), float(o2_percent),
         c3.stomatal, c3.constants, c3.table, c4.stomatal, c4.constants, c4.table, saturation_table(),
         c3.start_c, 1.0 / c3.step_c, day_nodes, day_weights, night_nodes, night_weights, _UMOL_CO2_TO_G_C,
-        np.require(weights, np.float64, ["C", "A", "W"]), daily, totals,
+        float(max_water_supply_mm), np.require(weights, np.float64, ["C", "A", "W"]), daily, totals,
     )
     return daily, totals, shape
 

@@ -54,6 +54,7 @@ from ..physiology.light import (
     solar_elevation_terms,
 )
 from ..physiology.stomata import capacity_scale_given, ci_ratio_given
+from ..physiology.water import leaf_transpiration, supply_limited_day
 
 #: Cells per batch (a multiple of every SIMD width).
 BATCH = 64
@@ -69,8 +70,8 @@ _N_SETUP = 16
 _C_VALID, _C_LATITUDE, _C_LAI, _C_E_KD, _C_PRESSURE, _C_O2 = range(6)
 _N_CELL = 6
 # acc[field, lane]; the first fields are also the rows of the kernel's output
-A_C3_NET, A_C4_NET, A_C3_GROSS, A_C3_PHOTO, A_C4_GROSS, _A_BAD = range(6)
-_N_ACC = 6
+A_C3_NET, A_C4_NET, A_C3_GROSS, A_C3_PHOTO, A_C4_GROSS, _A_BAD, _A_C3_WATER, _A_C4_WATER = range(8)
+_N_ACC = 8
 # moment[field, lane]
 (_M_TEMPERATURE_AFTER, _M_TEMPERATURE_BEFORE, _M_SUNLIT_PAR, _M_SHADED_PAR, _M_SUNLIT_LAI,
  _M_SHADED_LAI) = range(6)
@@ -133,7 +134,8 @@ def _moment_rates(setup, lane, temperature, sunlit_par, shaded_par, sunlit_lai, 
                   c3_stomatal, c3_constants, c3_table, c4_stomatal, c4_constants, c4_table, saturation,
                   table_start, table_inverse_step, last_row):
     """Canopy rates of both pathways at one moment [µmol m-2 ground s-1]: C3 net, gross,
-    photorespiration, C4 net, gross, and 1.0 where the moment is invalid (temperature out of range)."""
+    photorespiration, C4 net, gross, 1.0 where the moment is invalid (temperature out of range) else
+    0.0, and the C3 and C4 canopy transpiration [mol H2O m-2 ground s-1]."""
     valid = temperature >= _T_LOW and temperature <= _T_HIGH
     t = temperature if valid else 25.0
     position = (t - table_start) * table_inverse_step
@@ -146,8 +148,10 @@ def _moment_rates(setup, lane, temperature, sunlit_par, shaded_par, sunlit_lai, 
     co2_ppm = setup[_S_CO2, lane]
     pressure = setup[_S_PRESSURE, lane]
     o2_pa = setup[_S_O2, lane]
-    c3_co2_pa = co2_partial_pressure_pa(co2_ppm * ci_ratio_given(vpd, water, c3_stomatal), pressure)
-    c4_co2_pa = co2_partial_pressure_pa(co2_ppm * ci_ratio_given(vpd, water, c4_stomatal), pressure)
+    c3_ci_ppm = co2_ppm * ci_ratio_given(vpd, c3_stomatal)
+    c4_ci_ppm = co2_ppm * ci_ratio_given(vpd, c4_stomatal)
+    c3_co2_pa = co2_partial_pressure_pa(c3_ci_ppm, pressure)
+    c4_co2_pa = co2_partial_pressure_pa(c4_ci_ppm, pressure)
     c3_scale = capacity_scale_given(water, c3_stomatal)
     c4_scale = capacity_scale_given(water, c4_stomatal)
     c3_terms = _terms(c3_table, row, fraction)
@@ -161,7 +165,11 @@ def _moment_rates(setup, lane, temperature, sunlit_par, shaded_par, sunlit_lai, 
             sun3.photorespiration * sunlit_lai + shade3.photorespiration * shaded_lai,
             sun4.net * sunlit_lai + shade4.net * shaded_lai,
             sun4.gross * sunlit_lai + shade4.gross * shaded_lai,
-            0.0 if valid else 1.0)
+            0.0 if valid else 1.0,
+            leaf_transpiration(sun3.net, co2_ppm, c3_ci_ppm, vpd, pressure) * sunlit_lai
+            + leaf_transpiration(shade3.net, co2_ppm, c3_ci_ppm, vpd, pressure) * shaded_lai,
+            leaf_transpiration(sun4.net, co2_ppm, c4_ci_ppm, vpd, pressure) * sunlit_lai
+            + leaf_transpiration(shade4.net, co2_ppm, c4_ci_ppm, vpd, pressure) * shaded_lai)
 
 
 @template
@@ -254,6 +262,8 @@ def _accumulate(setup, moment, acc, lane, seconds, gross_share, temperature_row,
     acc[A_C4_NET, lane] += seconds * rates[3]
     acc[A_C4_GROSS, lane] += gross_share * (seconds * rates[4])
     acc[_A_BAD, lane] += rates[5]
+    acc[_A_C3_WATER, lane] += seconds * rates[6]
+    acc[_A_C4_WATER, lane] += seconds * rates[7]
 
 
 @numba.njit(**_JIT)
@@ -331,14 +341,29 @@ def _setup_lane(setup, cells, lane, cell, month, tmin, tmax, shortwave, water, h
 
 
 @template
+def _limit_by_water_supply(acc, lane, water, max_supply_mm):
+    """Both pathways' day under the soil's water supply (water.supply_limited_day, canopy._result)."""
+    c3_net, c3_gross, c3_photo, _ = supply_limited_day(acc[A_C3_NET, lane], acc[A_C3_GROSS, lane],
+                                                       acc[A_C3_PHOTO, lane], acc[_A_C3_WATER, lane], water,
+                                                       max_supply_mm)
+    c4_net, c4_gross, _, _ = supply_limited_day(acc[A_C4_NET, lane], acc[A_C4_GROSS, lane], 0.0,
+                                                acc[_A_C4_WATER, lane], water, max_supply_mm)
+    acc[A_C3_NET, lane] = c3_net
+    acc[A_C3_GROSS, lane] = c3_gross
+    acc[A_C3_PHOTO, lane] = c3_photo
+    acc[A_C4_NET, lane] = c4_net
+    acc[A_C4_GROSS, lane] = c4_gross
+
+
+@template
 def monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
                   co2_ppm, o2_percent, c3_stomatal, c3_constants, c3_table, c4_stomatal, c4_constants, c4_table,
                   saturation, table_start, table_inverse_step, day_nodes, day_weights, night_nodes, night_weights,
-                  to_carbon, weights, out, totals):
+                  to_carbon, max_supply_mm, weights, out, totals):
     """Fill out[field, cell, month] with the first out.shape[0] of C3 net, C4 net, C3 gross, C3
     photorespiration, C4 gross [g C m-2 d-1], and add weights[month] x C3 gross and photorespiration of
     the season months to totals[0, cell] and totals[1, cell] [g C m-2]; ``to_carbon`` converts µmol CO2
-    to g C. The entry point that :func:`suitability.physiology.elementwise.specialise` compiles."""
+    to g C; ``max_supply_mm`` is the soil's water supply at field capacity [mm d-1]. The entry point that :func:`suitability.physiology.elementwise.specialise` compiles."""
     n = tmin.shape[0]
     setup = _setup_array()
     cells = _cell_array()
@@ -371,6 +396,7 @@ def monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitud
                                  day_nodes, day_weights, night_nodes, night_weights)
             for lane in range(min(BATCH, n - start)):
                 cell = start + lane
+                _limit_by_water_supply(acc, lane, setup[_S_WATER, lane], max_supply_mm)
                 good = acc[_A_BAD, lane] == 0.0
                 for field in range(out.shape[0]):
                     out[field, cell, month] = acc[field, lane] * to_carbon if good else np.nan

@@ -74,6 +74,7 @@ from .light import (
     sun_shade_absorbed_par_given,
 )
 from .params import resolve_params
+from .water import MAX_WATER_SUPPLY_MM_PER_DAY, leaf_transpiration, supply_limited_day, transpiration_mm
 
 #: Gauss-Legendre points over the daylight period (see the module docstring for the accuracy).
 DAY_GAUSS_POINTS = 14
@@ -98,11 +99,15 @@ class CanopyAssimilation:
     gross : gross assimilation in daylight, as the leaf model defines it (net + day respiration)
         [g C m-2 d-1].
     photorespiration : CO2 released by photorespiration in daylight [g C m-2 d-1].
+    transpiration : water the canopy transpires, its demand capped at the soil's supply [mm d-1].
+
+    All four are after the soil's water supply has limited the day (:mod:`.water`).
     """
 
     net: Any
     gross: Any
     photorespiration: Any
+    transpiration: Any = None
 
 
 @equation
@@ -193,38 +198,44 @@ class _Day:
     water_availability: Any
     lai: Any
     o2_percent: Any
+    max_water_supply_mm: Any
     params: Any
 
 
 def _leaf(day: _Day, temperature_c, absorbed_par):
+    """The leaf model at one moment, and that leaf's transpiration [mol H2O m-2 s-1] (:mod:`.water`)."""
     vpd = day.vpd_kpa
     if vpd is None:
         vpd = vapour_pressure_deficit(temperature_c, day.actual_vapour_pressure_kpa)
-    return leaf_assimilation(day.pathway, temperature_c, absorbed_par, day.co2_ppm,
+    leaf = leaf_assimilation(day.pathway, temperature_c, absorbed_par, day.co2_ppm,
                              o2_percent=day.o2_percent, pressure_kpa=day.pressure_kpa, vpd_kpa=vpd,
                              water_availability=day.water_availability, params=day.params)
+    return leaf, leaf_transpiration(leaf.net, day.co2_ppm, leaf.intercellular_co2, vpd, day.pressure_kpa)
 
 
 def _canopy_rates(day: _Day, solar_hour):
-    """Net, gross and photorespiration of the canopy at one moment [µmol m-2 ground s-1]."""
+    """Net, gross and photorespiration of the canopy at one moment [µmol m-2 ground s-1], and its
+    transpiration with stomata at their optimum [mol H2O m-2 ground s-1]."""
     sin_b = sin_solar_elevation(day.latitude_deg, day.declination, solar_hour)
     light = canopy_light(day.shortwave_mj, day.diffuse_shortwave_mj, sin_b, day.daylight_integral_s,
                          day.daylight_integral_sin_s, day.lai, diffuse_absorption(day.lai))
     temperature = daily_temperature(day.tmin_c, day.tmax_c, solar_hour)
-    sun = _leaf(day, temperature, light.sunlit_absorbed_per_leaf)
-    shade = _leaf(day, temperature, light.shaded_absorbed_per_leaf)
-    return tuple(getattr(sun, name) * light.sunlit_lai + getattr(shade, name) * light.shaded_lai
-                 for name in ("net", "gross", "photorespiration"))
+    sun, sun_water = _leaf(day, temperature, light.sunlit_absorbed_per_leaf)
+    shade, shade_water = _leaf(day, temperature, light.shaded_absorbed_per_leaf)
+    rates = tuple(getattr(sun, name) * light.sunlit_lai + getattr(shade, name) * light.shaded_lai
+                  for name in ("net", "gross", "photorespiration"))
+    return rates + (sun_water * light.sunlit_lai + shade_water * light.shaded_lai,)
 
 
 def _dark_canopy_net(day: _Day, solar_hour):
     """Net CO2 exchange of the canopy with every leaf dark [µmol m-2 ground s-1] (−LAI · Rd)."""
     temperature = daily_temperature(day.tmin_c, day.tmax_c, solar_hour)
-    return _leaf(day, temperature, 0.0 * day.lai).net * day.lai
+    return _leaf(day, temperature, 0.0 * day.lai)[0].net * day.lai
 
 
 def _prepare(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year, co2_ppm, elevation_m,
-             vpd_kpa, actual_vapour_pressure_kpa, water_availability, lai, o2_percent, params):
+             vpd_kpa, actual_vapour_pressure_kpa, water_availability, lai, o2_percent, max_water_supply_mm,
+             params):
     """Validate the inputs elementwise and compute the quantities that are fixed for the day.
 
     ``params`` is already resolved (:func:`_run`); the leaf model accepts the resolved mapping as it is.
@@ -245,47 +256,55 @@ def _prepare(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year
                                                                    atmospheric_factor=0.0),
         day_length_h=day_length(latitude_deg, day_of_year), co2_ppm=co2_ppm, pressure_kpa=pressure,
         vpd_kpa=vpd_kpa, actual_vapour_pressure_kpa=actual_vapour_pressure_kpa,
-        water_availability=water_availability, lai=lai, o2_percent=o2_percent, params=params)
+        water_availability=water_availability, lai=lai, o2_percent=o2_percent,
+        max_water_supply_mm=max_water_supply_mm, params=params)
     return day, valid
 
 
-def _result(valid, net_umol, gross_umol, photorespiration_umol) -> CanopyAssimilation:
+def _result(day: _Day, valid, net_umol, gross_umol, photorespiration_umol, transpiration_mol) -> CanopyAssimilation:
+    """The day's totals under the soil's water supply (:func:`.water.supply_limited_day`), as carbon."""
+    net_umol, gross_umol, photorespiration_umol, share = supply_limited_day(
+        net_umol, gross_umol, photorespiration_umol, transpiration_mol, day.water_availability, day.max_water_supply_mm)
+
     def to_carbon(total):
         return where_valid(valid, total * _UMOL_CO2_TO_G_C)
 
     return CanopyAssimilation(net=to_carbon(net_umol), gross=to_carbon(gross_umol),
-                              photorespiration=to_carbon(photorespiration_umol))
+                              photorespiration=to_carbon(photorespiration_umol),
+                              transpiration=where_valid(valid, share * transpiration_mm(transpiration_mol)))
 
 
 def _gauss_integral(pathway, params, day_gauss_points, **inputs) -> CanopyAssimilation:
     """:func:`daily_canopy_assimilation` on in-memory (numpy or scalar) inputs."""
     day, valid = _prepare(pathway, params=params, **inputs)
-    net = gross = photorespiration = 0.0
+    net = gross = photorespiration = transpiration = 0.0
     nodes, weights = np.polynomial.legendre.leggauss(day_gauss_points)
     for node, weight in zip(nodes, weights):
         hour, seconds = daylight_moment(day.day_length_h, node, weight)
-        rate_net, rate_gross, rate_photorespiration = _canopy_rates(day, hour)
+        rate_net, rate_gross, rate_photorespiration, rate_water = _canopy_rates(day, hour)
         net = net + seconds * rate_net
         gross = gross + seconds * rate_gross
         photorespiration = photorespiration + seconds * rate_photorespiration
+        transpiration = transpiration + seconds * rate_water
     nodes, weights = np.polynomial.legendre.leggauss(NIGHT_GAUSS_POINTS)
     for node, weight in zip(nodes, weights):
         hour, seconds = night_moment(day.day_length_h, node, weight)
         net = net + seconds * _dark_canopy_net(day, hour)
-    return _result(valid, net, gross, photorespiration)
+    return _result(day, valid, net, gross, photorespiration, transpiration)
 
 
 def _midpoint_integral(pathway, params, steps, **inputs) -> CanopyAssimilation:
     """:func:`daily_canopy_assimilation_reference` on in-memory (numpy or scalar) inputs."""
     day, valid = _prepare(pathway, params=params, **inputs)
     step_s = 24.0 * _SECONDS_PER_HOUR / steps
-    net = gross = photorespiration = 0.0
+    net = gross = photorespiration = transpiration = 0.0
     for k in range(steps):
-        rate_net, rate_gross, rate_photorespiration = _canopy_rates(day, (k + 0.5) * 24.0 / steps)
+        rate_net, rate_gross, rate_photorespiration, rate_water = _canopy_rates(day, (k + 0.5) * 24.0 / steps)
         net = net + step_s * rate_net
         gross = gross + step_s * rate_gross
         photorespiration = photorespiration + step_s * rate_photorespiration
-    return _result(valid, net, gross, photorespiration)
+        transpiration = transpiration + step_s * rate_water
+    return _result(day, valid, net, gross, photorespiration, transpiration)
 
 
 def _is_dask(value) -> bool:
@@ -303,7 +322,7 @@ def _run(integral, pathway, params, option, inputs) -> CanopyAssimilation:
     def block(*values):
         result = integral(pathway, params, option, **fixed, **dict(zip(arrays, values)))
         return tuple(np.asarray(getattr(result, name), dtype=np.float64)
-                     for name in ("net", "gross", "photorespiration"))
+                     for name in ("net", "gross", "photorespiration", "transpiration"))
 
     if any(_is_xarray(value) for value in arrays.values()):
         if not all(_is_xarray(value) for value in arrays.values()):
@@ -311,8 +330,8 @@ def _run(integral, pathway, params, option, inputs) -> CanopyAssimilation:
             return integral(pathway, params, option, **inputs)
         import xarray as xr
 
-        outputs = xr.apply_ufunc(block, *arrays.values(), output_core_dims=[[], [], []], dask="parallelized",
-                                 output_dtypes=[np.float64] * 3)
+        outputs = xr.apply_ufunc(block, *arrays.values(), output_core_dims=[[], [], [], []], dask="parallelized",
+                                 output_dtypes=[np.float64] * 4)
     else:
         import dask.array as da
 
@@ -320,15 +339,16 @@ def _run(integral, pathway, params, option, inputs) -> CanopyAssimilation:
         values = da.broadcast_arrays(*(da.asarray(value) for value in arrays.values()))
         chunks = next(value.chunks for value, original in zip(values, arrays.values()) if _is_dask(original))
         values = [value.rechunk(chunks) for value in values]
-        signature = ",".join(["()"] * len(values)) + "->(),(),()"
-        outputs = da.apply_gufunc(block, signature, *values, output_dtypes=(np.float64,) * 3)
+        signature = ",".join(["()"] * len(values)) + "->(),(),(),()"
+        outputs = da.apply_gufunc(block, signature, *values, output_dtypes=(np.float64,) * 4)
     return CanopyAssimilation(*outputs)
 
 
 def daily_canopy_assimilation(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year,
                               co2_ppm, elevation_m=0.0, vpd_kpa=None, actual_vapour_pressure_kpa=None,
                               water_availability=1.0, lai=3.0, o2_percent=20.95, params=None,
-                              day_gauss_points=DAY_GAUSS_POINTS) -> CanopyAssimilation:
+                              day_gauss_points=DAY_GAUSS_POINTS,
+                              max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY) -> CanopyAssimilation:
     """Daily canopy assimilation of a C3 or C4 canopy, by Gaussian integration over the day.
 
     A_day = Σ_i w_i (N/2) A_canopy(t_i) + Σ_j v_j ((24 − N)/2) A_dark(s_j),  in µmol m-2 per hour·3600
@@ -348,12 +368,15 @@ def daily_canopy_assimilation(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude
     elevation_m : elevation [m], sets the air pressure (FAO-56 eq. 7).
     vpd_kpa : daytime vapour pressure deficit [kPa]; if None, computed hourly from ea.
     actual_vapour_pressure_kpa : actual vapour pressure ea [kPa]; if None, e°(Tmin) (FAO-56 eq. 48).
-    water_availability : 0 (none) .. 1 (well watered) [-], passed to the leaf model.
+    water_availability : relative plant-available soil water W, 0 (wilting point) .. 1 (field capacity)
+        [-]; the soil supplies at most ``max_water_supply_mm`` · W per day (:mod:`.water`).
     lai : leaf area index [m2 m-2]; negative gives NaN.
     o2_percent : O2 mole fraction [%].
     params : leaf parameters, as for :func:`suitability.physiology.params.resolve_params`.
     day_gauss_points : Gauss-Legendre points over the daylight period [-]; fewer are faster and less
         accurate (see the module docstring).
+    max_water_supply_mm : Emax, the soil's daily water supply at field capacity [mm d-1]
+        (default 5, Sitch et al. 2003; :mod:`.water`).
 
     Returns
     -------
@@ -365,14 +388,16 @@ def daily_canopy_assimilation(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude
     inputs = dict(tmin_c=tmin_c, tmax_c=tmax_c, shortwave_mj=shortwave_mj, latitude_deg=latitude_deg,
                   day_of_year=day_of_year, co2_ppm=co2_ppm, elevation_m=elevation_m, vpd_kpa=vpd_kpa,
                   actual_vapour_pressure_kpa=actual_vapour_pressure_kpa,
-                  water_availability=water_availability, lai=lai, o2_percent=o2_percent)
+                  water_availability=water_availability, lai=lai, o2_percent=o2_percent,
+                  max_water_supply_mm=max_water_supply_mm)
     return _run(_gauss_integral, pathway, params, day_gauss_points, inputs)
 
 
 def daily_canopy_assimilation_reference(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg,
                                         day_of_year, co2_ppm, elevation_m=0.0, vpd_kpa=None,
                                         actual_vapour_pressure_kpa=None, water_availability=1.0, lai=3.0,
-                                        o2_percent=20.95, params=None, steps=96) -> CanopyAssimilation:
+                                        o2_percent=20.95, params=None, steps=96,
+                                        max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY) -> CanopyAssimilation:
     """The same daily canopy assimilation by the midpoint rule over ``steps`` equal steps of 24 h.
 
     A_day = Σ_k (24 h / steps) A_canopy(t_k),  t_k = (k + ½) 24 / steps
@@ -384,5 +409,6 @@ def daily_canopy_assimilation_reference(pathway, *, tmin_c, tmax_c, shortwave_mj
     inputs = dict(tmin_c=tmin_c, tmax_c=tmax_c, shortwave_mj=shortwave_mj, latitude_deg=latitude_deg,
                   day_of_year=day_of_year, co2_ppm=co2_ppm, elevation_m=elevation_m, vpd_kpa=vpd_kpa,
                   actual_vapour_pressure_kpa=actual_vapour_pressure_kpa,
-                  water_availability=water_availability, lai=lai, o2_percent=o2_percent)
+                  water_availability=water_availability, lai=lai, o2_percent=o2_percent,
+                  max_water_supply_mm=max_water_supply_mm)
     return _run(_midpoint_integral, pathway, params, steps, inputs)

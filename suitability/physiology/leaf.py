@@ -106,7 +106,8 @@ def leaf_assimilation(pathway, temperature_c, absorbed_par, co2_ppm, *, o2_perce
     o2_percent : O2 mole fraction [%]
     pressure_kpa : air pressure [kPa]
     vpd_kpa : vapour pressure deficit [kPa]
-    water_availability : W [-], 0..1 (scales Medlyn g1; optionally Vcmax, see ``stomata``)
+    water_availability : W [-], 0..1: only with ``water_stress_on_vcmax`` does it act on a single leaf (it
+        scales the capacities); the soil's water supply limits the canopy's day (``water``, ``canopy``)
     params : None | set name | mapping (see ``resolve_params``)
 
     Equations: ``c3`` (FvCB), ``c4`` (Collatz 1992 or von Caemmerer 2000), ``stomata`` (Medlyn 2011).
@@ -131,7 +132,7 @@ def leaf_assimilation(pathway, temperature_c, absorbed_par, co2_ppm, *, o2_perce
             for mask in masks:
                 valid = mask if valid is True else valid & mask
 
-        ci_ppm = co2 * intercellular_co2_ratio(vpd, water, p)
+        ci_ppm = co2 * intercellular_co2_ratio(vpd, p)
         co2_pa = co2_partial_pressure_pa(ci_ppm, pressure)
         o2_pa = o2_partial_pressure_pa(o2, pressure)
         scale = capacity_scale(water, p)

@@ -1,15 +1,17 @@
-"""Intercellular CO2 from ambient CO2, vapour pressure deficit and water availability.
+"""Intercellular CO2 from ambient CO2 and vapour pressure deficit.
 
 Medlyn et al. (2011) Glob Change Biol 17:2134 (doi:10.1111/j.1365-2486.2010.02375.x), optimal stomatal
 conductance gs = g0 + 1.6 (1 + g1/√D) A/Ca; with g0 = 0 the ratio of intercellular to ambient CO2 is
 
     Ci/Ca = g1 / (g1 + √D)                                     (D in kPa, g1 in kPa^0.5)
 
-Water stress scales the slope, g1' = g1 · W with water availability W in [0, 1] (a common choice, e.g.
-the β factor of many land models [CP]); W = 0 closes the stomata (Ci = 0). The alternative
-``stomatal_model = "fixed"`` uses a constant Ci/Ca (0.7 C3, 0.4 C4 [CP]) and ignores D and W.
-The optional non-stomatal limitation (``water_stress_on_vcmax``) multiplies the carboxylation
-capacities by W; ``capacity_scale`` returns that factor.
+The alternative ``stomatal_model = "fixed"`` uses a constant Ci/Ca (0.7 C3, 0.4 C4 [CP]) and ignores D.
+
+Soil water does not lower Ci/Ca here: under drought stomata and capacities decline together, keeping
+Ci/Ca at its optimum, and the canopy's daily assimilation is limited by the water the soil can supply
+(:mod:`.water`). So drought never makes a lit leaf lose carbon through closed stomata. The optional
+non-stomatal limitation (``water_stress_on_vcmax``) also multiplies the carboxylation capacities by the
+water availability W; ``capacity_scale`` returns that factor.
 """
 
 from __future__ import annotations
@@ -19,33 +21,30 @@ from .elementwise import equation
 
 
 @equation
-def medlyn_ci_ratio(vpd_kpa, g1, water_availability=1.0):
-    """Ci/Ca = g1 W / (g1 W + √D) [-] (Medlyn et al. 2011 with g0 = 0; g1 scaled by water availability).
+def medlyn_ci_ratio(vpd_kpa, g1):
+    """Ci/Ca = g1 / (g1 + √D) [-] (Medlyn et al. 2011 with g0 = 0).
 
     Parameters
     ----------
     vpd_kpa : leaf-to-air vapour pressure deficit D [kPa], >= 0
     g1 : stomatal slope [kPa^0.5]
-    water_availability : W [-], 0 (none) .. 1 (unstressed)
     """
-    slope = g1 * water_availability
-    denominator = slope + ops.weak_scalar(ops.sqrt(vpd_kpa))
-    # Closed stomata in saturated air (W = 0 and D = 0) is 0/0; closed stomata win: Ci/Ca = 0.
-    return ops.where(denominator > 0, slope / ops.where(denominator > 0, denominator, 1.0), 0.0)
+    denominator = g1 + ops.weak_scalar(ops.sqrt(vpd_kpa))
+    # g1 = 0 in saturated air is 0/0; closed stomata win: Ci/Ca = 0.
+    return ops.where(denominator > 0, g1 / ops.where(denominator > 0, denominator, 1.0), 0.0)
 
 
-def intercellular_co2_ratio(vpd_kpa, water_availability, params):
+def intercellular_co2_ratio(vpd_kpa, params):
     """Ci/Ca [-] from the stomatal model named in a resolved parameter mapping ("medlyn" or "fixed").
 
     Parameters
     ----------
     vpd_kpa : vapour pressure deficit [kPa]
-    water_availability : W [-]
     params : mapping with ``stomatal_model``, ``g1`` [kPa^0.5] and ``ci_ratio`` [-]
     """
     if params["stomatal_model"] == "fixed":
         return params["ci_ratio"]
-    return medlyn_ci_ratio(vpd_kpa, params["g1"], water_availability)
+    return medlyn_ci_ratio(vpd_kpa, params["g1"])
 
 
 def capacity_scale(water_availability, params):
@@ -62,9 +61,9 @@ def stomatal_constants(params) -> tuple:
 
 
 @equation
-def ci_ratio_given(vpd_kpa, water_availability, constants):
+def ci_ratio_given(vpd_kpa, constants):
     """Ci/Ca [-] of :func:`intercellular_co2_ratio` from :func:`stomatal_constants` instead of a mapping."""
-    return ops.where(constants[2] == 1.0, constants[1], medlyn_ci_ratio(vpd_kpa, constants[0], water_availability))
+    return ops.where(constants[2] == 1.0, constants[1], medlyn_ci_ratio(vpd_kpa, constants[0]))
 
 
 @equation

@@ -95,8 +95,9 @@ def test_diffuse_light_raises_canopy_assimilation(monkeypatch):
     # Spitters (1986, Agric For Meteorol 38:231, Part II) and de Pury & Farquhar (1997) (from memory): at
     # the same global radiation a canopy assimilates more when more of the light is diffuse, because it
     # reaches the light-limited shaded leaves. The model's own diffuse share lies between the extremes.
+    # Water is not limiting here (a supply far above the demand), so light alone is compared.
     day = dict(tmin_c=16.0, tmax_c=30.0, shortwave_mj=26.0, latitude_deg=30.0, day_of_year=170,
-               co2_ppm=400.0, lai=3.0)
+               co2_ppm=400.0, lai=3.0, max_water_supply_mm=1e6)
     default = canopy.daily_canopy_assimilation("C3", **day).gross
     monkeypatch.setattr(canopy, "diffuse_fraction_daily", lambda clearness: 0.0 * clearness)
     all_beam = canopy.daily_canopy_assimilation("C3", **day).gross

@@ -173,4 +173,7 @@ def test_float32_stays_float32(pathway, params):
                                water_availability=0.8, params=params)
     for name in FLOAT_FIELDS:
         assert getattr(single, name).dtype == np.float32, name
-        np.testing.assert_allclose(getattr(single, name), getattr(double, name), rtol=1e-5, atol=1e-5)
+        # Derived here: bundle-sheath CO2 Cs = Cm + leak/gbs divides a small difference by a small
+        # conductance, which amplifies float32 rounding (eps 6e-8) by up to a few hundred.
+        rtol = 5e-5 if name == "bundle_sheath_co2" else 1e-5
+        np.testing.assert_allclose(getattr(single, name), getattr(double, name), rtol=rtol, atol=1e-5)

@@ -33,18 +33,24 @@ def test_default_g1_are_lin_2015_grass_values():
     assert all(PARAMETER_SETS["C4"][name]["g1"] == g1["C4 grass"] for name in PARAMETER_SETS["C4"])
 
 
-def test_water_availability_scales_g1():
-    # g1' = g1 W (module docstring): W = 0.5 with g1 equals W = 1 with g1/2; W = 0 closes the stomata.
-    assert medlyn_ci_ratio(1.5, 5.25, 0.5) == pytest.approx(medlyn_ci_ratio(1.5, 2.625))
-    assert medlyn_ci_ratio(1.5, 5.25, 0.0) == 0.0
-    assert medlyn_ci_ratio(0.0, 5.25, 0.0) == 0.0   # closed stomata in saturated air
-    assert medlyn_ci_ratio(0.0, 5.25, 1.0) == 1.0    # no VPD, open stomata: Ci = Ca
+def test_medlyn_limits_and_soil_water_keep_the_optimum():
+    # Medlyn et al. (2011) with g0 = 0: Ci/Ca = g1/(g1 + √D); D = 0 gives Ci = Ca; g1 = 0 closes the
+    # stomata. Soil water does not move a leaf off the optimum (stomata and capacities decline together,
+    # Zhou et al. 2013, from memory; suitability/physiology/water.py): a lit leaf keeps its Ci at any W.
+    assert medlyn_ci_ratio(1.5, 5.25) == pytest.approx(5.25 / (5.25 + np.sqrt(1.5)), rel=1e-14)
+    assert medlyn_ci_ratio(0.0, 5.25) == 1.0
+    assert medlyn_ci_ratio(0.0, 0.0) == 0.0
+    for pathway in ("C3", "C4"):
+        dry = leaf_assimilation(pathway, 30.0, 1500.0, 400.0, vpd_kpa=2.0, water_availability=0.0)
+        wet = leaf_assimilation(pathway, 30.0, 1500.0, 400.0, vpd_kpa=2.0, water_availability=1.0)
+        assert dry.intercellular_co2 == wet.intercellular_co2
+        assert dry.gross > 0
 
 
 def test_fixed_ratio_option():
     # Fixed Ci/Ca (0.7 C3, 0.4 C4; common practice, no source), independent of VPD and water availability.
     p3 = resolve_params("C3", {"stomatal_model": "fixed"})
-    assert intercellular_co2_ratio(3.0, 0.2, p3) == 0.7
+    assert intercellular_co2_ratio(3.0, p3) == 0.7
     leaf = leaf_assimilation("C4", 30.0, 1000.0, 400.0, vpd_kpa=np.array([0.5, 3.0]),
                              params={"stomatal_model": "fixed"})
     np.testing.assert_allclose(leaf.intercellular_co2, [160.0, 160.0])
