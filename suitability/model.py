@@ -30,6 +30,7 @@ import xarray as xr
 from . import indicators, kernel
 from .physiology import crossover_temperature, daily_canopy_assimilation
 from .physiology import atmosphere, light
+from .physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from .runtime import ENGINES
 from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario
 from .variables import CLASS_NODATA, DATACUBE, OUTPUT_LAYERS, SEASONAL, layer_names
@@ -57,6 +58,8 @@ class ModelSettings:
     contested_margin: half-width of the contested class on the advantage index [-].
     lai: leaf area index used where the data have no ``lai`` layer [m2 m-2].
     engine: "compiled" (the numba kernel) or "numpy" (see the module docstring).
+    max_water_supply_mm: the soil's daily water supply at field capacity [mm d-1]
+        (:mod:`suitability.physiology.water`).
     """
 
     scenario: ScenarioSettings
@@ -67,6 +70,7 @@ class ModelSettings:
     contested_margin: float = 0.05
     lai: float = DEFAULT_LAI
     engine: str = "compiled"
+    max_water_supply_mm: float = MAX_WATER_SUPPLY_MM_PER_DAY
 
 
 def evaluate(
@@ -193,6 +197,7 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         contested_margin=float(_get(classes, "contested_margin", 0.05)),
         lai=float(_get(physiology, "lai", DEFAULT_LAI) or DEFAULT_LAI),
         engine=engine,
+        max_water_supply_mm=float(_get(physiology, "max_water_supply_mm", MAX_WATER_SUPPLY_MM_PER_DAY)),
     )
 
 
@@ -262,6 +267,7 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
                     elevation_m=elevation,
                     lai=lai,
                     params=params,
+                    max_water_supply_mm=settings.max_water_supply_mm,
                     **month_inputs,
                 )
             monthly[pathway][..., index] = np.asarray(day.net) * DAYS_IN_MONTH[index]
@@ -291,7 +297,8 @@ def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai):
         water_availability=data["water_availability"], latitude_deg=data["latitude"],
         day_of_year=REPRESENTATIVE_DAY, co2_ppm=settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent,
         elevation_m=elevation, lai=lai, in_season=in_season, c3_params=settings.c3_params,
-        c4_params=settings.c4_params, days_in_month=DAYS_IN_MONTH, **humidity,
+        c4_params=settings.c4_params, days_in_month=DAYS_IN_MONTH,
+        max_water_supply_mm=settings.max_water_supply_mm, **humidity,
     )
     monthly = {"C3": day.c3_net * DAYS_IN_MONTH, "C4": day.c4_net * DAYS_IN_MONTH}
     return monthly, day.c3_gross_total, day.c3_photorespiration_total

@@ -299,6 +299,9 @@ class PhysiologyConfig(_Section):
     c4: PathwayConfig = Field(default_factory=dict)
     lai: Annotated[float, Field(gt=0, le=15)] = 3.0
     diurnal_range_c: Annotated[float, Field(gt=0, le=40)] = 10.0
+    #: The soil's daily water supply at field capacity, Emax [mm d-1] (suitability.physiology.water;
+    #: 5 mm d-1 after Sitch et al. 2003).
+    max_water_supply_mm: Annotated[float, Field(gt=0, le=50)] = 5.0
 
     @field_validator("c3", "c4")
     @classmethod
