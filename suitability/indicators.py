@@ -17,7 +17,7 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NODATA
+from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NO_SEASON, CLASS_NODATA
 
 
 def advantage_index(c3_total, c4_total):
@@ -40,6 +40,19 @@ def pathway_class(advantage, margin: float = 0.05):
         raise ValueError(f"contested margin must be in [0, 1), got {margin}")
     classes = _where(advantage > margin, CLASS_C4, _where(advantage < -margin, CLASS_C3, CLASS_CONTESTED))
     return _where(np.isnan(advantage), CLASS_NODATA, classes).astype(np.uint8)
+
+
+def with_growing_season(classes, valid, has_season):
+    """Class codes with CLASS_NO_SEASON (4) where a cell has data but no month of growing season (uint8)."""
+    return _where(valid & ~has_season, CLASS_NO_SEASON, classes).astype(np.uint8)
+
+
+def growing_season_months(in_season, valid):
+    """Number of months of the growing season per cell (float32; 0 = none, NaN where the cell has no data).
+
+    in_season: boolean, leading axis = month.
+    """
+    return _where(valid, in_season.sum(axis=0).astype(np.float32), np.float32(np.nan))
 
 
 def c4_favoured_months(monthly_c3, monthly_c4, in_season, margin: float = 0.05):

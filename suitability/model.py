@@ -28,8 +28,9 @@ import numpy as np
 import xarray as xr
 
 from . import indicators, kernel
-from .physiology import crossover_temperature, daily_canopy_assimilation
+from .config.schema import GROWING_SEASON_MIN_MEAN_TEMPERATURE_C, GROWING_SEASON_MIN_MEAN_TMIN_C
 from .physiology import atmosphere, light
+from .physiology import crossover_temperature, daily_canopy_assimilation
 from .physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from .runtime import ENGINES
 from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario
@@ -55,6 +56,7 @@ class ModelSettings:
     c3_params, c4_params: what :func:`suitability.physiology.resolve_params` accepts.
     season_months: fixed months (1..12) of the season, or None to use ``season_min_temperature_c``.
     season_min_temperature_c: per-cell rule, months whose mean of tmin and tmax is at least this [°C].
+    season_min_tmin_c: with it, months whose mean daily minimum is at least this too [°C].
     contested_margin: half-width of the contested class on the advantage index [-].
     lai: leaf area index used where the data have no ``lai`` layer [m2 m-2].
     engine: "compiled" (the numba kernel) or "numpy" (see the module docstring).
@@ -67,6 +69,7 @@ class ModelSettings:
     c4_params: Any = None
     season_months: tuple[int, ...] | None = tuple(range(1, 13))
     season_min_temperature_c: float | None = None
+    season_min_tmin_c: float | None = None
     contested_margin: float = 0.05
     lai: float = DEFAULT_LAI
     engine: str = "compiled"
@@ -182,8 +185,9 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         raise ValueError(f"engine: expected one of {', '.join(ENGINES)}, got {engine!r}")
     months = _get(season, "months", None)
     threshold = _get(season, "min_mean_temperature_c", None)
-    if months is None and threshold is None:
-        months = list(range(1, 13))
+    tmin_threshold = _get(season, "min_mean_tmin_c", None)
+    if months is None and threshold is None and tmin_threshold is None:  # the growing season (SeasonConfig)
+        threshold, tmin_threshold = GROWING_SEASON_MIN_MEAN_TEMPERATURE_C, GROWING_SEASON_MIN_MEAN_TMIN_C
     c3_params, c4_params = _pathway_params(physiology, "c3"), _pathway_params(physiology, "c4")
     if engine == "compiled" and not kernel.supports(c3_params, c4_params):
         _warn_numpy_engine(c3_params, c4_params)
@@ -192,8 +196,9 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         scenario=ScenarioSettings.from_any(scenario),
         c3_params=c3_params,
         c4_params=c4_params,
-        season_months=tuple(int(m) for m in months) if months is not None and threshold is None else None,
-        season_min_temperature_c=None if threshold is None else float(threshold),
+        season_months=tuple(int(m) for m in months) if months is not None else None,
+        season_min_temperature_c=None if months is not None or threshold is None else float(threshold),
+        season_min_tmin_c=None if months is not None or tmin_threshold is None else float(tmin_threshold),
         contested_margin=float(_get(classes, "contested_margin", 0.05)),
         lai=float(_get(physiology, "lai", DEFAULT_LAI) or DEFAULT_LAI),
         engine=engine,
@@ -225,18 +230,22 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     season_c3 = np.where(nodata, np.nan, season_c3)
     season_c4 = np.where(nodata, np.nan, season_c4)
     advantage = indicators.advantage_index(season_c3, season_c4)
-    classes = indicators.pathway_class(advantage, settings.contested_margin)
+    classes = indicators.with_growing_season(indicators.pathway_class(advantage, settings.contested_margin),
+                                             valid, has_season)
     months_favoured = indicators.c4_favoured_months(
         np.moveaxis(monthly["C3"], -1, 0), np.moveaxis(monthly["C4"], -1, 0), np.moveaxis(in_season, -1, 0),
         settings.contested_margin,
     )
     share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
     crossover = _crossover_by_pressure(atmosphere.air_pressure_from_elevation(elevation), settings)
-    seasonal = [season_c3, season_c4, advantage, classes, months_favoured, share, crossover]
+    seasonal = {"c3_assimilation": season_c3, "c4_assimilation": season_c4, "pathway_advantage": advantage,
+                "pathway_class": classes, "c4_favoured_months": months_favoured,
+                "growing_season_months": indicators.growing_season_months(np.moveaxis(in_season, -1, 0), valid),
+                "photorespiration_share": share, "crossover_temperature": crossover}
     out = np.empty((_N_STACKED,) + shape, np.float32)
-    for i, layer in enumerate(seasonal):
-        values = np.asarray(layer, dtype=np.float64)
-        if not OUTPUT_LAYERS[SEASONAL_LAYERS[i]].categorical:
+    for i, name in enumerate(SEASONAL_LAYERS):
+        values = np.asarray(seasonal[name], dtype=np.float64)
+        if not OUTPUT_LAYERS[name].categorical and name != "growing_season_months":
             values = np.where(nodata, np.nan, values)
         out[i] = values
     first = len(SEASONAL_LAYERS)
@@ -343,9 +352,13 @@ def _month_inputs(data: Mapping[str, np.ndarray], index: int) -> dict[str, np.nd
 
 
 def _season_mask(data: Mapping[str, np.ndarray], settings: ModelSettings, shape: tuple[int, ...]) -> np.ndarray:
-    if settings.season_min_temperature_c is not None:
-        mean_temperature = 0.5 * (data["tmin"] + data["tmax"])
-        return mean_temperature >= settings.season_min_temperature_c
+    if settings.season_months is None:
+        in_season = np.ones(data["tmin"].shape, bool)
+        if settings.season_min_temperature_c is not None:
+            in_season &= 0.5 * (data["tmin"] + data["tmax"]) >= settings.season_min_temperature_c
+        if settings.season_min_tmin_c is not None:
+            in_season &= data["tmin"] >= settings.season_min_tmin_c
+        return in_season
     months = np.zeros(12, bool)
     months[[m - 1 for m in settings.season_months]] = True
     return np.broadcast_to(months, shape + (12,))

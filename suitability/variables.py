@@ -60,12 +60,17 @@ RADIATION_LAYERS = ("shortwave", "par")
 CLASS_C3 = 1
 CLASS_CONTESTED = 2
 CLASS_C4 = 3
+#: Cells with no month of the growing season (config ``season``): neither pathway grows there.
+CLASS_NO_SEASON = 4
 CLASS_NODATA = 255
-CLASS_NAMES = {CLASS_C3: "C3 favoured", CLASS_CONTESTED: "contested", CLASS_C4: "C4 favoured"}
+CLASS_NAMES = {CLASS_C3: "C3 favoured", CLASS_CONTESTED: "contested", CLASS_C4: "C4 favoured",
+               CLASS_NO_SEASON: "no growing season"}
 
 #: Class colours as RGB, shared by the GeoTIFF colour tables and the brief figures: blue-green C3 favoured,
-#: pale grey contested, amber C4 favoured (from the colour-blind-safe set of Okabe & Ito 2008).
-CLASS_COLOURS_RGB = {CLASS_C3: (0, 158, 115), CLASS_CONTESTED: (221, 221, 221), CLASS_C4: (230, 159, 0)}
+#: pale grey contested, amber C4 favoured (from the colour-blind-safe set of Okabe & Ito 2008); a pale
+#: hatched-looking brown-grey for "no growing season", our own, kept clearly apart from "contested".
+CLASS_COLOURS_RGB = {CLASS_C3: (0, 158, 115), CLASS_CONTESTED: (221, 221, 221), CLASS_C4: (230, 159, 0),
+                     CLASS_NO_SEASON: (168, 152, 132)}
 
 # Colour tables of our own (RGBA). Classes take their class colour; transitions: kept classes take their
 # class colour, moves toward C4 warm (stronger = darker), moves toward C3 cool; nodata is transparent.
@@ -76,6 +81,9 @@ CLASS_TRANSITION_COLOURS = {
     11: _CLASS_RGBA[CLASS_C3], 22: _CLASS_RGBA[CLASS_CONTESTED], 33: _CLASS_RGBA[CLASS_C4],
     12: (247, 205, 150, 255), 23: (224, 112, 36, 255), 13: (176, 45, 28, 255),
     21: (154, 208, 200, 255), 32: (150, 178, 222, 255), 31: (38, 66, 150, 255),
+    # Into or out of "no growing season": that class's colour.
+    **{b * 10 + s: _CLASS_RGBA[CLASS_NO_SEASON] for b in CLASS_NAMES for s in CLASS_NAMES
+       if CLASS_NO_SEASON in (b, s)},
     CLASS_NODATA: _TRANSPARENT,
 }
 PATHWAY_CLASS_LEGEND = dict(CLASS_NAMES)
@@ -133,11 +141,13 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
                     (-1e4, 1e5), "average", SEASONAL, "season_total"),
         OutputLayer("pathway_advantage", "1", "normalised C4 minus C3 advantage (A4 - A3) / (A4 + A3)",
                     (-1.0, 1.0), "average", SEASONAL, "advantage_index", required=True),
-        OutputLayer("pathway_class", "1", "favoured pathway: 1 C3, 2 contested, 3 C4, 255 nodata",
-                    (1.0, 3.0), "mode", SEASONAL, "pathway_class", legend=PATHWAY_CLASS_LEGEND,
+        OutputLayer("pathway_class", "1", "favoured pathway: 1 C3, 2 contested, 3 C4, 4 no growing season, 255 nodata",
+                    (1.0, 4.0), "mode", SEASONAL, "pathway_class", legend=PATHWAY_CLASS_LEGEND,
                     colours=PATHWAY_CLASS_COLOURS, required=True),
         OutputLayer("c4_favoured_months", "1", "number of season months in which C4 is favoured",
                     (0.0, 12.0), "average", SEASONAL, "c4_favoured_months"),
+        OutputLayer("growing_season_months", "1", "number of months in the growing season (0: no growing season)",
+                    (0.0, 12.0), "average", SEASONAL, "growing_season_months"),
         OutputLayer("photorespiration_share", "1", "share of C3 gross carboxylation released by photorespiration",
                     (0.0, 1.0), "average", SEASONAL, "photorespiration_share"),
         OutputLayer("crossover_temperature", "degC", "temperature above which C4 light-limited quantum yield exceeds C3",
@@ -145,7 +155,7 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
         OutputLayer("advantage_change", "1", "change of the pathway advantage against the baseline",
                     (-2.0, 2.0), "average", CHANGE, "advantage_change", compares="pathway_advantage"),
         OutputLayer("class_transition", "1", "baseline class * 10 + scenario class; 255 nodata",
-                    (11.0, 33.0), "mode", CHANGE, "class_transition", compares="pathway_class",
+                    (11.0, 44.0), "mode", CHANGE, "class_transition", compares="pathway_class",
                     legend=CLASS_TRANSITION_LEGEND, colours=CLASS_TRANSITION_COLOURS),
         OutputLayer("c3_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C3 canopy, as carbon",
                     (-1e4, 1e5), "average", DATACUBE, "monthly_total"),

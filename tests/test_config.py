@@ -120,7 +120,10 @@ def test_defaults_fill_in_what_a_minimal_config_leaves_out(tmp_path):
             scenario.water_availability_factor, scenario.description) == (20.95, 0.0, 1.0, 1.0, "")
     assert cfg.baseline == "now"  # default: the first scenario
     assert cfg.region.grid.resolution == (1000.0, 2000.0)
-    assert cfg.season.months == list(range(1, 13)) and cfg.season.min_mean_temperature_c is None
+    # Default season: the growing season, mean T >= 5 °C (ETCCDI growing-season threshold, from memory)
+    # and mean Tmin >= 0 °C (common practice, no source); suitability/config/schema.py SeasonConfig.
+    assert cfg.season.months is None
+    assert (cfg.season.min_mean_temperature_c, cfg.season.min_mean_tmin_c) == (5.0, 0.0)
     assert cfg.classes.contested_margin == 0.05
     assert (cfg.output.layers, cfg.output.datacube, cfg.output.overwrite) == ("all", False, False)
     assert cfg.output.layer_names() == list(OUTPUT_VARIABLES)
@@ -316,9 +319,9 @@ BAD_VALUES = [
     ("region.grid.crs", "EPSG:99999", "region.grid.crs", "unknown CRS", "EPSG registry (pyproj)"),
     ("region.like", "dem.tif", "region", "exactly one of 'grid'", "contract: grid OR like"),
     ("region.grid", _DELETE, "region", "exactly one of 'grid'", "contract: grid OR like"),
-    ("season.months", [0, 1], "season.months[0]", "greater than or equal to 1", "calendar months 1..12"),
-    ("season.months", [1, 1, 2], "season", "repeated: [1]", "contract: unique months"),
-    ("season.min_mean_temperature_c", 8, "season", "not both", "contract: months OR threshold"),
+    ("season", {"months": [0, 1]}, "season.months[0]", "greater than or equal to 1", "calendar months 1..12"),
+    ("season", {"months": [1, 1, 2]}, "season", "repeated: [1]", "contract: unique months"),
+    ("season.months", [1, 2], "season", "not both", "contract: months OR thresholds"),
     ("climate.tmax", _DELETE, "climate", "tmin is given without tmax", "contract: tmin+tmax or tmean"),
     ("climate.shortwave", _DELETE, "climate", "give shortwave or par", "contract"),
     ("climate.water_stress", {"path": "ws.tif", "units": "1"}, "climate", "not both", "one water layer"),

@@ -257,17 +257,26 @@ class ClimateConfig(ClimateLayers):
 
 
 class SeasonConfig(_Section):
-    """Which months count: a fixed list, or per cell the months with mean temperature >= a threshold."""
+    """Which months count: a fixed list, or per cell the months warm enough to grow in.
+
+    Default (neither ``months`` nor a threshold given): the growing season of each cell, the months with
+    a mean temperature of at least 5 °C (the threshold of the thermal growing season, as in the ETCCDI
+    growing-season-length index; from memory) and a mean daily minimum of at least 0 °C (no frost on
+    most nights; common practice, no source). Cells with no such month are "no growing season".
+    """
 
     months: list[Annotated[int, Field(ge=1, le=12)]] | None = None
     min_mean_temperature_c: Annotated[float, Field(ge=-60, le=60)] | None = None
+    min_mean_tmin_c: Annotated[float, Field(ge=-60, le=60)] | None = None
 
     @model_validator(mode="after")
     def _one_rule(self) -> "SeasonConfig":
-        if self.months is not None and self.min_mean_temperature_c is not None:
-            raise ValueError("give either 'months' or 'min_mean_temperature_c', not both")
-        if self.months is None and self.min_mean_temperature_c is None:
-            self.months = list(range(1, 13))
+        thresholds = self.min_mean_temperature_c is not None or self.min_mean_tmin_c is not None
+        if self.months is not None and thresholds:
+            raise ValueError("give either 'months' or the temperature thresholds, not both")
+        if self.months is None and not thresholds:
+            self.min_mean_temperature_c = GROWING_SEASON_MIN_MEAN_TEMPERATURE_C
+            self.min_mean_tmin_c = GROWING_SEASON_MIN_MEAN_TMIN_C
         if self.months is not None:
             if not self.months:
                 raise ValueError("months: expected at least one month (1..12)")
@@ -276,6 +285,11 @@ class SeasonConfig(_Section):
                 raise ValueError(f"months: each month once; repeated: {repeated}")
             self.months = sorted(self.months)
         return self
+
+
+#: The default growing season (SeasonConfig): monthly mean temperature >= 5 °C and mean Tmin >= 0 °C.
+GROWING_SEASON_MIN_MEAN_TEMPERATURE_C = 5.0
+GROWING_SEASON_MIN_MEAN_TMIN_C = 0.0
 
 
 class PathwayConfig(_Section):
