@@ -67,10 +67,11 @@ CLASS_NAMES = {CLASS_C3: "C3 favoured", CLASS_CONTESTED: "contested", CLASS_C4: 
                CLASS_NO_SEASON: "no growing season"}
 
 #: Class colours as RGB, shared by the GeoTIFF colour tables and the brief figures: blue-green C3 favoured,
-#: pale grey contested, amber C4 favoured (from the colour-blind-safe set of Okabe & Ito 2008); a pale
-#: hatched-looking brown-grey for "no growing season", our own, kept clearly apart from "contested".
+#: pale grey contested, amber C4 favoured (from the colour-blind-safe set of Okabe & Ito 2008); a muted
+#: violet-grey of our own for "no growing season", chosen to stay distinct from the three under colour
+#: vision deficiencies (tests/reports/test_figures.py).
 CLASS_COLOURS_RGB = {CLASS_C3: (0, 158, 115), CLASS_CONTESTED: (221, 221, 221), CLASS_C4: (230, 159, 0),
-                     CLASS_NO_SEASON: (168, 152, 132)}
+                     CLASS_NO_SEASON: (140, 110, 160)}
 
 # Colour tables of our own (RGBA). Classes take their class colour; transitions: kept classes take their
 # class colour, moves toward C4 warm (stronger = darker), moves toward C3 cool; nodata is transparent.

@@ -32,7 +32,14 @@ from rasterio.enums import Resampling
 from suitability.atomic import atomic_write
 from suitability.errors import InputDataError
 from suitability.reports.zones import zones_on_grid
-from suitability.variables import CLASS_C3, CLASS_C4, CLASS_COLOURS_RGB, CLASS_CONTESTED, CLASS_NAMES
+from suitability.variables import (
+    CLASS_C3,
+    CLASS_C4,
+    CLASS_COLOURS_RGB,
+    CLASS_CONTESTED,
+    CLASS_NAMES,
+    CLASS_NO_SEASON,
+)
 
 #: Class colours as hex, the same as the GeoTIFF colour tables (variables.CLASS_COLOURS_RGB).
 CLASS_COLOURS: dict[int, str] = {code: "#{:02X}{:02X}{:02X}".format(*rgb) for code, rgb in CLASS_COLOURS_RGB.items()}
@@ -41,6 +48,7 @@ CLASS_LABELS: dict[int, str] = {
     CLASS_C3: "C3 crops have the advantage",
     CLASS_CONTESTED: "no clear advantage",
     CLASS_C4: "C4 crops have the advantage",
+    CLASS_NO_SEASON: "no growing season",
 }
 NODATA_COLOUR = "#FFFFFF"
 OUTLINE_COLOUR = "#3A3A3A"

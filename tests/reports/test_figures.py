@@ -23,7 +23,7 @@ from rasterio.transform import from_origin
 from shapely.geometry import box
 
 from suitability.reports import figures
-from suitability.variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NODATA
+from suitability.variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NO_SEASON, CLASS_NODATA
 
 from . import write_raster
 
@@ -129,7 +129,7 @@ def test_class_colours_stay_distinct_for_colour_blind_readers():
     # CAM02-UCS (Luo et al. 2006). A distance of 20 or more counts as clearly distinct (common practice,
     # no source).
     colours = {code: _hex_rgb(c) / 255 for code, c in figures.CLASS_COLOURS.items()}
-    assert set(colours) == {CLASS_C3, CLASS_CONTESTED, CLASS_C4}
+    assert set(colours) == {CLASS_C3, CLASS_CONTESTED, CLASS_C4, CLASS_NO_SEASON}
     for deficiency in ("deuteranomaly", "protanomaly", "tritanomaly"):
         space = {"name": "sRGB1+CVD", "cvd_type": deficiency, "severity": 100}
         seen = {code: np.clip(colorspacious.cspace_convert(rgb, space, "sRGB1"), 0, 1) for code, rgb in colours.items()}
