@@ -100,8 +100,8 @@ def chilling_factor(temperature_c, chilling_temperature_c):
     chilling_temperature_c : Tlow, where the un-normalised term is 0.5 [°C] (13 °C in Collatz et al. 1992)
     """
     slope = COLLATZ_1992_CHILLING_SLOPE
-    return ((1.0 + np.exp(slope * (chilling_temperature_c - 25.0)))
-            / (1.0 + np.exp(slope * (chilling_temperature_c - temperature_c))))
+    at_reference = ops.weak_scalar(1.0 + np.exp(slope * (chilling_temperature_c - 25.0)))
+    return at_reference / (1.0 + np.exp(slope * (chilling_temperature_c - temperature_c)))
 
 
 def caemmerer_capacity_factors(temperature_c, params):

@@ -60,7 +60,9 @@ def test_caemmerer_solution_satisfies_the_model_equations(kinetics, temperature_
     # von Caemmerer (2000) ch. 4: the quadratic solution must satisfy the underlying mass balances,
     # mesophyll A = Vp − gbs (Cs − Cm) − Rm, and bundle sheath A = Vc (1 − γ* O/Cs) − Rd with
     # Vc = Vcmax Cs/(Cs + Kc(1 + O/Ko)) (enzyme-limited) or Vc = (1 − x) J Cs/(3 Cs + 7 γ* O) (light-limited).
-    params = {"parameter_set": "vc2000", "kinetics": kinetics}
+    # The von Caemmerer (2021) Arrhenius/Gaussian responses are written out below; chilling off.
+    params = {"parameter_set": "vc2000", "kinetics": kinetics, "capacity_temperature_response": "caemmerer2021",
+              "chilling_response": "none"}
     p, kc, ko, gamma_star, rd = _caemmerer_state(temperature_c, par, 30.0, params)
     cm = 30.0
     rates = caemmerer_c4_rates(temperature_c, par, cm, O2_PA, p)
