@@ -15,11 +15,24 @@ measurements: f = 0.32 [C] makes the C3 yield in air at 30 °C and 330 ppm equal
 value of Ehleringer & Pearcy (1983, Plant Physiol 73:555), with Bernacchi (2001) Γ* and CO2 at Rubisco =
 ambient (the low-light limit). The same f is used in the von Caemmerer C4 model (f is a property of the
 leaf's light harvesting, not of the pathway); its C4 yield then follows from the model (about 0.06).
-For the Collatz (1992) C4 model the yield is its parameter α; Collatz et al. fitted α = 0.04 (whether
-per incident or absorbed photon differs between sources [M]); here α = 0.0625 per ABSORBED photon, the
-mean of Ehleringer & Pearcy's (1983) NADP-ME (0.065) and NAD-ME (0.060) C4 grass yields [P], so that
-both pathways' light-limited yields come from the same measurements. Override ``alpha: 0.04`` for the
-original fit.
+For the Collatz (1992) C4 model the yield is its parameter α. Collatz et al. fitted α = 0.04; the
+paper's abstract names the absorbed quantum flux as the model's light input [P: abstract seen], so 0.04
+is taken per ABSORBED photon in the ``c4_tropical_grass`` set (the published model as fitted). The
+``collatz1992`` set instead uses α = 0.0625, the mean of Ehleringer & Pearcy's (1983) NADP-ME (0.065) and
+NAD-ME (0.060) C4 grass yields [P], so that both pathways' light-limited yields come from the same
+measurements.
+
+Plant-type sets and the default pair
+------------------------------------
+``c3_temperate_grass``, ``c3_cereal`` (FvCB; Vcmax25 of C3 herbaceous plants and C3 crops, Kattge et al.
+2009 [from memory]; g1 of Lin et al. 2015 [P]), ``c4_tropical_grass`` (Collatz et al. 1992 as published)
+and ``c4_cereal`` (maize: von Caemmerer 2000 with the Massad et al. 2007 temperature responses). The
+default pair (:data:`DEFAULT_SETS`) is the grass pair. Calibration check (tests/physiology/
+test_calibration.py), daily net canopy tie on a sunny mid-latitude summer day (22 MJ m-2, LAI 3, 10 °C
+range, 40° N, day 196): at 280/350/420/560/700 ppm 16.4/20.2/23.6/30.5/>46 °C with C3 acclimated to the
+daily mean (Kattge & Knorr 2007), 14.2/16.7/22.1/31.3/36.4 °C with Tg fixed at 25 °C; Collatz, Berry &
+Clark (1998) put the boundary near 22 °C (20-24) at ~350 ppm. No value was tuned to reach that band.
+The older ``bernacchi2001``/``collatz1992`` pair ties at 11.3/11.9/12.5/13.3/14.0 °C (Tg 25 °C).
 
 Keys common to both pathways
 ----------------------------
