@@ -25,7 +25,8 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
 
     co2_ppm: ambient CO2 mole fractions [µmol mol-1]. absorbed_par: [µmol m-2 s-1]. vpd_kpa: [kPa].
     Returns (curves, crossovers): curves has columns co2_ppm, leaf_temperature_c, c3_net, c4_net
-    [µmol m-2 s-1]; crossovers has co2_ppm and crossover_temperature_c [°C].
+    [µmol m-2 s-1]; crossovers has co2_ppm and crossover_temperature_c [°C], the leaf quantum-yield
+    crossover (``suitability.physiology.crossover``) at each pathway's Ci/Ca for ``vpd_kpa``.
     c3_params, c4_params: anything ``resolve_params`` accepts (None = the default set); they are used for
     the curves and for the crossover temperatures alike.
     """
@@ -38,7 +39,9 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
             "co2_ppm": co2, "leaf_temperature_c": LEAF_TEMPERATURES_C,
             "c3_net": np.asarray(c3.net), "c4_net": np.asarray(c4.net),
         }))
-        crossings.append({"co2_ppm": co2, "crossover_temperature_c": float(crossover_temperature(co2, params=crossover_params))})
+        # The leaf quantum-yield crossover at the curves' own VPD (each pathway's canopy Ci/Ca).
+        crossover = crossover_temperature(co2, params=crossover_params, vpd_kpa=vpd_kpa)
+        crossings.append({"co2_ppm": co2, "crossover_temperature_c": float(crossover)})
     return pd.concat(rows, ignore_index=True), pd.DataFrame(crossings)
 
 

@@ -29,15 +29,16 @@ def saturation_vapour_pressure_kpa(temperature_c: float) -> float:
 
 
 def crossover_with_collatz_c4(alpha: float, co2_ppm: float, *, spectral_correction: float = 0.32,
-                              o2_percent: float = 20.95) -> float:
+                              o2_percent: float = 20.95, c3_ci_ratio: float = 1.0) -> float:
     """Leaf temperature [°C] where the C3 and C4 light-limited quantum yields are equal.
 
     C3: φ3 = φ0 (C − Γ*)/(C + 2Γ*), φ0 = (1 − f)/8 (Farquhar et al. 1980; the form used by Ehleringer
-    et al. 1997 and Collatz et al. 1998), with C the ambient CO2 (no drawdown in the light-limited limit).
-    C4 (Collatz, Ribas-Carbo & Berry 1992): φ4 = α, independent of temperature.
+    et al. 1997 and Collatz et al. 1998), with C = ``c3_ci_ratio`` × the ambient CO2 (1: no drawdown, the
+    light-limited limit of one leaf; g1/(g1 + √D): the canopy's Ci, Medlyn et al. 2011).
+    C4 (Collatz, Ribas-Carbo & Berry 1992): φ4 = α, independent of temperature and CO2.
     φ3 = α  <=>  Γ* = C (φ0 − α)/(φ0 + 2α); Γ*(T) from :func:`gamma_star_umol_mol`, solved for T with
     scipy's brentq on 0-50 °C. f = 0.32 is the documented default of the bernacchi2001 set.
     """
     phi0 = (1.0 - spectral_correction) / 8.0
-    gamma_needed = co2_ppm * (phi0 - alpha) / (phi0 + 2.0 * alpha)
+    gamma_needed = c3_ci_ratio * co2_ppm * (phi0 - alpha) / (phi0 + 2.0 * alpha)
     return brentq(lambda t: gamma_star_umol_mol(t, o2_percent) - gamma_needed, 0.0, 50.0, xtol=1e-12)

@@ -57,11 +57,12 @@ def test_every_layer_is_returned_with_its_shape_and_its_defining_relation():
     # Derived here: months favouring C4 = months whose own index (M4 - M3)/(M4 + M3) exceeds the margin.
     monthly_index = (m4 - m3) / (m4 + m3)
     np.testing.assert_array_equal(result["c4_favoured_months"].values, (monthly_index > 0.05).sum(axis=0))
-    # The crossover of the default sets at 420 ppm and sea level, derived here from Bernacchi et al. (2001)
-    # Γ* and the Collatz et al. (1992) C4 yield alpha = 0.0625 (tests/hand_derived.py): 26.05 °C in every
-    # cell (the yields do not depend on air pressure; every cell here is at 0 m).
-    np.testing.assert_allclose(result["crossover_temperature"].values, crossover_with_collatz_c4(0.0625, 420.0),
-                               rtol=0, atol=1e-4)
+    # The leaf quantum-yield crossover of the default (grass) sets at 420 ppm and sea level, derived here
+    # from Bernacchi et al. (2001) Γ* and the Collatz et al. (1992) C4 yield alpha = 0.04, at the C3 canopy
+    # Ci/Ca = g1/(g1 + √D) with g1 5.25 (Lin et al. 2015) and D = 1 kPa (tests/hand_derived.py): 41.79 °C in
+    # every cell (the yields do not depend on air pressure; every cell here is at 0 m).
+    np.testing.assert_allclose(result["crossover_temperature"].values,
+                               crossover_with_collatz_c4(0.04, 420.0, c3_ci_ratio=5.25 / 6.25), rtol=0, atol=1e-4)
     # Photorespiration share = 0.5 vo / vc = Γ*/Ci at every instant (FvCB identity, von Caemmerer 2000
     # eq. 2.1 and 2.3), so the season's share lies between the smallest and largest instantaneous Γ*/Ci:
     # Γ* at the coldest and warmest leaf temperatures (Tmin and Tmax of the months, Bernacchi et al. 2001);

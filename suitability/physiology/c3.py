@@ -5,8 +5,12 @@ partial pressures [Pa], see ``rubisco``):
 
 - Rubisco-limited carboxylation  Wc = Vcmax C / (C + Kc (1 + O/Ko))
 - electron-transport-limited     Wj = J C / (4 C + 8 Γ*)
-- triose-phosphate-use-limited   Wp = 3 Tp                         (optional; Sharkey 1985)
-- vc = min(Wc, Wj, Wp); vo = 2 Γ* vc / C;  A = vc − 0.5 vo − Rd = vc (1 − Γ*/C) − Rd
+- vc = min(Wc, Wj); vo = 2 Γ* vc / C;  A = vc − 0.5 vo − Rd = vc (1 − Γ*/C) − Rd
+- triose-phosphate-use limit, in its standard form A = 3 Tp − Rd (Sharkey 1985 Bot Rev 51:53; von
+  Caemmerer 2000 eq. 2.26): gross = 3 Tp, with the carboxylation and photorespiration that go with it,
+  vc = 3 Tp C/(C − Γ*) and 0.5 vo = vc Γ*/C = 3 Tp Γ*/(C − Γ*). It limits where 3 Tp is below the gross
+  rate of the other two limits, which needs C > Γ* (below Γ* the gross rate is negative and TPU cannot
+  limit it). Optional (Tp unlimited by default).
 - J is the smaller root of θ J² − (I2 + Jmax) J + I2 Jmax = 0 with I2 = absorbed_par (1 − f)/2
   (von Caemmerer 2000 eq. 2.14; the input is ABSORBED PAR, so leaf absorptance is not applied again).
 
@@ -14,7 +18,7 @@ Outputs: ``gross`` = vc − 0.5 vo = A + Rd; ``photorespiration`` = 0.5 vo, the 
 photorespiration; so the share of gross carboxylation lost to photorespiration is
 photorespiration / (gross + photorespiration) = Γ*/C.
 
-Limitation codes: 1 Rubisco (Wc), 2 electron transport (Wj), 3 TPU (Wp).
+Limitation codes: 1 Rubisco (Wc), 2 electron transport (Wj), 3 TPU (gross = 3 Tp).
 
 Capacity temperature responses (``vcmax_temperature_response`` parameter):
 - "peaked": Kattge & Knorr (2007) Plant Cell Environ 30:1176 (doi:10.1111/j.1365-3040.2007.01690.x),
@@ -178,8 +182,9 @@ def fvcb_rates(co2_pa, o2_pa, absorbed_par, *, vcmax, jmax, tpu, rd, kc, ko, gam
 def fvcb(co2_pa, o2_pa, absorbed_par, vcmax, jmax, tpu, rd, kc, ko, gamma_star, theta, spectral_correction):
     """FvCB rates (:func:`fvcb_rates`, positional arguments in the same units) as :class:`C3Rates`.
 
-    Each limiting rate is written vc = ρ C with ρ = Vcmax/(C + Km), J/(4C + 8Γ*) or 3 Tp / C; the smallest
-    ρ limits, gross = ρ (C − Γ*) and photorespiration = ρ Γ*, which stays finite at C = 0.
+    Each limiting rate is written vc = ρ C with ρ = Vcmax/(C + Km), J/(4C + 8Γ*) or, for TPU in its
+    standard form (gross = 3 Tp, module docstring), 3 Tp/(C − Γ*); the smallest ρ limits, gross =
+    ρ (C − Γ*) and photorespiration = ρ Γ*, which stays finite at C = 0. TPU can limit only where C > Γ*.
     """
     electron_transport = electron_transport_rate(absorbed_par, jmax, theta, spectral_correction)
     rate_rubisco = vcmax / (co2_pa + effective_michaelis_constant(kc, ko, o2_pa))
@@ -193,11 +198,13 @@ def fvcb(co2_pa, o2_pa, absorbed_par, vcmax, jmax, tpu, rd, kc, ko, gamma_star, 
     rate_light = ops.where(positive, electron_transport * inverse_light_denominator, ops.inf)
     light_limited = rate_light < rate_rubisco
     rate = ops.minimum(rate_rubisco, rate_light)
-    # TPU limits where 3 Tp < ρ C, i.e. where 3 Tp / C < ρ without dividing by a C that may be 0.
-    tpu_limited = (tpu < UNLIMITED_RATE) & (3.0 * tpu < rate * co2_pa)
-    rate = ops.where(tpu_limited, 3.0 * tpu * (1.0 / ops.where(co2_pa > 0, co2_pa, 1.0)), rate)
+    # TPU (gross = 3 Tp, Sharkey 1985) limits where 3 Tp < ρ (C − Γ*), i.e. where 3 Tp/(C − Γ*) < ρ, which
+    # needs C > Γ*; written without dividing by a C − Γ* that may be 0 or negative.
+    excess_co2 = co2_pa - gamma_star
+    tpu_limited = (tpu < UNLIMITED_RATE) & (excess_co2 > 0) & (3.0 * tpu < rate * excess_co2)
+    rate = ops.where(tpu_limited, 3.0 * tpu * (1.0 / ops.where(excess_co2 > 0, excess_co2, 1.0)), rate)
     limitation = ops.where(tpu_limited, 3, ops.where(light_limited, 2, 1))
-    gross = rate * (co2_pa - gamma_star)
+    gross = rate * excess_co2
     return C3Rates(gross - rd, gross, rate * gamma_star, limitation)
 
 

@@ -29,9 +29,28 @@ leakiness φ = gbs (Cs − Cm)/Vp; photorespiratory CO2 release 0.5 vo = vc γ* 
 J is the non-rectangular response to I2 = absorbed (1 − f)/2 as in C3.
 Kinetic constants at 25 °C: von Caemmerer (2000) Table 4.1 (``kinetics = "caemmerer2000_c4"``, default)
 or von Caemmerer (2021) (``"caemmerer2021_c4"``); see ``rubisco`` and ``PEPC_KINETICS``.
-Temperature: Arrhenius (von Caemmerer 2021 J Exp Bot 72:6003) for Vcmax (78.0 kJ mol-1), Vpmax (50.1;
-also used for Vpr, a decision here), Rd (66.4), Kp (38.3) and the Rubisco constants (``rubisco``),
-Gaussian Jmax (To 43 °C, Ω 26 °C, normalised at 25 °C); gbs and x constant.
+Temperature (``capacity_temperature_response``):
+- "massad2007" (default of the vc2000 and C4 plant-type sets): peaked (Johnson et al. 1942 / Medlyn et al.
+  2002 form, normalised at 25 °C) responses of Vcmax (Ha 67294 J mol-1, Hd 144568 J mol-1, ΔS 472 J mol-1
+  K-1), Vpmax (70373, 117910, 376; also used for Vpr, a decision here) and Jmax (77900, 191929, 627) fitted
+  to maize by Massad, Tuzet & Bethenod (2007) Plant Cell Environ 30:1191 (doi:10.1111/j.1365-3040.2007.01691.x)
+  [values from two independent transcriptions of the paper's table, not from the paper itself; one gives
+  Hd of Vpmax as 117930: see ``MASSAD_2007``]. Their optima (Medlyn et al. 2002 eq. 18) are about 32 °C
+  (Vcmax), 43 °C (Vpmax) and 31 °C (Jmax);
+- "caemmerer2021": Arrhenius (von Caemmerer 2021 J Exp Bot 72:6003) for Vcmax (78.0 kJ mol-1) and Vpmax
+  (50.1; also Vpr), Gaussian Jmax (To ``jmax_optimum_c`` 43 °C, Ω ``jmax_width_c`` 26 °C, normalised at
+  25 °C): no high-temperature decline of the enzymes.
+Both: Rd Arrhenius 66.4 kJ mol-1, Kp 38.3 kJ mol-1 and the Rubisco constants (``rubisco``) of von
+Caemmerer (2021); gbs and x constant.
+Chilling (``chilling_response``): "collatz1992" multiplies Vcmax, Vpmax and Vpr by the low-temperature
+term of Collatz, Ribas-Carbo & Berry (1992), 1/(1 + e^(0.3 (Tlow − T))) with Tlow =
+``chilling_temperature_c`` (13 °C in Collatz et al. 1992), normalised here to 1 at 25 °C (0.973 as
+printed) so that the 25 °C capacities keep their measured values. Why this term: it is the published
+C4 form that our Collatz (1992) model already uses, so both C4 models lose capacity in the cold alike;
+it stands for the cold lability of C4 enzymes (PPDK, Rubisco) that limits C4 photosynthesis at chilling
+temperatures (Long 1983 Plant Cell Environ 6:345; Sage & Kubien 2007 Plant Cell Environ 30:1086 [both
+from memory]). Jmax is not chilled (Collatz's light-limited term has no temperature response). "none"
+switches it off.
 Limitation codes: 1 enzyme (Rubisco or PEP regeneration), 2 light, 3 CO2 (PEPc CO2-limited, Cm Vpmax/(Cm +
 Kp) < Vpr, and the mesophyll supply Vp − Rm + gbs Cm below Vcmax − Rd).
 """
@@ -40,12 +59,14 @@ from __future__ import annotations
 
 from typing import NamedTuple
 
+import numpy as np
+
 from . import array_ops as ops
 from .c3 import electron_transport_rate, non_rectangular_hyperbola
 from .elementwise import equation
 from .models import LeafModel, LeafRates, register_leaf_model
 from .rubisco import STANDARD_PRESSURE_KPA, effective_michaelis_constant, rubisco_constants
-from .temperature import arrhenius, gaussian_response, q10_response
+from .temperature import arrhenius, gaussian_response, peaked_arrhenius, q10_response
 
 PEPC_KINETICS = {
     "caemmerer2000_c4": {"kp25_pa": 80e-6 * 1e5, "kp_activation_energy": 38300.0},
@@ -53,6 +74,54 @@ PEPC_KINETICS = {
 }
 """PEP carboxylase Kp [Pa] at 25 °C (von Caemmerer 2000 Table 4.1: 80 µbar; 2021 Table 1: 82 µbar) and its
 activation energy [J mol-1] (von Caemmerer 2021), keyed by the ``kinetics`` name of the vc2000 set."""
+
+MASSAD_2007 = {
+    "vcmax": (67294.0, 144568.0, 472.0),
+    "vpmax": (70373.0, 117910.0, 376.0),
+    "jmax": (77900.0, 191929.0, 627.0),
+}
+"""Peaked temperature responses of maize C4 capacities, (Ha [J mol-1], Hd [J mol-1], ΔS [J mol-1 K-1]):
+Massad, Tuzet & Bethenod (2007) Plant Cell Environ 30:1191, as transcribed in the R package plantecophys
+(AciC4) and in the SCOPE model's biochemical routine (Magnani & van der Tol); the two agree except Hd of
+Vpmax (117910 vs 117.93 kJ mol-1, a 0.02 % difference). Not checked against the paper itself."""
+
+COLLATZ_1992_CHILLING_SLOPE = 0.3
+"""Slope [K-1] of the low-temperature term of Collatz, Ribas-Carbo & Berry (1992), 1/(1 + e^(0.3(13 − T)))."""
+
+
+def chilling_factor(temperature_c, chilling_temperature_c):
+    """Low-temperature term of Collatz et al. (1992), normalised to 1 at 25 °C [-].
+
+    f(T) = (1 + e^(0.3 (Tlow − 25))) / (1 + e^(0.3 (Tlow − T)))
+
+    Parameters
+    ----------
+    temperature_c : leaf temperature [°C]
+    chilling_temperature_c : Tlow, where the un-normalised term is 0.5 [°C] (13 °C in Collatz et al. 1992)
+    """
+    slope = COLLATZ_1992_CHILLING_SLOPE
+    at_reference = ops.weak_scalar(1.0 + np.exp(slope * (chilling_temperature_c - 25.0)))
+    return at_reference / (1.0 + np.exp(slope * (chilling_temperature_c - temperature_c)))
+
+
+def caemmerer_capacity_factors(temperature_c, params):
+    """Factors (Vcmax, Vpmax and Vpr, Jmax) relative to 25 °C of a resolved vc2000 mapping [-] (module
+    docstring: ``capacity_temperature_response`` and ``chilling_response``); temperature [°C]."""
+    response = params["capacity_temperature_response"]
+    if response == "massad2007":
+        vcmax, vpmax, jmax = (peaked_arrhenius(temperature_c, *MASSAD_2007[name]) for name in ("vcmax", "vpmax", "jmax"))
+    elif response == "caemmerer2021":
+        constants = CAEMMERER_2021_ACTIVATION
+        vcmax = arrhenius(temperature_c, constants["vcmax_activation_energy"])
+        vpmax = arrhenius(temperature_c, constants["vpmax_activation_energy"])
+        jmax = gaussian_response(temperature_c, params["jmax_optimum_c"], params["jmax_width_c"])
+    else:
+        raise ValueError(f"unknown C4 capacity temperature response {response!r}; valid: massad2007, caemmerer2021")
+    if params["chilling_response"] == "collatz1992":
+        chill = chilling_factor(temperature_c, params["chilling_temperature_c"])
+        vcmax, vpmax = vcmax * chill, vpmax * chill
+    return vcmax, vpmax, jmax
+
 
 CAEMMERER_2021_ACTIVATION = {
     "vcmax_activation_energy": 78000.0,
@@ -148,17 +217,16 @@ def caemmerer_temperature_terms(temperature_c, params) -> tuple:
     Returns (Kc [Pa], Ko [Pa], γ* per Pa of O2 [-], Kp [Pa], Vcmax, Vpmax, Vpr, Rd, Jmax [µmol m-2 s-1]) at
     leaf temperature ``temperature_c`` [°C] for a resolved C4 mapping with ``model == "vc2000"``.
     """
-    constants = CAEMMERER_2021_ACTIVATION
     kc, ko, gamma_per_o2 = rubisco_constants(params["kinetics"], temperature_c, 1.0)  # Γ* = γ* Om
     pepc = PEPC_KINETICS[params["kinetics"]]
-    vp_factor = arrhenius(temperature_c, constants["vpmax_activation_energy"])
+    vc_factor, vp_factor, j_factor = caemmerer_capacity_factors(temperature_c, params)
     return (kc, ko, gamma_per_o2,
             pepc["kp25_pa"] * arrhenius(temperature_c, pepc["kp_activation_energy"]),
-            params["vcmax25"] * arrhenius(temperature_c, constants["vcmax_activation_energy"]),
+            params["vcmax25"] * vc_factor,
             params["vpmax25"] * vp_factor,
             params["vpr25"] * vp_factor,
-            params["rd25"] * arrhenius(temperature_c, constants["rd_activation_energy"]),
-            params["jmax25"] * gaussian_response(temperature_c, params["jmax_optimum_c"], params["jmax_width_c"]))
+            params["rd25"] * arrhenius(temperature_c, CAEMMERER_2021_ACTIVATION["rd_activation_energy"]),
+            params["jmax25"] * j_factor)
 
 
 def caemmerer_constants(params) -> tuple:

@@ -15,11 +15,24 @@ measurements: f = 0.32 [C] makes the C3 yield in air at 30 °C and 330 ppm equal
 value of Ehleringer & Pearcy (1983, Plant Physiol 73:555), with Bernacchi (2001) Γ* and CO2 at Rubisco =
 ambient (the low-light limit). The same f is used in the von Caemmerer C4 model (f is a property of the
 leaf's light harvesting, not of the pathway); its C4 yield then follows from the model (about 0.06).
-For the Collatz (1992) C4 model the yield is its parameter α; Collatz et al. fitted α = 0.04 (whether
-per incident or absorbed photon differs between sources [M]); here α = 0.0625 per ABSORBED photon, the
-mean of Ehleringer & Pearcy's (1983) NADP-ME (0.065) and NAD-ME (0.060) C4 grass yields [P], so that
-both pathways' light-limited yields come from the same measurements. Override ``alpha: 0.04`` for the
-original fit.
+For the Collatz (1992) C4 model the yield is its parameter α. Collatz et al. fitted α = 0.04; the
+paper's abstract names the absorbed quantum flux as the model's light input [P: abstract seen], so 0.04
+is taken per ABSORBED photon in the ``c4_tropical_grass`` set (the published model as fitted). The
+``collatz1992`` set instead uses α = 0.0625, the mean of Ehleringer & Pearcy's (1983) NADP-ME (0.065) and
+NAD-ME (0.060) C4 grass yields [P], so that both pathways' light-limited yields come from the same
+measurements.
+
+Plant-type sets and the default pair
+------------------------------------
+``c3_temperate_grass``, ``c3_cereal`` (FvCB; Vcmax25 of C3 herbaceous plants and C3 crops, Kattge et al.
+2009 [from memory]; g1 of Lin et al. 2015 [P]), ``c4_tropical_grass`` (Collatz et al. 1992 as published)
+and ``c4_cereal`` (maize: von Caemmerer 2000 with the Massad et al. 2007 temperature responses). The
+default pair (:data:`DEFAULT_SETS`) is the grass pair. Calibration check (tests/physiology/
+test_calibration.py), daily net canopy tie on a sunny mid-latitude summer day (22 MJ m-2, LAI 3, 10 °C
+range, 40° N, day 196): at 280/350/420/560/700 ppm 16.4/20.2/23.6/30.5/>46 °C with C3 acclimated to the
+daily mean (Kattge & Knorr 2007), 14.2/16.7/22.1/31.3/36.4 °C with Tg fixed at 25 °C; Collatz, Berry &
+Clark (1998) put the boundary near 22 °C (20-24) at ~350 ppm. No value was tuned to reach that band.
+The older ``bernacchi2001``/``collatz1992`` pair ties at 11.3/11.9/12.5/13.3/14.0 °C (Tg 25 °C).
 
 Keys common to both pathways
 ----------------------------
@@ -49,7 +62,11 @@ Collatz et al. (1992) Aust J Plant Physiol 19:519: ``vmax25``, ``alpha``, ``k25`
 von Caemmerer (2000), ch. 4: ``kinetics`` ("caemmerer2000_c4": Table 4.1 25 °C constants, default;
 "caemmerer2021_c4": von Caemmerer 2021 constants, which make the model more O2-sensitive),
 ``vcmax25``, ``vpmax25``, ``vpr25``, ``jmax25``, ``rd25`` (None = 0.01 vcmax25 [M]), ``rm_fraction`` (Rm/Rd, 0.5), ``gbs`` [mol m-2 s-1 bar-1], ``x`` (share of J for the C4
-cycle), ``theta``, ``spectral_correction``, ``jmax_optimum_c``, ``jmax_width_c``.
+cycle), ``theta``, ``spectral_correction``, ``capacity_temperature_response`` ("massad2007": peaked
+maize responses of Massad et al. 2007; "caemmerer2021": Arrhenius Vcmax/Vpmax and Gaussian Jmax with
+``jmax_optimum_c``, ``jmax_width_c``), ``chilling_response`` ("collatz1992" | "none") and
+``chilling_temperature_c`` (the Collatz et al. 1992 low-temperature term on the enzyme capacities; see
+``c4``).
 
 Resolution
 ----------
@@ -111,8 +128,110 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "ci_ratio": 0.7,
             "water_stress_on_vcmax": False,
         },
+        "c3_temperate_grass": {
+            "source": (
+                "C3 temperate grass: FvCB (Farquhar et al. 1980) with Bernacchi et al. (2001) kinetics; Vcmax25 "
+                "of C3 herbaceous plants, Kattge et al. (2009) Global Change Biol 15:976 [from memory]; Jmax, "
+                "peaked responses and their acclimation Kattge & Knorr (2007); stomata Medlyn et al. (2011) with "
+                "the C3-grass g1 of Lin et al. (2015)"
+            ),
+            "model": "fvcb",
+            "kinetics": "bernacchi2001",  # Bernacchi et al. (2001) Table 1, Ci basis [P]
+            # Kattge et al. (2009) Table 3, C3 herbaceous: 78.2 ± 31.1 µmol m-2 s-1 [from memory, not verified].
+            "vcmax25": 78.2,
+            "jmax25": None,  # (2.59 − 0.035 Tg) Vcmax25, Kattge & Knorr (2007) [P]
+            "rd25": None,  # 0.015 Vcmax25 (Collatz et al. 1991; widely used) [P]
+            "tpu25": None,  # no TPU limit [CP]: not limiting at the CO2 of the maps (Sharkey 1985, from memory)
+            "vcmax_temperature_response": "peaked",  # Kattge & Knorr (2007) [P]
+            "growth_temperature_c": 25.0,  # Tg [CP]; the model may set it from each cell's climate
+            "theta": 0.7,  # von Caemmerer (2000) eq. 2.14 default [M]
+            "spectral_correction": 0.32,  # [C] C3-grass yield 0.053 at 30 °C (Ehleringer & Pearcy 1983), see above
+            "stomatal_model": "medlyn",
+            "g1": 5.25,  # Lin et al. (2015) C3 grass [P]
+            "ci_ratio": 0.7,  # [CP], used only with stomatal_model "fixed"
+            "water_stress_on_vcmax": False,
+        },
+        "c3_cereal": {
+            "source": (
+                "C3 cereal: FvCB (Farquhar et al. 1980) with Bernacchi et al. (2001) kinetics; Vcmax25 of C3 "
+                "crops, Kattge et al. (2009) Global Change Biol 15:976 [from memory]; Jmax, peaked responses "
+                "and their acclimation Kattge & Knorr (2007); stomata Medlyn et al. (2011) with the C3-crop g1 "
+                "of Lin et al. (2015)"
+            ),
+            "model": "fvcb",
+            "kinetics": "bernacchi2001",  # Bernacchi et al. (2001) Table 1, Ci basis [P]
+            # Kattge et al. (2009) Table 3, C3 crops: 100.7 ± 36.6 µmol m-2 s-1 [from memory, not verified].
+            "vcmax25": 100.7,
+            "jmax25": None,  # (2.59 − 0.035 Tg) Vcmax25, Kattge & Knorr (2007) [P]
+            "rd25": None,  # 0.015 Vcmax25 (Collatz et al. 1991; widely used) [P]
+            "tpu25": None,  # no TPU limit [CP]
+            "vcmax_temperature_response": "peaked",  # Kattge & Knorr (2007) [P]
+            "growth_temperature_c": 25.0,  # Tg [CP]
+            "theta": 0.7,  # von Caemmerer (2000) eq. 2.14 default [M]
+            "spectral_correction": 0.32,  # [C] as for the C3 grass (Ehleringer & Pearcy 1983 C3 yield 0.053)
+            "stomatal_model": "medlyn",
+            "g1": 5.79,  # Lin et al. (2015) C3 crop [P]
+            "ci_ratio": 0.7,  # [CP]
+            "water_stress_on_vcmax": False,
+        },
     },
     "C4": {
+        "c4_tropical_grass": {
+            "source": (
+                "C4 tropical grass: Collatz, Ribas-Carbo & Berry (1992) Aust J Plant Physiol 19:519, the model and "
+                "its Table 2 values as published, including the fitted quantum yield alpha = 0.04 per absorbed "
+                "photon; Medlyn et al. (2011) stomata with the C4-grass g1 of Lin et al. (2015)"
+            ),
+            "model": "collatz1992",
+            # Collatz et al. (1992) Table 2 [P via REFERENCES §3]: fitted to maize leaves; no grass-specific
+            # capacity for this model form was verified, so the published fit is kept.
+            "vmax25": 39.0,
+            # Collatz et al. (1992) fit, per ABSORBED photon: the paper's abstract names the absorbed quantum
+            # flux as the model's light input [P: abstract seen]. Below the measured C4-grass yields of
+            # Ehleringer & Pearcy (1983), 0.060-0.065 [P]; the "collatz1992" set uses those instead.
+            "alpha": 0.04,
+            "k25": 0.7,  # Collatz et al. (1992) Table 2 [P]
+            "theta": 0.83,  # Collatz et al. (1992) Table 2 [P]
+            "beta": 0.93,  # Collatz et al. (1992) Table 2 [P]
+            "rd25": 0.8,  # Collatz et al. (1992) Table 2 [P]
+            "q10": 2.0,  # Collatz et al. (1992) equations [P form]
+            "low_temperature_c": 13.0,  # Collatz et al. (1992) [P form]: the chilling term
+            "high_temperature_c": 36.0,  # Collatz et al. (1992) [P form]
+            "respiration_high_temperature_c": 55.0,  # Collatz et al. (1992) [P form]
+            "stomatal_model": "medlyn",
+            "g1": 1.62,  # Lin et al. (2015) C4 grass [P]
+            "ci_ratio": 0.4,  # [CP]
+            "water_stress_on_vcmax": False,
+        },
+        "c4_cereal": {
+            "source": (
+                "C4 cereal (maize): von Caemmerer (2000) ch. 4 C4 model with its Table 4.1 example leaf and "
+                "constants; peaked Vcmax, Vpmax, Jmax temperature responses of maize, Massad, Tuzet & Bethenod "
+                "(2007) Plant Cell Environ 30:1191; chilling term of Collatz et al. (1992); Medlyn et al. (2011) "
+                "stomata with the C4-crop g1 of Lin et al. (2015)"
+            ),
+            "model": "vc2000",
+            "kinetics": "caemmerer2000_c4",  # von Caemmerer (2000) Table 4.1 [P via transcriptions]
+            "vcmax25": 60.0,  # von Caemmerer (2000) Table 4.1 example leaf [P via transcriptions]
+            "vpmax25": 120.0,  # idem
+            "vpr25": 80.0,  # idem
+            "jmax25": 400.0,  # idem
+            "rd25": None,  # 0.01 Vcmax25 [M]
+            "rm_fraction": 0.5,  # Rm = 0.5 Rd, von Caemmerer (2000) [P via transcriptions]
+            "gbs": 0.003,  # mol m-2 s-1 bar-1, von Caemmerer (2000) Table 4.1 [P via transcriptions]
+            "x": 0.4,  # von Caemmerer (2000) Table 4.1 [P via transcriptions]
+            "theta": 0.7,  # von Caemmerer (2000) [M]
+            "spectral_correction": 0.32,  # [C] shared with the C3 sets (see above)
+            "jmax_optimum_c": 43.0,  # von Caemmerer (2021), used only with "caemmerer2021"
+            "jmax_width_c": 26.0,  # idem
+            "capacity_temperature_response": "massad2007",  # Massad et al. (2007) maize [P via transcriptions]
+            "chilling_response": "collatz1992",  # Collatz et al. (1992) low-temperature term [P form]
+            "chilling_temperature_c": 13.0,  # Collatz et al. (1992) [P form]
+            "stomatal_model": "medlyn",
+            "g1": 1.79,  # Lin et al. (2015) C4 crop [P]
+            "ci_ratio": 0.4,  # [CP]
+            "water_stress_on_vcmax": False,
+        },
         "collatz1992": {
             "source": (
                 "Collatz, Ribas-Carbo & Berry (1992) Aust J Plant Physiol 19:519, Table 2 values, except "
@@ -155,6 +274,11 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "spectral_correction": 0.32,
             "jmax_optimum_c": 43.0,
             "jmax_width_c": 26.0,
+            # Massad, Tuzet & Bethenod (2007) peaked Vcmax, Vpmax, Jmax (maize) [P via two transcriptions].
+            "capacity_temperature_response": "massad2007",
+            # Collatz et al. (1992) low-temperature term on Vcmax, Vpmax, Vpr, half at 13 °C [P form].
+            "chilling_response": "collatz1992",
+            "chilling_temperature_c": 13.0,
             "stomatal_model": "medlyn",
             "g1": 1.62,
             "ci_ratio": 0.4,
@@ -163,17 +287,21 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
     },
 }
 
-DEFAULT_SETS = {"C3": "bernacchi2001", "C4": "collatz1992"}
+DEFAULT_SETS = {"C3": "c3_temperate_grass", "C4": "c4_tropical_grass"}
+"""The default pair: the grass pair, as in the published map methods (Collatz, Berry & Clark 1998), which
+are about grasses. Its daily-canopy C3/C4 tie is checked in tests/physiology/test_calibration.py."""
 
 _CHOICES = {
     "kinetics": ("bernacchi2001", "collatz1991", "caemmerer2000_c4", "caemmerer2021_c4"),
     "vcmax_temperature_response": ("peaked", "arrhenius", "collatz1991"),
     "stomatal_model": ("medlyn", "fixed"),
+    "capacity_temperature_response": ("massad2007", "caemmerer2021"),
+    "chilling_response": ("collatz1992", "none"),
 }
 _OPTIONAL_NUMBERS = {"jmax25", "rd25", "tpu25"}
 _FRACTIONS = {"theta", "beta", "spectral_correction", "ci_ratio", "x", "rm_fraction"}
 _SIGNED = {"growth_temperature_c", "low_temperature_c", "high_temperature_c",
-           "respiration_high_temperature_c", "jmax_optimum_c"}
+           "respiration_high_temperature_c", "jmax_optimum_c", "chilling_temperature_c"}
 
 
 def register_parameter_set(pathway: str, name: str, values: Mapping) -> None:
@@ -277,7 +405,7 @@ def _resolve_cached(pathway: str, set_name: str, overrides: tuple) -> Mapping:
 def resolve_params(pathway, params=None) -> Mapping:
     """Read-only parameter mapping for ``pathway`` ("C3"/"C4", any case).
 
-    ``params`` is None (the pathway's default set: C3 "bernacchi2001", C4 "collatz1992"), a set name, or
+    ``params`` is None (the pathway's default set, :data:`DEFAULT_SETS`), a set name, or
     a mapping with an optional ``"parameter_set"`` key (the base set; default set if absent) and any
     overrides of that set's keys. Unknown set names, keys or invalid values raise ``ValueError`` listing
     the valid ones. Results are cached by value, so calling this repeatedly is cheap.

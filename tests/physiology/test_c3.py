@@ -79,13 +79,31 @@ def test_electron_transport_limits_and_absorbed_par_convention():
 
 
 def test_tpu_limit_and_codes():
-    # Sharkey (1985) TPU limit: Wp = 3 Tp caps carboxylation at high CO2 and light (code 3).
+    # Sharkey (1985) Bot Rev 51:53 and von Caemmerer (2000) eq. 2.26, the standard form of the TPU limit:
+    # A = 3 Tp − Rd, i.e. gross = 3 Tp, at high CO2 and light (code 3); carboxylation vc = 3 Tp C/(C − Γ*)
+    # and photorespiratory release 0.5 vo = vc Γ*/C (von Caemmerer 2000 eq. 2.3), derived here.
     c = _leaf_capacities(25.0)
     c["tpu"] = 5.0
-    rates = fvcb_rates(np.array([10.0, 150.0]), O2_PA, 2000.0, **c)
+    co2 = np.array([10.0, 150.0])
+    rates = fvcb_rates(co2, O2_PA, 2000.0, **c)
     assert list(rates.limitation) == [1, 3]
-    assert rates.gross[1] == pytest.approx(15.0 * (1 - c["gamma_star"] / 150.0))
+    assert rates.gross[1] == pytest.approx(15.0, rel=1e-12)
+    assert rates.net[1] == pytest.approx(15.0 - c["rd"], rel=1e-12)
+    carboxylation = 15.0 * 150.0 / (150.0 - c["gamma_star"])
+    assert rates.photorespiration[1] == pytest.approx(carboxylation * c["gamma_star"] / 150.0, rel=1e-12)
     assert fvcb_rates(30.0, O2_PA, 100.0, **_leaf_capacities(25.0)).limitation == 2
+
+
+def test_tpu_cannot_limit_at_or_below_gamma_star():
+    # Derived from the standard form (gross = 3 Tp > 0): at C <= Γ* the gross rate of the other limits is
+    # <= 0 < 3 Tp, so TPU never limits there, however small Tp is; at C = Γ*, A = −Rd (FvCB identity).
+    c = _leaf_capacities(25.0)
+    c["tpu"] = 0.01
+    gamma_star = c["gamma_star"]
+    rates = fvcb_rates(np.array([0.0, 0.5 * gamma_star, gamma_star]), O2_PA, 2000.0, **c)
+    assert np.all(rates.limitation != 3)
+    assert rates.net[2] == pytest.approx(-c["rd"], abs=1e-12)
+    assert np.all(np.isfinite(rates.photorespiration))
 
 
 def test_kattge_knorr_jmax_to_vcmax_ratio():

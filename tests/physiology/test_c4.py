@@ -60,7 +60,9 @@ def test_caemmerer_solution_satisfies_the_model_equations(kinetics, temperature_
     # von Caemmerer (2000) ch. 4: the quadratic solution must satisfy the underlying mass balances,
     # mesophyll A = Vp − gbs (Cs − Cm) − Rm, and bundle sheath A = Vc (1 − γ* O/Cs) − Rd with
     # Vc = Vcmax Cs/(Cs + Kc(1 + O/Ko)) (enzyme-limited) or Vc = (1 − x) J Cs/(3 Cs + 7 γ* O) (light-limited).
-    params = {"parameter_set": "vc2000", "kinetics": kinetics}
+    # The von Caemmerer (2021) Arrhenius/Gaussian responses are written out below; chilling off.
+    params = {"parameter_set": "vc2000", "kinetics": kinetics, "capacity_temperature_response": "caemmerer2021",
+              "chilling_response": "none"}
     p, kc, ko, gamma_star, rd = _caemmerer_state(temperature_c, par, 30.0, params)
     cm = 30.0
     rates = caemmerer_c4_rates(temperature_c, par, cm, O2_PA, p)
@@ -140,3 +142,76 @@ def test_c4_limitation_codes():
         assert leaf_assimilation("C4", 30.0, 50.0, 400.0, params=c4_set).limitation == 2
         assert leaf_assimilation("C4", 30.0, 2000.0, 30.0, params=c4_set).limitation == 3
         assert leaf_assimilation("C4", 20.0, 3000.0, 1000.0, params=c4_set).limitation == 1
+
+
+# --- vc2000 temperature limits: Massad et al. (2007) peaked capacities, Collatz et al. (1992) chilling ---
+
+def _vc2000_light_saturated_net(temperature_c, **overrides):
+    # Light-saturated leaf: 2000 µmol m-2 s-1 absorbed, 400 ppm, VPD 1 kPa (common practice, no source).
+    return leaf_assimilation("C4", temperature_c, 2000.0, 400.0, vpd_kpa=1.0,
+                             params={"parameter_set": "vc2000", **overrides}).net
+
+
+def test_massad_capacity_factors_match_the_published_peaked_form():
+    # Massad, Tuzet & Bethenod (2007) Plant Cell Environ 30:1191 (Ha, Hd, ΔS from two transcriptions of the
+    # paper, not the paper itself): Vcmax 67294, 144568, 472; Vpmax 70373, 117910, 376; Jmax 77900, 191929,
+    # 627 (J mol-1, J mol-1 K-1), in the peaked form of Medlyn et al. (2002) eq. 17 normalised at 25 °C,
+    # written out here; optimum from Medlyn et al. (2002) eq. 18.
+    from suitability.physiology.c4 import caemmerer_capacity_factors
+    from suitability.physiology.temperature import peaked_arrhenius_optimum_c
+
+    p = resolve_params("C4", {"parameter_set": "vc2000", "chilling_response": "none"})
+
+    def peaked(t, ha, hd, ds):
+        tk, r = t + 273.15, 8.314
+        return (np.exp(ha * (tk - 298.15) / (298.15 * r * tk)) * (1 + np.exp((298.15 * ds - hd) / (298.15 * r)))
+                / (1 + np.exp((tk * ds - hd) / (r * tk))))
+
+    published = {"vcmax": (67294.0, 144568.0, 472.0), "vpmax": (70373.0, 117910.0, 376.0),
+                 "jmax": (77900.0, 191929.0, 627.0)}
+    temperatures = np.array([5.0, 25.0, 38.0, 45.0])
+    factors = dict(zip(("vcmax", "vpmax", "jmax"), caemmerer_capacity_factors(temperatures, p)))
+    for name, (ha, hd, ds) in published.items():
+        np.testing.assert_allclose(factors[name], peaked(temperatures, ha, hd, ds), rtol=1e-12)
+        assert factors[name][1] == pytest.approx(1.0)
+        optimum = peaked_arrhenius_optimum_c(ha, hd, ds)
+        grid = np.linspace(optimum - 3.0, optimum + 3.0, 61)
+        assert grid[np.argmax(caemmerer_capacity_factors(grid, p)[list(published).index(name)])] == pytest.approx(
+            optimum, abs=0.1)
+    # Derived here from eq. 18 with those values: optima about 32 (Vcmax), 43 (Vpmax) and 31 °C (Jmax).
+    assert peaked_arrhenius_optimum_c(*published["vcmax"]) == pytest.approx(32.3, abs=0.3)
+    assert peaked_arrhenius_optimum_c(*published["vpmax"]) == pytest.approx(43.2, abs=0.3)
+    assert peaked_arrhenius_optimum_c(*published["jmax"]) == pytest.approx(31.4, abs=0.3)
+
+
+def test_collatz_chilling_term_halves_capacity_at_13c():
+    # Collatz et al. (1992): low-temperature term 1/(1 + e^(0.3 (13 − T))), 0.5 at 13 °C; here normalised
+    # by its 25 °C value 1/(1 + e^(−3.6)) = 0.9734, so 13 °C gives 0.5 / 0.9734.
+    from suitability.physiology.c4 import chilling_factor
+
+    assert chilling_factor(13.0, 13.0) == pytest.approx(0.5 * (1 + np.exp(-3.6)), rel=1e-12)
+    assert chilling_factor(25.0, 13.0) == pytest.approx(1.0, rel=1e-12)
+    with_chill = _vc2000_light_saturated_net(np.array([5.0, 10.0]))
+    without = _vc2000_light_saturated_net(np.array([5.0, 10.0]), chilling_response="none")
+    assert np.all(with_chill < without)
+
+
+def test_vc2000_light_saturated_a_falls_above_optimum_and_when_chilled():
+    # Massad et al. (2007), from memory: maize light-saturated A peaks in the low-to-mid 30s °C and falls
+    # steeply above ~38 °C. Long (1983) Plant Cell Environ 6:345 and Sage & Kubien (2007) Plant Cell
+    # Environ 30:1086, from memory: C4 (maize) photosynthesis collapses at chilling temperatures, near zero
+    # at 5 °C and a small fraction of its 25 °C rate at 10 °C. Bands are ours (common practice, no source).
+    temperatures = np.arange(0.0, 50.01, 0.5)
+    net = _vc2000_light_saturated_net(temperatures)
+    optimum = temperatures[np.argmax(net)]
+    at_25 = net[temperatures == 25.0][0]
+    assert 30.0 <= optimum <= 36.0
+    assert net[temperatures == 45.0][0] < 0.5 * net.max()
+    assert np.all(np.diff(net[temperatures >= optimum]) < 0)
+    assert net[temperatures == 5.0][0] < 0.05 * at_25
+    assert net[temperatures == 10.0][0] < 0.25 * at_25
+    # Before these limits (von Caemmerer 2021 Arrhenius responses, no chilling term) the same leaf kept
+    # rising to 40 °C: the limits are what make it fall.
+    old = _vc2000_light_saturated_net(np.array([35.0, 40.0]), capacity_temperature_response="caemmerer2021",
+                                      chilling_response="none")
+    assert old[1] > old[0]

@@ -130,8 +130,9 @@ def test_every_set_names_its_source_and_resolves():
 
 
 def test_defaults_and_read_only():
-    assert resolve_params("C3")["parameter_set"] == "bernacchi2001"
-    assert resolve_params("c4")["parameter_set"] == "collatz1992"
+    # The default pair is the grass pair (issue: published map methods are about grasses).
+    assert resolve_params("C3")["parameter_set"] == "c3_temperate_grass"
+    assert resolve_params("c4")["parameter_set"] == "c4_tropical_grass"
     with pytest.raises(TypeError):
         resolve_params("C3")["vcmax25"] = 1.0
 
@@ -145,7 +146,7 @@ def test_overrides_and_config_form():
 
 
 @pytest.mark.parametrize("pathway, params, message", [
-    ("C3", "nope", "bernacchi2001, collatz1991"),
+    ("C3", "nope", "bernacchi2001, c3_cereal, c3_temperate_grass, collatz1991"),
     ("C4", "bernacchi2001", "collatz1992, vc2000"),
     ("C3", {"vcmax": 50.0}, "vcmax25"),
     ("C3", {"vcmax_temperature_response": "linear"}, "peaked, arrhenius, collatz1991"),

@@ -30,7 +30,12 @@ def test_default_g1_are_lin_2015_grass_values():
         g1 = {r["plant_type"]: float(r["g1_kpa05"]) for r in csv.DictReader(l for l in handle if l[0] != "#")}
     assert resolve_params("C3")["g1"] == g1["C3 grass"]
     assert resolve_params("C4")["g1"] == g1["C4 grass"]
-    assert all(PARAMETER_SETS["C4"][name]["g1"] == g1["C4 grass"] for name in PARAMETER_SETS["C4"])
+    assert all(PARAMETER_SETS["C4"][name]["g1"] == g1["C4 grass"] for name in PARAMETER_SETS["C4"] if name != "c4_cereal")
+    # The plant-type sets take the g1 of their type (Lin et al. 2015: C3 crop 5.79, C4 crop 1.79).
+    assert resolve_params("C3", "c3_temperate_grass")["g1"] == g1["C3 grass"]
+    assert resolve_params("C4", "c4_tropical_grass")["g1"] == g1["C4 grass"]
+    assert resolve_params("C3", "c3_cereal")["g1"] == g1["C3 crop"]
+    assert resolve_params("C4", "c4_cereal")["g1"] == g1["C4 crop"]
 
 
 def test_medlyn_limits_and_soil_water_keep_the_optimum():
