@@ -124,8 +124,8 @@ def _crossover_kernel(co2_ppm, o2_percent, pressure_kpa, vpd_kpa=np.nan, *, c3_p
             c3_co2 = c4_co2 = co2
         else:
             vpd = np.where(valid, vpd_kpa, 1.0)
-            c3_co2 = co2 * intercellular_co2_ratio(vpd, 1.0, c3_params)
-            c4_co2 = co2 * intercellular_co2_ratio(vpd, 1.0, c4_params)
+            c3_co2 = co2 * intercellular_co2_ratio(vpd, c3_params)
+            c4_co2 = co2 * intercellular_co2_ratio(vpd, c4_params)
 
         def difference(temperature_c):
             kwargs = {"o2_percent": o2, "pressure_kpa": pressure}
