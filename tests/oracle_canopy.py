@@ -6,7 +6,7 @@ functions: for the default parameter sets (C3 FvCB with Bernacchi et al. 2001 ki
 as dew point; FAO-56 astronomy and air pressure; Spitters et al. 1986 daily course and diffuse share;
 de Pury & Farquhar 1997 sun/shade canopy; 14 Gauss-Legendre points over daylight and 3 at night),
 with the soil's water supply limiting the day as Haxeltine & Prentice 1996 and Sitch et al. 2003 (5 mm d-1
-at field capacity), vectorised over cells with exact exponentials (no tables, no compiled code). It reads only published
+at field capacity; the demand capped at the Priestley & Taylor 1972 energy limit with FAO-56 Rn), vectorised over cells with exact exponentials (no tables, no compiled code). It reads only published
 constants from the package. tests/test_kernel.py holds both engines to it within 1e-4; `make bench`
 also reports its speed beside the package's numpy engine. It is not used by the package.
 """
@@ -152,8 +152,18 @@ def daily_canopy(tmin, tmax, shortwave, water, latitude, elevation, lai, day_of_
     # where the day's transpiration (mol H2O m-2 x 18.015 g mol-1 = mm) exceeds it, gross and
     # photorespiration scale by supply/demand and respiration goes on.
     supply = 5.0 * water
+    # Demand capped at the energy limit: Priestley & Taylor (1972) alpha 1.26 with FAO-56 Rn (eqs. 37-40),
+    # slope of e° (eq. 13) at the daily mean, gamma (eq. 8), lambda 2.45 MJ kg-1.
+    rso = (0.75 + 2e-5 * elevation) * ra
+    relative = np.where(rso > 0, np.minimum(shortwave / np.where(rso > 0, rso, 1.0), 1.0), 0.5)
+    rnl = 4.903e-9 * ((tmax + 273.16) ** 4 + (tmin + 273.16) ** 4) / 2 * (0.34 - 0.14 * np.sqrt(vapour)) * (
+        1.35 * relative - 0.35)
+    rn = 0.77 * shortwave - rnl
+    mean = (tmin + tmax) / 2
+    delta = 4098 * 0.6108 * np.exp(17.27 * mean / (mean + 237.3)) / (mean + 237.3) ** 2
+    energy_limit = 1.26 * delta / (delta + 0.665e-3 * pressure) * np.maximum(rn, 0.0) / 2.45
     for net, gross, photo, transpired in ((0, 1, 2, 5), (3, 4, None, 6)):
-        demand = totals[transpired] * 18.015e-3
+        demand = np.minimum(totals[transpired] * 18.015e-3, energy_limit)
         share = np.where(demand > supply, supply / np.where(demand > supply, demand, 1.0), 1.0)
         totals[net] = totals[net] - (1.0 - share) * totals[gross]
         totals[gross] = share * totals[gross]

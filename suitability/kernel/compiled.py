@@ -28,6 +28,7 @@ import numpy as np
 
 from ..physiology.atmosphere import (
     TEMPERATURE_RANGE_C,
+    actual_vapour_pressure_from_deficit,
     actual_vapour_pressure_from_tmin,
     air_pressure_from_elevation,
     co2_partial_pressure_pa,
@@ -42,6 +43,7 @@ from ..physiology.canopy import (
     valid_day_inputs,
 )
 from ..physiology.elementwise import template
+from ..physiology.energy import energy_limited_transpiration_mm
 from ..physiology.light import (
     daily_clearness,
     day_length,
@@ -64,11 +66,11 @@ HUMIDITY_FROM_TMIN, HUMIDITY_VPD, HUMIDITY_VAPOUR_PRESSURE = 0, 1, 2
 
 # setup[field, lane]: the day of one cell and month
 (_S_A, _S_B, _S_SHORTWAVE, _S_DIFFUSE, _S_INTEGRAL_GLOBAL, _S_INTEGRAL_DIFFUSE, _S_TMIN, _S_TMAX, _S_DAY_LENGTH,
- _S_LAI, _S_E_KD, _S_HUMIDITY, _S_WATER, _S_CO2, _S_PRESSURE, _S_O2) = range(16)
-_N_SETUP = 16
+ _S_LAI, _S_E_KD, _S_HUMIDITY, _S_WATER, _S_CO2, _S_PRESSURE, _S_O2, _S_ENERGY) = range(17)
+_N_SETUP = 17
 # cells[field, lane]: what does not change with the month
-_C_VALID, _C_LATITUDE, _C_LAI, _C_E_KD, _C_PRESSURE, _C_O2 = range(6)
-_N_CELL = 6
+_C_VALID, _C_LATITUDE, _C_LAI, _C_E_KD, _C_PRESSURE, _C_O2, _C_ELEVATION = range(7)
+_N_CELL = 7
 # acc[field, lane]; the first fields are also the rows of the kernel's output
 A_C3_NET, A_C4_NET, A_C3_GROSS, A_C3_PHOTO, A_C4_GROSS, _A_BAD, _A_C3_WATER, _A_C4_WATER = range(8)
 _N_ACC = 8
@@ -297,6 +299,7 @@ def _setup_cell(cells, lane, cell, latitude, elevation, lai, co2_ppm, o2_percent
     cells[_C_E_KD, lane] = diffuse_absorption(leaf_area if valid else 1.0)
     cells[_C_PRESSURE, lane] = pressure
     cells[_C_O2, lane] = o2_pa
+    cells[_C_ELEVATION, lane] = elevation[cell] if valid else 0.0
 
 
 @template
@@ -320,10 +323,16 @@ def _setup_lane(setup, cells, lane, cell, month, tmin, tmax, shortwave, water, h
         setup[_S_HUMIDITY, lane] = given
     else:
         setup[_S_HUMIDITY, lane] = actual_vapour_pressure_from_tmin(t_low)
+    # the vapour pressure of the net radiation (canopy._prepare)
+    vapour = setup[_S_HUMIDITY, lane] if humidity_kind != HUMIDITY_VPD else actual_vapour_pressure_from_deficit(
+        t_low, t_high, setup[_S_HUMIDITY, lane])
     a, b = solar_elevation_terms(latitude_deg, declination)
     setup[_S_A, lane] = a
     setup[_S_B, lane] = b
-    clearness = daily_clearness(daily_shortwave, extraterrestrial_radiation(latitude_deg, day_of_year))
+    extraterrestrial = extraterrestrial_radiation(latitude_deg, day_of_year)
+    clearness = daily_clearness(daily_shortwave, extraterrestrial)
+    setup[_S_ENERGY, lane] = energy_limited_transpiration_mm(t_low, t_high, vapour, daily_shortwave, extraterrestrial,
+                                                            cells[_C_ELEVATION, lane], cells[_C_PRESSURE, lane])
     setup[_S_SHORTWAVE, lane] = daily_shortwave
     setup[_S_DIFFUSE, lane] = diffuse_fraction_daily(clearness) * daily_shortwave
     setup[_S_INTEGRAL_GLOBAL, lane] = daylight_integral_of_sin_elevation(latitude_deg, declination)
@@ -341,13 +350,13 @@ def _setup_lane(setup, cells, lane, cell, month, tmin, tmax, shortwave, water, h
 
 
 @template
-def _limit_by_water_supply(acc, lane, water, max_supply_mm):
+def _limit_by_water_supply(acc, lane, water, max_supply_mm, energy_limit_mm):
     """Both pathways' day under the soil's water supply (water.supply_limited_day, canopy._result)."""
     c3_net, c3_gross, c3_photo, _ = supply_limited_day(acc[A_C3_NET, lane], acc[A_C3_GROSS, lane],
                                                        acc[A_C3_PHOTO, lane], acc[_A_C3_WATER, lane], water,
-                                                       max_supply_mm)
+                                                       max_supply_mm, energy_limit_mm)
     c4_net, c4_gross, _, _ = supply_limited_day(acc[A_C4_NET, lane], acc[A_C4_GROSS, lane], 0.0,
-                                                acc[_A_C4_WATER, lane], water, max_supply_mm)
+                                                acc[_A_C4_WATER, lane], water, max_supply_mm, energy_limit_mm)
     acc[A_C3_NET, lane] = c3_net
     acc[A_C3_GROSS, lane] = c3_gross
     acc[A_C3_PHOTO, lane] = c3_photo
@@ -396,7 +405,7 @@ def monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitud
                                  day_nodes, day_weights, night_nodes, night_weights)
             for lane in range(min(BATCH, n - start)):
                 cell = start + lane
-                _limit_by_water_supply(acc, lane, setup[_S_WATER, lane], max_supply_mm)
+                _limit_by_water_supply(acc, lane, setup[_S_WATER, lane], max_supply_mm, setup[_S_ENERGY, lane])
                 good = acc[_A_BAD, lane] == 0.0
                 for field in range(out.shape[0]):
                     out[field, cell, month] = acc[field, lane] * to_carbon if good else np.nan

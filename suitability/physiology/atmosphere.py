@@ -150,6 +150,13 @@ def actual_vapour_pressure_from_relative_humidity(relative_humidity_percent, tmi
 
 
 @equation
+def actual_vapour_pressure_from_deficit(tmin_c, tmax_c, vpd_kpa):
+    """ea = max(es − D, 0) [kPa] with es the daily mean saturation vapour pressure (FAO-56 eq. 12) and D a
+    daily vapour pressure deficit [kPa]; tmin_c, tmax_c [°C]. The inverse of FAO-56's D = es − ea."""
+    return ops.maximum(mean_saturation_vapour_pressure(tmin_c, tmax_c) - vpd_kpa, 0.0)
+
+
+@equation
 def vapour_pressure_deficit(temperature_c, actual_vapour_pressure_kpa):
     """Vapour pressure deficit of the air at a temperature, FAO-56 eqs. 11 and 13 form.
 

@@ -57,8 +57,14 @@ import numpy as np
 from . import array_ops as ops
 from .array_ops import in_range, where_valid
 from .array_ops import is_xarray as _is_xarray
-from .atmosphere import actual_vapour_pressure_from_tmin, air_pressure_from_elevation, vapour_pressure_deficit
+from .atmosphere import (
+    actual_vapour_pressure_from_deficit,
+    actual_vapour_pressure_from_tmin,
+    air_pressure_from_elevation,
+    vapour_pressure_deficit,
+)
 from .elementwise import equation
+from .energy import energy_limited_transpiration_mm
 from .leaf import leaf_assimilation
 from .light import (
     daily_clearness,
@@ -99,7 +105,8 @@ class CanopyAssimilation:
     gross : gross assimilation in daylight, as the leaf model defines it (net + day respiration)
         [g C m-2 d-1].
     photorespiration : CO2 released by photorespiration in daylight [g C m-2 d-1].
-    transpiration : water the canopy transpires, its demand capped at the soil's supply [mm d-1].
+    transpiration : water the canopy transpires, its demand capped at the radiation's limit and then at
+        the soil's supply [mm d-1].
 
     All four are after the soil's water supply has limited the day (:mod:`.water`).
     """
@@ -199,6 +206,7 @@ class _Day:
     lai: Any
     o2_percent: Any
     max_water_supply_mm: Any
+    energy_limit_mm: Any
     params: Any
 
 
@@ -246,6 +254,10 @@ def _prepare(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year
         actual_vapour_pressure_kpa = actual_vapour_pressure_from_tmin(tmin_c)
     declination = solar_declination(day_of_year)
     extraterrestrial = extraterrestrial_radiation(latitude_deg, day_of_year)
+    radiation_vapour_pressure = (actual_vapour_pressure_kpa if vpd_kpa is None
+                                 else actual_vapour_pressure_from_deficit(tmin_c, tmax_c, vpd_kpa))
+    energy_limit = energy_limited_transpiration_mm(tmin_c, tmax_c, radiation_vapour_pressure, shortwave_mj,
+                                                   extraterrestrial, elevation_m, pressure)
     clearness = daily_clearness(shortwave_mj, extraterrestrial)
     day = _Day(
         pathway=pathway, tmin_c=tmin_c, tmax_c=tmax_c, shortwave_mj=shortwave_mj,
@@ -257,21 +269,23 @@ def _prepare(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year
         day_length_h=day_length(latitude_deg, day_of_year), co2_ppm=co2_ppm, pressure_kpa=pressure,
         vpd_kpa=vpd_kpa, actual_vapour_pressure_kpa=actual_vapour_pressure_kpa,
         water_availability=water_availability, lai=lai, o2_percent=o2_percent,
-        max_water_supply_mm=max_water_supply_mm, params=params)
+        max_water_supply_mm=max_water_supply_mm, energy_limit_mm=energy_limit, params=params)
     return day, valid
 
 
 def _result(day: _Day, valid, net_umol, gross_umol, photorespiration_umol, transpiration_mol) -> CanopyAssimilation:
     """The day's totals under the soil's water supply (:func:`.water.supply_limited_day`), as carbon."""
     net_umol, gross_umol, photorespiration_umol, share = supply_limited_day(
-        net_umol, gross_umol, photorespiration_umol, transpiration_mol, day.water_availability, day.max_water_supply_mm)
+        net_umol, gross_umol, photorespiration_umol, transpiration_mol, day.water_availability,
+        day.max_water_supply_mm, day.energy_limit_mm)
 
     def to_carbon(total):
         return where_valid(valid, total * _UMOL_CO2_TO_G_C)
 
     return CanopyAssimilation(net=to_carbon(net_umol), gross=to_carbon(gross_umol),
                               photorespiration=to_carbon(photorespiration_umol),
-                              transpiration=where_valid(valid, share * transpiration_mm(transpiration_mol)))
+                              transpiration=where_valid(valid, share * ops.minimum(
+                                  transpiration_mm(transpiration_mol), day.energy_limit_mm)))
 
 
 def _gauss_integral(pathway, params, day_gauss_points, **inputs) -> CanopyAssimilation:

@@ -8,7 +8,8 @@ Change Biol 9:161): the soil can supply at most S = Emax · W per day, Emax = 5 
 canopy's demand is the transpiration it would have on that day with its stomata at the optimum of
 Medlyn et al. (2011): at every moment each leaf's conductance follows its own assimilation,
 gs = 1.6 A / (Ca − Ci) (Fick's law for CO2, which the Medlyn ratio Ci/Ca closes; stomata shut, gs = 0,
-where A <= 0), and transpires E = gs D / P. Where the day's demand exceeds the supply, the canopy
+where A <= 0), and transpires E = gs D / P; the day's demand is capped at what its net radiation can
+evaporate (Priestley & Taylor 1972, :mod:`.energy`). Where the day's demand exceeds the supply, the canopy
 closes its stomata and lowers its capacities together, keeping Ci/Ca at the optimum (both decline
 under drought, Zhou et al. 2013 Agric For Meteorol 182-183:204; from memory), so its gross assimilation
 and photorespiration fall in proportion to the water it can draw:
@@ -76,7 +77,7 @@ def transpiration_mm(transpiration_mol):
 
 @equation
 def supply_limited_day(net, gross, photorespiration, transpiration_mol, water_availability,
-                       max_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY):
+                       max_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY, energy_limit_mm=1e300):
     """The day's canopy exchange under the soil's water supply (module docstring).
 
     Parameters
@@ -85,10 +86,12 @@ def supply_limited_day(net, gross, photorespiration, transpiration_mol, water_av
     transpiration_mol : the day's transpiration demand [mol H2O m-2 d-1].
     water_availability : W [-], 0..1.
     max_supply_mm : Emax [mm d-1].
+    energy_limit_mm : the most the day's radiation can evaporate (:mod:`.energy`) [mm d-1]; the demand
+        is capped at it.
 
     Returns (net, gross, photorespiration, share) in the units given; ``share`` = min(1, S / E) [-].
     """
-    demand = transpiration_mm(transpiration_mol)
+    demand = ops.minimum(transpiration_mm(transpiration_mol), energy_limit_mm)
     supply = water_supply_mm(water_availability, max_supply_mm)
     limited = demand > supply
     share = ops.where(limited, supply / ops.where(limited, demand, 1.0), 1.0)
