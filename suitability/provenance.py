@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from ._version import __version__
+from .assumptions import run_assumptions
 from .caution import CAUTION
 from .config import RunConfig
 from .inputs import layer_files
@@ -118,6 +119,7 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
         "resumed_scenarios": list(resumed),
         "briefs": {k: str(v) for k, v in briefs.items()},
         "summary": summary.to_dict(orient="records"),
+        "assumptions": run_assumptions(cfg),
         "timings": {k: round(v, 3) for k, v in timings.items()},
         "python": platform.python_version(),
         "platform": platform.platform(),
