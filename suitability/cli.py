@@ -135,11 +135,14 @@ def _handle_errors(command):
 
 #: Help of the options that the config also has; the starter template and the README say the same
 #: (tests/test_first_hour.py compares them).
-OPTION_HELP = {
-    "scheduler": "threads | processes | local-cluster | tcp://host:port | tls://host:port (config compute.scheduler).",
-    "workers": "Number of threads (threads), worker processes (processes, local-cluster) (config compute.workers).",
-    "memory_limit": "Memory limit per worker, e.g. 2GiB, 500MB or auto (config compute.memory_limit).",
+CONFIG_OPTIONS = {
+    "scheduler": ("compute.scheduler", "threads | processes | local-cluster | tcp://host:port | tls://host:port"),
+    "workers": ("compute.workers", "number of threads (threads) or worker processes (processes, local-cluster)"),
+    "memory_limit": ("compute.memory_limit", "memory limit per worker process, e.g. 2GiB, 500MB or auto"),
+    "overwrite": ("output.overwrite", "replace existing outputs"),
 }
+OPTION_HELP = {name: f"{text if name == 'scheduler' else text[0].upper() + text[1:]}; overrides the config's {key}."
+               for name, (key, text) in CONFIG_OPTIONS.items()}
 
 DebugOption = typer.Option(False, "--debug", help="Show the full traceback on errors.")
 
@@ -163,10 +166,10 @@ def _main(
     """
 
 
-@app.command()
+@app.command(short_help="Compute every scenario of a config: maps, tables, manifest, briefs.")
 def run(
     config: Path = typer.Argument(..., help="YAML config file."),
-    overwrite: Optional[bool] = typer.Option(None, "--overwrite/--no-overwrite", help="Replace existing outputs."),
+    overwrite: Optional[bool] = typer.Option(None, "--overwrite/--no-overwrite", help=OPTION_HELP["overwrite"]),
     resume: bool = typer.Option(
         False, "--resume",
         help="Keep scenarios whose outputs match the manifest (same config and input files); recompute the rest.",
@@ -212,7 +215,7 @@ def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
     _print_caution()
 
 
-@app.command()
+@app.command(short_help="Validate a config and open every input, without computing.")
 def check(config: Path = typer.Argument(..., help="YAML config file."), debug: bool = DebugOption):
     """Validate CONFIG and open every input (exists, CRS, units, overlap, nodata) without computing."""
     _check(config, debug=debug)
@@ -328,7 +331,7 @@ def _print_assumptions(notes, heading: str) -> None:
         console.line(f"  - {escape(note)}")
 
 
-@app.command()
+@app.command(short_help="District statistics and HTML/PDF briefs of a finished run.")
 def brief(
     config: Path = typer.Argument(..., help="YAML config file of a finished run."),
     scenario: Optional[List[str]] = typer.Option(
@@ -352,7 +355,7 @@ def _brief(config, scenario, overwrite):
     _print_caution()
 
 
-@app.command()
+@app.command(short_help="Leaf C3/C4 assimilation versus temperature; crossover temperatures.")
 def curves(
     co2: List[float] = typer.Option([280.0, 420.0, 700.0], "--co2", help="CO2 in ppm; repeat for several."),
     absorbed_par: float = typer.Option(1500.0, help="Absorbed PAR of the leaf [µmol m-2 s-1]."),
@@ -408,7 +411,7 @@ def _set_name(params, pathway: str) -> str:
     return name + (f" (changed: {', '.join(changed)})" if changed else "")
 
 
-@app.command()
+@app.command(short_help="List the leaf parameter sets (plant types), or show one in full.")
 def parameters(
     name: Optional[str] = typer.Argument(None, help="A parameter set to show in full; without it, list them all."),
     debug: bool = DebugOption,
@@ -447,7 +450,7 @@ def _parameters(name):
                  "`suitability curves --config CONFIG` shows their effect.")
 
 
-@app.command()
+@app.command(short_help="Write a commented starter config to edit.")
 def init(
     path: Path = typer.Argument(Path("suitability.yaml"), help="Where to write the starter config."),
     force: bool = typer.Option(False, "--force", help="Replace an existing file (a flag: give it without a value)."),
