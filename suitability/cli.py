@@ -474,7 +474,11 @@ def _init(path, force):
 
 
 def _print_caution() -> None:
-    console.print(Panel(CAUTION, title="caution", border_style="yellow"))
+    """The caution, with results: a panel on a terminal, one plain line in a pipe or log."""
+    if Console().is_terminal:
+        console.print(Panel(CAUTION, title="caution", border_style="yellow"))
+    else:
+        console.line(f"[yellow]Caution:[/] {escape(CAUTION)}")
 
 
 def _crs_text(report) -> str:
