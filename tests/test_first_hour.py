@@ -551,3 +551,134 @@ def test_brief_for_one_scenario_and_overwrite(tmp_path):
     assert again.exit_code == 4 and "--overwrite" in again.output
     replaced = runner.invoke(app, ["brief", str(path), "--scenario", "co2_only", "--overwrite"])
     assert replaced.exit_code == 0, replaced.output
+
+
+# ------------------------------------------------------------------------------------------------ 5. evaluate
+
+
+def _readme_example() -> str:
+    text = (REPO / "README.md").read_text(encoding="utf-8")
+    start = text.index("<!-- runnable example")
+    block = text[start:]
+    block = block[block.index("```python") + len("```python"): ]
+    return block[: block.index("```")]
+
+
+def test_the_readme_example_runs_and_gives_labelled_results(capsys):
+    namespace: dict = {}
+    exec(compile(_readme_example(), "README.md example", "exec"), namespace)  # noqa: S102 - our own README
+    now, future = namespace["now"], namespace["future"]
+    assert now["pathway_advantage"].dims == ("lat", "lon")
+    assert now["c4_monthly_assimilation"].dims == ("month", "lat", "lon")
+    assert now["c4_assimilation"].attrs["units"] == "g m-2"
+    printed = capsys.readouterr().out
+    assert CAUTION in printed
+    # Ehleringer, Cerling & Helliker (1997) Oecologia 112:285 and Collatz et al. (1998) Oecologia 114:441: the
+    # crossover temperature rises with CO2; it does not depend on air temperature, so the +2 °C does not matter.
+    assert float(future["crossover_temperature"].mean()) > float(now["crossover_temperature"].mean())
+
+
+def _canonical_climate():
+    """A small monthly climate in canonical units, dims (month, y, x), with a 2-D latitude."""
+    import xarray as xr
+
+    rng = np.random.default_rng(16)
+    y, x = np.array([-12.0, -18.0, -24.0]), np.array([40.0, 41.0, 42.0, 43.0])
+    shape = (12, y.size, x.size)
+    season = 4.0 * np.cos(2 * np.pi * np.arange(12) / 12)[:, None, None]
+    tmin = 14.0 + season + rng.uniform(-3, 3, shape)
+    data = xr.Dataset(
+        {
+            "tmin": (("month", "y", "x"), tmin),
+            "tmax": (("month", "y", "x"), tmin + rng.uniform(8, 14, shape)),
+            "shortwave": (("month", "y", "x"), rng.uniform(15, 25, shape)),
+            "water_availability": (("month", "y", "x"), rng.uniform(0.4, 1.0, shape)),
+            "elevation": (("y", "x"), rng.uniform(0, 1500, shape[1:])),
+        },
+        coords={"month": np.arange(1, 13), "y": y, "x": x},
+    )
+    return data.assign(latitude=(("y", "x"), np.broadcast_to(y[:, None], shape[1:]).copy()))
+
+
+def test_evaluate_takes_a_lat_lon_dataset_in_its_own_units_and_order():
+    import pandas as pd
+
+    from suitability import model
+
+    reference = model.evaluate(_canonical_climate(), {"co2_ppm": 500.0})
+    base = _canonical_climate()
+    # The same climate as a researcher might hold it: lat/lon dims, a time axis, other order, other units.
+    # Conversions: K = degC + 273.15 (SI); 1 W m-2 = 0.0864 MJ m-2 d-1 (86 400 s per day); percent = 100 x fraction.
+    theirs = base.drop_vars("latitude").rename(y="lat", x="lon", month="time")
+    theirs = theirs.assign_coords(time=pd.date_range("1991-01-01", periods=12, freq="MS"))
+    theirs["tmin"] = (theirs["tmin"] + 273.15).assign_attrs(units="K").transpose("lon", "time", "lat")
+    theirs["tmax"] = (theirs["tmax"] + 273.15).assign_attrs(units="K")
+    theirs["shortwave"] = (theirs["shortwave"] / 0.0864).assign_attrs(units="W m-2").transpose("lat", "lon", "time")
+    theirs["water_availability"] = (theirs["water_availability"] * 100.0).assign_attrs(units="percent")
+    theirs["elevation"] = theirs["elevation"].transpose("lon", "lat")
+    import suitability
+
+    result = suitability.evaluate(theirs, {"co2_ppm": 500.0})
+    assert result["pathway_advantage"].dims == ("lat", "lon")
+    np.testing.assert_allclose(result["lat"].values, base["y"].values)
+    for name in ("c3_assimilation", "c4_assimilation", "pathway_advantage", "crossover_temperature"):
+        np.testing.assert_allclose(result[name].values, reference[name].values, rtol=2e-5, atol=1e-6, err_msg=name)
+    np.testing.assert_array_equal(result["pathway_class"].values, reference["pathway_class"].values)
+    # CF attributes from the output-layer registry, and the caution and assumptions on the dataset.
+    from suitability.variables import OUTPUT_LAYERS
+
+    for name, layer in result.data_vars.items():
+        assert layer.attrs["units"] == OUTPUT_LAYERS[name].units
+        assert layer.attrs["long_name"] == OUTPUT_LAYERS[name].long_name
+    assert result.attrs["caution"] == CAUTION
+    assert "dew point is taken as Tmin" in result.attrs["assumptions"]
+    assert "sea level" not in result.attrs["assumptions"]  # it has an elevation layer
+
+
+def test_evaluate_derives_latitude_from_projected_coordinates_and_a_crs():
+    import suitability
+
+    base = _canonical_climate()
+    # Spherical Mercator (EPSG:3857): y = R ln tan(pi/4 + phi/2), R = 6378137 m (EPSG Guidance Note 7-2,
+    # "Popular Visualisation Pseudo Mercator"), so these y values lie at the latitudes of the reference.
+    radius = 6378137.0
+    phi = np.radians(base["y"].values)
+    projected = base.drop_vars("latitude").assign_coords(
+        y=radius * np.log(np.tan(np.pi / 4 + phi / 2)), x=np.radians(base["x"].values) * radius)
+    reference = suitability.evaluate(base, {"co2_ppm": 420.0})
+    derived = suitability.evaluate(projected, {"co2_ppm": 420.0}, crs="EPSG:3857")
+    np.testing.assert_allclose(derived["c4_assimilation"].values, reference["c4_assimilation"].values, rtol=1e-5)
+    with pytest.raises(InputDataError, match="cannot tell each cell's latitude"):
+        suitability.evaluate(projected, {"co2_ppm": 420.0})
+
+
+@pytest.mark.parametrize(
+    "change, words",
+    [
+        (lambda d: d.drop_vars("water_availability"), "missing water_availability"),
+        (lambda d: d.drop_vars(["shortwave", "tmax"]), "missing tmin and tmax (or tmean)"),
+        (lambda d: d.isel(month=slice(0, 6)), "months 1..12 once each"),
+        (lambda d: d.rename(y="row", x="col"), "expected y and x, lat and lon"),
+        (lambda d: d.assign(tmin=d["tmin"].expand_dims(member=2)), "expected (month (or time), y, x) in any order"),
+        (lambda d: d.assign(tmin=d["tmin"].assign_attrs(units="W m-2")), "cannot be converted to 'degC'"),
+        (lambda d: d["tmin"], "got a DataArray"),
+    ],
+)
+def test_evaluate_names_what_is_missing(change, words):
+    import suitability
+
+    with pytest.raises(InputDataError) as caught:
+        suitability.evaluate(change(_canonical_climate()), {"co2_ppm": 420.0})
+    assert words in str(caught.value)
+
+
+def test_evaluate_asks_for_a_climatology_when_given_several_years():
+    import pandas as pd
+    import xarray as xr
+
+    import suitability
+
+    base = _canonical_climate().drop_vars("latitude").rename(y="lat", x="lon", month="time")
+    years = xr.concat([base, base], dim="time").assign_coords(time=pd.date_range("1991-01-01", periods=24, freq="MS"))
+    with pytest.raises(InputDataError, match=re.escape("groupby('time.month').mean('time')")):
+        suitability.evaluate(years, {"co2_ppm": 420.0})
