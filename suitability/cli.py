@@ -377,8 +377,8 @@ def _curves(co2, absorbed_par, out, config, o2, elevation):
     from .curves import settings_from_config, write_curves
     from .errors import ConfigError
 
-    settings = {"o2_percent": 20.95, "elevation_m": 0.0}
-    source = "sea level"
+    settings = {"o2_percent": 20.95, "elevation_m": None}
+    source = "no elevation given"
     if config is not None:
         from .config import load_config
 
@@ -396,8 +396,10 @@ def _curves(co2, absorbed_par, out, config, o2, elevation):
     except ValueError as exc:
         raise ConfigError(str(exc)) from None
     sets = [_set_name(settings.get(key), pathway) for key, pathway in (("c3_params", "C3"), ("c4_params", "C4"))]
+    where = ("standard sea-level pressure 101.325 kPa" if settings["elevation_m"] is None
+             else f"elevation {settings['elevation_m']:.0f} m")
     console.line(f"C3 set {escape(sets[0])}, C4 set {escape(sets[1])}, O2 {settings['o2_percent']:g} %, "
-                 f"elevation {settings['elevation_m']:.0f} m ({escape(source)})")
+                 f"{where} ({escape(source)})")
     for path in paths.values():
         console.line(f"Wrote {escape(str(path))}")
     _print_caution()

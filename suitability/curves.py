@@ -22,7 +22,7 @@ LEAF_TEMPERATURES_C = np.arange(0.0, 50.5, 0.5)
 
 def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_kpa: float = 1.0,
                 c3_params=None, c4_params=None, o2_percent: float = 20.95,
-                elevation_m: float = 0.0) -> tuple[pd.DataFrame, pd.DataFrame]:
+                elevation_m: float | None = None) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Net leaf assimilation of both pathways over 0-50 °C at each CO2, and the crossover temperatures.
 
     co2_ppm: ambient CO2 mole fractions [µmol mol-1]. absorbed_par: [µmol m-2 s-1]. vpd_kpa: [kPa].
@@ -30,15 +30,17 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
     [µmol m-2 s-1]; crossovers has co2_ppm and crossover_temperature_c [°C].
     c3_params, c4_params: anything ``resolve_params`` accepts (None = the default set); they are used for
     the curves and for the crossover temperatures alike. o2_percent: ambient O2 [%]. elevation_m: elevation
-    [m] that sets the air pressure (FAO-56 eq. 7; 0 = sea level).
+    [m] that sets the air pressure (FAO-56 eq. 7); None = the physiology's standard pressure (101.325 kPa).
     """
-    pressure = float(air_pressure_from_elevation(float(elevation_m)))
-    if not np.isfinite(pressure):
-        raise ValueError(f"elevation {elevation_m} m is outside the range of the air-pressure equation")
+    pressure = {}
+    if elevation_m is not None:
+        pressure = {"pressure_kpa": float(air_pressure_from_elevation(float(elevation_m)))}
+        if not np.isfinite(pressure["pressure_kpa"]):
+            raise ValueError(f"elevation {elevation_m} m is outside the range of the air-pressure equation")
     crossover_params = {"C3": c3_params, "C4": c4_params}
     rows, crossings = [], []
     for co2 in co2_ppm:
-        common = dict(vpd_kpa=vpd_kpa, o2_percent=o2_percent, pressure_kpa=pressure)
+        common = dict(vpd_kpa=vpd_kpa, o2_percent=o2_percent, **pressure)
         c3 = leaf_assimilation("C3", LEAF_TEMPERATURES_C, absorbed_par, co2, params=c3_params, **common)
         c4 = leaf_assimilation("C4", LEAF_TEMPERATURES_C, absorbed_par, co2, params=c4_params, **common)
         rows.append(pd.DataFrame({
@@ -46,12 +48,12 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
             "c3_net": np.asarray(c3.net), "c4_net": np.asarray(c4.net),
         }))
         crossings.append({"co2_ppm": co2, "crossover_temperature_c": float(crossover_temperature(
-            co2, o2_percent=o2_percent, pressure_kpa=pressure, params=crossover_params))})
+            co2, o2_percent=o2_percent, params=crossover_params, **pressure))})
     return pd.concat(rows, ignore_index=True), pd.DataFrame(crossings)
 
 
 def write_curves(co2_ppm: Iterable[float], folder: Path, *, absorbed_par: float = 1500.0, c3_params=None,
-                 c4_params=None, o2_percent: float = 20.95, elevation_m: float = 0.0) -> dict[str, Path]:
+                 c4_params=None, o2_percent: float = 20.95, elevation_m: float | None = None) -> dict[str, Path]:
     """Write ``leaf_curves.csv``, ``crossover.csv`` and ``leaf_curves.png`` into ``folder``.
 
     c3_params, c4_params, o2_percent, elevation_m: as in :func:`leaf_curves` (None = the default sets).
@@ -76,7 +78,7 @@ def write_curves(co2_ppm: Iterable[float], folder: Path, *, absorbed_par: float 
     axis.set_xlabel("leaf temperature (°C)")
     axis.set_ylabel("net assimilation (µmol m⁻² s⁻¹)")
     axis.set_title(f"Leaf net assimilation at absorbed PAR {absorbed_par:g} µmol m⁻² s⁻¹, "
-                   f"O₂ {o2_percent:g} %, {elevation_m:.0f} m")
+                   f"O₂ {o2_percent:g} %, " + ("standard pressure" if elevation_m is None else f"{elevation_m:.0f} m"))
     axis.grid(alpha=0.3)
     axis.legend(fontsize=7, ncol=2)
     figure.tight_layout()
@@ -100,8 +102,8 @@ def settings_from_config(cfg) -> dict:
         "c3_params": cfg.physiology.c3.as_params() or None,
         "c4_params": cfg.physiology.c4.as_params() or None,
         "o2_percent": cfg.baseline_scenario.o2_percent,
-        "elevation_m": 0.0,
-        "elevation_source": "sea level (the config has no elevation layer)",
+        "elevation_m": None,
+        "elevation_source": "the config has no elevation layer",
     }
     spec = cfg.climate.get("elevation")
     if spec is not None:
