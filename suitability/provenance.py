@@ -33,14 +33,16 @@ PACKAGES = ("numpy", "xarray", "dask", "distributed", "rasterio", "rioxarray", "
 
 
 def input_files(cfg: RunConfig, only=None) -> set[Path]:
-    """Every file the run reads: baseline climate, region mask and 'like' raster, scenarios' own layers.
+    """Every file the run reads: baseline climate, region mask, 'like' raster and extent-giving zones file,
+    scenarios' own layers.
 
     only: the scenarios whose own layers count (all if None).
     """
     files: set[Path] = set()
     for spec in cfg.climate.values():
         files.update(layer_files(spec, cfg.config_dir))
-    for extra in (cfg.region.mask, cfg.region.like):
+    zones = getattr(cfg.region.grid, "zones", None) if cfg.region.grid is not None else None
+    for extra in (cfg.region.mask, cfg.region.like, zones):
         if extra is not None:
             files.add(Path(extra))
     for scenario in cfg.scenarios if only is None else only:

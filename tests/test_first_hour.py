@@ -219,7 +219,11 @@ def test_the_extent_of_a_district_file_with_a_margin(tmp_path):
 
     zones = DEMO_DATA / "districts.gpkg"
     path = _region(tmp_path, {"crs": "EPSG:32740", "resolution": 1000, "zones": str(zones), "margin": 5000})
-    grid = TargetGrid.from_region(load_config(path).region)
+    cfg = load_config(path)
+    grid = TargetGrid.from_region(cfg.region)
+    from suitability.provenance import input_files
+
+    assert zones in input_files(cfg)  # the file that sets the grid is checksummed for the manifest and resume
     # Independent: geopandas' own total bounds of the districts in the grid's CRS, widened by the margin.
     xmin, ymin, xmax, ymax = gpd.read_file(zones).to_crs("EPSG:32740").total_bounds
     gxmin, gymin, gxmax, gymax = grid.bounds
