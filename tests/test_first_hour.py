@@ -686,3 +686,17 @@ def test_evaluate_asks_for_a_climatology_when_given_several_years():
     years = xr.concat([base, base], dim="time").assign_coords(time=pd.date_range("1991-01-01", periods=24, freq="MS"))
     with pytest.raises(InputDataError, match=re.escape("groupby('time.month').mean('time')")):
         suitability.evaluate(years, {"co2_ppm": 420.0})
+
+
+def test_evaluate_keeps_dask_input_lazy():
+    import dask.array
+
+    import suitability
+
+    base = _canonical_climate()
+    chunked = base.drop_vars("latitude").rename(y="lat", x="lon").chunk({"lat": 2, "lon": 2})
+    lazy = suitability.evaluate(chunked, {"co2_ppm": 500.0})
+    assert isinstance(lazy["c4_assimilation"].data, dask.array.Array)
+    # Derived here: the same climate in memory gives the same values.
+    eager = suitability.evaluate(base, {"co2_ppm": 500.0})
+    np.testing.assert_allclose(lazy["c4_assimilation"].values, eager["c4_assimilation"].values, rtol=1e-5)
