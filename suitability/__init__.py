@@ -19,7 +19,7 @@ def __getattr__(name: str):
 
         return getattr(pipeline, name)
     if name == "evaluate":
-        from .model import evaluate
+        from .evaluation import evaluate
 
         return evaluate
     if name == "load_config":

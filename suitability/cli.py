@@ -4,6 +4,11 @@ Exit codes: 0 success, 1 unexpected internal error, 2 config error, 3 input-data
 130 interrupted (Ctrl-C, SIGINT), 143 terminated (SIGTERM). SIGTERM is handled like Ctrl-C: the run
 stops, removes its temporary files and releases the output folder; finished scenarios stay (and can be
 kept with ``run --resume``). Warnings of the tool are shown as one line each, "warning: ...".
+
+Help is plain text (click's layout), so flags show as flags (``--force``) and help reads the same in a
+terminal, a pipe or a log. Tables are drawn only on a terminal wide enough for them; otherwise the same
+facts are printed as lines that are never wrapped word by word. The caution is printed with results
+(maps, briefs, curves, a usable check), never before a refusal.
 """
 
 from __future__ import annotations
@@ -29,8 +34,12 @@ from .errors import SuitabilityError
 app = typer.Typer(
     add_completion=False,
     no_args_is_help=True,
+    rich_markup_mode=None,
     help="Map where C4 plants out-assimilate C3 plants, today and under climate scenarios.",
 )
+
+#: Below this many columns (or off a terminal) tables are printed as plain lines.
+TABLE_MIN_WIDTH = 120
 
 
 class _LazyConsole:
@@ -41,6 +50,15 @@ class _LazyConsole:
 
     def print(self, *args, **kwargs):
         Console(stderr=self._stderr).print(*args, **kwargs)
+
+    def wide_terminal(self) -> bool:
+        """True on a terminal at least :data:`TABLE_MIN_WIDTH` columns wide (tables fit there)."""
+        probe = Console(stderr=self._stderr)
+        return probe.is_terminal and probe.width >= TABLE_MIN_WIDTH
+
+    def line(self, text: str, **kwargs) -> None:
+        """One line of rich markup that is never wrapped (a pipe or log gets it whole)."""
+        Console(stderr=self._stderr).print(text, soft_wrap=True, highlight=False, **kwargs)
 
 
 console = _LazyConsole(stderr=False)
@@ -115,20 +133,50 @@ def _handle_errors(command):
     return wrapper
 
 
+#: Help of the options that the config also has; the starter template and the README say the same
+#: (tests/test_first_hour.py compares them).
+CONFIG_OPTIONS = {
+    "scheduler": ("compute.scheduler", "threads | processes | local-cluster | tcp://host:port | tls://host:port"),
+    "workers": ("compute.workers", "number of threads (threads) or worker processes (processes, local-cluster)"),
+    "memory_limit": ("compute.memory_limit", "memory limit per worker process, e.g. 2GiB, 500MB or auto"),
+    "overwrite": ("output.overwrite", "replace existing outputs"),
+}
+OPTION_HELP = {name: f"{text if name == 'scheduler' else text[0].upper() + text[1:]}; overrides the config's {key}."
+               for name, (key, text) in CONFIG_OPTIONS.items()}
+
 DebugOption = typer.Option(False, "--debug", help="Show the full traceback on errors.")
 
 
-@app.command()
+def _show_version(value: bool) -> None:
+    if value:
+        from ._version import __version__
+
+        console.line(f"suitability {__version__}")
+        raise typer.Exit(0)
+
+
+@app.callback()
+def _main(
+    version: bool = typer.Option(False, "--version", is_eager=True, callback=_show_version,
+                                 help="Show the version and exit."),
+):
+    """Map where C4 plants out-assimilate C3 plants, today and under climate scenarios.
+
+    Start with `suitability init`, edit the file it writes, then `suitability check` and `suitability run`.
+    """
+
+
+@app.command(short_help="Compute every scenario of a config: maps, tables, manifest, briefs.")
 def run(
     config: Path = typer.Argument(..., help="YAML config file."),
-    overwrite: Optional[bool] = typer.Option(None, "--overwrite/--no-overwrite", help="Replace existing outputs."),
+    overwrite: Optional[bool] = typer.Option(None, "--overwrite/--no-overwrite", help=OPTION_HELP["overwrite"]),
     resume: bool = typer.Option(
         False, "--resume",
         help="Keep scenarios whose outputs match the manifest (same config and input files); recompute the rest.",
     ),
-    scheduler: Optional[str] = typer.Option(None, help="threads | processes | local-cluster | tcp://host:port"),
-    workers: Optional[int] = typer.Option(None, help="Threads or worker processes."),
-    memory_limit: Optional[str] = typer.Option(None, help="Memory limit per worker, e.g. 2GiB."),
+    scheduler: Optional[str] = typer.Option(None, help=OPTION_HELP["scheduler"]),
+    workers: Optional[int] = typer.Option(None, help=OPTION_HELP["workers"]),
+    memory_limit: Optional[str] = typer.Option(None, help=OPTION_HELP["memory_limit"]),
     progress: bool = typer.Option(True, "--progress/--no-progress", help="Show progress bars."),
     debug: bool = DebugOption,
 ):
@@ -140,33 +188,34 @@ def run(
 def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
     from . import pipeline
 
-    _print_caution()
     result = pipeline.run(
         config, overwrite=overwrite, resume=resume, scheduler=scheduler, workers=workers, memory_limit=memory_limit,
         progress=progress,
     )
     if result.resumed:
-        console.print(f"Kept from the earlier run (outputs up to date): {', '.join(result.resumed)}")
+        console.line(f"Kept from the earlier run (outputs up to date): {', '.join(result.resumed)}")
     table = Table(title="Share of mapped cells by favoured pathway (%)")
     table.add_column("scenario", no_wrap=True)
     for heading in ("C3 favoured", "contested", "C4 favoured", "mapped cells"):
         table.add_column(heading, justify="right")
     for row in result.summary.to_dict(orient="records"):
         table.add_row(
-            row["scenario"], f"{row['C3 favoured %']:.1f}", f"{row['contested %']:.1f}",
+            escape(row["scenario"]), f"{row['C3 favoured %']:.1f}", f"{row['contested %']:.1f}",
             f"{row['C4 favoured %']:.1f}", str(row["valid_cells"]),
         )
     console.print(table)
-    console.print(f"Outputs: {result.output_folder}")
-    console.print(f"Manifest: {result.manifest_path}")
+    _print_assumptions(result.assumptions, "This run assumed (also in the manifest):")
+    console.line(f"Outputs: {escape(str(result.output_folder))}")
+    console.line(f"Manifest: {escape(str(result.manifest_path))}")
     if result.briefs:
-        console.print("Briefs and district tables:")
+        console.line("Briefs and district tables:")
         for path in result.briefs.values():
-            console.print(f"  {path}", soft_wrap=True)
-    console.print(f"Run time: {result.manifest['timings']['total_s']:.1f} s")
+            console.line(f"  {escape(str(path))}")
+    console.line(f"Run time: {result.manifest['timings']['total_s']:.1f} s")
+    _print_caution()
 
 
-@app.command()
+@app.command(short_help="Validate a config and open every input, without computing.")
 def check(config: Path = typer.Argument(..., help="YAML config file."), debug: bool = DebugOption):
     """Validate CONFIG and open every input (exists, CRS, units, overlap, nodata) without computing."""
     _check(config, debug=debug)
@@ -174,77 +223,239 @@ def check(config: Path = typer.Argument(..., help="YAML config file."), debug: b
 
 @_handle_errors
 def _check(config):
+    from .assumptions import run_assumptions
     from .config import load_config
     from .errors import InputDataError
     from .inputs import inspect_inputs
 
     cfg = load_config(config)
+    _print_grid(cfg)
     reports = inspect_inputs(cfg)
-    table = Table(title=f"Inputs of {config}")
     with_scenarios = any(report.scenario for report in reports)
-    columns = ["layer"] + (["scenario"] if with_scenarios else []) + ["file", "CRS", "units", "overlap %", "nodata %", "notes"]
-    for column in columns:
-        table.add_column(column, overflow="fold")
-    problems = 0
-    for report in reports:
-        issues = list(report.problems)
-        problems += len(issues)
-        notes = [f"[red]{escape(p)}[/]" for p in issues] + [f"[yellow]{escape(w)}[/]" for w in report.warnings]
-        cells = [str(report.layer)] + ([report.scenario or "-"] if with_scenarios else [])
-        cells += [escape(Path(str(report.path)).name), str(report.crs), escape(_units_text(report)),
-                  _percent(report.overlap_share), _percent(report.nodata_share), "; ".join(notes) or "[green]ok[/]"]
-        table.add_row(*cells)
-    console.print(table)
-    console.print(f"{len(cfg.scenarios)} scenarios: {', '.join(s.name for s in cfg.scenarios)}")
+    problems = sum(len(report.problems) for report in reports)
+    if console.wide_terminal():
+        _check_table(config, reports, with_scenarios)
+    else:
+        _check_lines(config, reports)
+    console.line(f"{len(cfg.scenarios)} scenarios: {escape(', '.join(s.name for s in cfg.scenarios))}")
+    _print_assumptions(run_assumptions(cfg), "The run will assume:")
     if problems:
-        raise InputDataError(f"{problems} problem(s) found in the inputs of {config}; see the table above")
-    console.print("[green]Config and inputs look usable.[/]")
+        raise InputDataError(f"{problems} problem(s) found in the inputs of {config}; see the notes above")
+    console.line("[green]Config and inputs look usable.[/]")
     _print_caution()
 
 
-@app.command()
-def brief(config: Path = typer.Argument(..., help="YAML config file of a finished run."), debug: bool = DebugOption):
+def _check_table(config, reports, with_scenarios: bool) -> None:
+    table = Table(title=f"Inputs of {escape(str(config))}")
+    columns = ["layer"] + (["scenario"] if with_scenarios else []) + ["file", "CRS", "units", "overlap %", "nodata %", "notes"]
+    for column in columns:
+        table.add_column(column, overflow="fold", ratio=4 if column == "notes" else None,
+                         no_wrap=column in ("overlap %", "nodata %"))
+    for report in reports:
+        notes = [f"[red]{escape(p)}[/]" for p in report.problems] + [f"[yellow]{escape(w)}[/]" for w in report.warnings]
+        cells = [escape(str(report.layer))] + ([escape(report.scenario or "-")] if with_scenarios else [])
+        cells += [escape(Path(str(report.path)).name), escape(_crs_text(report)), escape(_units_text(report)),
+                  _percent(report.overlap_share), _percent(report.nodata_share), "; ".join(notes) or "[green]ok[/]"]
+        table.add_row(*cells)
+    console.print(table)
+
+
+def _check_lines(config, reports) -> None:
+    """The check report as lines: one heading line per layer, then its facts and each note on a line."""
+    console.line(f"Inputs of {escape(str(config))}:")
+    for report in reports:
+        where = f" (scenario {escape(report.scenario)})" if report.scenario else ""
+        console.line(f"- {escape(str(report.layer))}{where}: {escape(Path(str(report.path)).name)}")
+        console.line(f"    CRS {escape(_crs_text(report))}; units {escape(_units_text(report))}; "
+                     f"overlap {_percent(report.overlap_share)} %; nodata {_percent(report.nodata_share)} %")
+        for problem in report.problems:
+            console.line(f"    [red]problem:[/] {escape(problem)}")
+        for warning in report.warnings:
+            console.line(f"    [yellow]note:[/] {escape(warning)}")
+        if not report.problems and not report.warnings:
+            console.line("    [green]ok[/]")
+
+
+def _print_grid(cfg) -> None:
+    """The region's grid: CRS, cell size, shape, and bounds in its CRS and in the CRS the extent was given
+    in (or lon/lat). A grid that cannot be built is reported by the input check, not here."""
+    from pyproj import CRS, Transformer
+
+    from .errors import SuitabilityError
+    from .grid import TargetGrid
+
+    try:
+        grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
+    except (SuitabilityError, ValueError):
+        return
+    crs = grid.crs
+    units = "degrees" if crs.is_geographic else (crs.axis_info[0].unit_name if crs.axis_info else "CRS units")
+    res_x, res_y = grid.resolution
+    console.line(f"Grid of {escape(cfg.region.name)}: {escape(_crs_name(crs))}, cells {res_x:g} x {res_y:g} {escape(units)}, "
+                 f"{grid.height} rows x {grid.width} columns ({grid.height * grid.width:,} cells)")
+    console.line(f"  bounds in {escape(_crs_short(crs))}: {_bounds_text(grid.bounds, geographic=crs.is_geographic)}")
+    others = []
+    given_in = getattr(getattr(cfg.region, "grid", None), "bounds_crs", None)
+    if given_in:
+        others.append(CRS.from_user_input(given_in))
+    lonlat = CRS.from_epsg(4326)
+    if not any(o == lonlat for o in others):
+        others.append(lonlat)
+    for other in others:
+        if other == crs:
+            continue
+        bounds = Transformer.from_crs(crs, other, always_xy=True).transform_bounds(*grid.bounds, densify_pts=21)
+        console.line(f"  bounds in {escape(_crs_short(other))}: {_bounds_text(bounds, geographic=other.is_geographic)}")
+
+
+def _bounds_text(bounds, geographic: bool = False) -> str:
+    fmt = "{:.4f}" if geographic else "{:.10g}"
+    return "[" + ", ".join(fmt.format(b) for b in bounds) + "] (xmin, ymin, xmax, ymax)"
+
+
+def _crs_short(crs) -> str:
+    epsg = crs.to_epsg()
+    return f"EPSG:{epsg}" if epsg else crs.name
+
+
+def _crs_name(crs) -> str:
+    epsg = crs.to_epsg()
+    return f"EPSG:{epsg} ({crs.name})" if epsg else crs.name
+
+
+def _print_assumptions(notes, heading: str) -> None:
+    if not notes:
+        return
+    console.line(heading)
+    for note in notes:
+        console.line(f"  - {escape(note)}")
+
+
+@app.command(short_help="District statistics and HTML/PDF briefs of a finished run.")
+def brief(
+    config: Path = typer.Argument(..., help="YAML config file of a finished run."),
+    scenario: Optional[List[str]] = typer.Option(
+        None, "--scenario", help="Brief only this scenario (compared with the baseline); repeat for several. Default: all."),
+    overwrite: bool = typer.Option(False, "--overwrite", help="Replace briefs and district tables that exist."),
+    debug: bool = DebugOption,
+):
     """Write the district statistics and HTML/PDF briefs from the outputs of a finished run."""
-    _brief(config, debug=debug)
+    _brief(config, scenario, overwrite, debug=debug)
 
 
 @_handle_errors
-def _brief(config):
+def _brief(config, scenario, overwrite):
     from . import pipeline
     from .config import load_config
 
     cfg = load_config(config)
-    paths = pipeline.briefs_of_finished_run(cfg)
-    _print_caution()
+    paths = pipeline.briefs_of_finished_run(cfg, scenarios=scenario or None, overwrite=overwrite)
     for name, path in paths.items():
-        console.print(f"{name}: {path}")
+        console.line(f"{escape(name)}: {escape(str(path))}")
+    _print_caution()
 
 
-@app.command()
+@app.command(short_help="Leaf C3/C4 assimilation versus temperature; crossover temperatures.")
 def curves(
     co2: List[float] = typer.Option([280.0, 420.0, 700.0], "--co2", help="CO2 in ppm; repeat for several."),
     absorbed_par: float = typer.Option(1500.0, help="Absorbed PAR of the leaf [µmol m-2 s-1]."),
     out: Path = typer.Option(Path("curves"), help="Output folder for the CSV and PNG."),
+    config: Optional[Path] = typer.Option(
+        None, "--config", help="Take both parameter sets (with overrides), the baseline's O2 and the region's "
+        "median elevation from this run config."),
+    o2: Optional[float] = typer.Option(None, "--o2", help="O2 in percent (default 20.95, or the config's)."),
+    elevation: Optional[float] = typer.Option(
+        None, "--elevation", help="Elevation in m for the air pressure (default sea level, or the config's)."),
     debug: bool = DebugOption,
 ):
     """Leaf net assimilation of C3 and C4 versus leaf temperature, and the crossover temperature."""
-    _curves(co2, absorbed_par, out, debug=debug)
+    _curves(co2, absorbed_par, out, config, o2, elevation, debug=debug)
 
 
 @_handle_errors
-def _curves(co2, absorbed_par, out):
-    from .curves import write_curves
+def _curves(co2, absorbed_par, out, config, o2, elevation):
+    from .curves import settings_from_config, write_curves
+    from .errors import ConfigError
 
-    _print_caution()
-    paths = write_curves(co2, out, absorbed_par=absorbed_par)
+    settings = {"o2_percent": 20.95, "elevation_m": None}
+    source = "no elevation given"
+    if config is not None:
+        from .config import load_config
+
+        settings = settings_from_config(load_config(config))
+        source = settings.pop("elevation_source")
+    if o2 is not None:
+        if not 0 < o2 <= 100:
+            raise ConfigError(f"--o2 {o2:g}: expected a percentage above 0 and at most 100")
+        settings["o2_percent"] = o2
+    if elevation is not None:
+        settings["elevation_m"] = elevation
+        source = "--elevation"
+    try:
+        paths = write_curves(co2, out, absorbed_par=absorbed_par, **settings)
+    except ValueError as exc:
+        raise ConfigError(str(exc)) from None
+    sets = [_set_name(settings.get(key), pathway) for key, pathway in (("c3_params", "C3"), ("c4_params", "C4"))]
+    where = ("standard sea-level pressure 101.325 kPa" if settings["elevation_m"] is None
+             else f"elevation {settings['elevation_m']:.0f} m")
+    console.line(f"C3 set {escape(sets[0])}, C4 set {escape(sets[1])}, O2 {settings['o2_percent']:g} %, "
+                 f"{where} ({escape(source)})")
     for path in paths.values():
-        console.print(f"Wrote {path}")
+        console.line(f"Wrote {escape(str(path))}")
+    _print_caution()
 
 
-@app.command()
+def _set_name(params, pathway: str) -> str:
+    from .physiology.params import DEFAULT_SETS
+
+    name = (params or {}).get("parameter_set") or DEFAULT_SETS[pathway]
+    changed = sorted(k for k in (params or {}) if k != "parameter_set")
+    return name + (f" (changed: {', '.join(changed)})" if changed else "")
+
+
+@app.command(short_help="List the leaf parameter sets (plant types), or show one in full.")
+def parameters(
+    name: Optional[str] = typer.Argument(None, help="A parameter set to show in full; without it, list them all."),
+    debug: bool = DebugOption,
+):
+    """List the leaf parameter sets (plant types), or show one with every value, unit and source."""
+    _parameters(name, debug=debug)
+
+
+@_handle_errors
+def _parameters(name):
+    from .errors import ConfigError
+    from .parameter_info import describe_set, format_value, parameter_sets
+
+    if name is None:
+        console.line("Parameter sets (physiology.c3.parameter_set / physiology.c4.parameter_set):")
+        for row in parameter_sets():
+            default = ", the default" if row["default"] else ""
+            console.line(f"- {row['pathway']} {escape(row['name'])} (model {escape(row['model'])}{default})")
+            console.line(f"    source: {escape(row['source'])}")
+        console.line("Show one in full: suitability parameters NAME")
+        return
+    try:
+        pathway, rows = describe_set(name)
+    except ValueError as exc:
+        raise ConfigError(str(exc)) from None
+    source = next(r.value for r in rows if r.key == "source")
+    console.line(f"{pathway} parameter set {escape(name)}")
+    console.line(f"source: {escape(source)}")
+    for row in rows:
+        if row.key == "source":
+            continue
+        unit = f" {row.unit}" if row.unit and row.unit != "-" else ""
+        note = f"  ({escape(row.note)})" if row.note else ""
+        console.line(f"  {row.key} = {escape(format_value(row.value))}{escape(unit)}: {escape(row.meaning)}{note}")
+    console.line("Change single values under physiology.c3.overrides or physiology.c4.overrides in the config; "
+                 "`suitability curves --config CONFIG` shows their effect.")
+
+
+@app.command(short_help="Write a commented starter config to edit.")
 def init(
     path: Path = typer.Argument(Path("suitability.yaml"), help="Where to write the starter config."),
-    force: bool = typer.Option(False, "--force", help="Replace an existing file."),
+    force: bool = typer.Option(False, "--force", help="Replace an existing file (a flag: give it without a value)."),
     debug: bool = DebugOption,
 ):
     """Write a commented starter config to edit."""
@@ -261,11 +472,19 @@ def _init(path, force):
         raise OutputError(f"{path} exists; use --force to replace it")
     text = resources.files("suitability").joinpath("templates/starter.yaml").read_text(encoding="utf-8")
     path.write_text(text, encoding="utf-8")
-    console.print(f"Wrote {path}. Edit the paths and units, then run: suitability check {path}")
+    console.line(f"Wrote {escape(str(path))}. Replace every EDIT-ME value, then run: suitability check {escape(str(path))}")
 
 
 def _print_caution() -> None:
-    console.print(Panel(CAUTION, title="caution", border_style="yellow"))
+    """The caution, with results: a panel on a terminal, one plain line in a pipe or log."""
+    if Console().is_terminal:
+        console.print(Panel(CAUTION, title="caution", border_style="yellow"))
+    else:
+        console.line(f"[yellow]Caution:[/] {escape(CAUTION)}")
+
+
+def _crs_text(report) -> str:
+    return str(report.crs) if report.crs else "none found"
 
 
 def _percent(share) -> str:

@@ -32,6 +32,29 @@ from .errors import InputDataError
 _SNAP_TOLERANCE = 1e-6
 
 
+def zones_extent(path: str | Path, crs: Any, margin: float = 0.0) -> tuple[float, float, float, float]:
+    """(xmin, ymin, xmax, ymax) in ``crs`` of the polygons in ``path`` (GeoPackage, GeoJSON, Shapefile),
+    widened by ``margin`` [units of ``crs``] on every side. The file must carry a CRS."""
+    import geopandas as gpd
+
+    path = Path(path)
+    if not path.exists():
+        raise InputDataError(f"{path}: the zones file that gives the region's extent does not exist")
+    try:
+        zones = gpd.read_file(path)
+    except Exception as exc:  # noqa: BLE001 - pyogrio/fiona raise several types for unreadable files
+        raise InputDataError(f"{path}: cannot read the zones file that gives the region's extent ({exc})") from None
+    if zones.crs is None:
+        raise InputDataError(f"{path}: the zones file has no CRS; expected polygons with a CRS (e.g. a GeoPackage)")
+    zones = zones[zones.geometry.notna() & ~zones.geometry.is_empty]
+    if zones.empty:
+        raise InputDataError(f"{path}: the zones file holds no geometry; expected district polygons")
+    xmin, ymin, xmax, ymax = (float(v) for v in zones.to_crs(CRS.from_user_input(crs)).total_bounds)
+    if not all(math.isfinite(v) for v in (xmin, ymin, xmax, ymax)):
+        raise InputDataError(f"{path}: the zones cannot be transformed to {crs}")
+    return (xmin - margin, ymin - margin, xmax + margin, ymax + margin)
+
+
 @dataclass(frozen=True)
 class TargetGrid:
     """A north-up grid. crs: pyproj CRS; transform: affine of the upper-left cell corner; width, height: cells."""
@@ -52,7 +75,11 @@ class TargetGrid:
         """The grid of a config ``region`` section: its explicit ``grid`` or the grid of its ``like`` raster."""
         grid = getattr(region_config, "grid", None)
         if grid is not None:
-            return cls.from_bounds(grid.crs, grid.resolution, grid.bounds)
+            if getattr(grid, "zones", None) is not None:
+                bounds = zones_extent(grid.zones, grid.crs, getattr(grid, "margin", 0.0))
+            else:
+                bounds = grid.target_bounds() if hasattr(grid, "target_bounds") else grid.bounds
+            return cls.from_bounds(grid.crs, grid.resolution, bounds)
         like = Path(region_config.like)
         if not like.is_absolute() and config_dir is not None:
             like = Path(config_dir) / like

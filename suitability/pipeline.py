@@ -47,6 +47,8 @@ class RunResult:
     manifest_path / manifest: the run manifest (config, inputs with checksums, versions, timings, outputs).
     briefs: brief file paths (empty without a ``brief`` section). caution: the text every output carries.
     resumed: names of the scenarios not recomputed because ``resume`` found their outputs up to date.
+    assumptions: the defaults the run relied on, in words (:func:`suitability.assumptions.run_assumptions`),
+    also in ``manifest["assumptions"]``.
     """
 
     output_folder: Path
@@ -58,6 +60,7 @@ class RunResult:
     briefs: dict[str, Path] = field(default_factory=dict)
     caution: str = CAUTION
     resumed: list[str] = field(default_factory=list)
+    assumptions: list[str] = field(default_factory=list)
 
 
 def run(
@@ -144,6 +147,7 @@ def run(
         manifest=manifest,
         briefs=briefs,
         resumed=resumed,
+        assumptions=list(manifest.get("assumptions", [])),
     )
 
 
@@ -175,18 +179,47 @@ def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dat
     return build_brief(context, Path(cfg.output.folder))
 
 
-def briefs_of_finished_run(cfg: RunConfig) -> dict[str, Path]:
-    """:func:`make_briefs` for the outputs of an earlier run, holding the output folder's lock meanwhile."""
+def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = False) -> dict[str, Path]:
+    """:func:`make_briefs` for the outputs of an earlier run, holding the output folder's lock meanwhile.
+
+    scenarios: names of the scenarios to brief (None: all); the baseline is always included, as every
+        brief compares with it. overwrite: replace briefs and district tables that exist already (without
+        it, existing ones are an :class:`~suitability.errors.OutputError` listing them, and nothing is written).
+    """
+    from .errors import OutputError
+    from .reports.brief import slug
+
     if cfg.brief is None:
         raise ConfigError(f"{cfg.source_path or '<config>'}: the config has no 'brief' section (zones, name_field)")
-    _check_brief_inputs(cfg)
+    names = [s.name for s in cfg.scenarios]
+    wanted = list(dict.fromkeys(scenarios or names))
+    unknown = [n for n in wanted if n not in names]
+    if unknown:
+        raise ConfigError(f"{cfg.source_path or '<config>'}: no scenario {', '.join(map(repr, unknown))}; "
+                          f"scenarios: {', '.join(names)}")
+    chosen = [s for s in cfg.scenarios if s.name in wanted or s.name == cfg.baseline]
+    zones = _check_brief_inputs(cfg)
     folder = Path(cfg.output.folder)
     if not folder.is_dir():
         raise InputDataError(f"output folder {folder} does not exist; expected the folder of a finished run")
+    missing = [s.name for s in chosen if not (folder / s.name / "pathway_class.tif").exists()]
+    if missing:
+        raise InputDataError(f"{folder}: no finished outputs for scenario(s) {', '.join(missing)} "
+                             "(expected <scenario>/pathway_class.tif); run them first")
+    region = slug(cfg.region.name)
+    compared = [s.name for s in chosen if s.name != cfg.baseline] or [cfg.baseline]
+    stems = [f"{region}_{slug(n)}" for n in compared]
+    stems += [f"{region}_{slug(str(d))}" for d in zones["district"]] if cfg.brief.per_district else []
+    expected = [f"{region}_districts.csv", f"{region}_districts.gpkg"]
+    expected += [f"{stem}{ext}" for stem in stems for ext in (".html", ".pdf")]
+    existing = [name for name in expected if (folder / "brief" / name).exists()]
+    if existing and not overwrite:
+        raise OutputError(f"{folder / 'brief'}: {len(existing)} brief file(s) exist ({', '.join(existing)}); "
+                          "use --overwrite to replace them")
     grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
     with RunLock(folder):
         today = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
-        return make_briefs(cfg, {s.name: folder / s.name for s in cfg.scenarios}, today)
+        return make_briefs(cfg.model_copy(update={"scenarios": chosen}), {s.name: folder / s.name for s in chosen}, today)
 
 
 # --- the steps -----------------------------------------------------------------------------------------------
@@ -198,13 +231,13 @@ def _model_inputs(cfg: RunConfig, grid: TargetGrid, today: xr.Dataset) -> xr.Dat
     return climate.assign(latitude=grid.latitude(cfg.compute.chunk_size))
 
 
-def _check_brief_inputs(cfg: RunConfig) -> None:
-    """Refuse unusable district polygons before computing (the briefs are made last)."""
+def _check_brief_inputs(cfg: RunConfig):
+    """Refuse unusable district polygons before computing (the briefs are made last); returns them."""
     if cfg.brief is None:
-        return
+        return None
     from .reports.zones import read_zones
 
-    read_zones(cfg.brief.zones, cfg.brief.name_field)
+    return read_zones(cfg.brief.zones, cfg.brief.name_field)
 
 
 def _clear_after_takeover(lock: RunLock, folder: Path) -> None:

@@ -19,6 +19,7 @@ import numpy as np
 import pandas as pd
 
 from ._version import __version__
+from .assumptions import run_assumptions
 from .caution import CAUTION
 from .config import RunConfig
 from .inputs import layer_files
@@ -32,14 +33,16 @@ PACKAGES = ("numpy", "xarray", "dask", "distributed", "rasterio", "rioxarray", "
 
 
 def input_files(cfg: RunConfig, only=None) -> set[Path]:
-    """Every file the run reads: baseline climate, region mask and 'like' raster, scenarios' own layers.
+    """Every file the run reads: baseline climate, region mask, 'like' raster and extent-giving zones file,
+    scenarios' own layers.
 
     only: the scenarios whose own layers count (all if None).
     """
     files: set[Path] = set()
     for spec in cfg.climate.values():
         files.update(layer_files(spec, cfg.config_dir))
-    for extra in (cfg.region.mask, cfg.region.like):
+    zones = getattr(cfg.region.grid, "zones", None) if cfg.region.grid is not None else None
+    for extra in (cfg.region.mask, cfg.region.like, zones):
         if extra is not None:
             files.add(Path(extra))
     for scenario in cfg.scenarios if only is None else only:
@@ -118,6 +121,7 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
         "resumed_scenarios": list(resumed),
         "briefs": {k: str(v) for k, v in briefs.items()},
         "summary": summary.to_dict(orient="records"),
+        "assumptions": run_assumptions(cfg),
         "timings": {k: round(v, 3) for k, v in timings.items()},
         "python": platform.python_version(),
         "platform": platform.platform(),

@@ -54,6 +54,7 @@ def load_config(path: str | Path) -> RunConfig:
         raise ConfigError(f"{path}: the config file is empty; expected the sections region, climate, scenarios, ...")
     if not isinstance(data, dict):
         raise ConfigError(f"{path}: expected a mapping of sections (region, climate, scenarios, ...), got {type(data).__name__}")
+    _refuse_placeholders(data, path, _key_lines(text))
     context = {"config_dir": path.parent.absolute(), "source_path": path}
     try:
         return RunConfig.model_validate(data, context=context)
@@ -67,6 +68,7 @@ def validate_config(data: dict, config_dir: str | Path | None = None) -> RunConf
     Raises ConfigError with the same messages as :func:`load_config`.
     """
     source = "<config>"
+    _refuse_placeholders(data, source, {})
     try:
         return RunConfig.model_validate(data, context={"config_dir": Path(config_dir or Path.cwd()).absolute()})
     except ValidationError as exc:
@@ -93,6 +95,32 @@ def validate_section(model: type[BaseModel], data: Any, key: str) -> BaseModel:
         problems = [f"{dotted_key((key,) + tuple(e['loc']))}: {_explain(e, tuple(e['loc']))}"
                     for e in exc.errors(include_url=False)]
         raise ConfigError("; ".join(problems)) from None
+
+
+#: The value `suitability init` writes where the user must decide (suitability/templates/starter.yaml).
+PLACEHOLDER = "EDIT-ME"
+
+
+def placeholders(data: Any, loc: tuple = ()) -> list[tuple]:
+    """Locations (key tuples) of every value still holding the starter template's :data:`PLACEHOLDER`."""
+    if isinstance(data, str):
+        return [loc] if data.strip().upper().startswith(PLACEHOLDER) else []
+    if isinstance(data, dict):
+        return [found for key, value in data.items() for found in placeholders(value, loc + (key,))]
+    if isinstance(data, (list, tuple)):
+        return [found for i, value in enumerate(data) for found in placeholders(value, loc + (i,))]
+    return []
+
+
+def _refuse_placeholders(data: Any, source: Any, lines: dict[tuple, int]) -> None:
+    found = placeholders(data)
+    if not found:
+        return
+    where = [dotted_key(loc) + (f" (line {lines[loc]})" if loc in lines else "") for loc in found]
+    raise ConfigError(
+        f"{source}: edit me: {len(found)} value(s) still hold the starter placeholder {PLACEHOLDER}: "
+        f"{', '.join(where)}. Replace each with your value (the comment beside it says what is expected)."
+    )
 
 
 def _yaml_problem(exc: yaml.YAMLError) -> str:

@@ -75,16 +75,26 @@ class _Section(BaseModel):
 
 
 class GridConfig(_Section):
-    """An explicit target grid. Bounds are snapped outward to whole cells by :mod:`suitability.grid`."""
+    """An explicit target grid: CRS, cell size, and the extent as ``bounds`` or from a ``zones`` file.
+
+    ``bounds`` are in ``crs`` unless ``bounds_crs`` names the CRS they are given in (e.g. lon/lat corners
+    with ``bounds_crs: EPSG:4326``; they are then transformed, following the edges, to ``crs``). Instead of
+    bounds, ``zones`` takes the extent of a district file (any CRS) widened by ``margin`` [units of ``crs``].
+    Either way the extent is snapped outward to whole cells by :mod:`suitability.grid`.
+    """
 
     crs: str
     resolution: tuple[_Positive, _Positive]
-    bounds: tuple[_Finite, _Finite, _Finite, _Finite]
+    bounds: tuple[_Finite, _Finite, _Finite, _Finite] | None = None
+    bounds_crs: str | None = None
+    zones: ConfigPath | None = None
+    margin: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 0.0
 
-    @field_validator("crs")
+    @field_validator("crs", "bounds_crs")
     @classmethod
-    def _crs_known_to_proj(cls, value: str) -> str:
-        parse_crs(value)
+    def _crs_known_to_proj(cls, value: str | None) -> str | None:
+        if value is not None:
+            parse_crs(value)
         return value
 
     @field_validator("resolution", mode="before")
@@ -101,18 +111,31 @@ class GridConfig(_Section):
     @field_validator("bounds", mode="before")
     @classmethod
     def _four_numbers(cls, value: Any) -> Any:
+        if value is None:
+            return None
         if not isinstance(value, (list, tuple)) or len(value) != 4:
             raise ValueError(f"expected 4 numbers [xmin, ymin, xmax, ymax] in the units of the CRS, got {value!r}")
         return tuple(value)
 
     @model_validator(mode="after")
     def _bounds_make_a_grid(self) -> "GridConfig":
+        if (self.bounds is None) == (self.zones is None):
+            raise ValueError("give exactly one of 'bounds' ([xmin, ymin, xmax, ymax]) or 'zones' (a district file "
+                             "whose extent, plus 'margin', is the grid's)")
+        if self.zones is not None:
+            if self.bounds_crs is not None:
+                raise ValueError("'bounds_crs' goes with 'bounds'; a 'zones' file carries its own CRS")
+            return self
+        if self.margin:
+            raise ValueError("'margin' goes with 'zones'; widen 'bounds' themselves instead")
         xmin, ymin, xmax, ymax = self.bounds
         if not (xmin < xmax and ymin < ymax):
             raise ValueError(f"bounds must be [xmin, ymin, xmax, ymax] with xmin < xmax and ymin < ymax, got {list(self.bounds)}")
-        crs = parse_crs(self.crs)
-        if crs.is_geographic and not (-360 <= xmin and xmax <= 360 and -90 <= ymin and ymax <= 90):
-            raise ValueError(f"bounds {list(self.bounds)} are outside longitude/latitude limits of the geographic CRS {self.crs}")
+        given_in = parse_crs(self.bounds_crs or self.crs)
+        if given_in.is_geographic and not (-360 <= xmin and xmax <= 360 and -90 <= ymin and ymax <= 90):
+            raise ValueError(f"bounds {list(self.bounds)} are outside longitude/latitude limits of the geographic CRS "
+                             f"{self.bounds_crs or self.crs}")
+        xmin, ymin, xmax, ymax = self.target_bounds()
         cells = ((xmax - xmin) / self.resolution[0]) * ((ymax - ymin) / self.resolution[1])
         if cells > MAX_GRID_CELLS:
             raise ValueError(
@@ -120,6 +143,27 @@ class GridConfig(_Section):
                 "expected the resolution in the units of the CRS (metres for a projected CRS, degrees for a geographic one)"
             )
         return self
+
+    def target_bounds(self) -> tuple[float, float, float, float]:
+        """``bounds`` in ``crs`` (transformed from ``bounds_crs`` along densified edges), not yet snapped.
+        Only for a grid given by bounds (a ``zones`` extent is read by :mod:`suitability.grid`)."""
+        if self.bounds is None:
+            raise ValueError("this grid takes its extent from its zones file")
+        if self.bounds_crs is None:
+            return tuple(float(b) for b in self.bounds)
+        from pyproj import Transformer
+
+        source, target = parse_crs(self.bounds_crs), parse_crs(self.crs)
+        if source == target:
+            return tuple(float(b) for b in self.bounds)
+        transformer = Transformer.from_crs(source, target, always_xy=True)
+        try:
+            bounds = transformer.transform_bounds(*self.bounds, densify_pts=21)
+        except Exception as exc:  # pyproj raises ProjError for points that cannot be transformed
+            raise ValueError(f"bounds {list(self.bounds)} in {self.bounds_crs} cannot be transformed to {self.crs} ({exc})") from None
+        if not all(map(_isfinite, bounds)):
+            raise ValueError(f"bounds {list(self.bounds)} in {self.bounds_crs} fall outside the area of use of {self.crs}")
+        return tuple(float(b) for b in bounds)
 
     @property
     def pyproj_crs(self):
@@ -560,6 +604,12 @@ def parse_crs(value: Any):
         return CRS.from_user_input(value)
     except CRSError as exc:
         raise ValueError(f"unknown CRS {value!r}: expected an EPSG code such as 'EPSG:32740' or a WKT string ({exc})") from None
+
+
+def _isfinite(value: float) -> bool:
+    import math
+
+    return math.isfinite(value)
 
 
 def _located(at: tuple, message: str) -> PydanticCustomError:

@@ -54,7 +54,7 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int) -> tuple[xr.Dat
     where = f"{path}: layer {name!r}" + (f" (variable {spec.variable!r})" if getattr(spec, "variable", None) else "")
     declared = getattr(spec, "units", None) or native.file_units
     if not declared:
-        raise InputDataError(f"{where}: no units; declare them in the config (e.g. units: K) since the file has no 'units' attribute")
+        raise InputDataError(f"{where}: no units; declare them in the config ({unit_hint(name)}) since the file has no 'units' attribute")
     try:
         result_name = output_name(name, declared)
         canonical = INPUT_VARIABLES[result_name].units
@@ -74,12 +74,30 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int) -> tuple[xr.Dat
     if name == "water_stress":
         data = 1.0 - data
     data = data.astype(np.float32)
+    if data.rio.crs is None and native.data.rio.crs is not None:
+        # Arithmetic drops the grid_mapping attribute, which is how a NetCDF names its CRS variable.
+        data = data.rio.write_crs(native.data.rio.crs)
     data.name = result_name
     data.attrs = {
         "units": canonical, "long_name": INPUT_VARIABLES[result_name].long_name, "source": str(path),
         "source_layer": name, "declared_units": str(declared),
     }
     return data, native
+
+
+#: Examples of units a file of each layer is commonly in, for the hint when a layer declares none.
+UNIT_EXAMPLES = {
+    "tmin": ("K", "degC"), "tmax": ("K", "degC"), "tmean": ("K", "degC"),
+    "shortwave": ("W m-2", "MJ m-2 d-1"), "par": ("mol m-2 d-1", "umol m-2 s-1"),
+    "water_availability": ("fraction", "percent"), "water_stress": ("fraction", "percent"),
+    "vpd": ("kPa", "hPa"), "humidity": ("percent", "fraction"), "elevation": ("m",), "lai": ("m2 m-2",),
+}
+
+
+def unit_hint(name: str) -> str:
+    """'e.g. units: K or units: degC' for layer ``name`` (its canonical units if no example is listed)."""
+    examples = UNIT_EXAMPLES.get(name) or (INPUT_VARIABLES[name].units,)
+    return "e.g. " + " or ".join(f"units: {u}" for u in examples)
 
 
 def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path | None = None, chunk: int = 512) -> xr.Dataset:
