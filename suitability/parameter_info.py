@@ -46,6 +46,10 @@ PARAMETER_KEYS: dict[str, tuple[str, str]] = {
     "x": ("-", "share of electron transport used by the C4 cycle"),
     "jmax_optimum_c": ("°C", "optimum temperature of Jmax"),
     "jmax_width_c": ("°C", "width of the Jmax temperature response"),
+    "capacity_temperature_response": ("", "temperature response of the C4 capacities: massad2007 (peaked, "
+                                          "Massad et al. 2007) or caemmerer2021 (von Caemmerer 2021)"),
+    "chilling_response": ("", "low-temperature limit of the C4 capacities: collatz1992 or none"),
+    "chilling_temperature_c": ("°C", "low-temperature inhibition point of the C4 capacities (Collatz et al. 1992)"),
 }
 
 #: (pathway, key) -> how the value is derived when the set leaves it empty (physiology/params.py, _derive).

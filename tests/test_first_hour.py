@@ -25,6 +25,7 @@ from suitability.config import load_config
 from suitability.config.schema import RunConfig
 from suitability.errors import ConfigError, InputDataError
 from suitability.grid import TargetGrid
+from suitability.physiology import DEFAULT_SETS
 
 from conftest import write_demo_config
 
@@ -401,7 +402,7 @@ def test_assumptions_are_listed_by_check_printed_by_run_and_recorded_in_the_mani
     path = tmp_path / "tmean.yaml"
     path.write_text(yaml.safe_dump(config))
     expected = ["daily range of 12 °C", "sea level (101.3 kPa)", "dew point is taken as Tmin",
-                "LAI is 2.5 m2 m-2", "default set 'collatz1992'"]
+                "LAI is 2.5 m2 m-2", f"default set '{DEFAULT_SETS['C4']}'"]
     checked = runner.invoke(app, ["check", str(path)])
     assert checked.exit_code == 0, checked.output
     for words in expected:
