@@ -22,6 +22,8 @@ import pytest
 import rasterio
 import yaml
 
+from suitability.variables import layer_names
+
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
 from benchmarks.synthetic import write_region  # noqa: E402  (the repository root holds benchmarks/)
@@ -76,7 +78,9 @@ def threaded_hashes(region):
     output = region.parent / "threads_512"
     run_cli(region, output, "--scheduler", "threads", "--workers", "2")
     hashes = pixel_hashes(output)
-    assert len(hashes) == 7 + 9  # baseline layers, and the scenario's with its two change layers
+    seasonal = len(layer_names("seasonal"))
+    # baseline layers, and the scenario's with its change layers (suitability.variables registry)
+    assert len(hashes) == seasonal + seasonal + len(layer_names("change"))
     return hashes
 
 
@@ -146,5 +150,5 @@ def test_chunk_size_does_not_change_any_pixel(region_on_target_grid):
         output = region_on_target_grid.parent / f"threads_{chunk}"
         run_cli(config, output, "--scheduler", "threads", "--workers", "2")
         hashes[chunk] = pixel_hashes(output)
-    assert len(hashes[512]) == 7
+    assert len(hashes[512]) == len(layer_names("seasonal"))
     assert hashes[1024] == hashes[512]
