@@ -182,7 +182,7 @@ def _check(config):
     reports = inspect_inputs(cfg)
     table = Table(title=f"Inputs of {config}")
     with_scenarios = any(report.scenario for report in reports)
-    columns = ["layer"] + (["scenario"] if with_scenarios else []) + ["file", "CRS", "units", "overlap %", "nodata %", "notes"]
+    columns = ["layer"] + (["scenario"] if with_scenarios else []) + ["file", "CRS", "units", "time", "overlap %", "nodata %", "notes"]
     for column in columns:
         table.add_column(column, overflow="fold")
     problems = 0
@@ -192,7 +192,7 @@ def _check(config):
         notes = [f"[red]{escape(p)}[/]" for p in issues] + [f"[yellow]{escape(w)}[/]" for w in report.warnings]
         cells = [str(report.layer)] + ([report.scenario or "-"] if with_scenarios else [])
         cells += [escape(Path(str(report.path)).name), str(report.crs), escape(_units_text(report)),
-                  _percent(report.overlap_share), _percent(report.nodata_share), "; ".join(notes) or "[green]ok[/]"]
+                  escape(report.time or "-"), _percent(report.overlap_share), _percent(report.nodata_share), "; ".join(notes) or "[green]ok[/]"]
         table.add_row(*cells)
     console.print(table)
     console.print(f"{len(cfg.scenarios)} scenarios: {', '.join(s.name for s in cfg.scenarios)}")

@@ -132,7 +132,9 @@ def run(
                     briefs = make_briefs(cfg, {s.name: folder / s.name for s in scenarios}, today)
             timings["total_s"] = time.perf_counter() - started
             manifest = build_manifest(cfg, config_hash, written, summary, timings, briefs, checksums=checksums,
-                                      records=records, resumed=resumed)
+                                      records=records, resumed=resumed,
+                                      input_time={"baseline": today.attrs.get("time_info", {}),
+                                                  **{name: ds.attrs.get("time_info", {}) for name, ds in own_layers.items()}})
             manifest_path = write_manifest(manifest, folder / MANIFEST_NAME)
             (folder / PROGRESS_NAME).unlink(missing_ok=True)
     return RunResult(

@@ -92,10 +92,11 @@ def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
 
 
 def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, checksums=None, records=None,
-                   resumed=()) -> dict[str, Any]:
+                   resumed=(), input_time=None) -> dict[str, Any]:
     """The run manifest: enough to trace every number back to its config, inputs and code.
 
-    checksums: input path -> sha256 (computed here if None). records: scenario name -> {"scenario_hash",
+    checksums: input path -> sha256 (computed here if None). input_time: "baseline" or scenario name ->
+    layer -> calendar, period and years of the climatology it was made from. records: scenario name -> {"scenario_hash",
     "outputs"} as kept for resume (outputs are hashed here if None). resumed: scenarios not recomputed.
     """
     if checksums is None:
@@ -113,6 +114,7 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
         "config_hash": config_hash,
         "config": json.loads(cfg.model_dump_json()),
         "inputs": inputs,
+        "input_periods": input_time or {},
         "outputs": outputs,
         "scenario_records": records,
         "resumed_scenarios": list(resumed),

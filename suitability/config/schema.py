@@ -62,6 +62,23 @@ _Finite = Annotated[float, Field(allow_inf_nan=False)]
 _Positive = Annotated[float, Field(gt=0, allow_inf_nan=False)]
 
 
+def _check_period(value: Any) -> Any:
+    """``[first_year, last_year]`` (inclusive, both whole years 1..9999, first <= last)."""
+    if value is None:
+        return None
+    if isinstance(value, int) and not isinstance(value, bool):
+        value = [value, value]
+    if (not isinstance(value, (list, tuple)) or len(value) != 2
+            or not all(isinstance(v, int) and not isinstance(v, bool) for v in value)):
+        raise ValueError(f"expected [first_year, last_year] as two whole years, e.g. [2041, 2070], got {value!r}")
+    first, last = value
+    if not (1 <= first <= last <= 9999):
+        raise ValueError(f"expected 1 <= first_year <= last_year <= 9999, got {list(value)}")
+    return (first, last)
+
+
+
+
 def is_month_pattern(path: str | Path) -> bool:
     """True if ``path`` holds a ``{month}`` or ``{month:<format>}`` placeholder."""
     return MONTH_FIELD.search(str(path)) is not None
@@ -150,6 +167,9 @@ class LayerSpec(_Section):
     resampling: str | None = None
     nodata: float | None = None
     band: Annotated[int, Field(ge=1)] | None = None
+    period: tuple[int, int] | None = None
+
+    _period_years = field_validator("period", mode="before")(classmethod(lambda cls, v: _check_period(v)))
 
     @field_validator("resampling")
     @classmethod
@@ -325,6 +345,9 @@ class ScenarioConfig(_Section):
     shortwave_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
     water_availability_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
     climate: ClimateLayers | None = None
+    period: tuple[int, int] | None = None
+
+    _period_years = field_validator("period", mode="before")(classmethod(lambda cls, v: _check_period(v)))
 
     @field_validator("name")
     @classmethod
@@ -492,6 +515,21 @@ class RunConfig(_Section):
         if baseline not in names:
             raise ValueError(f"{baseline!r} is not a scenario name{_did_you_mean(baseline, names)}; scenarios: {', '.join(names)}")
         return baseline
+
+    @model_validator(mode="after")
+    def _periods_to_layers(self) -> "RunConfig":
+        """A scenario's ``period`` becomes the period of each of its own layers that gives none; the
+        baseline scenario's also of each ``climate`` layer that gives none (a layer's own period wins)."""
+        for scenario in self.scenarios:
+            if scenario.period is None:
+                continue
+            specs = list(scenario.climate.values()) if scenario.climate else []
+            if scenario.name == self.baseline:
+                specs += list(self.climate.values())
+            for spec in specs:
+                if spec.period is None:
+                    spec.period = scenario.period
+        return self
 
     @model_validator(mode="after")
     def _remember_where(self, info: ValidationInfo) -> "RunConfig":

@@ -79,6 +79,8 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int) -> tuple[xr.Dat
         "units": canonical, "long_name": INPUT_VARIABLES[result_name].long_name, "source": str(path),
         "source_layer": name, "declared_units": str(declared),
     }
+    if native.time is not None:
+        data.attrs["time_info"] = native.time.as_record()
     return data, native
 
 
@@ -88,12 +90,16 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
     climate_config: mapping layer name -> LayerSpec (the config's ``climate`` or a scenario's ``climate``).
     Returns a Dataset keyed by output name (``par`` / ``water_availability`` where converted) with
     monthly layers (month, y, x), month = 1..12, static layers (y, x), chunks {"month": -1, "y": chunk,
-    "x": chunk}, coordinates exactly the grid's. A layer not reaching the region is an InputDataError; one
+    "x": chunk}, coordinates exactly the grid's; ``attrs["time_info"]`` maps each layer made from a time
+    series (or a dated 12-step file) to its calendar, period and years (:meth:`.periods.TimeInfo.as_record`). A layer not reaching the region is an InputDataError; one
     covering it partly gives an InputCoverageWarning with the share covered (cells outside are NaN).
     """
     layers: dict[str, xr.DataArray] = {}
+    time_info: dict[str, dict] = {}
     for name, spec in climate_config.items():
         layer = open_layer(name, spec, config_dir, chunk=chunk)
+        if "time_info" in layer.attrs:
+            time_info[name] = layer.attrs["time_info"]
         path = absolute(spec.path, config_dir)
         share = coverage_share(layer, grid)
         if share <= 0.0:
@@ -109,8 +115,9 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
             raise InputDataError(f"{path}: layer {name!r} gives {layer.name!r}, which another layer already gives")
         layers[layer.name] = align_to_grid(layer, grid, resampling, chunk)
     # Every monthly layer was checked to hold each month 1..12 once (sorted), so their months agree.
-    dataset = xr.Dataset(layers)
-    return dataset.rio.write_crs(grid.crs.to_wkt())
+    dataset = xr.Dataset(layers).rio.write_crs(grid.crs.to_wkt())
+    dataset.attrs["time_info"] = time_info
+    return dataset
 
 
 def load_mask(region_config: Any, grid: TargetGrid, config_dir: str | Path | None = None, chunk: int = 512) -> xr.DataArray | None:

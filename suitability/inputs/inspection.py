@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -13,6 +14,7 @@ from ..grid import TargetGrid
 from ..variables import INPUT_VARIABLES
 from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, read_sample
 from .climate import open_converted
+from .periods import ShortPeriodWarning
 from .raster import read_raster
 from .readers import absolute
 from .units import units_differ
@@ -29,7 +31,9 @@ class LayerReport:
     declared_units: the config's units, else the file's; file_units: the file's units attribute;
     canonical_units: the units it is converted to. overlap_share: share of the region inside the layer's
     extent [0-1]; nodata_share / out_of_range_share: shares of a sample of the layer within the region
-    (see :func:`.checks.read_sample`) that are nodata / outside the valid range after conversion. problems: errors that
+    (see :func:`.checks.read_sample`) that are nodata / outside the valid range after conversion. time: for a
+    monthly layer, its time axis: calendar, period and years of the climatology (or "12 months").
+    problems: errors that
     stop a run; warnings: notes.
     """
 
@@ -46,6 +50,7 @@ class LayerReport:
     overlap_share: float | None = None
     nodata_share: float | None = None
     out_of_range_share: float | None = None
+    time: str | None = None
     problems: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
 
@@ -76,10 +81,21 @@ def inspect_inputs(config: Any) -> list[LayerReport]:
 def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, scenario: str | None) -> LayerReport:
     report = LayerReport(layer=name, path=str(spec.path), scenario=scenario, declared_units=getattr(spec, "units", None))
     try:
-        converted, native = open_converted(name, spec, config_dir, SAMPLE_SIDE * 2)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", ShortPeriodWarning)
+            converted, native = open_converted(name, spec, config_dir, SAMPLE_SIDE * 2)
     except InputDataError as exc:
         report.problems.append(str(exc))
         return report
+    for warning in caught:
+        if issubclass(warning.category, ShortPeriodWarning):
+            report.warnings.append(str(warning.message).split(": ", 1)[-1])
+        else:
+            warnings.warn_explicit(warning.message, warning.category, warning.filename, warning.lineno)
+    if native.time is not None:
+        report.time = native.time.describe()
+    elif "month" in converted.dims:
+        report.time = "12 months"
     report.output_name = converted.name
     report.driver = native.driver
     report.file_units = native.file_units

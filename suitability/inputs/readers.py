@@ -24,6 +24,7 @@ from ..config import MONTH_FIELD, is_month_pattern
 from ..errors import InputDataError
 from .cf import read_dataset, read_zarr
 from .native import MONTHS, Native
+from .periods import to_climatology
 from .raster import read_raster
 
 _NETCDF_SUFFIXES = {".nc", ".nc4", ".netcdf", ".cdf", ".h5", ".hdf5"}
@@ -112,7 +113,13 @@ def read_native(name: str, spec: Any, path: Path, monthly: bool, chunk: int) -> 
     reader = reader_for(path)
     if reader.refuses is not None and options[reader.refuses] is not None:
         raise InputDataError(f"{path}: layer {name!r} " + reader.refusal.format(value=options[reader.refuses]))
-    return reader.read(name, path, monthly=monthly, chunk=chunk, **options)
+    native = reader.read(name, path, monthly=monthly, chunk=chunk, **options)
+    if "time" in native.data.dims:  # a series: the monthly climatology over the layer's period
+        where = f"{path}: layer {name!r}"
+        crs = native.data.rio.crs
+        data, info = to_climatology(native.data, getattr(spec, "period", None), where)
+        native = Native(data.transpose("month", "y", "x").rio.write_crs(crs), native.driver, native.file_units, info)
+    return native
 
 
 def _read_month_pattern(name: str, pattern: Path, options: dict, chunk: int) -> Native:
