@@ -46,6 +46,11 @@ INPUT_VARIABLES: dict[str, Variable] = {
         Variable("par", "mol m-2 d-1", "mean daily photosynthetically active photon flux", (0.0, 100.0), "average", True),
         Variable("water_availability", "1", "water availability, 0 no water to 1 unstressed", (0.0, 1.0), "average", True),
         Variable("water_stress", "1", "water stress, 0 unstressed to 1 no water", (0.0, 1.0), "average", True),
+        Variable("precipitation", "mm d-1", "mean daily precipitation (monthly total / days in the month)",
+                 (0.0, 150.0), "average", True),
+        Variable("pet", "mm d-1", "mean daily reference (potential) evapotranspiration", (0.0, 30.0), "average", True),
+        Variable("soil_water_capacity", "mm", "plant-available soil water capacity of the root zone",
+                 (1.0, 2000.0), "average", False),
         Variable("vpd", "kPa", "mean daytime vapour pressure deficit", (0.0, 10.0), "bilinear", True),
         Variable("humidity", "1", "mean relative humidity as a fraction", (0.0, 1.0), "bilinear", True),
         Variable("elevation", "m", "ground elevation above sea level", (-500.0, 9000.0), "bilinear", False),
@@ -55,6 +60,8 @@ INPUT_VARIABLES: dict[str, Variable] = {
 
 # Aliases that mean the same quantity with the opposite sense or another name.
 WATER_LAYERS = ("water_availability", "water_stress")
+#: Layers from which water availability is derived by the soil-water balance (suitability.model).
+RAINFALL_LAYERS = ("precipitation", "pet", "soil_water_capacity")
 RADIATION_LAYERS = ("shortwave", "par")
 
 CLASS_C3 = 1

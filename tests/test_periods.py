@@ -28,7 +28,7 @@ def spec(path, **kw) -> LayerSpec:
 
 
 def series(path, values_of, *, calendar="noleap", years=(2041, 2070), daily=False, lon=LON, units="K",
-           name="tas", pack=False):
+           name="tas", pack=False, ramp=1.0):
     """A CF NetCDF with a time series; values_of(time index array of cftime dates) -> array (time,)."""
     if daily:
         last_day = 30 if calendar == "360_day" else 31
@@ -38,7 +38,7 @@ def series(path, values_of, *, calendar="noleap", years=(2041, 2070), daily=Fals
         times = xr.date_range(f"{years[0]}-01-01", periods=12 * (years[1] - years[0] + 1), freq="MS",
                               calendar=calendar, use_cftime=True)
     per_step = np.asarray(values_of(times), dtype="float64")
-    field = 0.01 * np.arange(LAT.size)[:, None] + 0.001 * np.arange(lon.size)[None, :]
+    field = ramp * (0.01 * np.arange(LAT.size)[:, None] + 0.001 * np.arange(lon.size)[None, :])
     values = per_step[:, None, None] + field[None]
     ds = xr.Dataset(
         {name: (("time", "lat", "lon"), values.astype("float32"), {"units": units})},
@@ -110,6 +110,34 @@ def test_packed_int16_lon_0_360_descending_lat(tmp_path):
     assert layer.y.values[0] > layer.y.values[-1]  # north-up
     # int16 with scale 0.01: each value within half a packing step of what was written
     np.testing.assert_allclose(layer.values[:, 0, 0], _oracle(per_step, times, 2041, 2050) - 273.15, atol=0.006)
+
+
+def test_rainfall_in_kg_m2_s1_series(tmp_path):
+    def rain(times):  # 2e-5 kg m-2 s-1 in every month = 1.728 mm d-1 (86400 s d-1; 1 kg m-2 = 1 mm of water)
+        return np.full(len(times), 2e-5)
+
+    path, _, _ = series(tmp_path / "pr.nc", rain, units="kg m-2 s-1", name="pr", years=(2041, 2050), ramp=0.0)
+    layer = open_layer("precipitation", spec(path))
+    np.testing.assert_allclose(layer.values[:, 0, 0], 2e-5 * 86400, rtol=1e-5)
+
+
+def test_negative_rainfall_is_refused(tmp_path):
+    path, _, _ = series(tmp_path / "pr.nc", lambda t: np.full(len(t), -1e-5), units="kg m-2 s-1", name="pr",
+                        years=(2041, 2050), ramp=0.0)
+    with pytest.raises(InputDataError, match="negative values") as info:
+        open_layer("precipitation", spec(path))
+    assert "pr.nc" in str(info.value) and "'precipitation'" in str(info.value)
+
+
+def test_totals_per_month_declared_per_day_are_refused(tmp_path):
+    # 60-250 mm in a month declared as mm d-1: a median above 40 mm d-1 (threshold: common practice, no source)
+    path, _, _ = series(tmp_path / "pr.nc", lambda t: np.array([60.0 + 15 * (x.month % 12) for x in t]),
+                        units="mm d-1", name="pr", years=(2041, 2050))
+    with pytest.raises(InputDataError, match="look like totals per month") as info:
+        open_layer("precipitation", spec(path))
+    assert "pr.nc" in str(info.value)
+    with pytest.raises(InputDataError, match="per month or year"):  # and mm per month is refused outright
+        open_layer("precipitation", spec(path, units="mm month-1"))
 
 
 def test_twelve_steps_keep_working_and_record_the_calendar(tmp_path):

@@ -248,8 +248,11 @@ class ClimateLayers(RootModel[dict[str, LayerSpec]]):
 
 # Layers that cannot be given together; and the quantity each layer stands for, so that a scenario may
 # replace a baseline layer with its alternative (water_stress for water_availability, par for shortwave).
-_EXCLUSIVE = (("water_availability", "water_stress"), ("shortwave", "par"), ("vpd", "humidity"))
-_CANONICAL = {"water_stress": "water_availability", "par": "radiation", "shortwave": "radiation"}
+_EXCLUSIVE = (("water_availability", "water_stress"), ("shortwave", "par"), ("vpd", "humidity"),
+              ("precipitation", "water_availability"), ("precipitation", "water_stress"))
+_CANONICAL = {"water_stress": "water_availability", "par": "radiation", "shortwave": "radiation",
+              "precipitation": "water_availability", "pet": "water_availability",
+              "soil_water_capacity": "water_availability"}
 
 
 class ClimateConfig(ClimateLayers):
@@ -266,8 +269,11 @@ class ClimateConfig(ClimateLayers):
                 problems.append(f"{a} is given without {b}")
         if not names & {"shortwave", "par"}:
             problems.append("radiation: give shortwave or par")
-        if not names & {"water_availability", "water_stress"}:
-            problems.append("water: give water_availability or water_stress")
+        if not names & {"water_availability", "water_stress", "precipitation"}:
+            problems.append("water: give water_availability or water_stress, or precipitation (with optional pet)")
+        for name in ("pet", "soil_water_capacity"):
+            if name in names and "precipitation" not in names:
+                problems.append(f"{name} is given without precipitation (it serves the soil-water balance of rainfall)")
         for a, b in _EXCLUSIVE:
             if a in names and b in names:
                 problems.append(f"give {a} or {b}, not both")
@@ -319,6 +325,8 @@ class PhysiologyConfig(_Section):
     c4: PathwayConfig = Field(default_factory=dict)
     lai: Annotated[float, Field(gt=0, le=15)] = 3.0
     diurnal_range_c: Annotated[float, Field(gt=0, le=40)] = 10.0
+    soil_water_capacity_mm: Annotated[float, Field(gt=0, le=2000)] = 150.0
+    soil_water_retention: Literal["exponential", "linear"] = "exponential"
 
     @field_validator("c3", "c4")
     @classmethod

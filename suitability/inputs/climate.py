@@ -22,7 +22,7 @@ from .checks import check_plausible, coverage_share, read_sample
 from .native import Native
 from .raster import read_raster
 from .readers import absolute, read_native
-from .units import linear_conversion, output_name
+from .units import layer_conversion, output_name
 
 
 class InputCoverageWarning(UserWarning):
@@ -58,7 +58,7 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int) -> tuple[xr.Dat
     try:
         result_name = output_name(name, declared)
         canonical = INPUT_VARIABLES[result_name].units
-        scale, offset = linear_conversion(declared, "1" if name == "water_stress" else canonical)
+        scale, offset = layer_conversion(name, declared, "1" if name == "water_stress" else canonical)
     except ValueError as exc:
         hint = "" if "expected" in str(exc) else f"; expected units convertible to {INPUT_VARIABLES[name].units}"
         raise InputDataError(f"{where}: {exc}{hint}") from None

@@ -75,6 +75,29 @@ def inspect_inputs(config: Any) -> list[LayerReport]:
         reports.append(_inspect_layer(name, spec, config.config_dir, grid, scenario))
     if getattr(config.region, "mask", None) is not None and grid is not None:
         reports.append(_inspect_mask(config.region, grid, config.config_dir))
+    reports += _derived_water(config)
+    return reports
+
+
+def _derived_water(config: Any) -> list[LayerReport]:
+    """A line per climate (baseline and scenarios with their own rainfall) whose water comes from rainfall."""
+    reports = []
+    physiology = getattr(config, "physiology", None)
+    capacity = getattr(physiology, "soil_water_capacity_mm", 150.0)
+    retention = getattr(physiology, "soil_water_retention", "exponential")
+    sections = [(None, config.climate)] + [(s.name, s.climate) for s in config.scenarios if s.climate]
+    for scenario, climate in sections:
+        if "precipitation" not in climate:
+            continue
+        base = config.climate
+        pet = "pet as given" if "pet" in climate or "pet" in base else "PET by Hargreaves-Samani (FAO-56 eq. 52) from tmin/tmax"
+        bucket = ("soil_water_capacity layer" if "soil_water_capacity" in climate or "soil_water_capacity" in base
+                  else f"capacity {capacity:g} mm")
+        report = LayerReport(layer="water_availability", path="(derived from precipitation)", scenario=scenario, crs="-",
+                             output_name="water_availability", canonical_units="1")
+        report.time = (f"derived: AET/PET of a monthly soil-water balance (Thornthwaite & Mather, {retention} "
+                       f"retention, {bucket}); {pet}")
+        reports.append(report)
     return reports
 
 
