@@ -90,7 +90,13 @@ CLASS_TRANSITION_LEGEND = {
     b * 10 + s: f"{CLASS_NAMES[b]} -> {CLASS_NAMES[s]}" for b in CLASS_NAMES for s in CLASS_NAMES
 }
 
-SEASONAL, CHANGE, DATACUBE = "seasonal", "change", "datacube"
+#: Agreement of ensemble members on the direction of the advantage change (our own codes and colours;
+#: classification after IPCC AR6 WGI Cross-Chapter Box Atlas.1, see indicators.change_agreement).
+CHANGE_AGREEMENT_LEGEND = {1: "members agree: toward C3", 2: "low agreement", 3: "members agree: toward C4"}
+CHANGE_AGREEMENT_COLOURS = {1: (38, 66, 150, 255), 2: (221, 221, 221, 255), 3: (176, 45, 28, 255),
+                            CLASS_NODATA: _TRANSPARENT}
+
+SEASONAL, CHANGE, DATACUBE, ENSEMBLE = "seasonal", "change", "datacube", "ensemble"
 
 
 @dataclass(frozen=True)
@@ -99,8 +105,9 @@ class OutputLayer:
 
     name: file stem (``<name>.tif``) or NetCDF variable name; units, long_name: as written in the metadata.
     kind: "seasonal" (one (y, x) layer per scenario, from the model), "change" (a scenario against the
-        baseline, written for every scenario but the baseline) or "datacube" (monthly (month, y, x), in the
-        NetCDF datacube only).
+        baseline, written for every scenario but the baseline), "datacube" (monthly (month, y, x), in the
+        NetCDF datacube only) or "ensemble" (written only for a scenario with members, from the members'
+        advantage; ``compares`` set: against the baseline, not for the baseline).
     valid_range: (min, max) of valid values. resampling: overview resampling ("mode" for classes).
     indicator: how it is computed: the name of the function in :mod:`suitability.indicators` (for
         "seasonal" and "datacube" layers the model calls it inside its block function; "season_total" and
@@ -154,6 +161,14 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
         OutputLayer("class_transition", "1", "baseline class * 10 + scenario class; 255 nodata",
                     (11.0, 33.0), "mode", CHANGE, "class_transition", compares="pathway_class",
                     legend=CLASS_TRANSITION_LEGEND, colours=CLASS_TRANSITION_COLOURS),
+        OutputLayer("ensemble_median_advantage", "1", "median over the ensemble members of the pathway advantage",
+                    (-1.0, 1.0), "average", ENSEMBLE, "ensemble_median"),
+        OutputLayer("c4_favoured_share", "1", "share of ensemble members in which C4 is favoured",
+                    (0.0, 1.0), "average", ENSEMBLE, "c4_favoured_share"),
+        OutputLayer("change_agreement", "1", "ensemble agreement on the direction of the advantage change "
+                    "(after IPCC AR6 WGI Atlas.1): 1 toward C3, 2 low agreement, 3 toward C4, 255 nodata",
+                    (1.0, 3.0), "mode", ENSEMBLE, "change_agreement", compares="pathway_advantage",
+                    legend=CHANGE_AGREEMENT_LEGEND, colours=CHANGE_AGREEMENT_COLOURS),
         OutputLayer("c3_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C3 canopy, as carbon",
                     (-1e4, 1e5), "average", DATACUBE, "monthly_total"),
         OutputLayer("c4_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C4 canopy, as carbon",
@@ -167,5 +182,5 @@ def layer_names(*kinds: str) -> tuple[str, ...]:
     return tuple(name for name, layer in OUTPUT_LAYERS.items() if layer.kind in kinds)
 
 
-#: The GeoTIFF layers a run can write (``output.layers`` chooses among them): seasonal and change layers.
-OUTPUT_VARIABLES: dict[str, OutputLayer] = {name: OUTPUT_LAYERS[name] for name in layer_names(SEASONAL, CHANGE)}
+#: The GeoTIFF layers a run can write (``output.layers`` chooses among them): seasonal, change and ensemble layers.
+OUTPUT_VARIABLES: dict[str, OutputLayer] = {name: OUTPUT_LAYERS[name] for name in layer_names(SEASONAL, CHANGE, ENSEMBLE)}

@@ -44,6 +44,8 @@ from ..variables import INPUT_VARIABLES, OUTPUT_VARIABLES
 
 #: The ``{month}`` / ``{month:<format>}`` placeholder of a climate path (one file per month).
 MONTH_FIELD = re.compile(r"\{month(?::(?P<spec>[^{}]*))?\}")
+#: The ``{member}`` placeholder of a scenario's climate path (one file per ensemble member).
+MEMBER_FIELD = "{member}"
 _SCENARIO_NAME = re.compile(r"^[A-Za-z0-9_-]+$")
 # Above this many cells (400 GB per float32 layer) a grid is almost surely a units slip, such as a
 # resolution in degrees over bounds in metres (0.01 over 200 km gives 4e14 cells).
@@ -354,8 +356,34 @@ class ScenarioConfig(_Section):
     water_availability_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
     climate: ClimateLayers | None = None
     period: tuple[int, int] | None = None
+    members: list[str] | None = None
 
     _period_years = field_validator("period", mode="before")(classmethod(lambda cls, v: _check_period(v)))
+
+    @field_validator("members")
+    @classmethod
+    def _member_names(cls, value: list[str] | None) -> list[str] | None:
+        if value is None:
+            return None
+        if len(value) < 2:
+            raise ValueError(f"an ensemble needs at least 2 members, got {value!r}")
+        for name in value:
+            if not _SCENARIO_NAME.match(str(name)):
+                raise ValueError(f"member name {name!r} is used in file and folder names: use only letters, digits, '_' and '-'")
+        if len(set(value)) != len(value):
+            raise ValueError(f"each member once, got {value}")
+        return value
+
+    @model_validator(mode="after")
+    def _member_patterns(self) -> "ScenarioConfig":
+        patterned = [name for name, spec in (self.climate.items() if self.climate else ()) if MEMBER_FIELD in str(spec.path)]
+        if patterned and not self.members:
+            raise _located(("climate", patterned[0], "path"),
+                           f"holds {MEMBER_FIELD} but the scenario lists no members (members: [name, ...])")
+        if self.members and not self.climate:
+            raise ValueError("members: an ensemble needs climate layers of its own (with a {member} pattern path "
+                             "or a member dimension)")
+        return self
 
     @field_validator("name")
     @classmethod
@@ -390,6 +418,7 @@ class OutputConfig(_Section):
     cog: CogConfig = Field(default_factory=dict)
     datacube: bool = False
     overwrite: bool = False
+    member_outputs: bool = False
 
     @field_validator("layers", mode="before")
     @classmethod
@@ -604,6 +633,6 @@ def _did_you_mean(value: str, valid) -> str:
 __all__ = [
     "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
     "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
-    "ComputeConfig", "BriefConfig", "parse_crs", "is_month_pattern", "MONTH_FIELD", "ENGINES",
+    "ComputeConfig", "BriefConfig", "parse_crs", "is_month_pattern", "MONTH_FIELD", "MEMBER_FIELD", "ENGINES",
     "LOCAL_SCHEDULERS",
 ]

@@ -54,14 +54,15 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
             raise InputDataError(f"{where}: no CRS (no grid_mapping) and x/y are not longitude/latitude; expected a CF grid_mapping variable")
     var = _to_metres(var, crs, where)
     var = _to_month_axis(var, monthly, where)
-    extra = [d for d in var.dims if d not in ("time", "month", "y", "x")]
+    var = _member_axis(var)
+    extra = [d for d in var.dims if d not in ("member", "time", "month", "y", "x")]
     for dim in extra:
         if var.sizes[dim] != 1:
             raise InputDataError(f"{where}: unexpected dimension {dim!r} of size {var.sizes[dim]}; expected (time or month, y, x)")
     var = var.isel({d: 0 for d in extra}, drop=True)
-    keep = {"x", "y", "month", "time"}
+    keep = {"x", "y", "month", "time", "member"}
     var = var.drop_vars([c for c in var.coords if c not in keep])
-    var = var.transpose(*[d for d in ("time", "month", "y", "x") if d in var.dims])
+    var = var.transpose(*[d for d in ("member", "time", "month", "y", "x") if d in var.dims])
     var = var.chunk({**({"month": -1} if "month" in var.dims else {}), **({"time": 31} if "time" in var.dims else {}),
                      "y": chunk, "x": chunk})
     var = _lon_to_180(var, crs, where)
@@ -185,6 +186,20 @@ def _is_time(var: xr.DataArray, dim) -> bool:
     return (coord.attrs.get("axis") == "T" or coord.attrs.get("standard_name") == "time"
             or np.issubdtype(coord.dtype, np.datetime64) or coord.dtype == object
             or "since" in str(coord.attrs.get("units", "")))
+
+
+#: Dimension names of an ensemble of climate-model members (CF/CMIP use "realization"; "member_id" in
+#: CMIP6 catalogues); kept as ``member`` for :func:`.readers.read_native` to select one member.
+_MEMBER_NAMES = ("member", "members", "realization", "realisation", "ensemble", "ens", "member_id")
+
+
+def _member_axis(var: xr.DataArray) -> xr.DataArray:
+    for dim in var.dims:
+        if str(dim).lower() in _MEMBER_NAMES and var.sizes[dim] > 1:
+            labels = var[dim].values if dim in var.coords else np.arange(var.sizes[dim])
+            labels = [x.decode() if isinstance(x, bytes) else str(x) for x in np.asarray(labels).tolist()]
+            return var.rename({dim: "member"}).assign_coords(member=labels)
+    return var
 
 
 def _decoded(time: xr.DataArray) -> bool:

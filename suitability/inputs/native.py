@@ -37,7 +37,7 @@ def keep_spatial(data: xr.DataArray) -> xr.DataArray:
         data = data.isel(y=slice(None, None, -1))
     if data["x"].values[-1] < data["x"].values[0]:
         data = data.isel(x=slice(None, None, -1))
-    data = data.drop_vars([c for c in data.coords if c not in ("x", "y", "month", "time")])
+    data = data.drop_vars([c for c in data.coords if c not in ("x", "y", "month", "time", "member")])
     data = data.rio.write_crs(crs)
     for dim in ("x", "y"):
         data[dim].attrs = {}
