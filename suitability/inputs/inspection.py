@@ -16,7 +16,7 @@ from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, read_sampl
 from .climate import open_converted
 from .periods import ShortPeriodWarning
 from .raster import read_raster
-from .readers import absolute
+from .readers import absolute, member_labels
 from .units import units_differ
 
 
@@ -71,8 +71,23 @@ def inspect_inputs(config: Any) -> list[LayerReport]:
     entries: list[tuple[str | None, str, Any]] = [(None, n, s) for n, s in config.climate.items()]
     for scenario in config.scenarios:
         entries += [(scenario.name, n, s) for n, s in (scenario.climate.items() if scenario.climate else ())]
+    members_of = {s.name: _members(s, config.config_dir) for s in config.scenarios if s.climate}
     for scenario, name, spec in entries:
-        reports.append(_inspect_layer(name, spec, config.config_dir, grid, scenario))
+        members = members_of.get(scenario) if scenario else None
+        if not members:
+            reports.append(_inspect_layer(name, spec, config.config_dir, grid, scenario))
+            continue
+        # an ensemble: every member is opened; one line per layer, problems named by member
+        each = {m: _inspect_layer(name, spec, config.config_dir, grid, scenario, m) for m in members}
+        report = next(iter(each.values()))
+        report.problems = [f"member {m}: {p}" for m, r in each.items() for p in r.problems]
+        report.warnings = sorted({w for r in each.values() for w in r.warnings})
+        opened = {m: r for m, r in each.items() if not r.problems}
+        kinds = {r.time for r in opened.values()}
+        first = next(iter(opened.values()), report)
+        report.time = (f"{len(members)} members ({', '.join(members)}); {first.time}" if len(kinds) <= 1
+                       else f"{len(members)} members, time axes differ: " + "; ".join(f"{m}: {r.time}" for m, r in opened.items()))
+        reports.append(report)
     if getattr(config.region, "mask", None) is not None and grid is not None:
         reports.append(_inspect_mask(config.region, grid, config.config_dir))
     reports += _derived_water(config)
@@ -101,12 +116,27 @@ def _derived_water(config: Any) -> list[LayerReport]:
     return reports
 
 
-def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, scenario: str | None) -> LayerReport:
+def _members(scenario: Any, config_dir) -> list[str] | None:
+    """A scenario's members: its ``members`` list, else the labels of a member dimension of its files."""
+    if scenario.members:
+        return list(scenario.members)
+    for name, spec in scenario.climate.items():
+        try:
+            labels = member_labels(name, spec, absolute(spec.path, config_dir), INPUT_VARIABLES[name].monthly)
+        except InputDataError:
+            continue  # reported on the layer's own line
+        if labels:
+            return labels
+    return None
+
+
+def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, scenario: str | None,
+                   member: str | None = None) -> LayerReport:
     report = LayerReport(layer=name, path=str(spec.path), scenario=scenario, declared_units=getattr(spec, "units", None))
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", ShortPeriodWarning)
-            converted, native = open_converted(name, spec, config_dir, SAMPLE_SIDE * 2)
+            converted, native = open_converted(name, spec, config_dir, SAMPLE_SIDE * 2, member)
     except InputDataError as exc:
         report.problems.append(str(exc))
         return report
