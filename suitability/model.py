@@ -101,7 +101,8 @@ def evaluate(
     diurnal_range = _get(physiology, "diurnal_range_c", DEFAULT_DIURNAL_RANGE_C)
     climate = apply_scenario(dataset, settings.scenario, scenario_layers, diurnal_range_c=diurnal_range)
     climate = _with_latitude(climate)
-    if "precipitation" in climate and "water_availability" not in climate:
+    derived = "precipitation" in climate and "water_availability" not in climate
+    if derived:
         climate = water_from_rainfall(climate, _get(physiology, "soil_water_capacity_mm",
                                                     water_balance.DEFAULT_SOIL_WATER_CAPACITY_MM),
                                       _get(physiology, "soil_water_retention", "exponential"))
@@ -125,7 +126,12 @@ def evaluate(
         stacked = _evaluate_block(*arrays, names=names, settings=settings)
     coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
     stacked = xr.DataArray(stacked, dims=("layer",) + spatial_dims, coords=coords)
-    return _unstack(stacked, settings)
+    result = _unstack(stacked, settings)
+    if derived:  # the registry's "derived" layer: written to the datacube
+        derived_layer = climate["water_availability"].transpose("month", *spatial_dims).copy()
+        derived_layer.attrs = {}  # the registry's long name and units are written, not the rainfall's
+        result["derived_water_availability"] = derived_layer
+    return result
 
 
 def _map_blocks(arrays, names, settings: ModelSettings, n_spatial: int):

@@ -32,7 +32,7 @@ from .provenance import MANIFEST_NAME, build_manifest, class_summary, input_chec
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
 from .runlock import RunLock
 from .runtime import compute_context
-from .variables import CHANGE, DATACUBE, ENSEMBLE, INPUT_VARIABLES, OUTPUT_LAYERS, SEASONAL, layer_names
+from .variables import CHANGE, DATACUBE, DERIVED, ENSEMBLE, INPUT_VARIABLES, OUTPUT_LAYERS, SEASONAL, layer_names
 
 SUMMARY_NAME = "class_summary.csv"
 DATACUBE_NAME = "monthly_assimilation.nc"
@@ -308,7 +308,7 @@ def _write_scenario(cfg, grid, runtime, scenario, result, written, tags, names) 
     with runtime.progress(f"{scenario.name}: computing and writing"):
         paths = write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=None)
     if cfg.output.datacube:
-        cube = result[list(layer_names(DATACUBE))]
+        cube = result[list(layer_names(DATACUBE)) + [n for n in layer_names(DERIVED) if n in result]]
         cube.attrs.update(tags)
         with runtime.progress(f"{scenario.name}: monthly datacube"):
             paths["datacube"] = write_datacube(_georeferenced(cube, grid), scenario_folder / DATACUBE_NAME)

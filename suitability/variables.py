@@ -96,7 +96,7 @@ CHANGE_AGREEMENT_LEGEND = {1: "members agree: toward C3", 2: "low agreement", 3:
 CHANGE_AGREEMENT_COLOURS = {1: (38, 66, 150, 255), 2: (221, 221, 221, 255), 3: (176, 45, 28, 255),
                             CLASS_NODATA: _TRANSPARENT}
 
-SEASONAL, CHANGE, DATACUBE, ENSEMBLE = "seasonal", "change", "datacube", "ensemble"
+SEASONAL, CHANGE, DATACUBE, ENSEMBLE, DERIVED = "seasonal", "change", "datacube", "ensemble", "derived"
 
 
 @dataclass(frozen=True)
@@ -107,7 +107,8 @@ class OutputLayer:
     kind: "seasonal" (one (y, x) layer per scenario, from the model), "change" (a scenario against the
         baseline, written for every scenario but the baseline), "datacube" (monthly (month, y, x), in the
         NetCDF datacube only) or "ensemble" (written only for a scenario with members, from the members'
-        advantage; ``compares`` set: against the baseline, not for the baseline).
+        advantage; ``compares`` set: against the baseline, not for the baseline) or "derived" (a monthly
+        input the model derives, e.g. water availability from rainfall; in the datacube when derived).
     valid_range: (min, max) of valid values. resampling: overview resampling ("mode" for classes).
     indicator: how it is computed: the name of the function in :mod:`suitability.indicators` (for
         "seasonal" and "datacube" layers the model calls it inside its block function; "season_total" and
@@ -169,6 +170,8 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
                     "(after IPCC AR6 WGI Atlas.1): 1 toward C3, 2 low agreement, 3 toward C4, 255 nodata",
                     (1.0, 3.0), "mode", ENSEMBLE, "change_agreement", compares="pathway_advantage",
                     legend=CHANGE_AGREEMENT_LEGEND, colours=CHANGE_AGREEMENT_COLOURS),
+        OutputLayer("derived_water_availability", "1", "water availability derived from rainfall: AET/PET of a "
+                    "monthly soil-water balance", (0.0, 1.0), "average", DERIVED, "water_from_rainfall"),
         OutputLayer("c3_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C3 canopy, as carbon",
                     (-1e4, 1e5), "average", DATACUBE, "monthly_total"),
         OutputLayer("c4_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C4 canopy, as carbon",

@@ -24,6 +24,7 @@ from suitability.variables import (
     CHANGE,
     CLASS_NODATA,
     DATACUBE,
+    DERIVED,
     ENSEMBLE,
     OUTPUT_LAYERS,
     OUTPUT_VARIABLES,
@@ -36,7 +37,7 @@ from suitability.variables import (
 
 def test_every_output_layer_has_a_known_kind_and_a_valid_range():
     for name, layer in OUTPUT_LAYERS.items():
-        assert layer.kind in (SEASONAL, CHANGE, DATACUBE, ENSEMBLE), name
+        assert layer.kind in (SEASONAL, CHANGE, DATACUBE, ENSEMBLE, DERIVED), name
         low, high = layer.valid_range
         assert low < high, name
 

@@ -60,6 +60,10 @@ def test_evaluate_runs_on_rainfall_and_drought_lowers_assimilation():
     # DESIGN.md science defaults)
     for layer in ("c3_assimilation", "c4_assimilation"):
         assert float(dry[layer].values[0, 0]) < float(wet[layer].values[0, 0])
+    # the derived availability is returned for the datacube (registry kind "derived")
+    expected = water_from_rainfall(rainy_climate([24.0], rain=np.full(12, 0.3, np.float32))).water_availability
+    np.testing.assert_allclose(dry["derived_water_availability"].values, expected.values, rtol=1e-6)
+    assert "derived_water_availability" not in suitability.evaluate(synthetic_climate([24.0]), {"co2_ppm": 420})
 
 
 def test_scenario_warming_raises_demand_of_derived_water():
