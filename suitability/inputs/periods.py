@@ -18,7 +18,8 @@ decoded ``time`` axis (numpy datetime64 for the standard calendars, cftime objec
 
 Decisions (the issue was silent):
 - A file of 12 steps holding each month once is a climatology already (often stamped with a placeholder
-  year): it is used as it is and a ``period`` is not applied to it (recorded as such).
+  year): it is used as it is and a ``period`` is not applied to it (recorded as such). A file of 12 steps
+  or fewer that is not (a month missing or repeated) is refused as a faulty 12-month file.
 - A period must lie within the file's years; a partial overlap is refused rather than silently shortened.
 - Sub-daily steps are refused (the mean of 6-hourly temperatures is not a daily minimum).
 - Multi-year means of a month weight each year equally for monthly data (a leap February counts as one
@@ -101,6 +102,8 @@ def to_climatology(data: xr.DataArray, period: tuple[int, int] | None, where: st
     if steps == 12 and sorted(months.tolist()) == list(MONTHS):
         out = data.assign_coords(time=months).rename(time="month").sortby("month")
         return out.chunk({"month": -1}), TimeInfo("climatology", calendar, None, 1, steps)
+    if steps <= 12:  # one year or less: meant as 12 months, so say what is wrong with them
+        _check_twelve_months(months, steps, where)
     stamps = years * 10000 + months * 100 + days
     if np.unique(stamps).size < steps:
         raise InputDataError(f"{where}: several time steps fall on the same day; expected monthly or daily steps")
@@ -130,3 +133,14 @@ def to_climatology(data: xr.DataArray, period: tuple[int, int] | None, where: st
     climatology = climatology.chunk({"month": -1})
     info = TimeInfo("daily" if daily else "monthly", calendar, (first, last), last - first + 1, steps)
     return climatology, info
+
+
+def _check_twelve_months(months: np.ndarray, steps: int, where: str) -> None:
+    if steps != 12:
+        raise InputDataError(f"{where}: the time axis has {steps} steps; expected 12 (one per month) or a "
+                             "multi-year series")
+    listed = [int(m) for m in months]
+    missing = sorted(set(MONTHS) - set(listed))
+    repeated = sorted({m for m in listed if listed.count(m) > 1})
+    raise InputDataError(f"{where}: the 12 time steps are months {listed}; expected each month 1..12 once"
+                         + (f" (missing {missing})" if missing else "") + (f" (repeated {repeated})" if repeated else ""))

@@ -134,7 +134,7 @@ def read_native(name: str, spec: Any, path: Path, monthly: bool, chunk: int, mem
         crs = native.data.rio.crs
         native = Native(native.data.sel(member=member, drop=True).rio.write_crs(crs), native.driver, native.file_units)
     if "time" in native.data.dims:  # a series: the monthly climatology over the layer's period
-        where = f"{path}: layer {name!r}"
+        where = f"{path}: layer {name!r}" + (f" (variable {options['variable']!r})" if options["variable"] else "")
         crs = native.data.rio.crs
         data, info = to_climatology(native.data, getattr(spec, "period", None), where)
         native = Native(data.transpose("month", "y", "x").rio.write_crs(crs), native.driver, native.file_units, info)
