@@ -247,7 +247,8 @@ def _check(config):
 
 def _check_table(config, reports, with_scenarios: bool) -> None:
     table = Table(title=f"Inputs of {escape(str(config))}")
-    columns = ["layer"] + (["scenario"] if with_scenarios else []) + ["file", "CRS", "units", "overlap %", "nodata %", "notes"]
+    columns = (["layer"] + (["scenario"] if with_scenarios else [])
+               + ["file", "CRS", "units", "time", "overlap %", "nodata %", "notes"])
     for column in columns:
         table.add_column(column, overflow="fold", ratio=4 if column == "notes" else None,
                          no_wrap=column in ("overlap %", "nodata %"))
@@ -255,7 +256,8 @@ def _check_table(config, reports, with_scenarios: bool) -> None:
         notes = [f"[red]{escape(p)}[/]" for p in report.problems] + [f"[yellow]{escape(w)}[/]" for w in report.warnings]
         cells = [escape(str(report.layer))] + ([escape(report.scenario or "-")] if with_scenarios else [])
         cells += [escape(Path(str(report.path)).name), escape(_crs_text(report)), escape(_units_text(report)),
-                  _percent(report.overlap_share), _percent(report.nodata_share), "; ".join(notes) or "[green]ok[/]"]
+                  escape(report.time or "-"), _percent(report.overlap_share), _percent(report.nodata_share),
+                  "; ".join(notes) or "[green]ok[/]"]
         table.add_row(*cells)
     console.print(table)
 
@@ -268,6 +270,8 @@ def _check_lines(config, reports) -> None:
         console.line(f"- {escape(str(report.layer))}{where}: {escape(Path(str(report.path)).name)}")
         console.line(f"    CRS {escape(_crs_text(report))}; units {escape(_units_text(report))}; "
                      f"overlap {_percent(report.overlap_share)} %; nodata {_percent(report.nodata_share)} %")
+        if report.time:
+            console.line(f"    time: {escape(report.time)}")
         for problem in report.problems:
             console.line(f"    [red]problem:[/] {escape(problem)}")
         for warning in report.warnings:

@@ -94,6 +94,44 @@ def class_transition(baseline_class, scenario_class):
     return _where(nodata, CLASS_NODATA, code).astype(np.uint8)
 
 
+#: Share of members that must agree on the sign of a change for "members agree" (IPCC AR6 WGI Atlas,
+#: Cross-Chapter Box Atlas.1, simple approach: at least 80 % of models agree on the sign of change).
+AGREEMENT_SHARE = 0.8
+AGREE_TOWARD_C3, LOW_AGREEMENT, AGREE_TOWARD_C4 = 1, 2, 3
+
+
+def ensemble_median(stack, dim: str = "member"):
+    """Median over the ensemble members (NaN where any member is NaN: a cell needs every member)."""
+    stack = stack.chunk({dim: -1}) if getattr(stack, "chunks", None) else stack
+    return stack.median(dim, skipna=False)
+
+
+def c4_favoured_share(advantage_stack, margin: float = 0.05, dim: str = "member"):
+    """Share of members [0-1] in which C4 is favoured (advantage > margin, the pathway_class rule); NaN
+    where any member is nodata."""
+    favoured = (advantage_stack > margin).astype(np.float32)
+    return favoured.mean(dim).where(advantage_stack.notnull().all(dim))
+
+
+def change_agreement(baseline_advantage, member_advantages, dim: str = "member",
+                     share: float = AGREEMENT_SHARE):
+    """Agreement of the members on the direction of the advantage change against the baseline.
+
+    Classified after the simple approach of IPCC AR6 WGI Cross-Chapter Box Atlas.1: where at least
+    ``share`` (80 %) of the members give a change of the same sign, they agree (3: the C4 advantage rises,
+    1: it falls); otherwise low agreement (2). A change of exactly 0 counts for neither sign. 255 where
+    the baseline or any member is nodata. The Atlas's advanced approach also asks that 66 % of models show
+    a change beyond internal variability; climatologies carry no interannual variability, so it is not
+    applied here.
+    """
+    change = member_advantages - baseline_advantage
+    valid = change.notnull().all(dim) & baseline_advantage.notnull()
+    rising = (change > 0).astype(np.float32).mean(dim)
+    falling = (change < 0).astype(np.float32).mean(dim)
+    code = _where(rising >= share, AGREE_TOWARD_C4, _where(falling >= share, AGREE_TOWARD_C3, LOW_AGREEMENT))
+    return _where(valid, code, CLASS_NODATA).astype(np.uint8)
+
+
 def regional_monthly_temperature(climate: xr.Dataset) -> xr.DataArray:
     """Region-mean monthly mean air temperature [°C] of a climate dataset (lazy, dims (month,)).
 

@@ -33,7 +33,8 @@ from .physiology import atmosphere, light
 from .physiology import crossover_temperature, daily_canopy_assimilation
 from .physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from .runtime import ENGINES
-from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario
+from .physiology import water_balance
+from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario, scale_water_availability
 from .variables import CLASS_NODATA, DATACUBE, OUTPUT_LAYERS, SEASONAL, layer_names
 
 #: Day of year of the 15th of each month in a non-leap year; the representative day of the month.
@@ -107,6 +108,12 @@ def evaluate(
     diurnal_range = _get(physiology, "diurnal_range_c", DEFAULT_DIURNAL_RANGE_C)
     climate = apply_scenario(dataset, settings.scenario, scenario_layers, diurnal_range_c=diurnal_range)
     climate = _with_latitude(climate)
+    derived = "precipitation" in climate and "water_availability" not in climate
+    if derived:
+        climate = water_from_rainfall(climate, _get(physiology, "soil_water_capacity_mm",
+                                                    water_balance.DEFAULT_SOIL_WATER_CAPACITY_MM),
+                                      _get(physiology, "soil_water_retention", "exponential"))
+        climate = scale_water_availability(climate, settings.scenario)
     names = tuple(n for n in _MONTHLY_INPUTS + _STATIC_INPUTS if n in climate)
     _check_inputs(names)
     spatial_dims = climate["latitude"].dims
@@ -126,7 +133,12 @@ def evaluate(
         stacked = _evaluate_block(*arrays, names=names, settings=settings)
     coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
     stacked = xr.DataArray(stacked, dims=("layer",) + spatial_dims, coords=coords)
-    return _unstack(stacked, settings)
+    result = _unstack(stacked, settings)
+    if derived:  # the registry's "derived" layer: written to the datacube
+        derived_layer = climate["water_availability"].transpose("month", *spatial_dims).copy()
+        derived_layer.attrs = {}  # the registry's long name and units are written, not the rainfall's
+        result["derived_water_availability"] = derived_layer
+    return result
 
 
 def _map_blocks(arrays, names, settings: ModelSettings, n_spatial: int):
@@ -391,6 +403,42 @@ def _unstack(stacked: xr.DataArray, settings: ModelSettings) -> xr.Dataset:
         temperature_offset_c=scenario.temperature_offset_c,
     )
     return result
+
+
+def water_from_rainfall(climate: xr.Dataset, capacity_mm: float = water_balance.DEFAULT_SOIL_WATER_CAPACITY_MM,
+                        retention: str = "exponential") -> xr.Dataset:
+    """``climate`` with ``water_availability`` (AET/PET of the monthly soil-water balance) and ``pet``.
+
+    climate: ``precipitation`` [mm d-1] (month, y, x); ``pet`` [mm d-1] if given, else Hargreaves-Samani
+    reference evapotranspiration from ``tmin``/``tmax`` [°C] and the extraterrestrial radiation of the
+    representative day of each month at the cell's ``latitude``; ``soil_water_capacity`` [mm] (y, x) if
+    given, else ``capacity_mm``. Monthly totals are the daily rates times the days of the month (the same
+    non-leap year as the assimilation totals). Lazy on dask data (whole months per block).
+    """
+    if "pet" in climate:
+        pet = climate["pet"]
+    else:
+        doy = xr.DataArray(REPRESENTATIVE_DAY, dims="month", coords={"month": np.arange(1, 13)})
+        ra = xr.apply_ufunc(light.extraterrestrial_radiation, climate["latitude"], doy, dask="allowed")
+        pet = xr.apply_ufunc(water_balance.hargreaves_samani_et0, climate["tmin"], climate["tmax"], ra,
+                             dask="parallelized", output_dtypes=[np.float64])
+    capacity = climate["soil_water_capacity"] if "soil_water_capacity" in climate else capacity_mm
+    pet = pet.transpose("month", ...)
+    rain = climate["precipitation"].transpose(*pet.dims)
+
+    def availability(rain_mm_d, pet_mm_d, capacity_mm_):
+        # apply_ufunc moves the core dim "month" last; the balance takes months first.
+        rain_m = np.moveaxis(rain_mm_d, -1, 0) * DAYS_IN_MONTH.reshape((12,) + (1,) * (rain_mm_d.ndim - 1))
+        pet_m = np.moveaxis(pet_mm_d, -1, 0) * DAYS_IN_MONTH.reshape((12,) + (1,) * (pet_mm_d.ndim - 1))
+        _, aet = water_balance.monthly_soil_water_balance(rain_m, pet_m, capacity_mm_, retention)
+        return np.moveaxis(water_balance.water_availability_from_balance(aet, pet_m), 0, -1).astype(np.float32)
+
+    if pet.chunks is not None:
+        pet = pet.chunk({"month": -1})
+        rain = rain.chunk({"month": -1})
+    water = xr.apply_ufunc(availability, rain, pet, capacity, input_core_dims=[["month"], ["month"], []],
+                           output_core_dims=[["month"]], dask="parallelized", output_dtypes=[np.float32])
+    return climate.assign(water_availability=water.transpose(*climate["precipitation"].dims), pet=pet.astype(np.float32))
 
 
 def _with_latitude(climate: xr.Dataset) -> xr.Dataset:

@@ -25,13 +25,14 @@ from .config import ComputeConfig, RunConfig, load_config, validate_section
 from .errors import ConfigError, InputDataError
 from .grid import TargetGrid
 from .inputs import load_climate, load_mask
+from .inputs.readers import member_labels
 from .model import evaluate
 from .outputs import check_output_folder, remove_leftovers, write_csv, write_datacube, write_layers, write_manifest
 from .provenance import MANIFEST_NAME, build_manifest, class_summary, input_checksums, scenario_tags
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
 from .runlock import RunLock
 from .runtime import compute_context
-from .variables import CHANGE, DATACUBE, OUTPUT_LAYERS, layer_names
+from .variables import CHANGE, DATACUBE, DERIVED, ENSEMBLE, INPUT_VARIABLES, OUTPUT_LAYERS, SEASONAL, layer_names
 
 SUMMARY_NAME = "class_summary.csv"
 DATACUBE_NAME = "monthly_assimilation.nc"
@@ -97,13 +98,13 @@ def run(
     grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
     folder = Path(cfg.output.folder)
     scenarios = cfg.scenarios_baseline_first()
-    layers_of = selected_layers(cfg)
     with compute_context(cfg.compute, progress=progress) as runtime:
         with clock("open_inputs_s"):
+            ensembles = {s.name: members for s in scenarios if (members := scenario_members(cfg, s))}
+            layers_of = selected_layers(cfg, set(ensembles))
             today = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
             climate = _model_inputs(cfg, grid, today)
-            own_layers = {s.name: load_climate(s.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
-                          for s in scenarios if s.climate}
+            own_layers = {s.name: _own_layers(cfg, grid, s, ensembles.get(s.name)) for s in scenarios if s.climate}
             _check_brief_inputs(cfg)
         check_output_folder(folder)
         with RunLock(folder) as lock:
@@ -119,10 +120,19 @@ def run(
             config_hash = cfg.config_hash()
             for scenario in to_compute:
                 with clock(f"scenario_{scenario.name}_s"):
-                    result = evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
-                                      classes=cfg.classes, scenario_layers=own_layers.get(scenario.name),
-                                      engine=runtime.engine)
                     tags = scenario_tags(scenario, config_hash, hashes[scenario.name])
+                    if scenario.name in ensembles:
+                        members = {m: evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
+                                               classes=cfg.classes, scenario_layers=layers, engine=runtime.engine)
+                                   for m, layers in own_layers[scenario.name].items()}
+                        result = ensemble_result(members, cfg.classes.contested_margin)
+                        tags = {**tags, "ensemble_members": ", ".join(members)}
+                        if cfg.output.member_outputs:
+                            _write_members(cfg, grid, runtime, scenario, members, tags, layers_of(scenario))
+                    else:
+                        result = evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
+                                          classes=cfg.classes, scenario_layers=own_layers.get(scenario.name),
+                                          engine=runtime.engine)
                     written[scenario.name] = _write_scenario(cfg, grid, runtime, scenario, result, written, tags,
                                                              layers_of(scenario))
                 records[scenario.name] = scenario_record(hashes[scenario.name], written[scenario.name])
@@ -135,7 +145,10 @@ def run(
                     briefs = make_briefs(cfg, {s.name: folder / s.name for s in scenarios}, today)
             timings["total_s"] = time.perf_counter() - started
             manifest = build_manifest(cfg, config_hash, written, summary, timings, briefs, checksums=checksums,
-                                      records=records, resumed=resumed)
+                                      records=records, resumed=resumed,
+                                      input_time={"baseline": today.attrs.get("time_info", {}),
+                                                  **{name: _time_info(own) for name, own in own_layers.items()}},
+                                      ensembles=ensembles)
             manifest_path = write_manifest(manifest, folder / MANIFEST_NAME)
             (folder / PROGRESS_NAME).unlink(missing_ok=True)
     return RunResult(
@@ -151,19 +164,81 @@ def run(
     )
 
 
-def selected_layers(cfg: RunConfig):
+def selected_layers(cfg: RunConfig, ensembles: set[str] | None = None):
     """Return a function scenario -> the layer names to write for it (the baseline has no change layers).
 
-    The layers ``output.layers`` asks for, plus those the registry marks ``required``.
+    The layers ``output.layers`` asks for, plus those the registry marks ``required``. Ensemble layers
+    only for the scenarios in ``ensembles`` (default: those listing ``members``), and those comparing with
+    the baseline not for the baseline.
     """
     names = cfg.output.layer_names()
     names += [name for name, layer in OUTPUT_LAYERS.items() if layer.required and name not in names]
     change = set(layer_names(CHANGE))
+    ensemble = set(layer_names(ENSEMBLE))
+    if ensembles is None:
+        ensembles = {s.name for s in cfg.scenarios if s.members}
 
     def for_scenario(scenario) -> list[str]:
-        return [n for n in names if n not in change] if scenario.name == cfg.baseline else names
+        chosen = [n for n in names if n not in ensemble or scenario.name in ensembles]
+        if scenario.name == cfg.baseline:
+            chosen = [n for n in chosen if n not in change and OUTPUT_LAYERS[n].compares is None]
+        return chosen
 
     return for_scenario
+
+
+def scenario_members(cfg: RunConfig, scenario) -> list[str] | None:
+    """The ensemble members of a scenario: its ``members`` list, else the labels of a member dimension in
+    its own layers' files (which must agree between layers); None for a single climate."""
+    if scenario.members:
+        return list(scenario.members)
+    found, where = None, None
+    for name, spec in (scenario.climate.items() if scenario.climate else ()):
+        labels = member_labels(name, spec, Path(spec.path), INPUT_VARIABLES[name].monthly)
+        if labels is None:
+            continue
+        if found is not None and labels != found:
+            raise InputDataError(f"{spec.path}: layer {name!r} has members {', '.join(labels)}, but {where} has "
+                                 f"{', '.join(found)}; expected the same members in every layer of scenario {scenario.name!r}")
+        found, where = labels, f"{spec.path} (layer {name!r})"
+    return found
+
+
+def _own_layers(cfg: RunConfig, grid: TargetGrid, scenario, members: list[str] | None):
+    """A scenario's own layers on the grid: one Dataset, or member -> Dataset for an ensemble."""
+    if not members:
+        return load_climate(scenario.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
+    own = {m: load_climate(scenario.climate, grid, cfg.config_dir, cfg.compute.chunk_size, member=m) for m in members}
+    for name in scenario.climate.keys():  # members must come with the same kind of time steps
+        kinds = {m: ds.attrs["time_info"].get(name, {}).get("steps", "12 months") for m, ds in own.items()}
+        if len(set(kinds.values())) > 1:
+            listed = ", ".join(f"{m}: {k}" for m, k in kinds.items())
+            raise InputDataError(f"{scenario.climate[name].path}: layer {name!r} of scenario {scenario.name!r} mixes "
+                                 f"time steps between members ({listed}); expected the same (all monthly or all daily)")
+    return own
+
+
+def _time_info(own) -> dict:
+    if isinstance(own, xr.Dataset):
+        return own.attrs.get("time_info", {})
+    return {member: ds.attrs.get("time_info", {}) for member, ds in own.items()}
+
+
+def ensemble_result(members: dict[str, xr.Dataset], margin: float) -> xr.Dataset:
+    """One scenario's layers from its members' results: the median over members of every continuous layer
+    (the pathway class from the median advantage), the ensemble layers of the registry, and
+    ``member_advantage`` (member, y, x) for the agreement against the baseline."""
+    stack = xr.concat(list(members.values()), dim=xr.DataArray(list(members), dims="member", name="member"),
+                      coords="minimal", compat="override")
+    out = xr.Dataset()
+    for name in stack.data_vars:
+        if OUTPUT_LAYERS.get(name) is not None and not OUTPUT_LAYERS[name].categorical:
+            out[name] = indicators.ensemble_median(stack[name]).astype(np.float32)
+    out["pathway_class"] = indicators.pathway_class(out["pathway_advantage"], margin)
+    out["ensemble_median_advantage"] = out["pathway_advantage"]
+    out["c4_favoured_share"] = indicators.c4_favoured_share(stack["pathway_advantage"], margin).astype(np.float32)
+    out["member_advantage"] = stack["pathway_advantage"]
+    return out
 
 
 def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dataset) -> dict[str, Path]:
@@ -266,7 +341,7 @@ def _write_scenario(cfg, grid, runtime, scenario, result, written, tags, names) 
     with runtime.progress(f"{scenario.name}: computing and writing"):
         paths = write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=None)
     if cfg.output.datacube:
-        cube = result[list(layer_names(DATACUBE))]
+        cube = result[list(layer_names(DATACUBE)) + [n for n in layer_names(DERIVED) if n in result]]
         cube.attrs.update(tags)
         with runtime.progress(f"{scenario.name}: monthly datacube"):
             paths["datacube"] = write_datacube(_georeferenced(cube, grid), scenario_folder / DATACUBE_NAME)
@@ -279,15 +354,26 @@ def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, c
     import rioxarray
 
     changes = {}
-    for name in (n for n in names if OUTPUT_LAYERS[n].kind == CHANGE):
+    for name in (n for n in names if OUTPUT_LAYERS[n].compares is not None):
         layer = OUTPUT_LAYERS[name]
-        scenario_values = result[layer.compares]
+        # an ensemble layer compares every member's layer (member_<compares>) with the baseline's
+        scenario_values = result[layer.compares] if layer.kind == CHANGE else result["member_advantage"]
         written = rioxarray.open_rasterio(baseline_paths[layer.compares], chunks={"x": chunk, "y": chunk},
                                           lock=False, masked=False).squeeze("band", drop=True)
         baseline_values = written.assign_coords(x=scenario_values.x, y=scenario_values.y)
         change = getattr(indicators, layer.indicator)(baseline_values, scenario_values)
         changes[name] = change if layer.categorical else change.astype(np.float32)
     return changes
+
+
+def _write_members(cfg, grid, runtime, scenario, members: dict[str, xr.Dataset], tags, names) -> None:
+    """Each member's seasonal layers in ``<scenario>/members/<member>/`` (``output.member_outputs``)."""
+    seasonal = [n for n in names if OUTPUT_LAYERS[n].kind == SEASONAL]
+    for member, result in members.items():
+        layers = {n: _georeferenced(result[n], grid) for n in seasonal}
+        folder = Path(cfg.output.folder) / scenario.name / "members" / member
+        with runtime.progress(f"{scenario.name}/{member}: computing and writing"):
+            write_layers(layers, folder, tags={**tags, "ensemble_member": member}, cog_options=cfg.output.cog, lock=None)
 
 
 def _georeferenced(layer, grid: TargetGrid):

@@ -21,7 +21,7 @@ import pandas as pd
 from ._version import __version__
 from .assumptions import run_assumptions
 from .caution import CAUTION
-from .config import RunConfig
+from .config import MEMBER_FIELD, RunConfig
 from .inputs import layer_files
 from .outputs import file_checksum
 from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA
@@ -47,7 +47,12 @@ def input_files(cfg: RunConfig, only=None) -> set[Path]:
             files.add(Path(extra))
     for scenario in cfg.scenarios if only is None else only:
         for spec in (scenario.climate or {}).values():
-            files.update(layer_files(spec, cfg.config_dir))
+            if MEMBER_FIELD in str(spec.path) and scenario.members:  # one file (set) per member
+                for member in scenario.members:
+                    files.update(layer_files(spec.model_copy(update={"path": Path(str(spec.path).replace(MEMBER_FIELD, member))}),
+                                             cfg.config_dir))
+            else:
+                files.update(layer_files(spec, cfg.config_dir))
     return files
 
 
@@ -95,10 +100,12 @@ def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
 
 
 def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, checksums=None, records=None,
-                   resumed=()) -> dict[str, Any]:
+                   resumed=(), input_time=None, ensembles=None) -> dict[str, Any]:
     """The run manifest: enough to trace every number back to its config, inputs and code.
 
-    checksums: input path -> sha256 (computed here if None). records: scenario name -> {"scenario_hash",
+    checksums: input path -> sha256 (computed here if None). input_time: "baseline" or scenario name ->
+    layer -> calendar, period and years of the climatology it was made from (member -> layer -> ... for an
+    ensemble). ensembles: scenario -> its members. records: scenario name -> {"scenario_hash",
     "outputs"} as kept for resume (outputs are hashed here if None). resumed: scenarios not recomputed.
     """
     if checksums is None:
@@ -116,6 +123,8 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
         "config_hash": config_hash,
         "config": json.loads(cfg.model_dump_json()),
         "inputs": inputs,
+        "input_periods": input_time or {},
+        "ensembles": {name: list(members) for name, members in (ensembles or {}).items()},
         "outputs": outputs,
         "scenario_records": records,
         "resumed_scenarios": list(resumed),

@@ -9,6 +9,9 @@ Decisions:
 - ``temperature_offset_c`` shifts tmin, tmax and tmean alike (a uniform warming).
 - ``water_availability_factor`` scales availability and the result is capped at 1: availability is a
   fraction of the unstressed supply and cannot exceed it. This is the only cap, and it is documented.
+  Availability derived from rainfall (``precipitation``) is made by the model after the temperature offset
+  (warming raises the evaporative demand) and scaled there by the same rule.
+- A scenario's own ``precipitation`` replaces the baseline's ``water_availability`` and vice versa.
 - A dataset with ``tmean`` but no ``tmin``/``tmax`` gets a daily range of ``diurnal_range_c`` centred on
   the mean (common practice, no source; 10 °C by default, configurable).
 """
@@ -26,6 +29,8 @@ DEFAULT_DIURNAL_RANGE_C = 10.0
 _ALTERNATIVES = {
     "shortwave": ("par",), "par": ("shortwave",), "vpd": ("humidity",), "humidity": ("vpd",),
     "tmean": ("tmin", "tmax"), "tmin": ("tmean",), "tmax": ("tmean",),
+    "precipitation": ("water_availability",),
+    "water_availability": ("precipitation", "pet", "soil_water_capacity"),
 }
 
 
@@ -96,6 +101,13 @@ def apply_scenario(
     for name in ("shortwave", "par"):
         if name in climate and settings.shortwave_factor != 1:
             climate[name] = climate[name] * np.float32(settings.shortwave_factor)
+    return scale_water_availability(climate, settings)
+
+
+def scale_water_availability(climate: xr.Dataset, scenario: Any) -> xr.Dataset:
+    """``water_availability`` times the scenario's ``water_availability_factor``, capped at 1 (see above);
+    also applied by the model to availability derived from rainfall."""
+    settings = ScenarioSettings.from_any(scenario)
     if "water_availability" in climate and settings.water_availability_factor != 1:
         scaled = climate["water_availability"] * np.float32(settings.water_availability_factor)
         climate["water_availability"] = scaled.clip(max=1.0)

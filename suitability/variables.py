@@ -46,6 +46,11 @@ INPUT_VARIABLES: dict[str, Variable] = {
         Variable("par", "mol m-2 d-1", "mean daily photosynthetically active photon flux", (0.0, 100.0), "average", True),
         Variable("water_availability", "1", "water availability, 0 no water to 1 unstressed", (0.0, 1.0), "average", True),
         Variable("water_stress", "1", "water stress, 0 unstressed to 1 no water", (0.0, 1.0), "average", True),
+        Variable("precipitation", "mm d-1", "mean daily precipitation (monthly total / days in the month)",
+                 (0.0, 150.0), "average", True),
+        Variable("pet", "mm d-1", "mean daily reference (potential) evapotranspiration", (0.0, 30.0), "average", True),
+        Variable("soil_water_capacity", "mm", "plant-available soil water capacity of the root zone",
+                 (1.0, 2000.0), "average", False),
         Variable("vpd", "kPa", "mean daytime vapour pressure deficit", (0.0, 10.0), "bilinear", True),
         Variable("humidity", "1", "mean relative humidity as a fraction", (0.0, 1.0), "bilinear", True),
         Variable("elevation", "m", "ground elevation above sea level", (-500.0, 9000.0), "bilinear", False),
@@ -55,6 +60,8 @@ INPUT_VARIABLES: dict[str, Variable] = {
 
 # Aliases that mean the same quantity with the opposite sense or another name.
 WATER_LAYERS = ("water_availability", "water_stress")
+#: Layers from which water availability is derived by the soil-water balance (suitability.model).
+RAINFALL_LAYERS = ("precipitation", "pet", "soil_water_capacity")
 RADIATION_LAYERS = ("shortwave", "par")
 
 CLASS_C3 = 1
@@ -92,7 +99,13 @@ CLASS_TRANSITION_LEGEND = {
     b * 10 + s: f"{CLASS_NAMES[b]} -> {CLASS_NAMES[s]}" for b in CLASS_NAMES for s in CLASS_NAMES
 }
 
-SEASONAL, CHANGE, DATACUBE = "seasonal", "change", "datacube"
+#: Agreement of ensemble members on the direction of the advantage change (our own codes and colours;
+#: classification after IPCC AR6 WGI Cross-Chapter Box Atlas.1, see indicators.change_agreement).
+CHANGE_AGREEMENT_LEGEND = {1: "members agree: toward C3", 2: "low agreement", 3: "members agree: toward C4"}
+CHANGE_AGREEMENT_COLOURS = {1: (38, 66, 150, 255), 2: (221, 221, 221, 255), 3: (176, 45, 28, 255),
+                            CLASS_NODATA: _TRANSPARENT}
+
+SEASONAL, CHANGE, DATACUBE, ENSEMBLE, DERIVED = "seasonal", "change", "datacube", "ensemble", "derived"
 
 
 @dataclass(frozen=True)
@@ -101,8 +114,10 @@ class OutputLayer:
 
     name: file stem (``<name>.tif``) or NetCDF variable name; units, long_name: as written in the metadata.
     kind: "seasonal" (one (y, x) layer per scenario, from the model), "change" (a scenario against the
-        baseline, written for every scenario but the baseline) or "datacube" (monthly (month, y, x), in the
-        NetCDF datacube only).
+        baseline, written for every scenario but the baseline), "datacube" (monthly (month, y, x), in the
+        NetCDF datacube only) or "ensemble" (written only for a scenario with members, from the members'
+        advantage; ``compares`` set: against the baseline, not for the baseline) or "derived" (a monthly
+        input the model derives, e.g. water availability from rainfall; in the datacube when derived).
     valid_range: (min, max) of valid values. resampling: overview resampling ("mode" for classes).
     indicator: how it is computed: the name of the function in :mod:`suitability.indicators` (for
         "seasonal" and "datacube" layers the model calls it inside its block function; "season_total" and
@@ -158,6 +173,16 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
         OutputLayer("class_transition", "1", "baseline class * 10 + scenario class; 255 nodata",
                     (11.0, 44.0), "mode", CHANGE, "class_transition", compares="pathway_class",
                     legend=CLASS_TRANSITION_LEGEND, colours=CLASS_TRANSITION_COLOURS),
+        OutputLayer("ensemble_median_advantage", "1", "median over the ensemble members of the pathway advantage",
+                    (-1.0, 1.0), "average", ENSEMBLE, "ensemble_median"),
+        OutputLayer("c4_favoured_share", "1", "share of ensemble members in which C4 is favoured",
+                    (0.0, 1.0), "average", ENSEMBLE, "c4_favoured_share"),
+        OutputLayer("change_agreement", "1", "ensemble agreement on the direction of the advantage change "
+                    "(after IPCC AR6 WGI Atlas.1): 1 toward C3, 2 low agreement, 3 toward C4, 255 nodata",
+                    (1.0, 3.0), "mode", ENSEMBLE, "change_agreement", compares="pathway_advantage",
+                    legend=CHANGE_AGREEMENT_LEGEND, colours=CHANGE_AGREEMENT_COLOURS),
+        OutputLayer("derived_water_availability", "1", "water availability derived from rainfall: AET/PET of a "
+                    "monthly soil-water balance", (0.0, 1.0), "average", DERIVED, "water_from_rainfall"),
         OutputLayer("c3_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C3 canopy, as carbon",
                     (-1e4, 1e5), "average", DATACUBE, "monthly_total"),
         OutputLayer("c4_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C4 canopy, as carbon",
@@ -171,5 +196,5 @@ def layer_names(*kinds: str) -> tuple[str, ...]:
     return tuple(name for name, layer in OUTPUT_LAYERS.items() if layer.kind in kinds)
 
 
-#: The GeoTIFF layers a run can write (``output.layers`` chooses among them): seasonal and change layers.
-OUTPUT_VARIABLES: dict[str, OutputLayer] = {name: OUTPUT_LAYERS[name] for name in layer_names(SEASONAL, CHANGE)}
+#: The GeoTIFF layers a run can write (``output.layers`` chooses among them): seasonal, change and ensemble layers.
+OUTPUT_VARIABLES: dict[str, OutputLayer] = {name: OUTPUT_LAYERS[name] for name in layer_names(SEASONAL, CHANGE, ENSEMBLE)}

@@ -8,6 +8,7 @@ from .loading import dotted_key, format_validation_error, load_config, validate_
 from .schema import (
     ENGINES,
     LOCAL_SCHEDULERS,
+    MEMBER_FIELD,
     MONTH_FIELD,
     BriefConfig,
     ClassesConfig,
@@ -32,5 +33,5 @@ __all__ = [
     "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
     "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
     "ComputeConfig", "BriefConfig", "load_config", "validate_config", "validate_section", "parse_crs",
-    "is_month_pattern", "MONTH_FIELD", "ENGINES", "LOCAL_SCHEDULERS", "dotted_key", "format_validation_error",
+    "is_month_pattern", "MONTH_FIELD", "MEMBER_FIELD", "ENGINES", "LOCAL_SCHEDULERS", "dotted_key", "format_validation_error",
 ]

@@ -44,6 +44,8 @@ from ..variables import INPUT_VARIABLES, OUTPUT_VARIABLES
 
 #: The ``{month}`` / ``{month:<format>}`` placeholder of a climate path (one file per month).
 MONTH_FIELD = re.compile(r"\{month(?::(?P<spec>[^{}]*))?\}")
+#: The ``{member}`` placeholder of a scenario's climate path (one file per ensemble member).
+MEMBER_FIELD = "{member}"
 _SCENARIO_NAME = re.compile(r"^[A-Za-z0-9_-]+$")
 # Above this many cells (400 GB per float32 layer) a grid is almost surely a units slip, such as a
 # resolution in degrees over bounds in metres (0.01 over 200 km gives 4e14 cells).
@@ -60,6 +62,23 @@ def _resolve_path(value: Path, info: ValidationInfo) -> Path:
 ConfigPath = Annotated[Path, AfterValidator(_resolve_path)]
 _Finite = Annotated[float, Field(allow_inf_nan=False)]
 _Positive = Annotated[float, Field(gt=0, allow_inf_nan=False)]
+
+
+def _check_period(value: Any) -> Any:
+    """``[first_year, last_year]`` (inclusive, both whole years 1..9999, first <= last)."""
+    if value is None:
+        return None
+    if isinstance(value, int) and not isinstance(value, bool):
+        value = [value, value]
+    if (not isinstance(value, (list, tuple)) or len(value) != 2
+            or not all(isinstance(v, int) and not isinstance(v, bool) for v in value)):
+        raise ValueError(f"expected [first_year, last_year] as two whole years, e.g. [2041, 2070], got {value!r}")
+    first, last = value
+    if not (1 <= first <= last <= 9999):
+        raise ValueError(f"expected 1 <= first_year <= last_year <= 9999, got {list(value)}")
+    return (first, last)
+
+
 
 
 def is_month_pattern(path: str | Path) -> bool:
@@ -194,6 +213,9 @@ class LayerSpec(_Section):
     resampling: str | None = None
     nodata: float | None = None
     band: Annotated[int, Field(ge=1)] | None = None
+    period: tuple[int, int] | None = None
+
+    _period_years = field_validator("period", mode="before")(classmethod(lambda cls, v: _check_period(v)))
 
     @field_validator("resampling")
     @classmethod
@@ -272,8 +294,11 @@ class ClimateLayers(RootModel[dict[str, LayerSpec]]):
 
 # Layers that cannot be given together; and the quantity each layer stands for, so that a scenario may
 # replace a baseline layer with its alternative (water_stress for water_availability, par for shortwave).
-_EXCLUSIVE = (("water_availability", "water_stress"), ("shortwave", "par"), ("vpd", "humidity"))
-_CANONICAL = {"water_stress": "water_availability", "par": "radiation", "shortwave": "radiation"}
+_EXCLUSIVE = (("water_availability", "water_stress"), ("shortwave", "par"), ("vpd", "humidity"),
+              ("precipitation", "water_availability"), ("precipitation", "water_stress"))
+_CANONICAL = {"water_stress": "water_availability", "par": "radiation", "shortwave": "radiation",
+              "precipitation": "water_availability", "pet": "water_availability",
+              "soil_water_capacity": "water_availability"}
 
 
 class ClimateConfig(ClimateLayers):
@@ -290,8 +315,11 @@ class ClimateConfig(ClimateLayers):
                 problems.append(f"{a} is given without {b}")
         if not names & {"shortwave", "par"}:
             problems.append("radiation: give shortwave or par")
-        if not names & {"water_availability", "water_stress"}:
-            problems.append("water: give water_availability or water_stress")
+        if not names & {"water_availability", "water_stress", "precipitation"}:
+            problems.append("water: give water_availability or water_stress, or precipitation (with optional pet)")
+        for name in ("pet", "soil_water_capacity"):
+            if name in names and "precipitation" not in names:
+                problems.append(f"{name} is given without precipitation (it serves the soil-water balance of rainfall)")
         for a, b in _EXCLUSIVE:
             if a in names and b in names:
                 problems.append(f"give {a} or {b}, not both")
@@ -360,6 +388,8 @@ class PhysiologyConfig(_Section):
     #: The soil's daily water supply at field capacity, Emax [mm d-1] (suitability.physiology.water;
     #: 5 mm d-1 after Sitch et al. 2003).
     max_water_supply_mm: Annotated[float, Field(gt=0, le=50)] = 5.0
+    soil_water_capacity_mm: Annotated[float, Field(gt=0, le=2000)] = 150.0
+    soil_water_retention: Literal["exponential", "linear"] = "exponential"
 
     @field_validator("c3", "c4")
     @classmethod
@@ -386,6 +416,35 @@ class ScenarioConfig(_Section):
     shortwave_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
     water_availability_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
     climate: ClimateLayers | None = None
+    period: tuple[int, int] | None = None
+    members: list[str] | None = None
+
+    _period_years = field_validator("period", mode="before")(classmethod(lambda cls, v: _check_period(v)))
+
+    @field_validator("members")
+    @classmethod
+    def _member_names(cls, value: list[str] | None) -> list[str] | None:
+        if value is None:
+            return None
+        if len(value) < 2:
+            raise ValueError(f"an ensemble needs at least 2 members, got {value!r}")
+        for name in value:
+            if not _SCENARIO_NAME.match(str(name)):
+                raise ValueError(f"member name {name!r} is used in file and folder names: use only letters, digits, '_' and '-'")
+        if len(set(value)) != len(value):
+            raise ValueError(f"each member once, got {value}")
+        return value
+
+    @model_validator(mode="after")
+    def _member_patterns(self) -> "ScenarioConfig":
+        patterned = [name for name, spec in (self.climate.items() if self.climate else ()) if MEMBER_FIELD in str(spec.path)]
+        if patterned and not self.members:
+            raise _located(("climate", patterned[0], "path"),
+                           f"holds {MEMBER_FIELD} but the scenario lists no members (members: [name, ...])")
+        if self.members and not self.climate:
+            raise ValueError("members: an ensemble needs climate layers of its own (with a {member} pattern path "
+                             "or a member dimension)")
+        return self
 
     @field_validator("name")
     @classmethod
@@ -420,6 +479,7 @@ class OutputConfig(_Section):
     cog: CogConfig = Field(default_factory=dict)
     datacube: bool = False
     overwrite: bool = False
+    member_outputs: bool = False
 
     @field_validator("layers", mode="before")
     @classmethod
@@ -555,6 +615,21 @@ class RunConfig(_Section):
         return baseline
 
     @model_validator(mode="after")
+    def _periods_to_layers(self) -> "RunConfig":
+        """A scenario's ``period`` becomes the period of each of its own layers that gives none; the
+        baseline scenario's also of each ``climate`` layer that gives none (a layer's own period wins)."""
+        for scenario in self.scenarios:
+            if scenario.period is None:
+                continue
+            specs = list(scenario.climate.values()) if scenario.climate else []
+            if scenario.name == self.baseline:
+                specs += list(self.climate.values())
+            for spec in specs:
+                if spec.period is None:
+                    spec.period = scenario.period
+        return self
+
+    @model_validator(mode="after")
     def _remember_where(self, info: ValidationInfo) -> "RunConfig":
         context = info.context or {}
         self._config_dir = Path(context.get("config_dir") or Path.cwd()).absolute()
@@ -625,6 +700,6 @@ def _did_you_mean(value: str, valid) -> str:
 __all__ = [
     "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
     "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
-    "ComputeConfig", "BriefConfig", "parse_crs", "is_month_pattern", "MONTH_FIELD", "ENGINES",
+    "ComputeConfig", "BriefConfig", "parse_crs", "is_month_pattern", "MONTH_FIELD", "MEMBER_FIELD", "ENGINES",
     "LOCAL_SCHEDULERS",
 ]

@@ -15,11 +15,12 @@ from .checks import coverage_share
 from .climate import InputCoverageWarning, load_climate, load_mask, open_layer
 from .inspection import LayerReport, inspect_inputs
 from .native import MONTHS
+from .periods import ShortPeriodWarning, TimeInfo
 from .readers import READERS, Reader, layer_files, month_path, reader_for
 from .units import linear_conversion, output_name, parse_units
 
 __all__ = [
     "open_layer", "load_climate", "load_mask", "inspect_inputs", "layer_files", "LayerReport",
-    "InputCoverageWarning", "parse_units", "linear_conversion", "output_name", "coverage_share",
+    "InputCoverageWarning", "ShortPeriodWarning", "TimeInfo", "parse_units", "linear_conversion", "output_name", "coverage_share",
     "month_path", "READERS", "Reader", "reader_for", "MONTHS",
 ]

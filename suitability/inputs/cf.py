@@ -1,8 +1,10 @@
 """The NetCDF and Zarr reader (CF conventions).
 
-``variable:`` names the variable (optional if the file holds only one gridded variable). A time axis of 12
-steps (the month of each step is taken from the time coordinate, any CF calendar via cftime) or a ``month``
-dimension 1..12. Size-1 extra dimensions (a ``height`` of 2 m) are dropped.
+``variable:`` names the variable (optional if the file holds only one gridded variable). A ``month``
+dimension 1..12, or a CF time axis of any length and calendar (decoded by xarray with cftime), returned as
+``time`` for :mod:`.periods` to make the monthly climatology; a 12-step axis whose time units xarray cannot
+decode ("months since" in the standard calendar) is read month by month as before. Size-1 extra dimensions
+(a ``height`` of 2 m) are dropped.
 
 Decisions
 - Without a grid mapping but with latitude/longitude coordinates (CF standard_name or the names
@@ -52,15 +54,17 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
             raise InputDataError(f"{where}: no CRS (no grid_mapping) and x/y are not longitude/latitude; expected a CF grid_mapping variable")
     var = _to_metres(var, crs, where)
     var = _to_month_axis(var, monthly, where)
-    extra = [d for d in var.dims if d not in ("month", "y", "x")]
+    var = _member_axis(var)
+    extra = [d for d in var.dims if d not in ("member", "time", "month", "y", "x")]
     for dim in extra:
         if var.sizes[dim] != 1:
             raise InputDataError(f"{where}: unexpected dimension {dim!r} of size {var.sizes[dim]}; expected (time or month, y, x)")
     var = var.isel({d: 0 for d in extra}, drop=True)
-    keep = {"x", "y", "month"}
+    keep = {"x", "y", "month", "time", "member"}
     var = var.drop_vars([c for c in var.coords if c not in keep])
-    var = var.transpose(*[d for d in ("month", "y", "x") if d in var.dims])
-    var = var.chunk({**({"month": -1} if "month" in var.dims else {}), "y": chunk, "x": chunk})
+    var = var.transpose(*[d for d in ("member", "time", "month", "y", "x") if d in var.dims])
+    var = var.chunk({**({"month": -1} if "month" in var.dims else {}), **({"time": 31} if "time" in var.dims else {}),
+                     "y": chunk, "x": chunk})
     var = _lon_to_180(var, crs, where)
     _check_regular(var, where)
     if nodata is not None:
@@ -156,8 +160,13 @@ def _to_month_axis(var: xr.DataArray, monthly: bool, where: str) -> xr.DataArray
         if steps != 1:
             _static_error(where, steps)
         return var.isel({dim: 0}, drop=True)
+    if _decoded(var[dim]):  # any CF calendar: the climatology is made by .periods
+        return var.rename({dim: "time"}) if dim != "time" else var
     if steps != 12:
-        raise InputDataError(f"{where}: time axis {dim!r} has {steps} steps; expected 12 (one per month)")
+        units, calendar = var[dim].attrs.get("units", ""), var[dim].attrs.get("calendar", "standard")
+        raise InputDataError(f"{where}: cannot decode the time axis {dim!r} (units {units!r}, calendar {calendar!r}); "
+                             "expected CF time units ('days since ...') in a calendar cftime knows "
+                             "(standard, noleap, 360_day, all_leap, ...) or 12 monthly steps")
     months = _months_of(var[dim], where)
     _check_months(months, where)
     var = var.assign_coords({dim: months}).rename({dim: "month"})
@@ -177,6 +186,25 @@ def _is_time(var: xr.DataArray, dim) -> bool:
     return (coord.attrs.get("axis") == "T" or coord.attrs.get("standard_name") == "time"
             or np.issubdtype(coord.dtype, np.datetime64) or coord.dtype == object
             or "since" in str(coord.attrs.get("units", "")))
+
+
+#: Dimension names of an ensemble of climate-model members (CF/CMIP use "realization"; "member_id" in
+#: CMIP6 catalogues); kept as ``member`` for :func:`.readers.read_native` to select one member.
+_MEMBER_NAMES = ("member", "members", "realization", "realisation", "ensemble", "ens", "member_id")
+
+
+def _member_axis(var: xr.DataArray) -> xr.DataArray:
+    for dim in var.dims:
+        if str(dim).lower() in _MEMBER_NAMES and var.sizes[dim] > 1:
+            labels = var[dim].values if dim in var.coords else np.arange(var.sizes[dim])
+            labels = [x.decode() if isinstance(x, bytes) else str(x) for x in np.asarray(labels).tolist()]
+            return var.rename({dim: "member"}).assign_coords(member=labels)
+    return var
+
+
+def _decoded(time: xr.DataArray) -> bool:
+    return np.issubdtype(time.dtype, np.datetime64) or (
+        time.dtype == object and time.size > 0 and hasattr(time.values.flat[0], "year"))
 
 
 def _months_of(time: xr.DataArray, where: str) -> np.ndarray:

@@ -21,6 +21,11 @@ from .units import output_name, parse_units
 SAMPLE_SIDE = 256
 _TEMPERATURE_LAYERS = ("tmin", "tmax", "tmean")
 _FRACTION_LAYERS = ("water_availability", "water_stress", "humidity")
+_WATER_FLUX_LAYERS = ("precipitation", "pet")
+# A median monthly mean rate above this is taken as totals per month declared per day. The wettest places
+# on Earth have about 30 mm d-1 as an annual mean (about 11 000-12 000 mm a year, from memory); common
+# practice, no source for the threshold itself.
+_MAX_MEDIAN_MM_PER_DAY = 40.0
 
 
 def read_sample(data: xr.DataArray, where: str) -> np.ndarray:
@@ -64,6 +69,16 @@ def check_plausible(name: str, declared: str, scale: float, offset: float, sampl
         )
     if name in _FRACTION_LAYERS and unit == parse_units("1") and float(np.quantile(values, 0.99)) > 1.5:
         raise InputDataError(f"{where}: declared as a fraction (0-1) but the values ({spread}) look like percent; declare units: percent")
+    if name in _WATER_FLUX_LAYERS:
+        rate = scale * values + offset
+        if (rate < 0).any():
+            raise InputDataError(f"{where}: negative values ({spread}); expected rainfall and evapotranspiration >= 0")
+        if float(np.median(rate)) > _MAX_MEDIAN_MM_PER_DAY:
+            raise InputDataError(
+                f"{where}: declared as {declared} but the values ({spread}) give a median of {float(np.median(rate)):.4g} "
+                f"mm d-1, more than any climate's monthly mean rate; they look like totals per month: divide by the "
+                "days of each month, or give the daily rate's units (e.g. mm d-1, kg m-2 s-1)"
+            )
     low, high = INPUT_VARIABLES[output_name(name, declared)].valid_range
     converted = scale * values + offset
     if name == "water_stress":

@@ -15,6 +15,7 @@ from typing import Any
 import numpy as np
 import xarray as xr
 
+from ..config import MEMBER_FIELD
 from ..errors import InputDataError
 from ..grid import TargetGrid, align_to_grid
 from ..variables import INPUT_VARIABLES
@@ -22,14 +23,15 @@ from .checks import check_plausible, coverage_share, read_sample
 from .native import Native
 from .raster import read_raster
 from .readers import absolute, read_native
-from .units import linear_conversion, output_name
+from .units import layer_conversion, output_name
 
 
 class InputCoverageWarning(UserWarning):
     """A layer covers only part of the region; cells outside it are NaN."""
 
 
-def open_layer(name: str, spec: Any, config_dir: str | Path | None = None, *, chunk: int = 512) -> xr.DataArray:
+def open_layer(name: str, spec: Any, config_dir: str | Path | None = None, *, chunk: int = 512,
+               member: str | None = None) -> xr.DataArray:
     """Open one climate layer lazily on its own grid, float32, in canonical units, nodata and invalid values NaN.
 
     name: config layer name (a key of ``variables.INPUT_VARIABLES``); spec: its LayerSpec (path, variable,
@@ -37,20 +39,20 @@ def open_layer(name: str, spec: Any, config_dir: str | Path | None = None, *, ch
     Returns a DataArray named after :func:`output_name`, with the CRS written and ``units`` in attrs.
     Raises InputDataError naming the file, the layer and what was expected.
     """
-    converted, _ = open_converted(name, spec, config_dir, chunk)
+    converted, _ = open_converted(name, spec, config_dir, chunk, member)
     low, high = INPUT_VARIABLES[converted.name].valid_range
     out = converted.where((converted >= low) & (converted <= high))
     out.attrs = converted.attrs
     return out
 
 
-def open_converted(name: str, spec: Any, config_dir, chunk: int) -> tuple[xr.DataArray, Native]:
+def open_converted(name: str, spec: Any, config_dir, chunk: int, member: str | None = None) -> tuple[xr.DataArray, Native]:
     """The layer in canonical units before the valid-range mask, and what was read."""
     if name not in INPUT_VARIABLES:
         raise InputDataError(f"unknown layer {name!r}; expected one of {', '.join(INPUT_VARIABLES)}")
     variable = INPUT_VARIABLES[name]
-    path = absolute(spec.path, config_dir)
-    native = read_native(name, spec, path, variable.monthly, chunk)
+    path = member_path(absolute(spec.path, config_dir), member)
+    native = read_native(name, spec, path, variable.monthly, chunk, member)
     where = f"{path}: layer {name!r}" + (f" (variable {spec.variable!r})" if getattr(spec, "variable", None) else "")
     declared = getattr(spec, "units", None) or native.file_units
     if not declared:
@@ -58,7 +60,7 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int) -> tuple[xr.Dat
     try:
         result_name = output_name(name, declared)
         canonical = INPUT_VARIABLES[result_name].units
-        scale, offset = linear_conversion(declared, "1" if name == "water_stress" else canonical)
+        scale, offset = layer_conversion(name, declared, "1" if name == "water_stress" else canonical)
     except ValueError as exc:
         hint = "" if "expected" in str(exc) else f"; expected units convertible to {INPUT_VARIABLES[name].units}"
         raise InputDataError(f"{where}: {exc}{hint}") from None
@@ -82,6 +84,8 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int) -> tuple[xr.Dat
         "units": canonical, "long_name": INPUT_VARIABLES[result_name].long_name, "source": str(path),
         "source_layer": name, "declared_units": str(declared),
     }
+    if native.time is not None:
+        data.attrs["time_info"] = native.time.as_record()
     return data, native
 
 
@@ -100,19 +104,30 @@ def unit_hint(name: str) -> str:
     return "e.g. " + " or ".join(f"units: {u}" for u in examples)
 
 
-def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path | None = None, chunk: int = 512) -> xr.Dataset:
+def member_path(path: Path, member: str | None) -> Path:
+    """``path`` with its ``{member}`` placeholder replaced by the member's name."""
+    return Path(str(path).replace(MEMBER_FIELD, member)) if member is not None else path
+
+
+def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path | None = None, chunk: int = 512,
+                 member: str | None = None) -> xr.Dataset:
     """All layers of a climate section (or a scenario's overrides) aligned lazily on ``grid``.
 
     climate_config: mapping layer name -> LayerSpec (the config's ``climate`` or a scenario's ``climate``).
     Returns a Dataset keyed by output name (``par`` / ``water_availability`` where converted) with
-    monthly layers (month, y, x), month = 1..12, static layers (y, x), chunks {"month": -1, "y": chunk,
-    "x": chunk}, coordinates exactly the grid's. A layer not reaching the region is an InputDataError; one
+    monthly layers (month, y, x), month = 1..12, static layers (y, x); member: the ensemble member whose
+    files (``{member}`` in a path) or slice (a member dimension) are read; chunks {"month": -1, "y": chunk,
+    "x": chunk}, coordinates exactly the grid's; ``attrs["time_info"]`` maps each layer made from a time
+    series (or a dated 12-step file) to its calendar, period and years (:meth:`.periods.TimeInfo.as_record`). A layer not reaching the region is an InputDataError; one
     covering it partly gives an InputCoverageWarning with the share covered (cells outside are NaN).
     """
     layers: dict[str, xr.DataArray] = {}
+    time_info: dict[str, dict] = {}
     for name, spec in climate_config.items():
-        layer = open_layer(name, spec, config_dir, chunk=chunk)
-        path = absolute(spec.path, config_dir)
+        layer = open_layer(name, spec, config_dir, chunk=chunk, member=member)
+        if "time_info" in layer.attrs:
+            time_info[name] = layer.attrs["time_info"]
+        path = member_path(absolute(spec.path, config_dir), member)
         share = coverage_share(layer, grid)
         if share <= 0.0:
             raise InputDataError(
@@ -127,8 +142,9 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
             raise InputDataError(f"{path}: layer {name!r} gives {layer.name!r}, which another layer already gives")
         layers[layer.name] = align_to_grid(layer, grid, resampling, chunk)
     # Every monthly layer was checked to hold each month 1..12 once (sorted), so their months agree.
-    dataset = xr.Dataset(layers)
-    return dataset.rio.write_crs(grid.crs.to_wkt())
+    dataset = xr.Dataset(layers).rio.write_crs(grid.crs.to_wkt())
+    dataset.attrs["time_info"] = time_info
+    return dataset
 
 
 def load_mask(region_config: Any, grid: TargetGrid, config_dir: str | Path | None = None, chunk: int = 512) -> xr.DataArray | None:

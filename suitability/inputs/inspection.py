@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -13,8 +14,9 @@ from ..grid import TargetGrid
 from ..variables import INPUT_VARIABLES
 from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, read_sample
 from .climate import open_converted
+from .periods import ShortPeriodWarning
 from .raster import read_raster
-from .readers import absolute
+from .readers import absolute, member_labels
 from .units import units_differ
 
 
@@ -29,7 +31,9 @@ class LayerReport:
     declared_units: the config's units, else the file's; file_units: the file's units attribute;
     canonical_units: the units it is converted to. overlap_share: share of the region inside the layer's
     extent [0-1]; nodata_share / out_of_range_share: shares of a sample of the layer within the region
-    (see :func:`.checks.read_sample`) that are nodata / outside the valid range after conversion. problems: errors that
+    (see :func:`.checks.read_sample`) that are nodata / outside the valid range after conversion. time: for a
+    monthly layer, its time axis: calendar, period and years of the climatology (or "12 months").
+    problems: errors that
     stop a run; warnings: notes.
     """
 
@@ -46,6 +50,7 @@ class LayerReport:
     overlap_share: float | None = None
     nodata_share: float | None = None
     out_of_range_share: float | None = None
+    time: str | None = None
     problems: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
 
@@ -66,20 +71,84 @@ def inspect_inputs(config: Any) -> list[LayerReport]:
     entries: list[tuple[str | None, str, Any]] = [(None, n, s) for n, s in config.climate.items()]
     for scenario in config.scenarios:
         entries += [(scenario.name, n, s) for n, s in (scenario.climate.items() if scenario.climate else ())]
+    members_of = {s.name: _members(s, config.config_dir) for s in config.scenarios if s.climate}
     for scenario, name, spec in entries:
-        reports.append(_inspect_layer(name, spec, config.config_dir, grid, scenario))
+        members = members_of.get(scenario) if scenario else None
+        if not members:
+            reports.append(_inspect_layer(name, spec, config.config_dir, grid, scenario))
+            continue
+        # an ensemble: every member is opened; one line per layer, problems named by member
+        each = {m: _inspect_layer(name, spec, config.config_dir, grid, scenario, m) for m in members}
+        report = next(iter(each.values()))
+        report.problems = [f"member {m}: {p}" for m, r in each.items() for p in r.problems]
+        report.warnings = sorted({w for r in each.values() for w in r.warnings})
+        opened = {m: r for m, r in each.items() if not r.problems}
+        kinds = {r.time for r in opened.values()}
+        first = next(iter(opened.values()), report)
+        report.time = (f"{len(members)} members ({', '.join(members)}); {first.time}" if len(kinds) <= 1
+                       else f"{len(members)} members, time axes differ: " + "; ".join(f"{m}: {r.time}" for m, r in opened.items()))
+        reports.append(report)
     if getattr(config.region, "mask", None) is not None and grid is not None:
         reports.append(_inspect_mask(config.region, grid, config.config_dir))
+    reports += _derived_water(config)
     return reports
 
 
-def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, scenario: str | None) -> LayerReport:
+def _derived_water(config: Any) -> list[LayerReport]:
+    """A line per climate (baseline and scenarios with their own rainfall) whose water comes from rainfall."""
+    reports = []
+    physiology = getattr(config, "physiology", None)
+    capacity = getattr(physiology, "soil_water_capacity_mm", 150.0)
+    retention = getattr(physiology, "soil_water_retention", "exponential")
+    sections = [(None, config.climate)] + [(s.name, s.climate) for s in config.scenarios if s.climate]
+    for scenario, climate in sections:
+        if "precipitation" not in climate:
+            continue
+        base = config.climate
+        pet = "pet as given" if "pet" in climate or "pet" in base else "PET by Hargreaves-Samani (FAO-56 eq. 52) from tmin/tmax"
+        bucket = ("soil_water_capacity layer" if "soil_water_capacity" in climate or "soil_water_capacity" in base
+                  else f"capacity {capacity:g} mm")
+        report = LayerReport(layer="water_availability", path="(derived from precipitation)", scenario=scenario, crs="-",
+                             output_name="water_availability", canonical_units="1")
+        report.time = (f"derived: AET/PET of a monthly soil-water balance (Thornthwaite & Mather, {retention} "
+                       f"retention, {bucket}); {pet}")
+        reports.append(report)
+    return reports
+
+
+def _members(scenario: Any, config_dir) -> list[str] | None:
+    """A scenario's members: its ``members`` list, else the labels of a member dimension of its files."""
+    if scenario.members:
+        return list(scenario.members)
+    for name, spec in scenario.climate.items():
+        try:
+            labels = member_labels(name, spec, absolute(spec.path, config_dir), INPUT_VARIABLES[name].monthly)
+        except InputDataError:
+            continue  # reported on the layer's own line
+        if labels:
+            return labels
+    return None
+
+
+def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, scenario: str | None,
+                   member: str | None = None) -> LayerReport:
     report = LayerReport(layer=name, path=str(spec.path), scenario=scenario, declared_units=getattr(spec, "units", None))
     try:
-        converted, native = open_converted(name, spec, config_dir, SAMPLE_SIDE * 2)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", ShortPeriodWarning)
+            converted, native = open_converted(name, spec, config_dir, SAMPLE_SIDE * 2, member)
     except InputDataError as exc:
         report.problems.append(str(exc))
         return report
+    for warning in caught:
+        if issubclass(warning.category, ShortPeriodWarning):
+            report.warnings.append(str(warning.message).split(": ", 1)[-1])
+        else:
+            warnings.warn_explicit(warning.message, warning.category, warning.filename, warning.lineno)
+    if native.time is not None:
+        report.time = native.time.describe()
+    elif "month" in converted.dims:
+        report.time = "12 months"
     report.output_name = converted.name
     report.driver = native.driver
     report.file_units = native.file_units

@@ -24,6 +24,7 @@ from ..config import MONTH_FIELD, is_month_pattern
 from ..errors import InputDataError
 from .cf import read_dataset, read_zarr
 from .native import MONTHS, Native
+from .periods import to_climatology
 from .raster import read_raster
 
 _NETCDF_SUFFIXES = {".nc", ".nc4", ".netcdf", ".cdf", ".h5", ".hdf5"}
@@ -99,8 +100,20 @@ def layer_files(spec: Any, config_dir: str | Path | None = None) -> list[Path]:
     return reader_for(path).files(path)
 
 
-def read_native(name: str, spec: Any, path: Path, monthly: bool, chunk: int) -> Native:
-    """Open layer ``name`` of ``spec`` at ``path`` with the reader that recognises it (or as a ``{month}`` pattern)."""
+def member_labels(name: str, spec: Any, path: Path, monthly: bool) -> list[str] | None:
+    """The labels of a member dimension of the file of layer ``name`` (None if it has none)."""
+    if is_month_pattern(path) or not path.exists():
+        return None
+    reader = reader_for(path)
+    options = {"band": getattr(spec, "band", None), "variable": getattr(spec, "variable", None), "nodata": None}
+    data = reader.read(name, path, monthly=monthly, chunk=512, **options).data
+    return [str(v) for v in data["member"].values] if "member" in data.dims else None
+
+
+def read_native(name: str, spec: Any, path: Path, monthly: bool, chunk: int, member: str | None = None) -> Native:
+    """Open layer ``name`` of ``spec`` at ``path`` with the reader that recognises it (or as a ``{month}`` pattern).
+
+    member: the ensemble member to take from a file with a member dimension (required for such a file)."""
     options = {"band": getattr(spec, "band", None), "variable": getattr(spec, "variable", None),
                "nodata": getattr(spec, "nodata", None)}
     if is_month_pattern(path):
@@ -112,7 +125,20 @@ def read_native(name: str, spec: Any, path: Path, monthly: bool, chunk: int) -> 
     reader = reader_for(path)
     if reader.refuses is not None and options[reader.refuses] is not None:
         raise InputDataError(f"{path}: layer {name!r} " + reader.refusal.format(value=options[reader.refuses]))
-    return reader.read(name, path, monthly=monthly, chunk=chunk, **options)
+    native = reader.read(name, path, monthly=monthly, chunk=chunk, **options)
+    if "member" in native.data.dims:
+        labels = [str(v) for v in native.data["member"].values]
+        if member is None or member not in labels:
+            expected = f"member {member!r} is not among them" if member else "only a scenario's own layers may hold members"
+            raise InputDataError(f"{path}: layer {name!r} has members {', '.join(labels)}; {expected}")
+        crs = native.data.rio.crs
+        native = Native(native.data.sel(member=member, drop=True).rio.write_crs(crs), native.driver, native.file_units)
+    if "time" in native.data.dims:  # a series: the monthly climatology over the layer's period
+        where = f"{path}: layer {name!r}" + (f" (variable {options['variable']!r})" if options["variable"] else "")
+        crs = native.data.rio.crs
+        data, info = to_climatology(native.data, getattr(spec, "period", None), where)
+        native = Native(data.transpose("month", "y", "x").rio.write_crs(crs), native.driver, native.file_units, info)
+    return native
 
 
 def _read_month_pattern(name: str, pattern: Path, options: dict, chunk: int) -> Native:

@@ -55,6 +55,21 @@ def linear_conversion(from_units: str, to_units: str) -> tuple[float, float]:
     return scale, offset
 
 
+#: Layers that are depths (or mass per area) of water: 1 kg m-2 of liquid water is 1 mm deep (density
+#: 1000 kg m-3), so a mass flux such as "kg m-2 s-1" converts to "mm d-1" (the CF way to write rainfall).
+WATER_DEPTH_LAYERS = ("precipitation", "pet", "soil_water_capacity")
+
+
+def layer_conversion(layer: str, from_units: str, to_units: str) -> tuple[float, float]:
+    """:func:`linear_conversion`, with water given as mass per area (kg m-2 ...) read as depth (mm ...)."""
+    if layer in WATER_DEPTH_LAYERS:
+        source, mass = parse_units(from_units), parse_units("kg m-2")
+        if (source / mass).dimensionality == parse_units(to_units).dimensionality / parse_units("mm").dimensionality:
+            scale, offset = linear_conversion(from_units, str(parse_units(to_units) / parse_units("mm") * mass))
+            return scale, offset
+    return linear_conversion(from_units, to_units)
+
+
 def output_name(layer: str, units: str) -> str:
     """The name a layer is returned under: photon-flux radiation -> ``par``; ``water_stress`` -> ``water_availability``."""
     if layer == "water_stress":

@@ -1,0 +1,184 @@
+"""Ensembles end to end: a three-member, two-period scenario set on a small invented grid (tmp_path).
+
+Everything here is invented (a fictional patch of ocean at about 21 deg S 55 deg E only fixes day length).
+The checks compare the ensemble layers with the same members run as single scenarios in the same run
+(derived here: median, share and sign agreement of those single runs), and the agreement classes with the
+rule of IPCC AR6 WGI Cross-Chapter Box Atlas.1 (simple approach: at least 80 % of models agree on the sign
+of change; the 80 % share from memory, confirmed by the Atlas's own code threshold th = 80).
+"""
+
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pytest
+import rasterio
+import xarray as xr
+import yaml
+
+import suitability
+from suitability import indicators
+from suitability.errors import InputDataError
+
+NY, NX = 8, 10
+LAT = -20.8 - 0.02 * (np.arange(NY) + 0.5)  # descending
+LON = 55.0 + 0.02 * (np.arange(NX) + 0.5)
+MEMBERS = {"alpha": 1.0, "beta": 2.5, "gamma": 4.0}  # invented warming of each member [K]
+
+
+def _coords(time=None):
+    coords = {"lat": ("lat", LAT, {"units": "degrees_north", "standard_name": "latitude"}),
+              "lon": ("lon", LON, {"units": "degrees_east", "standard_name": "longitude"})}
+    if time is not None:
+        coords["time"] = time
+    return coords
+
+
+def _season(months):
+    return 4.0 * np.cos(2 * np.pi * (np.asarray(months) - 1) / 12.0)
+
+
+def _field():  # a west-east temperature gradient so the map has C3 and C4 parts
+    return np.linspace(-6.0, 6.0, NX)[None, :] * np.ones((NY, 1))
+
+
+def write_inputs(folder):
+    months = np.arange(1, 13)
+    time = xr.date_range("2000-01-01", periods=12, freq="MS", calendar="noleap", use_cftime=True)
+    tmean = 273.15 + 20.0 + _season(months)[:, None, None] + _field()[None]
+    base = xr.Dataset({"tmin": (("time", "lat", "lon"), (tmean - 5).astype("f4"), {"units": "K"}),
+                       "tmax": (("time", "lat", "lon"), (tmean + 5).astype("f4"), {"units": "K"}),
+                       "rsds": (("time", "lat", "lon"), np.full((12, NY, NX), 220.0, "f4"), {"units": "W m-2"}),
+                       "wa": (("time", "lat", "lon"), np.full((12, NY, NX), 0.9, "f4"), {"units": "1"})},
+                      coords=_coords(time))
+    base.to_netcdf(folder / "baseline.nc")
+    series = xr.date_range("2031-01-01", periods=12 * 30, freq="MS", calendar="noleap", use_cftime=True)
+    m = np.array([t.month for t in series])
+    years = np.array([t.year for t in series])
+    stacked = []
+    for member, warming in MEMBERS.items():
+        trend = warming * (years - 2031) / 29.0  # reaches the member's warming by 2060
+        tm = 273.15 + 20.0 + _season(m)[:, None, None] + trend[:, None, None] + _field()[None]
+        ds = xr.Dataset({"tasmin": (("time", "lat", "lon"), (tm - 5).astype("f4"), {"units": "K"}),
+                         "tasmax": (("time", "lat", "lon"), (tm + 5).astype("f4"), {"units": "K"})},
+                        coords=_coords(series))
+        ds.to_netcdf(folder / f"tas_{member}.nc", encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
+        stacked.append(ds)
+    ensemble = xr.concat(stacked, dim="realization").assign_coords(realization=list(MEMBERS))
+    ensemble.to_netcdf(folder / "tas_ensemble.nc", encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
+
+
+def config(folder, extra_scenarios=(), member_outputs=False):
+    climate = {"tmin": {"path": "baseline.nc", "variable": "tmin"}, "tmax": {"path": "baseline.nc", "variable": "tmax"},
+               "shortwave": {"path": "baseline.nc", "variable": "rsds"},
+               "water_availability": {"path": "baseline.nc", "variable": "wa"}}
+    own = {"tmin": {"path": "tas_{member}.nc", "variable": "tasmin"}, "tmax": {"path": "tas_{member}.nc", "variable": "tasmax"}}
+    scenarios = [
+        {"name": "baseline", "co2_ppm": 420},
+        {"name": "mid", "co2_ppm": 480, "period": [2031, 2040], "members": list(MEMBERS), "climate": own},
+        {"name": "late", "co2_ppm": 560, "period": [2051, 2060],
+         "climate": {"tmin": {"path": "tas_ensemble.nc", "variable": "tasmin"},
+                     "tmax": {"path": "tas_ensemble.nc", "variable": "tasmax"}}},
+        *extra_scenarios,
+    ]
+    cfg = {"region": {"name": "Invented ensemble patch",
+                      "grid": {"crs": "EPSG:4326", "resolution": 0.02, "bounds": [55.0, -20.96, 55.2, -20.8]}},
+           "climate": climate, "scenarios": scenarios,
+           "output": {"folder": "out", "member_outputs": member_outputs, "cog": {"overviews": False}},
+           "compute": {"scheduler": "threads", "workers": 1}}
+    path = folder / "ensemble.yaml"
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    return path
+
+
+def _single(member, period, co2):
+    return {"name": f"late_{member}" if period[0] == 2051 else f"mid_{member}", "co2_ppm": co2, "period": period,
+            "climate": {"tmin": {"path": f"tas_{member}.nc", "variable": "tasmin"},
+                        "tmax": {"path": f"tas_{member}.nc", "variable": "tasmax"}}}
+
+
+def _read(path):
+    with rasterio.open(path) as src:
+        return src.read(1)
+
+
+@pytest.fixture(scope="module")
+def ensemble_run(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("ensemble")
+    write_inputs(folder)
+    singles = [_single(m, [2051, 2060], 560) for m in MEMBERS]
+    result = suitability.run(config(folder, singles, member_outputs=True))
+    return folder, result
+
+
+def test_ensemble_layers_are_written_for_ensembles_only(ensemble_run):
+    _, result = ensemble_run
+    for name in ("mid", "late"):
+        assert {"ensemble_median_advantage", "c4_favoured_share", "change_agreement"} <= set(result.layers[name])
+    assert not {"ensemble_median_advantage", "c4_favoured_share", "change_agreement"} & set(result.layers["baseline"])
+    assert "ensemble_median_advantage" not in result.layers["late_alpha"]
+    assert result.manifest["ensembles"] == {"mid": list(MEMBERS), "late": list(MEMBERS)}
+
+
+def test_ensemble_layers_equal_the_members_run_alone(ensemble_run):
+    folder, result = ensemble_run
+    singles = np.stack([_read(result.layers[f"late_{m}"]["pathway_advantage"]) for m in MEMBERS])
+    median = _read(result.layers["late"]["ensemble_median_advantage"])
+    np.testing.assert_allclose(median, np.median(singles, axis=0), atol=1e-6)  # derived here: median of the single runs
+    np.testing.assert_allclose(_read(result.layers["late"]["pathway_advantage"]), median)
+    share = _read(result.layers["late"]["c4_favoured_share"])
+    np.testing.assert_allclose(share, (singles > 0.05).mean(axis=0), atol=1e-6)  # 0.05 = default contested margin
+    assert set(np.unique(np.round(share * 3)).tolist()) <= {0.0, 1.0, 2.0, 3.0}
+    # per-member outputs on request, identical to the single runs
+    member_file = folder / "out" / "late" / "members" / "beta" / "pathway_advantage.tif"
+    np.testing.assert_allclose(_read(member_file), singles[1], atol=1e-6)
+
+
+def test_change_agreement_follows_the_sign_rule(ensemble_run):
+    _, result = ensemble_run
+    baseline = _read(result.layers["baseline"]["pathway_advantage"])
+    singles = np.stack([_read(result.layers[f"late_{m}"]["pathway_advantage"]) for m in MEMBERS])
+    change = singles - baseline
+    agreement = _read(result.layers["late"]["change_agreement"])
+    # AR6 Atlas.1 simple approach with 3 members: 80 % agreement needs all three of the same sign
+    expected = np.where((change > 0).all(axis=0), 3, np.where((change < 0).all(axis=0), 1, 2))
+    np.testing.assert_array_equal(agreement, expected)
+    # the invented members all warm by 1-4 K and CO2 rises to 560 ppm: both directions occur or one does,
+    # but every code is one of the legend's
+    assert set(np.unique(agreement).tolist()) <= {1, 2, 3}
+    with rasterio.open(result.layers["late"]["change_agreement"]) as src:
+        assert src.colormap(1)
+
+
+def test_manifest_records_periods_and_members(ensemble_run):
+    _, result = ensemble_run
+    manifest = json.loads(result.manifest_path.read_text())
+    mid = manifest["input_periods"]["mid"]
+    assert set(mid) == set(MEMBERS)
+    assert mid["beta"]["tmin"]["period"] == [2031, 2040] and mid["beta"]["tmin"]["calendar"] == "noleap"
+    assert manifest["input_periods"]["late"]["gamma"]["tmax"]["years"] == 10
+    # timings of the ensemble scenario and of the same members run singly are both recorded
+    assert "scenario_late_s" in manifest["timings"] and "scenario_late_alpha_s" in manifest["timings"]
+
+
+def test_agreement_indicator_codes():
+    # derived here from the AR6 Atlas.1 simple rule (>= 80 % on one sign), 5 members: 4 of 5 agree = 80 %
+    base = xr.DataArray(np.zeros(4), dims="x")
+    members = xr.DataArray(np.array([[1, 1, -1, np.nan], [1, 1, -1, 1], [1, -1, -1, 1], [1, 1, -1, 1], [-1, 1, 1, 1.0]]),
+                           dims=("member", "x"))
+    codes = indicators.change_agreement(base, members)
+    assert codes.values.tolist() == [3, 3, 1, 255]
+    assert indicators.change_agreement(base, members[:3]).values.tolist()[:3] == [3, 2, 1]  # 2 of 3 = 67 % < 80 %
+
+
+def test_mixed_monthly_and_daily_members_are_refused(tmp_path):
+    write_inputs(tmp_path)
+    daily = xr.date_range("2031-01-01", "2040-12-31", freq="D", calendar="noleap", use_cftime=True)
+    ds = xr.Dataset({name: (("time", "lat", "lon"), np.full((daily.size, NY, NX), 295.0, "f4"), {"units": "K"})
+                     for name in ("tasmin", "tasmax")}, coords=_coords(daily))
+    ds.to_netcdf(tmp_path / "tas_gamma.nc", encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
+    with pytest.raises(InputDataError, match="mixes time steps between members") as info:
+        suitability.run(config(tmp_path))
+    assert "tas_{member}.nc" in str(info.value) and "'tmin'" in str(info.value)
+    assert not (tmp_path / "out").exists() or not any((tmp_path / "out").rglob("*.tif"))  # nothing written

@@ -1,0 +1,173 @@
+"""Multi-year CF series to a monthly climatology over a period (suitability.inputs.periods).
+
+Small invented CF files written in tmp_path with the conventions real downscaled files have: noleap and
+360_day calendars, longitudes 0-360, int16 packed with scale_factor/add_offset, descending latitude,
+daily steps. Expected climatologies are computed here independently with numpy from the values written
+(derived here from the definition of a multi-year monthly mean).
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+import pytest
+import xarray as xr
+
+from suitability.config import LayerSpec
+from suitability.errors import InputDataError
+from suitability.inputs import ShortPeriodWarning, open_layer
+from suitability.inputs.readers import read_native
+
+LAT = np.array([-20.1, -20.3, -20.5, -20.7])  # descending, as many model grids are
+LON = np.array([55.1, 55.3, 55.5, 55.7, 55.9])
+
+
+def spec(path, **kw) -> LayerSpec:
+    return LayerSpec.model_validate({"path": str(path), **kw})
+
+
+def series(path, values_of, *, calendar="noleap", years=(2041, 2070), daily=False, lon=LON, units="K",
+           name="tas", pack=False, ramp=1.0):
+    """A CF NetCDF with a time series; values_of(time index array of cftime dates) -> array (time,)."""
+    if daily:
+        last_day = 30 if calendar == "360_day" else 31
+        times = xr.date_range(f"{years[0]}-01-01", f"{years[1]}-12-{last_day}", freq="D", calendar=calendar,
+                              use_cftime=True)
+    else:
+        times = xr.date_range(f"{years[0]}-01-01", periods=12 * (years[1] - years[0] + 1), freq="MS",
+                              calendar=calendar, use_cftime=True)
+    per_step = np.asarray(values_of(times), dtype="float64")
+    field = ramp * (0.01 * np.arange(LAT.size)[:, None] + 0.001 * np.arange(lon.size)[None, :])
+    values = per_step[:, None, None] + field[None]
+    ds = xr.Dataset(
+        {name: (("time", "lat", "lon"), values.astype("float32"), {"units": units})},
+        coords={"time": times,
+                "lat": ("lat", LAT, {"standard_name": "latitude", "units": "degrees_north"}),
+                "lon": ("lon", lon, {"standard_name": "longitude", "units": "degrees_east"})},
+    )
+    encoding = {"time": {"units": "days since 1950-01-01", "calendar": calendar}}
+    if pack:
+        encoding[name] = {"dtype": "int16", "scale_factor": 0.01, "add_offset": 280.0, "_FillValue": -32768}
+    ds.to_netcdf(path, encoding=encoding)
+    return path, per_step, times
+
+
+def _oracle(per_step, times, first, last):
+    """Mean per calendar month of the steps in [first, last] (numpy, independent of the package)."""
+    years = np.array([t.year for t in times])
+    months = np.array([t.month for t in times])
+    keep = (years >= first) & (years <= last)
+    return np.array([per_step[keep & (months == m)].mean() for m in range(1, 13)])
+
+
+def _seasonal(times):
+    return np.array([280.0 + 10 * np.sin(2 * np.pi * (t.month - 1) / 12) + 0.05 * (t.year - 2041) for t in times])
+
+
+def test_noleap_monthly_series_over_a_period(tmp_path):
+    path, per_step, times = series(tmp_path / "t.nc", _seasonal)
+    layer = open_layer("tmean", spec(path, period=[2050, 2059]))
+    assert layer.dims == ("month", "y", "x") and layer.chunks is not None  # lazy: still dask-backed
+    expected = _oracle(per_step, times, 2050, 2059) - 273.15  # derived here: mean of the written values
+    np.testing.assert_allclose(layer.values[:, 0, 0], expected, atol=1e-4)
+    info = read_native("tmean", spec(path, period=[2050, 2059]), path, True, 512).time
+    assert (info.calendar, info.period, info.years, info.steps, info.time_steps) == ("noleap", (2050, 2059), 10, "monthly", 360)
+
+
+def test_whole_file_is_the_default_and_short_series_warn(tmp_path):
+    path, per_step, times = series(tmp_path / "t.nc", _seasonal, years=(2041, 2045))
+    with pytest.warns(ShortPeriodWarning, match="5 year"):
+        layer = open_layer("tmean", spec(path))
+    np.testing.assert_allclose(layer.values[:, 0, 0], _oracle(per_step, times, 2041, 2045) - 273.15, atol=1e-4)
+    long_path, _, _ = series(tmp_path / "long.nc", _seasonal, years=(2041, 2050))
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", ShortPeriodWarning)  # 10 years: no warning
+        open_layer("tmean", spec(long_path))
+
+
+@pytest.mark.parametrize("calendar", ["360_day", "noleap", "all_leap", "standard"])
+def test_daily_series_in_any_calendar(tmp_path, calendar):
+    def daily(times):  # a value depending on the month and the day, so day weighting matters
+        return np.array([270.0 + t.month + 0.1 * t.day for t in times])
+
+    path, per_step, times = series(tmp_path / "d.nc", daily, calendar=calendar, years=(2001, 2002), daily=True)
+    with pytest.warns(ShortPeriodWarning):
+        native = read_native("tmin", spec(path), path, True, 512)
+    assert native.time.steps == "daily" and native.time.years == 2
+    assert native.time.calendar in (calendar, "proleptic_gregorian", "gregorian")
+    expected = _oracle(per_step, times, 2001, 2002)  # mean of every day of the month: the mean of daily minima
+    np.testing.assert_allclose(native.data.values[:, 0, 0], expected, atol=1e-3)
+    if calendar == "360_day":  # every month has 30 days: mean of 0.1 * day over 1..30 is 1.55
+        np.testing.assert_allclose(expected, 270.0 + np.arange(1, 13) + 1.55)
+
+
+def test_packed_int16_lon_0_360_descending_lat(tmp_path):
+    lon = np.array([350.1, 350.3, 350.5, 350.7, 350.9])
+    path, per_step, times = series(tmp_path / "p.nc", _seasonal, lon=lon, pack=True, years=(2041, 2050))
+    layer = open_layer("tmean", spec(path))
+    np.testing.assert_allclose(layer.x.values, lon - 360.0, atol=1e-9)  # 0..360 -> -180..180
+    assert layer.y.values[0] > layer.y.values[-1]  # north-up
+    # int16 with scale 0.01: each value within half a packing step of what was written
+    np.testing.assert_allclose(layer.values[:, 0, 0], _oracle(per_step, times, 2041, 2050) - 273.15, atol=0.006)
+
+
+def test_rainfall_in_kg_m2_s1_series(tmp_path):
+    def rain(times):  # 2e-5 kg m-2 s-1 in every month = 1.728 mm d-1 (86400 s d-1; 1 kg m-2 = 1 mm of water)
+        return np.full(len(times), 2e-5)
+
+    path, _, _ = series(tmp_path / "pr.nc", rain, units="kg m-2 s-1", name="pr", years=(2041, 2050), ramp=0.0)
+    layer = open_layer("precipitation", spec(path))
+    np.testing.assert_allclose(layer.values[:, 0, 0], 2e-5 * 86400, rtol=1e-5)
+
+
+def test_negative_rainfall_is_refused(tmp_path):
+    path, _, _ = series(tmp_path / "pr.nc", lambda t: np.full(len(t), -1e-5), units="kg m-2 s-1", name="pr",
+                        years=(2041, 2050), ramp=0.0)
+    with pytest.raises(InputDataError, match="negative values") as info:
+        open_layer("precipitation", spec(path))
+    assert "pr.nc" in str(info.value) and "'precipitation'" in str(info.value)
+
+
+def test_totals_per_month_declared_per_day_are_refused(tmp_path):
+    # 60-250 mm in a month declared as mm d-1: a median above 40 mm d-1 (threshold: common practice, no source)
+    path, _, _ = series(tmp_path / "pr.nc", lambda t: np.array([60.0 + 15 * (x.month % 12) for x in t]),
+                        units="mm d-1", name="pr", years=(2041, 2050))
+    with pytest.raises(InputDataError, match="look like totals per month") as info:
+        open_layer("precipitation", spec(path))
+    assert "pr.nc" in str(info.value)
+    with pytest.raises(InputDataError, match="per month or year"):  # and mm per month is refused outright
+        open_layer("precipitation", spec(path, units="mm month-1"))
+
+
+def test_twelve_steps_keep_working_and_record_the_calendar(tmp_path):
+    path, per_step, times = series(tmp_path / "c.nc", _seasonal, years=(2000, 2000))
+    native = read_native("tmean", spec(path, period=[2041, 2070]), path, True, 512)  # a climatology: period not applied
+    assert native.time.steps == "climatology" and native.time.calendar == "noleap"
+    np.testing.assert_allclose(native.data.values[:, 0, 0], per_step, atol=1e-4)
+
+
+def test_period_outside_the_files_years_is_refused(tmp_path):
+    path, _, _ = series(tmp_path / "t.nc", _seasonal, years=(2041, 2060))
+    with pytest.raises(InputDataError, match=r"period 2041-2070 is outside the file's years 2041-2060") as info:
+        open_layer("tmean", spec(path, period=[2041, 2070]))
+    assert str(path) in str(info.value) and "'tmean'" in str(info.value)
+
+
+def test_undecodable_calendar_is_refused(tmp_path):
+    times = np.arange(36, dtype="float64")
+    ds = xr.Dataset({"tas": (("time", "lat", "lon"), np.full((36, LAT.size, LON.size), 290.0, "float32"), {"units": "K"})},
+                    coords={"time": ("time", times, {"units": "days since 2000-01-01", "calendar": "martian_sols"}),
+                            "lat": LAT, "lon": LON})
+    ds.to_netcdf(tmp_path / "bad.nc")
+    with pytest.raises(InputDataError, match="cannot decode the time axis") as info:
+        open_layer("tmean", spec(tmp_path / "bad.nc"))
+    assert "bad.nc" in str(info.value) and "'tmean'" in str(info.value)
+
+
+def test_period_in_config_validation():
+    assert LayerSpec.model_validate({"path": "a.nc", "period": [2041, 2070]}).period == (2041, 2070)
+    with pytest.raises(ValueError, match="first_year <= last_year"):
+        LayerSpec.model_validate({"path": "a.nc", "period": [2070, 2041]})
+    with pytest.raises(ValueError, match="two whole years"):
+        LayerSpec.model_validate({"path": "a.nc", "period": ["2041", 2070.5]})
