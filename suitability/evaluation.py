@@ -175,8 +175,8 @@ def _require_layers(layers: dict, what: str) -> None:
         missing.append("tmin and tmax (or tmean) [degC]")
     if not names & {"shortwave", "par"}:
         missing.append("shortwave [MJ m-2 d-1] (or par [mol m-2 d-1])")
-    if "water_availability" not in names:
-        missing.append("water_availability [0-1]")
+    if not names & {"water_availability", "water_stress", "precipitation"}:
+        missing.append("water_availability [0-1] (or precipitation [mm d-1])")
     if missing:
         raise InputDataError(f"{what}: missing {', '.join(missing)}; has {', '.join(sorted(names))}")
 
