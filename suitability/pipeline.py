@@ -27,7 +27,7 @@ from .grid import TargetGrid
 from .inputs import load_climate, load_mask
 from .model import evaluate
 from .outputs import check_output_folder, remove_leftovers, write_csv, write_datacube, write_layers, write_manifest
-from .provenance import MANIFEST_NAME, build_manifest, class_summary, input_checksums, scenario_tags
+from .provenance import MANIFEST_NAME, build_manifest, class_summary, input_checksums, input_files, scenario_tags
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
 from .runlock import RunLock
 from .runtime import compute_context
@@ -104,7 +104,8 @@ def run(
             _check_brief_inputs(cfg)
         check_output_folder(folder)
         with RunLock(folder) as lock:
-            _clear_after_takeover(lock, folder)
+            _clear_after_takeover(lock, folder, [s.name for s in scenarios])
+            _warn_about_foreign_files(cfg, folder)
             checksums = input_checksums(cfg)
             hashes = {s.name: scenario_hash(cfg, s, layers_of(s), checksums) for s in scenarios}
             records = verified_records(folder, hashes, cfg.baseline) if resume else {}
@@ -125,7 +126,6 @@ def run(
                 records[scenario.name] = scenario_record(hashes[scenario.name], written[scenario.name])
                 write_progress(folder, records)
             summary = class_summary({s.name: written[s.name]["pathway_class"] for s in scenarios})
-            write_csv(summary, folder / SUMMARY_NAME)
             briefs: dict[str, Path] = {}
             if cfg.brief is not None:
                 with clock("briefs_s"):
@@ -133,6 +133,9 @@ def run(
             timings["total_s"] = time.perf_counter() - started
             manifest = build_manifest(cfg, config_hash, written, summary, timings, briefs, checksums=checksums,
                                       records=records, resumed=resumed)
+            # The summary and the manifest are the last two files, written only when everything else is:
+            # their presence says the run finished (a crash in the briefs leaves neither).
+            write_csv(summary, folder / SUMMARY_NAME)
             manifest_path = write_manifest(manifest, folder / MANIFEST_NAME)
             (folder / PROGRESS_NAME).unlink(missing_ok=True)
     return RunResult(
@@ -184,7 +187,8 @@ def briefs_of_finished_run(cfg: RunConfig) -> dict[str, Path]:
     if not folder.is_dir():
         raise InputDataError(f"output folder {folder} does not exist; expected the folder of a finished run")
     grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
-    with RunLock(folder):
+    with RunLock(folder) as lock:
+        _clear_after_takeover(lock, folder, [s.name for s in cfg.scenarios])
         today = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
         return make_briefs(cfg, {s.name: folder / s.name for s in cfg.scenarios}, today)
 
@@ -202,16 +206,46 @@ def _check_brief_inputs(cfg: RunConfig) -> None:
     """Refuse unusable district polygons before computing (the briefs are made last)."""
     if cfg.brief is None:
         return
+    from .reports.brief import MAX_DISTRICT_BRIEFS
     from .reports.zones import read_zones
 
-    read_zones(cfg.brief.zones, cfg.brief.name_field)
+    zones = read_zones(cfg.brief.zones, cfg.brief.name_field)
+    if cfg.brief.per_district and len(zones) > MAX_DISTRICT_BRIEFS:
+        raise ConfigError(
+            f"{cfg.source_path or '<config>'}: brief.per_district: the district file {cfg.brief.zones} has "
+            f"{len(zones)} districts, and one brief each would be {2 * len(zones)} HTML and PDF files; at most "
+            f"{MAX_DISTRICT_BRIEFS} districts get briefs of their own. Set per_district: false (the region briefs "
+            "and the district table cover every district) or split the district file"
+        )
 
 
-def _clear_after_takeover(lock: RunLock, folder: Path) -> None:
+def _clear_after_takeover(lock: RunLock, folder: Path, scenario_names) -> None:
     if lock.taken_over_from is not None:
         warnings.warn(f"{lock.path}: taken over from {lock.taken_over_from.describe()}, which no longer "
                       "holds it (a run that was killed); its temporary files are removed", stacklevel=3)
-    remove_leftovers(folder)
+    remove_leftovers(folder, [*scenario_names, "brief"])
+
+
+def _warn_about_foreign_files(cfg: RunConfig, folder: Path) -> None:
+    """Warn when the output folder holds input files, or files and folders the tool does not write there.
+
+    Nothing is removed or refused: the tool only ever replaces its own outputs (and with --overwrite), but a
+    folder shared with inputs or other work is easy to damage by hand afterwards.
+    """
+    resolved = folder.resolve()
+    inputs = [Path(path) for path in input_files(cfg)]
+    inside = sorted(str(p) for p in inputs if resolved == p.resolve().parent or resolved in p.resolve().parents)
+    if inside:
+        shown = ", ".join(inside[:3]) + (f" and {len(inside) - 3} more" if len(inside) > 3 else "")
+        warnings.warn(f"output folder {folder} holds input files of this run ({shown}); keep outputs in a "
+                      "folder of their own", stacklevel=3)
+    own = {MANIFEST_NAME, SUMMARY_NAME, PROGRESS_NAME, "brief", *(s.name for s in cfg.scenarios)}
+    foreign = sorted(p.name for p in folder.iterdir()
+                     if p.name not in own and not p.name.startswith(".suitability"))
+    if foreign:
+        shown = ", ".join(foreign[:5]) + (f" and {len(foreign) - 5} more" if len(foreign) > 5 else "")
+        warnings.warn(f"output folder {folder} also holds {len(foreign)} file(s) or folder(s) the tool does not "
+                      f"write ({shown}); they are left as they are", stacklevel=3)
 
 
 def _prepare_folder(cfg: RunConfig, folder: Path, to_compute, layers_of, *, replace: bool) -> None:
