@@ -95,8 +95,9 @@ def run(
     folder = Path(cfg.output.folder)
     scenarios = cfg.scenarios_baseline_first()
     layers_of = selected_layers(cfg)
+    input_warnings: list[str] = []
     with compute_context(cfg.compute, progress=progress) as runtime:
-        with clock("open_inputs_s"):
+        with clock("open_inputs_s"), _recording_input_warnings(input_warnings):
             today = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
             climate = _model_inputs(cfg, grid, today)
             own_layers = {s.name: load_climate(s.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
@@ -123,6 +124,7 @@ def run(
                     tags = scenario_tags(scenario, config_hash, hashes[scenario.name])
                     written[scenario.name] = _write_scenario(cfg, grid, runtime, scenario, result, written, tags,
                                                              layers_of(scenario))
+                _refuse_empty_map(cfg, scenario, written[scenario.name])
                 records[scenario.name] = scenario_record(hashes[scenario.name], written[scenario.name])
                 write_progress(folder, records)
             summary = class_summary({s.name: written[s.name]["pathway_class"] for s in scenarios})
@@ -133,6 +135,7 @@ def run(
             timings["total_s"] = time.perf_counter() - started
             manifest = build_manifest(cfg, config_hash, written, summary, timings, briefs, checksums=checksums,
                                       records=records, resumed=resumed)
+            manifest["input_warnings"] = input_warnings
             # The summary and the manifest are the last two files, written only when everything else is:
             # their presence says the run finished (a crash in the briefs leaves neither).
             write_csv(summary, folder / SUMMARY_NAME)
@@ -224,6 +227,34 @@ def _clear_after_takeover(lock: RunLock, folder: Path, scenario_names) -> None:
         warnings.warn(f"{lock.path}: taken over from {lock.taken_over_from.describe()}, which no longer "
                       "holds it (a run that was killed); its temporary files are removed", stacklevel=3)
     remove_leftovers(folder, [*scenario_names, "brief"])
+
+
+@contextmanager
+def _recording_input_warnings(into: list[str]):
+    """Pass every warning on as usual, and keep the text of the input-data ones (coverage, lost cells)
+    for the manifest."""
+    from .inputs.climate import InputCoverageWarning, InputLossWarning
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        yield
+    for warning in caught:
+        if issubclass(warning.category, (InputCoverageWarning, InputLossWarning)):
+            into.append(str(warning.message))
+        warnings.warn_explicit(warning.message, warning.category, warning.filename, warning.lineno)
+
+
+def _refuse_empty_map(cfg: RunConfig, scenario, paths: dict[str, Path]) -> None:
+    """A scenario that maps no cell is an error (exit 3), not a finished run with empty maps."""
+    counted = class_summary({scenario.name: paths["pathway_class"]})
+    if int(counted["valid_cells"].iloc[0]) > 0:
+        return
+    raise InputDataError(
+        f"scenario {scenario.name!r} maps no cell of the region ({paths['pathway_class']} holds only nodata): "
+        "every cell lost a value to the mask, to nodata or invalid values of an input, or to the scenario's "
+        f"settings (co2_ppm {scenario.co2_ppm:g}, temperature_offset_c {scenario.temperature_offset_c:g}); "
+        f"run 'suitability check {cfg.source_path or 'CONFIG'}' and look at the nodata column"
+    )
 
 
 def _warn_about_foreign_files(cfg: RunConfig, folder: Path) -> None:

@@ -37,6 +37,51 @@ def read_sample(data: xr.DataArray, where: str) -> np.ndarray:
     return np.asarray(values, dtype=np.float64)
 
 
+#: Share of a layer's (or one month's) sampled cells that may be lost to invalid values before a
+#: warning names them (common practice, no source: a few edge cells are normal, 1 % is not noise).
+LOSS_WARNING_SHARE = 0.01
+
+
+def lost_cells(name: str, converted: xr.DataArray, sample: np.ndarray, where: str) -> list[str]:
+    """Warnings for the cells a layer loses on reading, from a sample in canonical units (before the
+    valid-range mask) of the region: the share of values that are not finite or outside the layer's valid
+    range, per month where it has months, and months with more nodata than the layer's best month (a
+    month missing in part, e.g. missing chunks). Each names ``where`` (file and layer), the months and
+    the share; one for every kind of loss above :data:`LOSS_WARNING_SHARE`. ``check`` and ``run`` both
+    call this on the same sample."""
+    if sample.size == 0:
+        return []
+    low, high = INPUT_VARIABLES[converted.name].valid_range
+    values = sample.reshape((-1,) + sample.shape[-2:]) if sample.ndim >= 2 else sample.reshape(1, 1, -1)
+    months = [int(m) for m in converted["month"].values] if "month" in converted.dims else [None]
+    invalid, nodata = [], []
+    with np.errstate(invalid="ignore"):
+        for block in values:
+            present = ~np.isnan(block)
+            bad = present & ~((block >= low) & (block <= high))  # +-inf and out-of-range values
+            invalid.append(float(bad.mean()))
+            nodata.append(float((~present).mean()))
+    warnings_: list[str] = []
+    units = INPUT_VARIABLES[converted.name].units
+    lossy = [(m, share) for m, share in zip(months, invalid) if share > LOSS_WARNING_SHARE]
+    if lossy:
+        warnings_.append(f"{where}: {_months_text(lossy)} lose cells to values that are not finite or outside "
+                         f"{low:g}..{high:g} {units} (they become nodata)")
+    if len(nodata) > 1:
+        best = min(nodata)
+        gaps = [(m, share - best) for m, share in zip(months, nodata) if share - best > LOSS_WARNING_SHARE]
+        if gaps:
+            warnings_.append(f"{where}: {_months_text(gaps)} have more nodata than the layer's most complete month "
+                             "(missing or damaged parts of the file?)")
+    return warnings_
+
+
+def _months_text(items: list[tuple[int | None, float]]) -> str:
+    if items[0][0] is None:
+        return f"{items[0][1]:.1%} of the sampled cells"
+    return ", ".join(f"month {m}: {share:.1%}" for m, share in items) + " of the sampled cells"
+
+
 def _sample_index(size: int, windows: int = 8, width: int = SAMPLE_SIDE // 8):
     if size <= windows * width:
         return slice(None)
@@ -120,3 +165,13 @@ def cells_per_grid_cell(data: xr.DataArray, grid: TargetGrid) -> float | None:
         return None
     layer_cell = footprint.area / (data.sizes["x"] * data.sizes["y"])
     return grid.resolution[0] * grid.resolution[1] / layer_cell
+
+
+def region_window(data: xr.DataArray, grid: TargetGrid) -> xr.DataArray:
+    """The part of a native-grid layer that lies under the region's bounds (in the layer's CRS)."""
+    from pyproj import CRS, Transformer
+
+    to_layer = Transformer.from_crs(grid.crs, CRS.from_user_input(data.rio.crs.to_wkt()), always_xy=True)
+    xmin, ymin, xmax, ymax = to_layer.transform_bounds(*grid.bounds, densify_pts=21)
+    window = data.sel(x=slice(xmin, xmax), y=slice(ymax, ymin))
+    return window if window.sizes["x"] and window.sizes["y"] else data
