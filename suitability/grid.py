@@ -96,6 +96,14 @@ class TargetGrid:
             transform = Affine(transform.a, 0.0, transform.c, 0.0, -transform.e, transform.f + transform.e * height)
         if transform.a < 0:
             raise InputDataError(f"{path}: the 'like' raster runs east to west (negative pixel width); expected west to east")
+        from .config.schema import MAX_GRID_CELLS
+
+        if width * height > MAX_GRID_CELLS:
+            raise InputDataError(
+                f"{path}: the 'like' raster has {width} x {height} = {width * height:.3g} cells, "
+                f"{width * height * 4 / 2**30:.3g} GiB per float32 layer; at most {MAX_GRID_CELLS:.0e} cells: "
+                "expected a raster of the region at the resolution wanted, or split the region"
+            )
         return cls(CRS.from_user_input(crs.to_wkt()), transform, int(width), int(height))
 
     # ------------------------------------------------------------------------------------ geometry

@@ -22,7 +22,7 @@ from . import indicators
 from ._version import __version__
 from .caution import CAUTION
 from .config import ComputeConfig, RunConfig, load_config, validate_section
-from .errors import ConfigError, InputDataError
+from .errors import ConfigError, InputDataError, OutputError
 from .grid import TargetGrid
 from .inputs import load_climate, load_mask
 from .model import evaluate
@@ -113,6 +113,7 @@ def run(
             resumed = [s.name for s in scenarios if s.name in records]
             to_compute = [s for s in scenarios if s.name not in records]
             _prepare_folder(cfg, folder, to_compute, layers_of, replace=cfg.output.overwrite or resume)
+            _check_disk_space(cfg, grid, folder, to_compute, layers_of)
             write_progress(folder, records)
             written = {name: record_paths(folder, name, record) for name, record in records.items()}
             config_hash = cfg.config_hash()
@@ -227,6 +228,42 @@ def _clear_after_takeover(lock: RunLock, folder: Path, scenario_names) -> None:
         warnings.warn(f"{lock.path}: taken over from {lock.taken_over_from.describe()}, which no longer "
                       "holds it (a run that was killed); its temporary files are removed", stacklevel=3)
     remove_leftovers(folder, [*scenario_names, "brief"])
+
+
+#: Compression the disk check counts on at most: outputs are refused before computing only when they would
+#: not fit even this many times smaller than uncompressed (DEFLATE with a predictor on smooth fields;
+#: common practice, no source).
+_BEST_COMPRESSION = 10
+
+
+def _check_disk_space(cfg: RunConfig, grid: TargetGrid, folder: Path, to_compute, layers_of) -> None:
+    """Refuse (exit 4) a run whose outputs cannot fit on the disk, warn when they may not; arithmetic in
+    the message. Uncompressed size: cells x (4 bytes per float layer, 1 per class layer) per scenario,
+    plus the monthly datacube (4 bytes x 12 months per layer)."""
+    import shutil
+
+    cells = grid.width * grid.height
+    needed = 0
+    for scenario in to_compute:
+        per_cell = sum(1 if OUTPUT_LAYERS[n].categorical else 4 for n in layers_of(scenario))
+        if cfg.output.datacube:
+            per_cell += 4 * 12 * len(layer_names(DATACUBE))
+        needed += cells * per_cell
+    try:
+        free = shutil.disk_usage(folder).free
+    except OSError:
+        return
+    from .atomic import byte_size_text
+
+    arithmetic = (f"{grid.width} x {grid.height} = {cells:,} cells, {len(to_compute)} scenario(s): "
+                  f"{byte_size_text(needed)} uncompressed, {byte_size_text(free)} free on the disk of {folder}")
+    if free * _BEST_COMPRESSION < needed:
+        raise OutputError(f"the outputs cannot fit: {arithmetic}, and they would need to compress more than "
+                          f"{_BEST_COMPRESSION}x; free space, choose another output.folder, a coarser "
+                          "resolution or fewer layers (output.layers)")
+    if free < needed:
+        warnings.warn(f"the outputs may not fit: {arithmetic}; they fit only if compression saves "
+                      f"{1 - free / needed:.0%}", stacklevel=3)
 
 
 @contextmanager
