@@ -332,14 +332,43 @@ def _write_scenario(cfg, grid, runtime, scenario, result, written, tags, names) 
         layers.update(_change_layers(written[cfg.baseline], result, names, cfg.compute.chunk_size))
     layers = {name: _georeferenced(layers[name], grid) for name in names}
     scenario_folder = Path(cfg.output.folder) / scenario.name
-    with runtime.progress(f"{scenario.name}: computing and writing"):
-        paths = write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=None)
-    if cfg.output.datacube:
-        cube = result[list(layer_names(DATACUBE))]
-        cube.attrs.update(tags)
-        with runtime.progress(f"{scenario.name}: monthly datacube"):
-            paths["datacube"] = write_datacube(_georeferenced(cube, grid), scenario_folder / DATACUBE_NAME)
+    with _input_errors_named(cfg, scenario):
+        with runtime.progress(f"{scenario.name}: computing and writing"):
+            paths = write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=None)
+        if cfg.output.datacube:
+            cube = result[list(layer_names(DATACUBE))]
+            cube.attrs.update(tags)
+            with runtime.progress(f"{scenario.name}: monthly datacube"):
+                paths["datacube"] = write_datacube(_georeferenced(cube, grid), scenario_folder / DATACUBE_NAME)
     return paths
+
+
+@contextmanager
+def _input_errors_named(cfg: RunConfig, scenario):
+    """Turn a failure while computing that comes from reading an input (a damaged tile outside the
+    sampled windows, say) into an InputDataError (exit 3) naming the input file and its layer."""
+    from .inputs.readers import layer_files
+
+    try:
+        yield
+    except OutputError as error:
+        text, seen = "", error
+        while seen is not None:
+            if isinstance(seen, InputDataError):  # a reader named the file and layer (GuardedRead)
+                raise InputDataError(f"{seen} (while computing scenario {scenario.name!r})") from error
+            text += f" {seen}"
+            seen = seen.__cause__ or seen.__context__
+        specs = [(name, spec) for name, spec in cfg.climate.items()]
+        specs += [(name, spec) for name, spec in (scenario.climate.items() if scenario.climate else ())]
+        candidates = [(name, path) for name, spec in specs for path in layer_files(spec, cfg.config_dir)]
+        candidates += [("mask", Path(cfg.region.mask))] if cfg.region.mask is not None else []
+        for name, path in candidates:
+            if str(path) in text:
+                raise InputDataError(
+                    f"{path}: layer {name!r}: cannot read the values while computing scenario {scenario.name!r}; "
+                    f"the file may be damaged in a part the checks did not sample ({error.__cause__ or error})"
+                ) from error
+        raise
 
 
 def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, chunk: int) -> dict[str, xr.DataArray]:

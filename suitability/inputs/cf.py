@@ -23,7 +23,7 @@ import rioxarray  # noqa: F401 - registers the .rio accessor
 import xarray as xr
 
 from ..errors import InputDataError
-from .native import MONTHS, Native, keep_spatial
+from .native import MONTHS, Native, guarded_chunk, keep_spatial
 from .units import linear_conversion
 
 
@@ -60,7 +60,7 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
     keep = {"x", "y", "month"}
     var = var.drop_vars([c for c in var.coords if c not in keep])
     var = var.transpose(*[d for d in ("month", "y", "x") if d in var.dims])
-    var = var.chunk({**({"month": -1} if "month" in var.dims else {}), "y": chunk, "x": chunk})
+    var = guarded_chunk(var, {"month": -1, "y": chunk, "x": chunk}, where)
     var = _lon_to_180(var, crs, where)
     _check_regular(var, where)
     if nodata is not None:

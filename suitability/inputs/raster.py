@@ -1,6 +1,7 @@
 """The GeoTIFF reader (any single-file GDAL raster): one band for a static layer, 12 bands (January first)
 for a monthly layer, or ``band:`` to pick one band. Read lazily with
-``rioxarray.open_rasterio(chunks=..., masked=True, lock=False)``.
+``rioxarray.open_rasterio(masked=True, lock=False, cache=False)``, chunked by
+:func:`.native.guarded_chunk` (read failures name the file and layer).
 """
 
 from __future__ import annotations
@@ -11,7 +12,7 @@ import numpy as np
 import rioxarray
 
 from ..errors import InputDataError
-from .native import MONTHS, Native, keep_spatial
+from .native import MONTHS, Native, guarded_chunk, keep_spatial
 
 
 def read_raster(name: str, path: Path, *, band: int | None = None, variable: str | None = None,
@@ -39,9 +40,12 @@ def read_raster(name: str, path: Path, *, band: int | None = None, variable: str
     if band is None and not monthly and count != 1:
         raise InputDataError(f"{path}: layer {name!r} is static: expected 1 band or 'band:' to choose one, found {count} bands")
     try:
-        data = rioxarray.open_rasterio(path, chunks={"band": -1, "y": chunk, "x": chunk}, masked=nodata is None, lock=False)
+        # Opened without dask (cache=False: nothing is kept in memory), then chunked through GuardedRead so
+        # that a read failure while computing names this file and layer.
+        lazy = rioxarray.open_rasterio(path, masked=nodata is None, lock=False, cache=False)
     except Exception as exc:  # noqa: BLE001 - report any reader failure with the file name
         raise InputDataError(f"{path}: cannot read layer {name!r} ({exc})") from None
+    data = guarded_chunk(lazy, {"band": -1, "y": chunk, "x": chunk}, f"{path}: layer {name!r}")
     if nodata is not None:
         data = data.where(data != np.asarray(nodata).astype(data.dtype))
     if band is not None:
