@@ -32,6 +32,8 @@ def read_sample(data: xr.DataArray, where: str) -> np.ndarray:
     index = {dim: _sample_index(data.sizes[dim]) for dim in ("y", "x")}
     try:
         values = data.isel(index).values
+    except InputDataError:
+        raise  # a reader already named the file and the layer
     except Exception as exc:  # noqa: BLE001 - a truncated file fails here, on first read
         raise InputDataError(f"{where}: cannot read the values; the file may be truncated or corrupt ({exc})") from None
     return np.asarray(values, dtype=np.float64)
