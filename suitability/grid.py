@@ -52,7 +52,9 @@ class TargetGrid:
         """The grid of a config ``region`` section: its explicit ``grid`` or the grid of its ``like`` raster."""
         grid = getattr(region_config, "grid", None)
         if grid is not None:
-            return cls.from_bounds(grid.crs, grid.resolution, grid.bounds)
+            made = cls.from_bounds(grid.crs, grid.resolution, grid.bounds)
+            made.check_projectable("region.grid")
+            return made
         like = Path(region_config.like)
         if not like.is_absolute() and config_dir is not None:
             like = Path(config_dir) / like
@@ -105,6 +107,49 @@ class TargetGrid:
                 "expected a raster of the region at the resolution wanted, or split the region"
             )
         return cls(CRS.from_user_input(crs.to_wkt()), transform, int(width), int(height))
+
+    def check_projectable(self, where: str) -> None:
+        """Refuse a grid whose cells do not all have a longitude and latitude (bounds beyond the area where
+        the projection is defined, e.g. UTM bounds of 5e7 m): ConfigError naming ``where`` and a point.
+
+        Checked on a 21 x 21 lattice of points over the grid, corners and edges included, transformed to
+        the CRS's geographic coordinates and back (a point that does not return within a metre-sized
+        tolerance is outside the projection's domain)."""
+        from .errors import ConfigError
+
+        xmin, ymin, xmax, ymax = self.bounds
+        xs, ys = np.meshgrid(np.linspace(xmin, xmax, 21), np.linspace(ymin, ymax, 21))
+        geodetic = self.crs.geodetic_crs or CRS.from_epsg(4326)
+        forward = Transformer.from_crs(self.crs, geodetic, always_xy=True)
+        backward = Transformer.from_crs(geodetic, self.crs, always_xy=True)
+        with np.errstate(all="ignore"):
+            lon, lat = forward.transform(xs, ys, errcheck=False)
+            bx, by = backward.transform(lon, lat, errcheck=False)
+            tolerance = 1e-3 * max(self.resolution)
+            bad = ~(np.isfinite(lon) & np.isfinite(lat) & (np.abs(bx - xs) <= tolerance) & (np.abs(by - ys) <= tolerance))
+        if self.is_geographic:
+            bad = ~(np.isfinite(lon) & np.isfinite(lat))
+        if bad.any():
+            i = np.argwhere(bad)[0]
+            raise ConfigError(
+                f"{where}: bounds {list(self.bounds)} reach beyond the area where {self.crs.to_string()} is defined: "
+                f"the point ({xs[tuple(i)]:.6g}, {ys[tuple(i)]:.6g}) has no longitude/latitude; expected bounds "
+                "in the units and the area of use of the CRS"
+            )
+
+    def contains_pole(self) -> str | None:
+        """'North Pole' / 'South Pole' if the grid covers a geographic pole (projected grids only), else None."""
+        if self.is_geographic:
+            return None
+        geodetic = self.crs.geodetic_crs or CRS.from_epsg(4326)
+        to_grid = Transformer.from_crs(geodetic, self.crs, always_xy=True)
+        xmin, ymin, xmax, ymax = self.bounds
+        for name, lat in (("North Pole", 90.0), ("South Pole", -90.0)):
+            with np.errstate(all="ignore"):
+                x, y = to_grid.transform(0.0, lat, errcheck=False)
+            if np.isfinite(x) and np.isfinite(y) and xmin <= x <= xmax and ymin <= y <= ymax:
+                return name
+        return None
 
     # ------------------------------------------------------------------------------------ geometry
 
@@ -252,10 +297,25 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
         if not isinstance(da.data, dsa.Array):
             da = da.chunk({**{d: -1 for d in other}, "y": chunk, "x": chunk})
         da = da.transpose(*other, "y", "x")
-        out = xr_reproject(
-            da, grid.geobox, resampling=resampling, dst_nodata=np.nan, src_nodata=np.nan, chunks=(chunk, chunk),
-            always_yx=True,
-        )
+        where = da.attrs.get("source", "")
+        where = f"{where}: layer {da.attrs.get('source_layer', da.name)!r}" if where else f"layer {da.name!r}"
+        pole = grid.contains_pole()
+        if pole is not None and da.rio.crs.is_geographic:
+            raise InputDataError(
+                f"{where}: the region's grid ({grid.crs.to_string()}) contains the {pole}, where a layer in "
+                "longitude/latitude cannot be aligned onto it; give this layer in the region's CRS (for example "
+                f"gdalwarp -t_srs {grid.crs.to_string()}) or choose a region without the pole"
+            )
+        try:
+            out = xr_reproject(
+                da, grid.geobox, resampling=resampling, dst_nodata=np.nan, src_nodata=np.nan, chunks=(chunk, chunk),
+                always_yx=True,
+            )
+        except Exception as exc:  # noqa: BLE001 - the alignment library's failures, said in our words
+            raise InputDataError(
+                f"{where}: cannot be aligned onto the region's grid ({grid.crs.to_string()}, bounds {grid.bounds}): "
+                f"{type(exc).__name__}: {exc}; expected a layer whose extent can be projected into the region's CRS"
+            ) from exc
         out = out.drop_vars([c for c in out.coords if c not in ("x", "y", *other)])
         out = out.assign_coords(x=grid.x, y=grid.y)
     out = out.chunk(chunks)

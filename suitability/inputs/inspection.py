@@ -9,7 +9,7 @@ import numpy as np
 import xarray as xr
 
 from ..errors import InputDataError
-from ..grid import TargetGrid
+from ..grid import TargetGrid, align_to_grid
 from ..variables import INPUT_VARIABLES
 from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, lost_cells, read_sample, region_window
 from .climate import load_mask, open_converted
@@ -100,6 +100,11 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
     if report.overlap_share < 1.0 - 1e-6:
         report.warnings.append(f"covers {report.overlap_share:.1%} of the region; cells outside are NaN")
     resampling = getattr(spec, "resampling", None) or INPUT_VARIABLES[name].resampling
+    try:
+        align_to_grid(converted, grid, resampling, SAMPLE_SIDE * 2)  # lazy: only what a run would set up
+    except InputDataError as exc:
+        report.problems.append(str(exc))
+        return report
     ratio = cells_per_grid_cell(converted, grid)
     if ratio is not None and ratio > 4.0 and resampling in ("nearest", "bilinear", "cubic"):
         report.warnings.append(f"about {ratio:.0f} layer cells per grid cell: '{resampling}' uses only the cells next to "

@@ -55,8 +55,8 @@ class GuardedRead:
             return np.asarray(self.lazy[key].values)
         except Exception as exc:  # noqa: BLE001 - every reader failure means the same to the user
             raise InputDataError(
-                f"{self.where}: cannot read the values ({type(exc).__name__}: {exc}); the file may be damaged in a "
-                "part that the checks before computing did not sample"
+                f"{self.where}: cannot read the values ({type(exc).__name__}: {exc}); the file may be truncated or "
+                "damaged (possibly where the checks before computing did not sample)"
             ) from None
 
 
