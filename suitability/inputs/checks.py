@@ -145,6 +145,9 @@ def coverage_share(data: xr.DataArray, grid: TargetGrid) -> float:
     from pyproj import CRS, Transformer
 
     box = shapely.box(*grid.bounds)
+    around = _global_band_share(data, grid)
+    if around is not None:
+        return around
     footprint = _footprint(data, grid.crs)
     if footprint is not None:
         return float(min(1.0, footprint.intersection(box).area / box.area))
@@ -158,6 +161,37 @@ def coverage_share(data: xr.DataArray, grid: TargetGrid) -> float:
     left, bottom, right, top = data.rio.bounds(recalc=True)
     extent = shapely.box(min(left, right), min(bottom, top), max(left, right), max(bottom, top))
     return float(region.intersection(extent).area / region.area) if region.area else 0.0
+
+
+def _global_band_share(data: xr.DataArray, grid: TargetGrid) -> float | None:
+    """For a longitude/latitude layer that goes all the way round (360 degrees of longitude): the share of
+    the region's latitudes it covers; None for any other layer. Projecting the bounds of such a layer into
+    a projected CRS (UTM, equal-area) is meaningless, so its coverage is decided in its own coordinates."""
+    from pyproj import CRS, Transformer
+
+    layer_crs = CRS.from_user_input(data.rio.crs.to_wkt())
+    if not layer_crs.is_geographic:
+        return None
+    left, bottom, right, top = data.rio.bounds(recalc=True)
+    if abs(right - left) < 360.0 - 1e-6:
+        return None
+    to_layer = Transformer.from_crs(grid.crs, layer_crs, always_xy=True)
+    xmin, ymin, xmax, ymax = grid.bounds
+    edge = np.linspace(0.0, 1.0, 101)
+    xs = np.concatenate([xmin + (xmax - xmin) * edge, np.full(101, xmax), xmax - (xmax - xmin) * edge, np.full(101, xmin)])
+    ys = np.concatenate([np.full(101, ymin), ymin + (ymax - ymin) * edge, np.full(101, ymax), ymax - (ymax - ymin) * edge])
+    with np.errstate(all="ignore"):
+        _, lat = to_layer.transform(xs, ys, errcheck=False)
+    lat = np.asarray(lat)[np.isfinite(lat)]
+    if lat.size == 0:
+        return None
+    if grid.contains_pole() is not None:
+        lat = np.append(lat, 90.0 if grid.contains_pole() == "North Pole" else -90.0)
+    south, north = float(lat.min()), float(lat.max())
+    low, high = min(bottom, top), max(bottom, top)
+    if north <= south:
+        return 1.0 if low <= south <= high else 0.0
+    return float(max(0.0, min(north, high) - max(south, low)) / (north - south))
 
 
 def cells_per_grid_cell(data: xr.DataArray, grid: TargetGrid) -> float | None:

@@ -82,6 +82,7 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
         return report
     report.output_name = converted.name
     report.driver = native.driver
+    report.warnings += [f"on reading: {t}" for t in native.transformations]
     report.file_units = native.file_units
     report.declared_units = report.declared_units or native.file_units
     report.canonical_units = converted.attrs["units"]
