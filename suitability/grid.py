@@ -288,7 +288,7 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
 
     if da.rio.crs is None:
         raise InputDataError(f"layer {da.name!r}: no CRS; expected a georeferenced layer")
-    da = _north_up(da)
+    da = _wrap_longitudes(_north_up(da), grid)
     other = [d for d in da.dims if d not in ("y", "x")]
     chunks = {**{d: -1 for d in other}, "y": chunk, "x": chunk}
     if grid.same_grid(da.rio.crs.to_wkt(), da.rio.transform(recalc=True), (da.sizes["y"], da.sizes["x"])):
@@ -325,6 +325,39 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
     out.attrs = {k: v for k, v in da.attrs.items() if k not in ("_FillValue", "nodata", "grid_mapping")}
     xr.align(out, grid.template(chunk), join="exact")  # raises if a coordinate differs in the last bit
     return out
+
+
+def _wrap_longitudes(da: xr.DataArray, grid: TargetGrid) -> xr.DataArray:
+    """A longitude/latitude layer in the longitude convention of a longitude/latitude grid (lazily).
+
+    A layer that goes all the way round gets a copy shifted by 360 degrees on the side where the grid
+    reaches beyond it (a region across the antimeridian, e.g. 170..190 with a -180..180 layer); any other
+    layer is shifted by -360, 0 or +360 degrees, whichever overlaps the grid most (a 0..360 layer and a
+    region given in negative longitudes)."""
+    if not grid.is_geographic or da.rio.crs is None or not da.rio.crs.is_geographic or da.sizes["x"] < 2:
+        return da
+    x = da["x"].values
+    step = abs(float(x[1] - x[0]))
+    west, east = float(x.min()) - step / 2, float(x.max()) + step / 2
+    left, _, right, _ = grid.bounds
+    crs, attrs = da.rio.crs, da.attrs
+    if east - west >= 360.0 - 1e-6 * 360.0:
+        parts = [da]
+        if right > east:
+            parts.append(da.assign_coords(x=x + 360.0))
+        if left < west:
+            parts.insert(0, da.assign_coords(x=x - 360.0))
+        if len(parts) == 1:
+            return da
+        wrapped = xr.concat(parts, dim="x")
+    else:
+        overlap = {k: max(0.0, min(east + k, right) - max(west + k, left)) for k in (0.0, -360.0, 360.0)}
+        shift = max(overlap, key=lambda k: (overlap[k], k == 0.0))
+        if shift == 0.0:
+            return da
+        wrapped = da.assign_coords(x=x + shift)
+    wrapped.attrs = attrs
+    return wrapped.rio.write_crs(crs)
 
 
 def _north_up(da: xr.DataArray) -> xr.DataArray:

@@ -142,6 +142,7 @@ def _footprint(data: xr.DataArray, crs: Any):
 def coverage_share(data: xr.DataArray, grid: TargetGrid) -> float:
     """Share [0-1] of the grid's area inside the layer's extent (edges densified before reprojecting)."""
     import shapely
+    import shapely.affinity
     from pyproj import CRS, Transformer
 
     box = shapely.box(*grid.bounds)
@@ -150,7 +151,10 @@ def coverage_share(data: xr.DataArray, grid: TargetGrid) -> float:
         return around
     footprint = _footprint(data, grid.crs)
     if footprint is not None:
-        return float(min(1.0, footprint.intersection(box).area / box.area))
+        shifts = (0.0, -360.0, 360.0) if grid.is_geographic and data.rio.crs.is_geographic else (0.0,)
+        # longitude conventions: the alignment shifts a lon/lat layer by 360 degrees where that overlaps more
+        return max(float(min(1.0, shapely.affinity.translate(footprint, xoff=k).intersection(box).area / box.area))
+                   for k in shifts)
     # The layer's extent does not project into the grid CRS (a global lon/lat layer and a local
     # projection): measure the grid's footprint in the layer CRS instead.
     layer_crs = CRS.from_user_input(data.rio.crs.to_wkt())

@@ -136,3 +136,31 @@ def test_a_0_360_global_file_is_wrapped_and_says_so(tmp_path):
     np.testing.assert_allclose(np.diff(x), 0.5)
     # West of Greenwich the value of the 180..360 half (derived here from the file written).
     assert float(native.data.sel(x=-90.25, y=0.25, method="nearest").isel(month=0)) == 1.0
+
+
+def _global_lon_ramp() -> xr.DataArray:
+    lon = np.arange(-179.75, 180.0, 0.5)
+    lat = np.arange(89.75, -90.0, -0.5)
+    values = np.broadcast_to(lon[None, :], (lat.size, lon.size)).astype("float32")  # value = longitude
+    return xr.DataArray(values, dims=("y", "x"), coords={"y": lat, "x": lon}, name="tmean").rio.write_crs("EPSG:4326")
+
+
+@pytest.mark.parametrize("bounds", [(170, -25, 190, -15), (-190, -25, -170, -15)])
+def test_a_lonlat_region_across_the_antimeridian_is_whole(bounds):
+    grid = TargetGrid.from_bounds("EPSG:4326", 0.5, bounds)
+    aligned = align_to_grid(_global_lon_ramp(), grid, "bilinear").values
+    assert not np.isnan(aligned).any()
+    # The cell centres 170.25 E and 170.25 W carry the layer's longitude there (derived here from the ramp).
+    assert aligned[0, 0] == pytest.approx(170.25) and aligned[0, -1] == pytest.approx(-170.25)
+
+
+def test_a_regional_0_360_layer_meets_a_region_given_in_negative_longitudes(tmp_path):
+    lon = np.arange(160.25, 200.0, 0.5)
+    lat = np.arange(-10.25, -30.0, -0.5)
+    path = _lonlat_nc(tmp_path / "t.nc", lon, lat, lambda x: 10.0 + 0.1 * (x - 160.0))
+    layer = open_layer("tmean", _spec(path, variable="tmean"))
+    grid = TargetGrid.from_bounds("EPSG:4326", 0.5, (-190, -25, -170, -15))  # the same place as 170..190 E
+    assert coverage_share(layer, grid) == pytest.approx(1.0)
+    aligned = align_to_grid(layer, grid, "bilinear").isel(month=0).values
+    assert not np.isnan(aligned).any()
+    assert aligned[0, -1] == pytest.approx(12.975, abs=1e-4)  # 170.25 W = 189.75 E: 10 + 0.1 x 29.75
