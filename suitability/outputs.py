@@ -155,6 +155,9 @@ def check_output_folder(folder, names: Iterable[str] = (), overwrite: bool = Fal
         )
     subfolders = {folder / Path(name).parent for name in names} | {folder}
     for path in sorted(subfolders):
+        if path != folder and path.is_symlink():
+            raise OutputError(f"{path}: is a symbolic link; the tool does not write through links inside the output "
+                              "folder. Remove it (or point output.folder at the real folder)")
         try:
             path.mkdir(parents=True, exist_ok=True)
             make_private_folder(path).rmdir()  # proves the folder is writable; named with the tool's marker

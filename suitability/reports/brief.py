@@ -383,6 +383,9 @@ def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.D
     ``<folder>/brief/``. table: a precomputed :func:`zonal_statistics` table (computed here if None).
     """
     out = Path(folder) / "brief"
+    if out.is_symlink():
+        raise OutputError(f"{out}: is a symbolic link; the tool does not write through links inside the output "
+                          "folder. Remove it and run again")
     created = not out.exists()
     try:
         out.mkdir(parents=True, exist_ok=True)

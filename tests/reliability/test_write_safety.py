@@ -332,3 +332,25 @@ def test_a_nearly_full_disk_is_reported_in_readable_units(tmp_path):
     assert byte_size_text(1052672) == "1.0 MiB"  # 1052672 / 1024**2 = 1.0039 (derived here)
     assert byte_size_text(512) == "512 bytes"
     assert byte_size_text(3 * 1024**3) == "3.0 GiB"
+
+
+def test_a_scenario_folder_planted_as_a_link_is_refused(tmp_path):
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "baseline").symlink_to(elsewhere, target_is_directory=True)
+    with pytest.raises(OutputError, match="is a symbolic link"):
+        check_output_folder(out, ["baseline/pathway_class.tif"])
+    assert list(elsewhere.iterdir()) == []
+
+
+def test_a_brief_folder_planted_as_a_link_is_refused(tmp_path, finished_run):
+    shutil.copytree(finished_run / "out", tmp_path / "out")
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    (tmp_path / "out" / "brief").symlink_to(elsewhere, target_is_directory=True)
+    config = demo_config(brief=True)
+    config["output"]["folder"] = str(tmp_path / "out")
+    assert_clean_error(cli("brief", write_config(tmp_path, config)), EXIT_OUTPUT, "is a symbolic link")
+    assert list(elsewhere.iterdir()) == []
