@@ -71,5 +71,6 @@ def guarded_chunk(lazy: xr.DataArray, chunks: dict[str, int], where: str) -> xr.
 
     sizes = tuple(chunks.get(dim, -1) for dim in lazy.dims)
     data = da.from_array(GuardedRead(lazy, where), chunks=sizes, name=f"read-{tokenize(where, lazy.shape, sizes)}",
-                         meta=np.empty((0,) * lazy.ndim, dtype=lazy.dtype), asarray=False)
+                         meta=np.empty((0,) * lazy.ndim, dtype=lazy.dtype), asarray=False, fancy=False,
+                         inline_array=True)
     return lazy.copy(data=data)
