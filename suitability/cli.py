@@ -474,8 +474,10 @@ def _init(path, force):
 
     if path.exists() and not force:
         raise OutputError(f"{path} exists; use --force to replace it")
+    from .atomic import write_text_atomic
+
     text = resources.files("suitability").joinpath("templates/starter.yaml").read_text(encoding="utf-8")
-    path.write_text(text, encoding="utf-8")
+    write_text_atomic(path, text, what="the starter config")  # never follows a link planted at ``path``
     console.line(f"Wrote {escape(str(path))}. Replace every EDIT-ME value, then run: suitability check {escape(str(path))}")
 
 

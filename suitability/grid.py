@@ -79,7 +79,9 @@ class TargetGrid:
                 bounds = zones_extent(grid.zones, grid.crs, getattr(grid, "margin", 0.0))
             else:
                 bounds = grid.target_bounds() if hasattr(grid, "target_bounds") else grid.bounds
-            return cls.from_bounds(grid.crs, grid.resolution, bounds)
+            made = cls.from_bounds(grid.crs, grid.resolution, bounds)
+            made.check_projectable("region.grid")
+            return made
         like = Path(region_config.like)
         if not like.is_absolute() and config_dir is not None:
             like = Path(config_dir) / like
@@ -123,7 +125,58 @@ class TargetGrid:
             transform = Affine(transform.a, 0.0, transform.c, 0.0, -transform.e, transform.f + transform.e * height)
         if transform.a < 0:
             raise InputDataError(f"{path}: the 'like' raster runs east to west (negative pixel width); expected west to east")
+        from .config.schema import MAX_GRID_CELLS
+
+        if width * height > MAX_GRID_CELLS:
+            raise InputDataError(
+                f"{path}: the 'like' raster has {width} x {height} = {width * height:.3g} cells, "
+                f"{width * height * 4 / 2**30:.3g} GiB per float32 layer; at most {MAX_GRID_CELLS:.0e} cells: "
+                "expected a raster of the region at the resolution wanted, or split the region"
+            )
         return cls(CRS.from_user_input(crs.to_wkt()), transform, int(width), int(height))
+
+    def check_projectable(self, where: str) -> None:
+        """Refuse a grid whose cells do not all have a longitude and latitude (bounds beyond the area where
+        the projection is defined, e.g. UTM bounds of 5e7 m): ConfigError naming ``where`` and a point.
+
+        Checked on a 21 x 21 lattice of points over the grid, corners and edges included, transformed to
+        the CRS's geographic coordinates and back (a point that does not return within a metre-sized
+        tolerance is outside the projection's domain)."""
+        from .errors import ConfigError
+
+        xmin, ymin, xmax, ymax = self.bounds
+        xs, ys = np.meshgrid(np.linspace(xmin, xmax, 21), np.linspace(ymin, ymax, 21))
+        geodetic = self.crs.geodetic_crs or CRS.from_epsg(4326)
+        forward = Transformer.from_crs(self.crs, geodetic, always_xy=True)
+        backward = Transformer.from_crs(geodetic, self.crs, always_xy=True)
+        with np.errstate(all="ignore"):
+            lon, lat = forward.transform(xs, ys, errcheck=False)
+            bx, by = backward.transform(lon, lat, errcheck=False)
+            tolerance = 1e-3 * max(self.resolution)
+            bad = ~(np.isfinite(lon) & np.isfinite(lat) & (np.abs(bx - xs) <= tolerance) & (np.abs(by - ys) <= tolerance))
+        if self.is_geographic:
+            bad = ~(np.isfinite(lon) & np.isfinite(lat))
+        if bad.any():
+            i = np.argwhere(bad)[0]
+            raise ConfigError(
+                f"{where}: bounds {list(self.bounds)} reach beyond the area where {self.crs.to_string()} is defined: "
+                f"the point ({xs[tuple(i)]:.6g}, {ys[tuple(i)]:.6g}) has no longitude/latitude; expected bounds "
+                "in the units and the area of use of the CRS"
+            )
+
+    def contains_pole(self) -> str | None:
+        """'North Pole' / 'South Pole' if the grid covers a geographic pole (projected grids only), else None."""
+        if self.is_geographic:
+            return None
+        geodetic = self.crs.geodetic_crs or CRS.from_epsg(4326)
+        to_grid = Transformer.from_crs(geodetic, self.crs, always_xy=True)
+        xmin, ymin, xmax, ymax = self.bounds
+        for name, lat in (("North Pole", 90.0), ("South Pole", -90.0)):
+            with np.errstate(all="ignore"):
+                x, y = to_grid.transform(0.0, lat, errcheck=False)
+            if np.isfinite(x) and np.isfinite(y) and xmin <= x <= xmax and ymin <= y <= ymax:
+                return name
+        return None
 
     # ------------------------------------------------------------------------------------ geometry
 
@@ -262,7 +315,7 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
 
     if da.rio.crs is None:
         raise InputDataError(f"layer {da.name!r}: no CRS; expected a georeferenced layer")
-    da = _north_up(da)
+    da = _wrap_longitudes(_north_up(da), grid)
     other = [d for d in da.dims if d not in ("y", "x")]
     chunks = {**{d: -1 for d in other}, "y": chunk, "x": chunk}
     if grid.same_grid(da.rio.crs.to_wkt(), da.rio.transform(recalc=True), (da.sizes["y"], da.sizes["x"])):
@@ -271,10 +324,25 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
         if not isinstance(da.data, dsa.Array):
             da = da.chunk({**{d: -1 for d in other}, "y": chunk, "x": chunk})
         da = da.transpose(*other, "y", "x")
-        out = xr_reproject(
-            da, grid.geobox, resampling=resampling, dst_nodata=np.nan, src_nodata=np.nan, chunks=(chunk, chunk),
-            always_yx=True,
-        )
+        where = da.attrs.get("source", "")
+        where = f"{where}: layer {da.attrs.get('source_layer', da.name)!r}" if where else f"layer {da.name!r}"
+        pole = grid.contains_pole()
+        if pole is not None and da.rio.crs.is_geographic:
+            raise InputDataError(
+                f"{where}: the region's grid ({grid.crs.to_string()}) contains the {pole}, where a layer in "
+                "longitude/latitude cannot be aligned onto it; give this layer in the region's CRS (for example "
+                f"gdalwarp -t_srs {grid.crs.to_string()}) or choose a region without the pole"
+            )
+        try:
+            out = xr_reproject(
+                da, grid.geobox, resampling=resampling, dst_nodata=np.nan, src_nodata=np.nan, chunks=(chunk, chunk),
+                always_yx=True,
+            )
+        except Exception as exc:  # noqa: BLE001 - the alignment library's failures, said in our words
+            raise InputDataError(
+                f"{where}: cannot be aligned onto the region's grid ({grid.crs.to_string()}, bounds {grid.bounds}): "
+                f"{type(exc).__name__}: {exc}; expected a layer whose extent can be projected into the region's CRS"
+            ) from exc
         out = out.drop_vars([c for c in out.coords if c not in ("x", "y", *other)])
         out = out.assign_coords(x=grid.x, y=grid.y)
     out = out.chunk(chunks)
@@ -284,6 +352,39 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
     out.attrs = {k: v for k, v in da.attrs.items() if k not in ("_FillValue", "nodata", "grid_mapping")}
     xr.align(out, grid.template(chunk), join="exact")  # raises if a coordinate differs in the last bit
     return out
+
+
+def _wrap_longitudes(da: xr.DataArray, grid: TargetGrid) -> xr.DataArray:
+    """A longitude/latitude layer in the longitude convention of a longitude/latitude grid (lazily).
+
+    A layer that goes all the way round gets a copy shifted by 360 degrees on the side where the grid
+    reaches beyond it (a region across the antimeridian, e.g. 170..190 with a -180..180 layer); any other
+    layer is shifted by -360, 0 or +360 degrees, whichever overlaps the grid most (a 0..360 layer and a
+    region given in negative longitudes)."""
+    if not grid.is_geographic or da.rio.crs is None or not da.rio.crs.is_geographic or da.sizes["x"] < 2:
+        return da
+    x = da["x"].values
+    step = abs(float(x[1] - x[0]))
+    west, east = float(x.min()) - step / 2, float(x.max()) + step / 2
+    left, _, right, _ = grid.bounds
+    crs, attrs = da.rio.crs, da.attrs
+    if east - west >= 360.0 - 1e-6 * 360.0:
+        parts = [da]
+        if right > east:
+            parts.append(da.assign_coords(x=x + 360.0))
+        if left < west:
+            parts.insert(0, da.assign_coords(x=x - 360.0))
+        if len(parts) == 1:
+            return da
+        wrapped = xr.concat(parts, dim="x")
+    else:
+        overlap = {k: max(0.0, min(east + k, right) - max(west + k, left)) for k in (0.0, -360.0, 360.0)}
+        shift = max(overlap, key=lambda k: (overlap[k], k == 0.0))
+        if shift == 0.0:
+            return da
+        wrapped = da.assign_coords(x=x + shift)
+    wrapped.attrs = attrs
+    return wrapped.rio.write_crs(crs)
 
 
 def _north_up(da: xr.DataArray) -> xr.DataArray:

@@ -10,8 +10,9 @@ Layers (:func:`write_layers`)
     :func:`suitability.runtime.write_lock`). Then each file is converted to a COG with
     ``rio_cogeo.cog_translate``, validated with ``rio_cogeo.cogeo.cog_validate(strict=True)`` and only
     then moved to ``<name>.tif`` with ``os.replace``. Until that last step everything lives in a hidden
-    staging folder ``.suitability-staging-<host>-<pid>-<random>`` inside the output folder (same
-    filesystem, so the rename is atomic; rio-cogeo's own scratch files land there too); any failure
+    staging folder ``.suitability-staging-<host>-<pid>-<random>`` inside the output folder (made with
+    ``tempfile.mkdtemp``: exclusive, mode 0700, unpredictable; same filesystem, so the rename is atomic;
+    rio-cogeo's own scratch files land there too); any failure
     removes it and raises :class:`~suitability.errors.OutputError`, so a finished-looking ``<name>.tif``
     is always whole. A run that is killed leaves only its hidden staging folder, which the next write
     into that folder removes (same host, process gone).
@@ -41,11 +42,7 @@ import hashlib
 import json
 import math
 import os
-import re
 import shutil
-import socket
-import tempfile
-import uuid
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from datetime import date, datetime
@@ -56,10 +53,9 @@ import numpy as np
 import rioxarray  # noqa: F401  (registers the .rio accessor used on layers and datasets)
 import xarray as xr
 
-from .atomic import atomic_write, disk_full_hint, write_text_atomic
+from .atomic import STAGING_PREFIX, atomic_write, disk_full_hint, is_abandoned, make_private_folder, write_text_atomic
 from .config import CogConfig, validate_section
 from .errors import OutputError
-from .runlock import process_alive
 from .runtime import compute, write_lock
 from .variables import (
     CLASS_NODATA,
@@ -70,7 +66,6 @@ from .variables import (
 )
 
 TILE_SIZE = 512
-STAGING_PREFIX = ".suitability-staging-"
 GDAL_TIFF_OPTIONS = {"driver": "GTiff", "interleave": "pixel", "tiled": True, "blockxsize": TILE_SIZE,
                      "blockysize": TILE_SIZE, "BIGTIFF": "IF_SAFER"}
 
@@ -160,10 +155,12 @@ def check_output_folder(folder, names: Iterable[str] = (), overwrite: bool = Fal
         )
     subfolders = {folder / Path(name).parent for name in names} | {folder}
     for path in sorted(subfolders):
+        if path != folder and path.is_symlink():
+            raise OutputError(f"{path}: is a symbolic link; the tool does not write through links inside the output "
+                              "folder. Remove it (or point output.folder at the real folder)")
         try:
             path.mkdir(parents=True, exist_ok=True)
-            with tempfile.NamedTemporaryFile(dir=path, prefix=".suitability-write-test-"):
-                pass
+            make_private_folder(path).rmdir()  # proves the folder is writable; named with the tool's marker
         except OSError as error:
             raise OutputError(f"output folder {path} cannot be created or written: {error}") from error
     return folder
@@ -191,9 +188,9 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
     folder = check_output_folder(folder, overwrite=True)
     grid = _common_grid(layers, folder)
     _remove_abandoned_staging(folder)
-    staging = folder / f"{STAGING_PREFIX}{socket.gethostname()}-{os.getpid()}-{uuid.uuid4().hex[:8]}"
+    staging = None
     try:
-        staging.mkdir()
+        staging = make_private_folder(folder, STAGING_PREFIX)
         sources, targets, staged = [], [], {}
         for name, layer in layers.items():
             staged[name] = staging / f".{name}.tmp-{os.getpid()}.tif"
@@ -224,7 +221,8 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
             f"writing layers into {folder} failed: {type(error).__name__}: {error}{disk_full_hint(error, folder)}"
         ) from error
     finally:
-        shutil.rmtree(staging, ignore_errors=True)
+        if staging is not None:
+            shutil.rmtree(staging, ignore_errors=True)
 
 
 def write_datacube(ds: xr.Dataset, path) -> Path:
@@ -346,46 +344,60 @@ def _class_codes(block: np.ndarray, name: str) -> np.ndarray:
 
 
 def write_csv(table, path) -> Path:
-    """Write a pandas table as CSV (UTF-8, no index) atomically: temporary name, then os.replace."""
-    return atomic_write(path, lambda temporary: table.to_csv(temporary, index=False, encoding="utf-8"),
+    """Write a pandas table as CSV (UTF-8, no index) atomically: temporary name, then os.replace.
+
+    Text cells (and column names) that a spreadsheet would run as a formula are neutralised first
+    (:func:`spreadsheet_safe`)."""
+    safe = table.copy()
+    safe.columns = [spreadsheet_safe(c) for c in safe.columns]
+    for column in safe.columns:
+        if safe[column].dtype == object or str(safe[column].dtype) in ("string", "str"):
+            safe[column] = safe[column].map(spreadsheet_safe)
+    return atomic_write(path, lambda temporary: safe.to_csv(temporary, index=False, encoding="utf-8"),
                         what="the table")
 
 
-# Temporary names used while writing: ours carry the writer's process id; the briefs' do not.
-_TEMPORARY_WITH_PID = re.compile(r"^\..+\.(?:tmp|cog|final)-(\d+)(?:\.\w+)?$")
-_TEMPORARY_WITHOUT_PID = re.compile(r"^\..+\.tmp(?:-[A-Za-z0-9_]+)?(?:\.\w+)?$|^\.suitability-write-test-")
+# First characters that make a spreadsheet read a cell as a formula (or a DDE command).
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
 
-def remove_leftovers(folder) -> list[Path]:
-    """Remove what killed runs left in ``folder`` and its sub-folders (scenario folders, brief/).
+def spreadsheet_safe(value):
+    """``value`` made inert for spreadsheets: text starting with ``= + - @``, a tab or a carriage return
+    gets a leading apostrophe (the CSV-injection guidance of OWASP, "CSV Injection"); other values are
+    returned unchanged (numbers, including negative ones, stay numbers)."""
+    if isinstance(value, str) and value.startswith(_FORMULA_START):
+        return "'" + value
+    return value
+
+
+def remove_leftovers(folder, subfolders: Iterable[str] = ("brief",)) -> list[Path]:
+    """Remove what killed runs of this tool left in ``folder`` and in its ``subfolders`` (names of the
+    scenario folders and ``brief``: the folders the tool writes into; no others are looked at).
 
     Call only while holding the folder's :class:`~suitability.runlock.RunLock`: then no other run is
-    writing here. Removed: staging folders and temporary files of processes of this host that no longer
-    exist, and temporary files without a process id. Returns the removed paths.
+    writing here. Removed: only folders that carry the tool's marker (``.suitability-tmp-<host>-<pid>-*``,
+    ``.suitability-staging-<host>-<pid>-*``), that are real folders owned by this user, and whose process
+    no longer exists on this host (:func:`suitability.atomic.is_abandoned`). Files the tool did not create
+    (a user's ``.notes.tmp``, say) are never touched. Returns the removed paths.
     """
     folder = Path(folder)
     removed = []
-    for parent in [folder] + [p for p in folder.iterdir() if p.is_dir() and not p.name.startswith(".")]:
-        _remove_abandoned_staging(parent)
-        for path in parent.glob(".*"):
-            match = _TEMPORARY_WITH_PID.match(path.name)
-            if match:
-                abandoned = not process_alive(int(match.group(1)))
-            else:
-                abandoned = _TEMPORARY_WITHOUT_PID.match(path.name) is not None
-            if abandoned and path.is_file():
-                path.unlink(missing_ok=True)
-                removed.append(path)
+    parents = [folder] + [folder / name for name in subfolders]
+    for parent in parents:
+        if parent.is_symlink() or not parent.is_dir():
+            continue
+        removed += _remove_abandoned_staging(parent)
     return removed
 
 
-def _remove_abandoned_staging(folder: Path) -> None:
-    """Remove staging folders left by killed runs: same host, process no longer alive."""
-    host = socket.gethostname()
-    for path in folder.glob(f"{STAGING_PREFIX}{host}-*"):
-        pid_text = path.name[len(STAGING_PREFIX) + len(host) + 1:].split("-", 1)[0]
-        if pid_text.isdigit() and not process_alive(int(pid_text)):
+def _remove_abandoned_staging(folder: Path) -> list[Path]:
+    """Remove the marked temporary folders in ``folder`` of processes of this host that no longer exist."""
+    removed = []
+    for path in folder.glob(".suitability-*"):
+        if is_abandoned(path):
             shutil.rmtree(path, ignore_errors=True)
+            removed.append(path)
+    return removed
 
 
 def _lock_for(name: str, lock, path: Path):
@@ -508,6 +520,7 @@ __all__ = [
     "file_checksum",
     "check_output_folder",
     "write_csv",
+    "spreadsheet_safe",
     "remove_leftovers",
     "disk_full_hint",
     "CogOptions",

@@ -22,13 +22,13 @@ from . import indicators
 from ._version import __version__
 from .caution import CAUTION
 from .config import ComputeConfig, RunConfig, load_config, validate_section
-from .errors import ConfigError, InputDataError
+from .errors import ConfigError, InputDataError, OutputError
 from .grid import TargetGrid
 from .inputs import load_climate, load_mask
 from .inputs.readers import member_labels
 from .model import evaluate
 from .outputs import check_output_folder, remove_leftovers, write_csv, write_datacube, write_layers, write_manifest
-from .provenance import MANIFEST_NAME, build_manifest, class_summary, input_checksums, scenario_tags
+from .provenance import MANIFEST_NAME, build_manifest, class_summary, input_checksums, input_files, scenario_tags
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
 from .runlock import RunLock
 from .runtime import compute_context
@@ -98,8 +98,9 @@ def run(
     grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
     folder = Path(cfg.output.folder)
     scenarios = cfg.scenarios_baseline_first()
+    input_warnings: list[str] = []
     with compute_context(cfg.compute, progress=progress) as runtime:
-        with clock("open_inputs_s"):
+        with clock("open_inputs_s"), _recording_input_warnings(input_warnings):
             ensembles = {s.name: members for s in scenarios if (members := scenario_members(cfg, s))}
             layers_of = selected_layers(cfg, set(ensembles))
             today = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
@@ -108,13 +109,15 @@ def run(
             _check_brief_inputs(cfg)
         check_output_folder(folder)
         with RunLock(folder) as lock:
-            _clear_after_takeover(lock, folder)
+            _clear_after_takeover(lock, folder, [s.name for s in scenarios])
+            _warn_about_foreign_files(cfg, folder)
             checksums = input_checksums(cfg)
             hashes = {s.name: scenario_hash(cfg, s, layers_of(s), checksums) for s in scenarios}
             records = verified_records(folder, hashes, cfg.baseline) if resume else {}
             resumed = [s.name for s in scenarios if s.name in records]
             to_compute = [s for s in scenarios if s.name not in records]
             _prepare_folder(cfg, folder, to_compute, layers_of, replace=cfg.output.overwrite or resume)
+            _check_disk_space(cfg, grid, folder, to_compute, layers_of)
             write_progress(folder, records)
             written = {name: record_paths(folder, name, record) for name, record in records.items()}
             config_hash = cfg.config_hash()
@@ -135,10 +138,10 @@ def run(
                                           engine=runtime.engine)
                     written[scenario.name] = _write_scenario(cfg, grid, runtime, scenario, result, written, tags,
                                                              layers_of(scenario))
+                _refuse_empty_map(cfg, scenario, written[scenario.name])
                 records[scenario.name] = scenario_record(hashes[scenario.name], written[scenario.name])
                 write_progress(folder, records)
             summary = class_summary({s.name: written[s.name]["pathway_class"] for s in scenarios})
-            write_csv(summary, folder / SUMMARY_NAME)
             briefs: dict[str, Path] = {}
             if cfg.brief is not None:
                 with clock("briefs_s"):
@@ -149,6 +152,10 @@ def run(
                                       input_time={"baseline": today.attrs.get("time_info", {}),
                                                   **{name: _time_info(own) for name, own in own_layers.items()}},
                                       ensembles=ensembles)
+            manifest["input_warnings"] = input_warnings
+            # The summary and the manifest are the last two files, written only when everything else is:
+            # their presence says the run finished (a crash in the briefs leaves neither).
+            write_csv(summary, folder / SUMMARY_NAME)
             manifest_path = write_manifest(manifest, folder / MANIFEST_NAME)
             (folder / PROGRESS_NAME).unlink(missing_ok=True)
     return RunResult(
@@ -292,7 +299,8 @@ def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = 
         raise OutputError(f"{folder / 'brief'}: {len(existing)} brief file(s) exist ({', '.join(existing)}); "
                           "use --overwrite to replace them")
     grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
-    with RunLock(folder):
+    with RunLock(folder) as lock:
+        _clear_after_takeover(lock, folder, [s.name for s in cfg.scenarios])
         today = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
         return make_briefs(cfg.model_copy(update={"scenarios": chosen}), {s.name: folder / s.name for s in chosen}, today)
 
@@ -310,16 +318,111 @@ def _check_brief_inputs(cfg: RunConfig):
     """Refuse unusable district polygons before computing (the briefs are made last); returns them."""
     if cfg.brief is None:
         return None
+    from .reports.brief import MAX_DISTRICT_BRIEFS
     from .reports.zones import read_zones
 
-    return read_zones(cfg.brief.zones, cfg.brief.name_field)
+    zones = read_zones(cfg.brief.zones, cfg.brief.name_field)
+    if cfg.brief.per_district and len(zones) > MAX_DISTRICT_BRIEFS:
+        raise ConfigError(
+            f"{cfg.source_path or '<config>'}: brief.per_district: the district file {cfg.brief.zones} has "
+            f"{len(zones)} districts, and one brief each would be {2 * len(zones)} HTML and PDF files; at most "
+            f"{MAX_DISTRICT_BRIEFS} districts get briefs of their own. Set per_district: false (the region briefs "
+            "and the district table cover every district) or split the district file"
+        )
+    return zones
 
 
-def _clear_after_takeover(lock: RunLock, folder: Path) -> None:
+def _clear_after_takeover(lock: RunLock, folder: Path, scenario_names) -> None:
     if lock.taken_over_from is not None:
         warnings.warn(f"{lock.path}: taken over from {lock.taken_over_from.describe()}, which no longer "
                       "holds it (a run that was killed); its temporary files are removed", stacklevel=3)
-    remove_leftovers(folder)
+    remove_leftovers(folder, [*scenario_names, "brief"])
+
+
+#: Compression the disk check counts on at most: outputs are refused before computing only when they would
+#: not fit even this many times smaller than uncompressed (DEFLATE with a predictor on smooth fields;
+#: common practice, no source).
+_BEST_COMPRESSION = 10
+
+
+def _check_disk_space(cfg: RunConfig, grid: TargetGrid, folder: Path, to_compute, layers_of) -> None:
+    """Refuse (exit 4) a run whose outputs cannot fit on the disk, warn when they may not; arithmetic in
+    the message. Uncompressed size: cells x (4 bytes per float layer, 1 per class layer) per scenario,
+    plus the monthly datacube (4 bytes x 12 months per layer)."""
+    import shutil
+
+    cells = grid.width * grid.height
+    needed = 0
+    for scenario in to_compute:
+        per_cell = sum(1 if OUTPUT_LAYERS[n].categorical else 4 for n in layers_of(scenario))
+        if cfg.output.datacube:
+            per_cell += 4 * 12 * len(layer_names(DATACUBE))
+        needed += cells * per_cell
+    try:
+        free = shutil.disk_usage(folder).free
+    except OSError:
+        return
+    from .atomic import byte_size_text
+
+    arithmetic = (f"{grid.width} x {grid.height} = {cells:,} cells, {len(to_compute)} scenario(s): "
+                  f"{byte_size_text(needed)} uncompressed, {byte_size_text(free)} free on the disk of {folder}")
+    if free * _BEST_COMPRESSION < needed:
+        raise OutputError(f"the outputs cannot fit: {arithmetic}, and they would need to compress more than "
+                          f"{_BEST_COMPRESSION}x; free space, choose another output.folder, a coarser "
+                          "resolution or fewer layers (output.layers)")
+    if free < needed:
+        warnings.warn(f"the outputs may not fit: {arithmetic}; they fit only if compression saves "
+                      f"{1 - free / needed:.0%}", stacklevel=3)
+
+
+@contextmanager
+def _recording_input_warnings(into: list[str]):
+    """Pass every warning on as usual, and keep the text of the input-data ones (coverage, lost cells)
+    for the manifest."""
+    from .inputs.climate import InputCoverageWarning, InputLossWarning
+
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        yield
+    for warning in caught:
+        if issubclass(warning.category, (InputCoverageWarning, InputLossWarning)):
+            into.append(str(warning.message))
+        warnings.warn_explicit(warning.message, warning.category, warning.filename, warning.lineno)
+
+
+def _refuse_empty_map(cfg: RunConfig, scenario, paths: dict[str, Path]) -> None:
+    """A scenario that maps no cell is an error (exit 3), not a finished run with empty maps."""
+    counted = class_summary({scenario.name: paths["pathway_class"]})
+    if int(counted["valid_cells"].iloc[0]) > 0:
+        return
+    raise InputDataError(
+        f"scenario {scenario.name!r} maps no cell of the region ({paths['pathway_class']} holds only nodata): "
+        "every cell lost a value to the mask, to nodata or invalid values of an input, or to the scenario's "
+        f"settings (co2_ppm {scenario.co2_ppm:g}, temperature_offset_c {scenario.temperature_offset_c:g}); "
+        f"run 'suitability check {cfg.source_path or 'CONFIG'}' and look at the nodata column"
+    )
+
+
+def _warn_about_foreign_files(cfg: RunConfig, folder: Path) -> None:
+    """Warn when the output folder holds input files, or files and folders the tool does not write there.
+
+    Nothing is removed or refused: the tool only ever replaces its own outputs (and with --overwrite), but a
+    folder shared with inputs or other work is easy to damage by hand afterwards.
+    """
+    resolved = folder.resolve()
+    inputs = [Path(path) for path in input_files(cfg)]
+    inside = sorted(str(p) for p in inputs if resolved == p.resolve().parent or resolved in p.resolve().parents)
+    if inside:
+        shown = ", ".join(inside[:3]) + (f" and {len(inside) - 3} more" if len(inside) > 3 else "")
+        warnings.warn(f"output folder {folder} holds input files of this run ({shown}); keep outputs in a "
+                      "folder of their own", stacklevel=3)
+    own = {MANIFEST_NAME, SUMMARY_NAME, PROGRESS_NAME, "brief", *(s.name for s in cfg.scenarios)}
+    foreign = sorted(p.name for p in folder.iterdir()
+                     if p.name not in own and not p.name.startswith(".suitability"))
+    if foreign:
+        shown = ", ".join(foreign[:5]) + (f" and {len(foreign) - 5} more" if len(foreign) > 5 else "")
+        warnings.warn(f"output folder {folder} also holds {len(foreign)} file(s) or folder(s) the tool does not "
+                      f"write ({shown}); they are left as they are", stacklevel=3)
 
 
 def _prepare_folder(cfg: RunConfig, folder: Path, to_compute, layers_of, *, replace: bool) -> None:
@@ -338,14 +441,43 @@ def _write_scenario(cfg, grid, runtime, scenario, result, written, tags, names) 
         layers.update(_change_layers(written[cfg.baseline], result, names, cfg.compute.chunk_size))
     layers = {name: _georeferenced(layers[name], grid) for name in names}
     scenario_folder = Path(cfg.output.folder) / scenario.name
-    with runtime.progress(f"{scenario.name}: computing and writing"):
-        paths = write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=None)
-    if cfg.output.datacube:
-        cube = result[list(layer_names(DATACUBE)) + [n for n in layer_names(DERIVED) if n in result]]
-        cube.attrs.update(tags)
-        with runtime.progress(f"{scenario.name}: monthly datacube"):
-            paths["datacube"] = write_datacube(_georeferenced(cube, grid), scenario_folder / DATACUBE_NAME)
+    with _input_errors_named(cfg, scenario):
+        with runtime.progress(f"{scenario.name}: computing and writing"):
+            paths = write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=None)
+        if cfg.output.datacube:
+            cube = result[list(layer_names(DATACUBE)) + [n for n in layer_names(DERIVED) if n in result]]
+            cube.attrs.update(tags)
+            with runtime.progress(f"{scenario.name}: monthly datacube"):
+                paths["datacube"] = write_datacube(_georeferenced(cube, grid), scenario_folder / DATACUBE_NAME)
     return paths
+
+
+@contextmanager
+def _input_errors_named(cfg: RunConfig, scenario):
+    """Turn a failure while computing that comes from reading an input (a damaged tile outside the
+    sampled windows, say) into an InputDataError (exit 3) naming the input file and its layer."""
+    from .inputs.readers import layer_files
+
+    try:
+        yield
+    except OutputError as error:
+        text, seen = "", error
+        while seen is not None:
+            if isinstance(seen, InputDataError):  # a reader named the file and layer (GuardedRead)
+                raise InputDataError(f"{seen} (while computing scenario {scenario.name!r})") from error
+            text += f" {seen}"
+            seen = seen.__cause__ or seen.__context__
+        specs = [(name, spec) for name, spec in cfg.climate.items()]
+        specs += [(name, spec) for name, spec in (scenario.climate.items() if scenario.climate else ())]
+        candidates = [(name, path) for name, spec in specs for path in layer_files(spec, cfg.config_dir)]
+        candidates += [("mask", Path(cfg.region.mask))] if cfg.region.mask is not None else []
+        for name, path in candidates:
+            if str(path) in text:
+                raise InputDataError(
+                    f"{path}: layer {name!r}: cannot read the values while computing scenario {scenario.name!r}; "
+                    f"the file may be damaged in a part the checks did not sample ({error.__cause__ or error})"
+                ) from error
+        raise
 
 
 def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, chunk: int) -> dict[str, xr.DataArray]:

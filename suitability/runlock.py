@@ -24,6 +24,7 @@ import fcntl
 import json
 import os
 import socket
+import stat
 import sys
 from dataclasses import dataclass
 from datetime import datetime, timezone
@@ -93,10 +94,17 @@ class RunLock:
             raise OutputError(f"{self.path}: this run already holds the lock")
         for _ in range(_ATTEMPTS):
             try:
-                fd = os.open(self.path, os.O_RDWR | os.O_CREAT, 0o644)
+                # O_NOFOLLOW: a symbolic link planted at the lock's name is refused, never followed.
+                fd = os.open(self.path, os.O_RDWR | os.O_CREAT | os.O_NOFOLLOW | os.O_NONBLOCK, 0o644)
             except OSError as error:
+                if error.errno == errno.ELOOP:
+                    raise OutputError(f"{self.path}: the lock file of the output folder is a symbolic link; the tool "
+                                      "does not follow links when writing. Remove it and run again") from error
                 raise OutputError(f"{self.path}: cannot create the lock file of the output folder: {error}") from error
             try:
+                if not stat.S_ISREG(os.fstat(fd).st_mode):
+                    raise OutputError(f"{self.path}: the lock file of the output folder is not a regular file; "
+                                      "remove it and run again")
                 if self._lock_or_refuse(fd) and self._still_at_path(fd):
                     previous = LockOwner.from_text(_read(fd))
                     _write(fd, self._record())
@@ -143,7 +151,7 @@ class RunLock:
 
     def _still_at_path(self, fd: int) -> bool:
         try:
-            here = os.stat(self.path)
+            here = os.lstat(self.path)
         except FileNotFoundError:
             return False
         mine = os.fstat(fd)

@@ -123,6 +123,9 @@ def _open_scheduler(settings: ComputeConfig, progress: bool):
         from distributed import Client
 
         try:
+            # A server that accepts the connection but never answers would keep Client() waiting for ever
+            # (its timeout covers only the connection): ask the scheduler who it is, with a deadline, first.
+            _probe_scheduler(scheduler, CONNECT_TIMEOUT_S)
             client = Client(scheduler, timeout=CONNECT_TIMEOUT_S, set_as_default=True)
         except (OSError, TimeoutError) as error:
             raise ConfigError(
@@ -135,6 +138,36 @@ def _open_scheduler(settings: ComputeConfig, progress: bool):
             yield Runtime("distributed", client, n_workers, chunk_size, progress, scheduler, engine)
         finally:
             client.close()
+
+
+def _probe_scheduler(address: str, timeout: float) -> None:
+    """Connect to ``address`` and ask for its identity, all within ``timeout`` seconds (plus one for the
+    thread); raises TimeoutError when it does not answer, OSError when it cannot be reached."""
+    import asyncio
+    import concurrent.futures
+
+    async def identity():
+        from distributed.comm import connect
+        from distributed.security import Security
+
+        comm = await asyncio.wait_for(
+            connect(address, timeout=timeout, **Security().get_connection_args("client")), timeout)
+        try:
+            await asyncio.wait_for(comm.write({"op": "identity", "reply": True}), timeout)
+            reply = await asyncio.wait_for(comm.read(), timeout)
+        finally:
+            comm.abort()
+        if not isinstance(reply, dict) or reply.get("type") != "Scheduler":
+            raise OSError(f"{address} answered, but not as a dask scheduler")
+
+    # In a thread of its own: the caller may already run an event loop (a notebook).
+    pool = concurrent.futures.ThreadPoolExecutor(max_workers=1)
+    try:
+        pool.submit(asyncio.run, identity()).result(timeout=2 * timeout + 1)
+    except (asyncio.TimeoutError, concurrent.futures.TimeoutError):
+        raise TimeoutError(f"no answer within {timeout} s") from None
+    finally:
+        pool.shutdown(wait=False)
 
 
 def active_client():

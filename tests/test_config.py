@@ -293,11 +293,12 @@ _DELETE = _Delete()
 
 # (dotted key to set, value, key expected in the message, text expected in the message, basis of the rule)
 BAD_VALUES = [
-    ("scenarios[2].co2_ppm", -5, "scenarios[2].co2_ppm", "greater than 0", "contract: co2_ppm > 0"),
-    ("scenarios[1].o2_percent", 0, "scenarios[1].o2_percent", "greater than 0", "contract: 0 < o2 <= 100"),
-    ("scenarios[1].o2_percent", 101, "scenarios[1].o2_percent", "less than or equal to 100", "contract"),
-    ("scenarios[1].shortwave_factor", -0.1, "scenarios[1].shortwave_factor", "greater than or equal to 0", "contract"),
-    ("scenarios[1].water_availability_factor", -1, "scenarios[1].water_availability_factor", "greater than or equal to 0", "contract"),
+    # Ranges of suitability.config.schema.SCENARIO_RANGES (issue 13, class 6; each range's basis is there).
+    ("scenarios[2].co2_ppm", -5, "scenarios[2].co2_ppm", "expected 100 to 2000 ppm", "contract: SCENARIO_RANGES"),
+    ("scenarios[1].o2_percent", 0, "scenarios[1].o2_percent", "expected 1 to 40 %", "contract: SCENARIO_RANGES"),
+    ("scenarios[1].o2_percent", 101, "scenarios[1].o2_percent", "expected 1 to 40 %", "contract"),
+    ("scenarios[1].shortwave_factor", -0.1, "scenarios[1].shortwave_factor", "expected 0.5 to 1.5 (", "contract"),
+    ("scenarios[1].water_availability_factor", -1, "scenarios[1].water_availability_factor", "expected 0 to 2 (", "contract"),
     ("scenarios[1].name", "../up", "scenarios[1].name", "letters, digits", "POSIX portable file name set, no '.'"),
     ("scenarios[1].name", "a/b", "scenarios[1].name", "letters, digits", "no path separators"),
     ("scenarios[1].name", "two words", "scenarios[1].name", "letters, digits", "POSIX portable file name set"),

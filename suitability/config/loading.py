@@ -3,10 +3,17 @@
 :func:`load_config` reads the file with ``yaml.safe_load`` semantics (plus a duplicate-key check) and turns
 every validation problem into one :class:`~suitability.errors.ConfigError` that names the file, the line,
 the dotted key (``scenarios[2].co2_ppm``) and what was expected.
+
+What a config file may cost is bounded before it is parsed or validated: at most
+:data:`MAX_CONFIG_BYTES` bytes, read from a regular file only (not a device or a pipe), and at most
+:data:`MAX_CONFIG_NODES` YAML nodes once every alias is expanded (an "alias bomb" of a few lines can stand
+for billions of values); aliases that contain themselves are refused.
 """
 
 from __future__ import annotations
 
+import os
+import stat
 import types
 import typing
 from pathlib import Path
@@ -36,18 +43,95 @@ def _no_duplicate_keys(loader: _UniqueKeyLoader, node: yaml.MappingNode, deep: b
 
 _UniqueKeyLoader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _no_duplicate_keys)
 
+#: Largest config file read [bytes]. Real configs are a few kilobytes; the documented starter is ~10 KB.
+MAX_CONFIG_BYTES = 1024 * 1024
+#: Most YAML nodes (keys, values, list items) a config may stand for with its aliases expanded.
+MAX_CONFIG_NODES = 100_000
+
+
+def _read_bounded(path: Path) -> str:
+    """The text of ``path``: a regular file of at most MAX_CONFIG_BYTES bytes, UTF-8."""
+    try:
+        info = os.stat(path)
+    except FileNotFoundError:
+        raise ConfigError(f"{path}: config file not found") from None
+    except OSError as exc:
+        raise ConfigError(f"{path}: cannot read the config file ({exc})") from None
+    if not stat.S_ISREG(info.st_mode):
+        raise ConfigError(f"{path}: not a regular file; expected a YAML config file")
+    try:
+        with open(path, "rb") as handle:
+            data = handle.read(MAX_CONFIG_BYTES + 1)
+    except OSError as exc:
+        raise ConfigError(f"{path}: cannot read the config file ({exc})") from None
+    if len(data) > MAX_CONFIG_BYTES:
+        raise ConfigError(f"{path}: the config file is larger than {MAX_CONFIG_BYTES // 1024} KiB; a config "
+                          "is a few kilobytes of YAML (data belong in the files it points to)")
+    try:
+        return data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise ConfigError(f"{path}: cannot read the config file ({exc})") from None
+
+
+def _expanded_size(root: yaml.Node, path: Path) -> int:
+    """Number of nodes ``root`` stands for with aliases expanded; refuses more than MAX_CONFIG_NODES and
+    aliases that contain themselves. Linear in the number of distinct nodes (shared nodes counted once)."""
+    sizes: dict[int, int] = {}
+    active: set[int] = set()
+
+    def size(node: yaml.Node) -> int:
+        key = id(node)
+        if key in sizes:
+            return sizes[key]
+        if key in active:
+            raise ConfigError(f"{path}: line {node.start_mark.line + 1}: an alias refers to the value that "
+                              "contains it; expected a config without recursive aliases")
+        active.add(key)
+        total = 1
+        if isinstance(node, yaml.MappingNode):
+            for key_node, value_node in node.value:
+                total += size(key_node) + size(value_node)
+                if total > MAX_CONFIG_NODES:
+                    break
+        elif isinstance(node, yaml.SequenceNode):
+            for item in node.value:
+                total += size(item)
+                if total > MAX_CONFIG_NODES:
+                    break
+        active.discard(key)
+        sizes[key] = total
+        if total > MAX_CONFIG_NODES:
+            raise ConfigError(
+                f"{path}: with its aliases (*name) expanded the config stands for more than {MAX_CONFIG_NODES:,} "
+                f"values (the mapping or list at line {node.start_mark.line + 1} alone); expected a config of "
+                "ordinary size: use fewer or smaller aliases"
+            )
+        return total
+
+    return size(root)
+
+
+def _parse(text: str, path: Path):
+    """(data, root node) of the YAML ``text``, with duplicate keys refused and the size bounded."""
+    loader = _UniqueKeyLoader(text)
+    try:
+        root = loader.get_single_node()
+        if root is None:
+            return None, None
+        _expanded_size(root, path)
+        return loader.construct_document(root), root
+    finally:
+        loader.dispose()
+
 
 def load_config(path: str | Path) -> RunConfig:
     """Read and validate a YAML config. Raises ConfigError naming the file, line, key and what was expected."""
     path = Path(path).expanduser()
+    text = _read_bounded(path)
     try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise ConfigError(f"{path}: config file not found") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise ConfigError(f"{path}: cannot read the config file ({exc})") from None
-    try:
-        data = yaml.load(text, Loader=_UniqueKeyLoader)  # noqa: S506 - a SafeLoader subclass
+        data, root = _parse(text, path)  # a SafeLoader subclass
+    except RecursionError:
+        raise ConfigError(f"{path}: the YAML is nested too deeply; expected a config of ordinary size") from None
     except yaml.YAMLError as exc:
         raise ConfigError(f"{path}: {_yaml_problem(exc)}") from None
     if data is None:
@@ -59,7 +143,7 @@ def load_config(path: str | Path) -> RunConfig:
     try:
         return RunConfig.model_validate(data, context=context)
     except ValidationError as exc:
-        raise ConfigError(format_validation_error(exc, path, _key_lines(text))) from None
+        raise ConfigError(format_validation_error(exc, path, _key_lines(root))) from None
 
 
 def validate_config(data: dict, config_dir: str | Path | None = None) -> RunConfig:
@@ -135,12 +219,20 @@ def _yaml_problem(exc: yaml.YAMLError) -> str:
     return f"{where}YAML error: {problem}" + (f" ({context})" if context else "")
 
 
-def _key_lines(text: str) -> dict[tuple, int]:
-    """Line number (1-based) of every key and list item in the YAML text, by location tuple."""
+def _key_lines(root: yaml.Node | None) -> dict[tuple, int]:
+    """Line number (1-based) of every key and list item of the composed YAML, by location tuple.
+
+    A node reached again through an alias is not walked again (its keys keep the lines of where it is
+    written), so the walk is linear in the size of the file, whatever its aliases stand for.
+    """
     lines: dict[tuple, int] = {}
+    walked: set[int] = set()
 
     def walk(node, loc: tuple) -> None:
         lines[loc] = node.start_mark.line + 1
+        if id(node) in walked:
+            return
+        walked.add(id(node))
         if isinstance(node, yaml.MappingNode):
             for key_node, value_node in node.value:
                 key = key_node.value
@@ -151,10 +243,6 @@ def _key_lines(text: str) -> dict[tuple, int]:
             for i, item in enumerate(node.value):
                 walk(item, loc + (i,))
 
-    try:
-        root = yaml.compose(text, Loader=yaml.SafeLoader)
-    except yaml.YAMLError:
-        return lines
     if root is not None:
         walk(root, ())
     return lines

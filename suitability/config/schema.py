@@ -47,9 +47,11 @@ MONTH_FIELD = re.compile(r"\{month(?::(?P<spec>[^{}]*))?\}")
 #: The ``{member}`` placeholder of a scenario's climate path (one file per ensemble member).
 MEMBER_FIELD = "{member}"
 _SCENARIO_NAME = re.compile(r"^[A-Za-z0-9_-]+$")
-# Above this many cells (400 GB per float32 layer) a grid is almost surely a units slip, such as a
-# resolution in degrees over bounds in metres (0.01 over 200 km gives 4e14 cells).
-MAX_GRID_CELLS = 100_000_000_000
+# A practical limit, common practice, no source: 2e9 cells is a 1 km grid of the whole land surface twice
+# over, or a 30 m grid of a 1300 x 1300 km country; each float32 layer is then 8 GB uncompressed. More is
+# almost surely a units slip, such as a resolution in degrees over bounds in metres (0.01 over 200 km
+# gives 4e14 cells), and would only start allocating.
+MAX_GRID_CELLS = 2_000_000_000
 
 
 def _resolve_path(value: Path, info: ValidationInfo) -> Path:
@@ -155,11 +157,14 @@ class GridConfig(_Section):
             raise ValueError(f"bounds {list(self.bounds)} are outside longitude/latitude limits of the geographic CRS "
                              f"{self.bounds_crs or self.crs}")
         xmin, ymin, xmax, ymax = self.target_bounds()
-        cells = ((xmax - xmin) / self.resolution[0]) * ((ymax - ymin) / self.resolution[1])
+        width, height = (xmax - xmin) / self.resolution[0], (ymax - ymin) / self.resolution[1]
+        cells = width * height
         if cells > MAX_GRID_CELLS:
             raise ValueError(
-                f"resolution {list(self.resolution)} over bounds {list(self.bounds)} gives {cells:.3g} cells; "
-                "expected the resolution in the units of the CRS (metres for a projected CRS, degrees for a geographic one)"
+                f"resolution {list(self.resolution)} over bounds {list(self.bounds)} gives {width:.0f} x {height:.0f} = "
+                f"{cells:.3g} cells, {cells * 4 / 2**30:.3g} GiB per float32 layer; at most {MAX_GRID_CELLS:.0e} "
+                "cells: expected the resolution in the units of the CRS (metres for a projected CRS, degrees for "
+                "a geographic one), or split the region"
             )
         return self
 
@@ -405,16 +410,36 @@ class PhysiologyConfig(_Section):
         return value
 
 
+#: Longest scenario name: it names a folder, GeoTIFF tags and brief files (common practice, no source).
+MAX_SCENARIO_NAME = 64
+
+#: Accepted range of each numeric scenario setting: (low, high, unit, why). Values outside give outputs
+#: with no physical meaning (e.g. CO2 of 1e9 ppm), so they are refused with the key and the range.
+SCENARIO_RANGES = {
+    # Lower end below the glacial minimum of about 180 ppm (from memory: ice cores); upper end the practical
+    # range of the leaf models, whose CO2 responses are measured to about 2000 umol mol-1 (common practice).
+    "co2_ppm": (100.0, 2000.0, "ppm", "from below glacial levels to the upper end of the leaf models' measured range"),
+    # Low-O2 leaf experiments use about 1-2 %; ambient is 20.95 % (common practice, no source).
+    "o2_percent": (1.0, 40.0, "%", "from low-O2 experiments to twice ambient"),
+    # Regional warming of the most extreme long-range projections stays within about 15 degC (from memory).
+    "temperature_offset_c": (-15.0, 15.0, "degC", "a uniform change of air temperature"),
+    # A factor on radiation beyond +-50 % leaves the range of surface shortwave (common practice, no source).
+    "shortwave_factor": (0.5, 1.5, "", "a factor on shortwave radiation"),
+    # 0 is total drought; availability is capped at 1 after the factor (suitability.scenarios).
+    "water_availability_factor": (0.0, 2.0, "", "a factor on water availability, capped at 1 after it"),
+}
+
+
 class ScenarioConfig(_Section):
     """One scenario: CO2, O2, uniform warming, radiation and water factors, optional own climate layers."""
 
     name: str
     description: str = ""
-    co2_ppm: _Positive
-    o2_percent: Annotated[float, Field(gt=0, le=100)] = 20.95
+    co2_ppm: _Finite
+    o2_percent: _Finite = 20.95
     temperature_offset_c: _Finite = 0.0
-    shortwave_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
-    water_availability_factor: Annotated[float, Field(ge=0, allow_inf_nan=False)] = 1.0
+    shortwave_factor: _Finite = 1.0
+    water_availability_factor: _Finite = 1.0
     climate: ClimateLayers | None = None
     period: tuple[int, int] | None = None
     members: list[str] | None = None
@@ -453,6 +478,17 @@ class ScenarioConfig(_Section):
             raise ValueError(
                 f"scenario name {value!r} is used as an output folder name: use only letters, digits, '_' and '-'"
             )
+        if len(value) > MAX_SCENARIO_NAME:
+            raise ValueError(f"scenario name {value[:20]!r}... is {len(value)} characters long; it names folders and "
+                             f"files, so at most {MAX_SCENARIO_NAME} characters")
+        return value
+
+    @field_validator(*SCENARIO_RANGES)
+    @classmethod
+    def _within_range(cls, value: float, info: ValidationInfo) -> float:
+        low, high, unit, why = SCENARIO_RANGES[info.field_name]
+        if not low <= value <= high:
+            raise ValueError(f"expected {low:g} to {high:g}{' ' + unit if unit else ''} ({why}), got {value:g}")
         return value
 
 

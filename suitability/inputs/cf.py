@@ -25,7 +25,7 @@ import rioxarray  # noqa: F401 - registers the .rio accessor
 import xarray as xr
 
 from ..errors import InputDataError
-from .native import MONTHS, Native, keep_spatial
+from .native import MONTHS, Native, guarded_chunk, keep_spatial
 from .units import linear_conversion
 
 
@@ -63,16 +63,22 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
     keep = {"x", "y", "month", "time", "member"}
     var = var.drop_vars([c for c in var.coords if c not in keep])
     var = var.transpose(*[d for d in ("member", "time", "month", "y", "x") if d in var.dims])
-    var = var.chunk({**({"month": -1} if "month" in var.dims else {}), **({"time": 31} if "time" in var.dims else {}),
-                     "y": chunk, "x": chunk})
+    var = guarded_chunk(var, {"month": -1, "time": 31, "y": chunk, "x": chunk}, where)
+    transformations = [f"applied the file's scale_factor {var.encoding['scale_factor']:g} and add_offset "
+                       f"{var.encoding.get('add_offset', 0):g} (CF)"] if "scale_factor" in var.encoding else []
+    before = var["x"].values
     var = _lon_to_180(var, crs, where)
+    if var["x"].values.shape != before.shape or not np.array_equal(var["x"].values, before):
+        transformations.append("longitudes 0..360 wrapped to -180..180")
+    if var["y"].size > 1 and var["y"].values[1] > var["y"].values[0]:
+        transformations.append("rows flipped to north-up (latitudes stored south to north)")
     _check_regular(var, where)
     if nodata is not None:
         var = var.where(var != nodata)
     var = var.rio.write_crs(crs)
     var.attrs = {}
     driver = "Zarr" if engine == "zarr" else "netCDF"
-    return Native(keep_spatial(var), driver, file_units)
+    return Native(keep_spatial(var), driver, file_units, tuple(transformations))
 
 
 def _open_dataset(path: Path, name: str, engine: str | None) -> xr.Dataset:
@@ -237,8 +243,15 @@ def _lon_to_180(var: xr.DataArray, crs: Any, where: str) -> xr.DataArray:
 
     if not CRS.from_user_input(crs).is_geographic or float(var["x"].max()) <= 180.0:
         return var
-    shifted = ((var["x"].values + 180.0) % 360.0) - 180.0
-    return var.assign_coords(x=shifted).sortby("x")
+    x = var["x"].values
+    step = abs(float(x[1] - x[0])) if x.size > 1 else 0.0
+    whole_globe = x.size > 1 and abs(x.size * step - 360.0) <= 1e-6 * 360.0
+    if float(x.min()) > 180.0 or whole_globe:  # wrapping keeps the longitudes evenly spaced
+        shifted = ((x + 180.0) % 360.0) - 180.0
+        return var.assign_coords(x=shifted).sortby("x")
+    # A regional file that crosses 180 (e.g. 170..190): wrapping would cut it in two; longitudes above 180
+    # are valid as they are (pyproj and GDAL take them), so they are kept.
+    return var
 
 
 def _check_regular(var: xr.DataArray, where: str) -> None:

@@ -37,9 +37,56 @@ def read_sample(data: xr.DataArray, where: str) -> np.ndarray:
     index = {dim: _sample_index(data.sizes[dim]) for dim in ("y", "x")}
     try:
         values = data.isel(index).values
+    except InputDataError:
+        raise  # a reader already named the file and the layer
     except Exception as exc:  # noqa: BLE001 - a truncated file fails here, on first read
         raise InputDataError(f"{where}: cannot read the values; the file may be truncated or corrupt ({exc})") from None
     return np.asarray(values, dtype=np.float64)
+
+
+#: Share of a layer's (or one month's) sampled cells that may be lost to invalid values before a
+#: warning names them (common practice, no source: a few edge cells are normal, 1 % is not noise).
+LOSS_WARNING_SHARE = 0.01
+
+
+def lost_cells(name: str, converted: xr.DataArray, sample: np.ndarray, where: str) -> list[str]:
+    """Warnings for the cells a layer loses on reading, from a sample in canonical units (before the
+    valid-range mask) of the region: the share of values that are not finite or outside the layer's valid
+    range, per month where it has months, and months with more nodata than the layer's best month (a
+    month missing in part, e.g. missing chunks). Each names ``where`` (file and layer), the months and
+    the share; one for every kind of loss above :data:`LOSS_WARNING_SHARE`. ``check`` and ``run`` both
+    call this on the same sample."""
+    if sample.size == 0:
+        return []
+    low, high = INPUT_VARIABLES[converted.name].valid_range
+    values = sample.reshape((-1,) + sample.shape[-2:]) if sample.ndim >= 2 else sample.reshape(1, 1, -1)
+    months = [int(m) for m in converted["month"].values] if "month" in converted.dims else [None]
+    invalid, nodata = [], []
+    with np.errstate(invalid="ignore"):
+        for block in values:
+            present = ~np.isnan(block)
+            bad = present & ~((block >= low) & (block <= high))  # +-inf and out-of-range values
+            invalid.append(float(bad.mean()))
+            nodata.append(float((~present).mean()))
+    warnings_: list[str] = []
+    units = INPUT_VARIABLES[converted.name].units
+    lossy = [(m, share) for m, share in zip(months, invalid) if share > LOSS_WARNING_SHARE]
+    if lossy:
+        warnings_.append(f"{where}: {_months_text(lossy)} lose cells to values that are not finite or outside "
+                         f"{low:g}..{high:g} {units} (they become nodata)")
+    if len(nodata) > 1:
+        best = min(nodata)
+        gaps = [(m, share - best) for m, share in zip(months, nodata) if share - best > LOSS_WARNING_SHARE]
+        if gaps:
+            warnings_.append(f"{where}: {_months_text(gaps)} have more nodata than the layer's most complete month "
+                             "(missing or damaged parts of the file?)")
+    return warnings_
+
+
+def _months_text(items: list[tuple[int | None, float]]) -> str:
+    if items[0][0] is None:
+        return f"{items[0][1]:.1%} of the sampled cells"
+    return ", ".join(f"month {m}: {share:.1%}" for m, share in items) + " of the sampled cells"
 
 
 def _sample_index(size: int, windows: int = 8, width: int = SAMPLE_SIDE // 8):
@@ -110,12 +157,19 @@ def _footprint(data: xr.DataArray, crs: Any):
 def coverage_share(data: xr.DataArray, grid: TargetGrid) -> float:
     """Share [0-1] of the grid's area inside the layer's extent (edges densified before reprojecting)."""
     import shapely
+    import shapely.affinity
     from pyproj import CRS, Transformer
 
     box = shapely.box(*grid.bounds)
+    around = _global_band_share(data, grid)
+    if around is not None:
+        return around
     footprint = _footprint(data, grid.crs)
     if footprint is not None:
-        return float(min(1.0, footprint.intersection(box).area / box.area))
+        shifts = (0.0, -360.0, 360.0) if grid.is_geographic and data.rio.crs.is_geographic else (0.0,)
+        # longitude conventions: the alignment shifts a lon/lat layer by 360 degrees where that overlaps more
+        return max(float(min(1.0, shapely.affinity.translate(footprint, xoff=k).intersection(box).area / box.area))
+                   for k in shifts)
     # The layer's extent does not project into the grid CRS (a global lon/lat layer and a local
     # projection): measure the grid's footprint in the layer CRS instead.
     layer_crs = CRS.from_user_input(data.rio.crs.to_wkt())
@@ -128,6 +182,37 @@ def coverage_share(data: xr.DataArray, grid: TargetGrid) -> float:
     return float(region.intersection(extent).area / region.area) if region.area else 0.0
 
 
+def _global_band_share(data: xr.DataArray, grid: TargetGrid) -> float | None:
+    """For a longitude/latitude layer that goes all the way round (360 degrees of longitude): the share of
+    the region's latitudes it covers; None for any other layer. Projecting the bounds of such a layer into
+    a projected CRS (UTM, equal-area) is meaningless, so its coverage is decided in its own coordinates."""
+    from pyproj import CRS, Transformer
+
+    layer_crs = CRS.from_user_input(data.rio.crs.to_wkt())
+    if not layer_crs.is_geographic:
+        return None
+    left, bottom, right, top = data.rio.bounds(recalc=True)
+    if abs(right - left) < 360.0 - 1e-6:
+        return None
+    to_layer = Transformer.from_crs(grid.crs, layer_crs, always_xy=True)
+    xmin, ymin, xmax, ymax = grid.bounds
+    edge = np.linspace(0.0, 1.0, 101)
+    xs = np.concatenate([xmin + (xmax - xmin) * edge, np.full(101, xmax), xmax - (xmax - xmin) * edge, np.full(101, xmin)])
+    ys = np.concatenate([np.full(101, ymin), ymin + (ymax - ymin) * edge, np.full(101, ymax), ymax - (ymax - ymin) * edge])
+    with np.errstate(all="ignore"):
+        _, lat = to_layer.transform(xs, ys, errcheck=False)
+    lat = np.asarray(lat)[np.isfinite(lat)]
+    if lat.size == 0:
+        return None
+    if grid.contains_pole() is not None:
+        lat = np.append(lat, 90.0 if grid.contains_pole() == "North Pole" else -90.0)
+    south, north = float(lat.min()), float(lat.max())
+    low, high = min(bottom, top), max(bottom, top)
+    if north <= south:
+        return 1.0 if low <= south <= high else 0.0
+    return float(max(0.0, min(north, high) - max(south, low)) / (north - south))
+
+
 def cells_per_grid_cell(data: xr.DataArray, grid: TargetGrid) -> float | None:
     """How many layer cells fit in one grid cell (mean, in the grid's map plane); None if unknown."""
     footprint = _footprint(data, grid.crs)
@@ -135,3 +220,13 @@ def cells_per_grid_cell(data: xr.DataArray, grid: TargetGrid) -> float | None:
         return None
     layer_cell = footprint.area / (data.sizes["x"] * data.sizes["y"])
     return grid.resolution[0] * grid.resolution[1] / layer_cell
+
+
+def region_window(data: xr.DataArray, grid: TargetGrid) -> xr.DataArray:
+    """The part of a native-grid layer that lies under the region's bounds (in the layer's CRS)."""
+    from pyproj import CRS, Transformer
+
+    to_layer = Transformer.from_crs(grid.crs, CRS.from_user_input(data.rio.crs.to_wkt()), always_xy=True)
+    xmin, ymin, xmax, ymax = to_layer.transform_bounds(*grid.bounds, densify_pts=21)
+    window = data.sel(x=slice(xmin, xmax), y=slice(ymax, ymin))
+    return window if window.sizes["x"] and window.sizes["y"] else data

@@ -30,6 +30,10 @@ class InputCoverageWarning(UserWarning):
     """A layer covers only part of the region; cells outside it are NaN."""
 
 
+class InputLossWarning(UserWarning):
+    """A layer (or some of its months) loses more than a small share of cells to invalid values or nodata."""
+
+
 def open_layer(name: str, spec: Any, config_dir: str | Path | None = None, *, chunk: int = 512,
                member: str | None = None) -> xr.DataArray:
     """Open one climate layer lazily on its own grid, float32, in canonical units, nodata and invalid values NaN.
@@ -40,6 +44,10 @@ def open_layer(name: str, spec: Any, config_dir: str | Path | None = None, *, ch
     Raises InputDataError naming the file, the layer and what was expected.
     """
     converted, _ = open_converted(name, spec, config_dir, chunk, member)
+    return _valid_only(converted)
+
+
+def _valid_only(converted: xr.DataArray) -> xr.DataArray:
     low, high = INPUT_VARIABLES[converted.name].valid_range
     out = converted.where((converted >= low) & (converted <= high))
     out.attrs = converted.attrs
@@ -67,8 +75,8 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int, member: str | N
 
     sample = read_sample(native.data, where)
     check_plausible(name, declared, scale, offset, sample, where)
-    if not np.isfinite(sample).any() and not bool(native.data.notnull().any().compute()):
-        raise InputDataError(f"{where}: every cell is nodata; expected some valid values")
+    if not np.isfinite(sample).any() and not bool(np.isfinite(native.data).any().compute()):
+        raise InputDataError(f"{where}: every cell is nodata or not a finite number; expected some valid values")
 
     data = native.data
     if (scale, offset) != (1.0, 0.0):
@@ -124,7 +132,8 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
     layers: dict[str, xr.DataArray] = {}
     time_info: dict[str, dict] = {}
     for name, spec in climate_config.items():
-        layer = open_layer(name, spec, config_dir, chunk=chunk, member=member)
+        converted, _ = open_converted(name, spec, config_dir, chunk, member)
+        layer = _valid_only(converted)
         if "time_info" in layer.attrs:
             time_info[name] = layer.attrs["time_info"]
         path = member_path(absolute(spec.path, config_dir), member)
@@ -137,6 +146,8 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
         if share < 1.0 - 1e-6:
             warnings.warn(f"{path}: layer {name!r} covers {share:.1%} of the region; cells outside it are NaN",
                           InputCoverageWarning, stacklevel=2)
+        for message in layer_losses(name, converted, grid, f"{path}: layer {name!r}"):
+            warnings.warn(message, InputLossWarning, stacklevel=2)
         resampling = getattr(spec, "resampling", None) or INPUT_VARIABLES[name].resampling
         if layer.name in layers:
             raise InputDataError(f"{path}: layer {name!r} gives {layer.name!r}, which another layer already gives")
@@ -145,6 +156,15 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
     dataset = xr.Dataset(layers).rio.write_crs(grid.crs.to_wkt())
     dataset.attrs["time_info"] = time_info
     return dataset
+
+
+def layer_losses(name: str, converted: xr.DataArray, grid: TargetGrid, where: str) -> list[str]:
+    """:func:`.checks.lost_cells` on a sample of the part of ``converted`` (canonical units, before the
+    valid-range mask) that lies under the region; the same call ``check`` makes."""
+    from .checks import lost_cells, region_window
+
+    sample = read_sample(region_window(converted, grid), where)
+    return lost_cells(name, converted, sample, where)
 
 
 def load_mask(region_config: Any, grid: TargetGrid, config_dir: str | Path | None = None, chunk: int = 512) -> xr.DataArray | None:
@@ -160,4 +180,7 @@ def load_mask(region_config: Any, grid: TargetGrid, config_dir: str | Path | Non
     aligned = align_to_grid(native, grid, "nearest", chunk)
     keep = aligned.notnull() & (aligned != 0)
     keep.name = "mask"
+    if not bool(keep.any().compute()):
+        raise InputDataError(f"{path}: the region mask keeps no cell of the region (every cell is 0 or nodata "
+                             "there); expected non-zero values where results are wanted")
     return keep

@@ -10,10 +10,10 @@ import numpy as np
 import xarray as xr
 
 from ..errors import InputDataError
-from ..grid import TargetGrid
+from ..grid import TargetGrid, align_to_grid
 from ..variables import INPUT_VARIABLES
-from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, read_sample
-from .climate import open_converted
+from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, lost_cells, read_sample, region_window
+from .climate import load_mask, open_converted
 from .periods import ShortPeriodWarning
 from .raster import read_raster
 from .readers import absolute, member_labels
@@ -151,6 +151,7 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
         report.time = "12 months"
     report.output_name = converted.name
     report.driver = native.driver
+    report.warnings += [f"on reading: {t}" for t in native.transformations]
     report.file_units = native.file_units
     report.declared_units = report.declared_units or native.file_units
     report.canonical_units = converted.attrs["units"]
@@ -169,11 +170,18 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
     if report.overlap_share < 1.0 - 1e-6:
         report.warnings.append(f"covers {report.overlap_share:.1%} of the region; cells outside are NaN")
     resampling = getattr(spec, "resampling", None) or INPUT_VARIABLES[name].resampling
+    try:
+        align_to_grid(converted, grid, resampling, SAMPLE_SIDE * 2)  # lazy: only what a run would set up
+    except InputDataError as exc:
+        report.problems.append(str(exc))
+        return report
     ratio = cells_per_grid_cell(converted, grid)
     if ratio is not None and ratio > 4.0 and resampling in ("nearest", "bilinear", "cubic"):
         report.warnings.append(f"about {ratio:.0f} layer cells per grid cell: '{resampling}' uses only the cells next to "
                                "each grid cell centre; resampling: average uses them all")
-    sample = read_sample(_region_window(converted, grid), f"{spec.path}: layer {name!r}")
+    where = f"{spec.path}: layer {name!r}"
+    sample = read_sample(region_window(converted, grid), where)
+    report.warnings += [w.removeprefix(f"{where}: ") for w in lost_cells(name, converted, sample, where)]
     valid = np.isfinite(sample)
     report.nodata_share = float(1.0 - valid.mean()) if sample.size else None
     low, high = INPUT_VARIABLES[converted.name].valid_range
@@ -181,9 +189,6 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
     report.out_of_range_share = float(1.0 - inside.mean()) if inside.size else None
     if report.nodata_share == 1.0:
         report.problems.append("no valid value within the region (on a sample)")
-    if report.out_of_range_share:
-        report.warnings.append(f"{report.out_of_range_share:.1%} of sampled values are outside {low:g}..{high:g} "
-                               f"{converted.attrs['units']} and become nodata")
     return report
 
 
@@ -199,14 +204,9 @@ def _inspect_mask(region: Any, grid: TargetGrid, config_dir) -> LayerReport:
     report.overlap_share = coverage_share(native.data, grid)
     if report.overlap_share <= 0.0:
         report.problems.append("does not overlap the region")
+        return report
+    try:
+        load_mask(region, grid, config_dir, SAMPLE_SIDE * 2)  # the same check as a run makes
+    except InputDataError as exc:
+        report.problems.append(str(exc))
     return report
-
-
-def _region_window(data: xr.DataArray, grid: TargetGrid) -> xr.DataArray:
-    """The part of a native-grid layer that lies under the region's bounds (in the layer's CRS)."""
-    from pyproj import CRS, Transformer
-
-    to_layer = Transformer.from_crs(grid.crs, CRS.from_user_input(data.rio.crs.to_wkt()), always_xy=True)
-    xmin, ymin, xmax, ymax = to_layer.transform_bounds(*grid.bounds, densify_pts=21)
-    window = data.sel(x=slice(xmin, xmax), y=slice(ymax, ymin))
-    return window if window.sizes["x"] and window.sizes["y"] else data

@@ -5,6 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
 import xarray as xr
 
 #: The months of a monthly layer, January first.
@@ -28,6 +29,9 @@ class Native:
     driver: str
     file_units: str | None
     time: Any = None
+    #: What the reader did to the values or coordinates on reading (scale and offset applied, longitudes
+    #: wrapped, axes flipped), in words; ``check`` lists them.
+    transformations: tuple[str, ...] = ()
 
 
 def keep_spatial(data: xr.DataArray) -> xr.DataArray:
@@ -42,3 +46,37 @@ def keep_spatial(data: xr.DataArray) -> xr.DataArray:
     for dim in ("x", "y"):
         data[dim].attrs = {}
     return data
+
+
+class GuardedRead:
+    """A lazily opened DataArray as ``dask.array.from_array`` takes it: each block is read on its own, and
+    a failure while reading (a damaged tile or chunk the sample checks did not touch) becomes an
+    InputDataError naming the file and the layer, so that it is reported as an input problem (exit 3)."""
+
+    def __init__(self, lazy: xr.DataArray, where: str):
+        self.lazy, self.where = lazy, where
+        self.shape, self.dtype, self.ndim = lazy.shape, lazy.dtype, lazy.ndim
+
+    def __getitem__(self, key):
+        from ..errors import InputDataError
+
+        try:
+            return np.asarray(self.lazy[key].values)
+        except Exception as exc:  # noqa: BLE001 - every reader failure means the same to the user
+            raise InputDataError(
+                f"{self.where}: cannot read the values ({type(exc).__name__}: {exc}); the file may be truncated or "
+                "damaged (possibly where the checks before computing did not sample)"
+            ) from None
+
+
+def guarded_chunk(lazy: xr.DataArray, chunks: dict[str, int], where: str) -> xr.DataArray:
+    """``lazy`` (opened without dask) as a dask-backed DataArray with ``chunks`` (dim -> size, -1 whole),
+    read through :class:`GuardedRead`."""
+    import dask.array as da
+    from dask.base import tokenize
+
+    sizes = tuple(chunks.get(dim, -1) for dim in lazy.dims)
+    data = da.from_array(GuardedRead(lazy, where), chunks=sizes, name=f"read-{tokenize(where, lazy.shape, sizes)}",
+                         meta=np.empty((0,) * lazy.ndim, dtype=lazy.dtype), asarray=False, fancy=False,
+                         inline_array=True)
+    return lazy.copy(data=data)

@@ -159,4 +159,5 @@ def _read_month_pattern(name: str, pattern: Path, options: dict, chunk: int) -> 
     data = xr.concat([n.data.assign_coords(x=first.x, y=first.y) for n in months], dim="month")
     data = data.assign_coords(month=list(MONTHS)).rio.write_crs(first.rio.crs)
     units = {n.file_units for n in months}
-    return Native(data, months[0].driver, months[0].file_units if len(units) == 1 else None)
+    transformations = tuple(dict.fromkeys(t for m in months for t in m.transformations))
+    return Native(data, months[0].driver, months[0].file_units if len(units) == 1 else None, transformations)

@@ -2,8 +2,12 @@
 
 One brief per non-baseline scenario, each comparing that scenario with the baseline
 (``<folder>/brief/<region>_<scenario>.html`` and ``.pdf``); with only a baseline, one brief for it.
-Optionally one brief per district covering every scenario (``<region>_<district>.html`` / ``.pdf``).
-Beside them the district table is written as ``<region>_districts.csv`` and ``.gpkg``.
+Optionally one brief per district covering every scenario (``<region>_<district>.html`` / ``.pdf``;
+a district whose name gives a scenario's file name is numbered instead). Beside them the district table is written as ``<region>_districts.csv`` and ``.gpkg``.
+
+File names come from names (:func:`file_stems`): lower-case ASCII letters, digits and ``_`` only, at most
+:data:`MAX_STEM` characters (a longer name is cut and ends in a short hash of the whole name), unique
+ignoring case; two names that would give one file name get ``_2``, ``_3``, ... and a warning says so.
 
 Every number in the text comes from the table of :func:`suitability.reports.zones.zonal_statistics`.
 The HTML embeds its figures as base64 data URIs and its CSS inline; the PDF is WeasyPrint's rendering
@@ -13,9 +17,13 @@ of the same HTML.
 from __future__ import annotations
 
 import base64
+import dataclasses
+import functools
+import hashlib
 import math
 import os
 import re
+import warnings
 from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass, field
 from datetime import date
@@ -218,10 +226,39 @@ def table_rows(table: pd.DataFrame, scenarios: Sequence[str], baseline: str,
 
 # --- files -----------------------------------------------------------------------------------------------
 
-def slug(text: str) -> str:
-    """A file-name-safe form of ``text``: lower case, runs of other characters replaced by '_'."""
-    cleaned = re.sub(r"[^0-9a-zA-Z]+", "_", text.strip().lower()).strip("_")
-    return cleaned or "region"
+#: Longest file-name stem made from names (well below the 255 bytes of common file systems, leaving room
+#: for a suffix, the region part and a collision number).
+MAX_STEM = 60
+
+
+def slug(text: str, limit: int = MAX_STEM) -> str:
+    """A file-name-safe form of ``text``: lower case, runs of other characters replaced by '_', at most
+    ``limit`` characters (a longer one is cut and ends with 8 hex digits of the SHA-1 of ``text``)."""
+    cleaned = re.sub(r"[^0-9a-zA-Z]+", "_", text.strip().lower()).strip("_") or "region"
+    if len(cleaned) > limit:
+        digest = hashlib.sha1(text.encode("utf-8")).hexdigest()[:8]
+        cleaned = f"{cleaned[:limit - 9].rstrip('_')}_{digest}"
+    return cleaned
+
+
+def file_stems(named: Sequence[tuple[str, str]]) -> list[str]:
+    """Unique file stems for ``(stem, what)`` pairs, in order: a stem already taken (ignoring case) gets
+    ``_2``, ``_3``, ... and one warning lists every renamed file (``what`` names its source)."""
+    taken: set[str] = set()
+    stems, renamed = [], []
+    for stem, what in named:
+        chosen, n = stem, 1
+        while chosen.lower() in taken:
+            n += 1
+            chosen = f"{stem}_{n}"
+        taken.add(chosen.lower())
+        stems.append(chosen)
+        if chosen != stem:
+            renamed.append(f"{what} -> {chosen}")
+    if renamed:
+        warnings.warn("names that would give the same brief file name were numbered: " + "; ".join(renamed),
+                      stacklevel=3)
+    return stems
 
 
 def _data_uri(png: bytes) -> str:
@@ -280,14 +317,33 @@ class _Figures:
             crossover=context.crossover_function))
 
 
+#: Most districts a region brief lists (table, sentences, chart): the largest by area. More would make
+#: pages nobody reads and PDFs that take long to lay out; the district table holds all of them.
+MAX_BRIEF_DISTRICTS = 100
+#: Most districts that get a brief of their own (``brief.per_district``); checked before computing.
+MAX_DISTRICT_BRIEFS = 200
+
+
+def largest_districts(table: pd.DataFrame, count: int) -> list[str]:
+    """The ``count`` districts of ``table`` with the largest area, in the table's order."""
+    areas = table.drop_duplicates("district").set_index("district")["district_area_ha"]
+    kept = set(areas.sort_values(ascending=False, kind="stable").index[:count])
+    return [d for d in dict.fromkeys(table["district"]) if d in kept]
+
+
 def render_html(context: BriefContext, table: pd.DataFrame, scenario: ScenarioInfo,
                 drawn: _Figures, district: str | None = None) -> str:
     """The HTML of one brief: ``scenario`` against the baseline, or (``district``) one district, all scenarios."""
     baseline = context.scenario(context.baseline)
     districts = [district] if district is not None else None
+    if district is None and table["district"].nunique() > MAX_BRIEF_DISTRICTS:
+        districts = largest_districts(table, MAX_BRIEF_DISTRICTS)
+        note = (f"This brief shows the {len(districts)} largest of {table['district'].nunique()} districts; "
+                "every district is in the district table (CSV and GeoPackage) beside it.")
+        context = dataclasses.replace(context, notes=(*context.notes, note))
     if district is None:
         shown = [baseline] if scenario.is_baseline or scenario.name == baseline.name else [baseline, scenario]
-        summaries = [(scenario.name, summary_sentences(table, baseline.name, scenario.name))]
+        summaries = [(scenario.name, summary_sentences(table, baseline.name, scenario.name, districts))]
     else:
         shown = list(context.scenarios)
         summaries = [(s.name, summary_sentences(table, baseline.name, s.name, districts)) for s in shown]
@@ -327,15 +383,31 @@ def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.D
     ``<folder>/brief/``. table: a precomputed :func:`zonal_statistics` table (computed here if None).
     """
     out = Path(folder) / "brief"
+    if out.is_symlink():
+        raise OutputError(f"{out}: is a symbolic link; the tool does not write through links inside the output "
+                          "folder. Remove it and run again")
+    created = not out.exists()
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
         raise OutputError(f"{out}: cannot create the brief folder ({exc})") from exc
+    try:
+        return _build_brief(context, out, table)
+    except BaseException:
+        if created:  # a refused brief leaves no empty brief/ folder behind
+            try:
+                out.rmdir()
+            except OSError:
+                pass
+        raise
+
+
+def _build_brief(context: BriefContext, out: Path, table: pd.DataFrame | None) -> dict[str, Path]:
     scenario_folders = {s.name: Path(s.output_folder) for s in context.scenarios}
     if table is None:
         table = zonal_statistics(context.zones_path, context.name_field, scenario_folders, context.baseline)
     zones = read_zones(context.zones_path, context.name_field)
-    region = slug(context.region)
+    region = slug(context.region, 40)
     written: dict[str, Path] = {}
     for path in (
         write_table_csv(table, out / f"{region}_districts.csv"),
@@ -344,14 +416,18 @@ def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.D
     ):
         written[path.name] = path
     drawn = _Figures(context, table, zones)
-    pages: list[tuple[str, str]] = []
-    for scenario in context.compared:
-        pages.append((f"{region}_{slug(scenario.name)}", render_html(context, table, scenario, drawn)))
-    if context.per_district:
-        for district in zones["district"]:
-            html = render_html(context, table, context.scenario(context.baseline), drawn, district=district)
-            pages.append((f"{region}_{slug(district)}", html))
-    for stem, html in pages:
+    named = [(f"{region}_{slug(s.name)}", f"scenario {s.name!r}") for s in context.compared]
+    districts = list(zones["district"]) if context.per_district else []
+    named += [(f"{region}_{slug(str(d))}", f"district {d!r}") for d in districts]
+    stems = file_stems(named)
+    pages: list[tuple[str, Callable[[], str]]] = []
+    for stem, scenario in zip(stems, context.compared):
+        pages.append((stem, functools.partial(render_html, context, table, scenario, drawn)))
+    for stem, district in zip(stems[len(context.compared):], districts):
+        pages.append((stem, functools.partial(render_html, context, table, context.scenario(context.baseline), drawn,
+                                              district=district)))
+    for stem, render in pages:
+        html = render()
         html_path = write_text_atomic(out / f"{stem}.html", html, what="the brief")
         pdf_path = _write_pdf(html, out / f"{stem}.pdf")
         written[html_path.name] = html_path

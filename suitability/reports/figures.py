@@ -55,6 +55,11 @@ OUTLINE_COLOUR = "#3A3A3A"
 CHANGE_COLORMAP = "BrBG_r"  # low (towards C3) blue-green, high (towards C4) brown
 _INK = "#222222"
 _MAX_MAP_PIXELS = 1200
+#: Most district names drawn on a map: with more, names would cover the map (and cost time and memory
+#: for nothing), so only the highlighted district is named; every district is in the table.
+MAX_MAP_LABELS = 40
+#: Most districts in the class-share chart: the largest by area; every district is in the table.
+MAX_CHART_DISTRICTS = 30
 
 
 class ScenarioPoint(Protocol):
@@ -156,7 +161,7 @@ def _map_axes(figure: Figure, raster: _MapRaster, title: str):
     axes.set_yticks([])
     for spine in axes.spines.values():
         spine.set_edgecolor("#BBBBBB")
-    axes.set_title(title, loc="left", fontsize=10, color=_INK, pad=6)
+    axes.set_title(title, loc="left", fontsize=10, color=_INK, pad=6, parse_math=False)
     return axes
 
 
@@ -169,13 +174,15 @@ def _draw_districts(axes, zones: gpd.GeoDataFrame | None, raster: _MapRaster, hi
         on_map[on_map["district"] == highlight].boundary.plot(ax=axes, color="#000000", linewidth=2.6)
     halo = [patheffects.withStroke(linewidth=3, foreground="white")]
     left, right, bottom, top = raster.extent
-    for name, geometry in zip(on_map["district"], on_map.geometry):
+    labelled = on_map if len(on_map) <= MAX_MAP_LABELS else on_map[on_map["district"] == highlight]
+    for name, geometry in zip(labelled["district"], labelled.geometry):
         if geometry is None or geometry.is_empty:
             continue
         point = geometry.representative_point()
         if left <= point.x <= right and bottom <= point.y <= top:
+            # parse_math=False: a name is plain text ("$5$" is not mathematics)
             axes.annotate(str(name), (point.x, point.y), ha="center", va="center", fontsize=9, color=_INK,
-                          path_effects=halo)
+                          path_effects=halo, parse_math=False)
     axes.set_xlim(left, right)
     axes.set_ylim(bottom, top)
     axes.set_xlabel("")  # geopandas labels the axes with the CRS's axis names; the frame is enough
@@ -295,6 +302,13 @@ def class_share_table(table: pd.DataFrame, scenarios: Sequence[str] | None = Non
 def class_share_figure(table: pd.DataFrame, scenarios: Sequence[str] | None = None) -> Figure:
     """Stacked horizontal bars: the share of each district's mapped land in each class, per scenario."""
     shares = class_share_table(table, scenarios)
+    districts = list(dict.fromkeys(shares["district"]))
+    left_out = 0
+    if len(districts) > MAX_CHART_DISTRICTS:
+        areas = table.drop_duplicates("district").set_index("district")["district_area_ha"]
+        kept = set(areas.reindex(districts).sort_values(ascending=False).index[:MAX_CHART_DISTRICTS])
+        left_out = len(districts) - len(kept)
+        shares = shares[shares["district"].isin(kept)].reset_index(drop=True)
     labels = [f"{d}  \u00b7  {s}" for d, s in zip(shares["district"], shares["scenario"])]
     height = max(2.5, 0.32 * len(labels) + 1.4)
     figure = Figure(figsize=(7.5, height))
@@ -307,8 +321,11 @@ def class_share_figure(table: pd.DataFrame, scenarios: Sequence[str] | None = No
                   height=0.78, label=CLASS_LABELS[code])
         left += values
     axes.set_yticks(positions, labels, fontsize=8)
+    for label in axes.get_yticklabels():
+        label.set_parse_math(False)  # names are plain text
     axes.set_xlim(0, 100)
-    axes.set_xlabel("share of the district's mapped land (%)", fontsize=8.5, color=_INK)
+    note = f" \u2013 the {MAX_CHART_DISTRICTS} largest districts; {left_out} more in the table" if left_out else ""
+    axes.set_xlabel(f"share of the district's mapped land (%){note}", fontsize=8.5, color=_INK)
     axes.tick_params(axis="x", labelsize=8)
     for side in ("top", "right"):
         axes.spines[side].set_visible(False)

@@ -131,6 +131,14 @@ def read_zones(zones_path: str | os.PathLike, name_field: str) -> gpd.GeoDataFra
             f"{path}: field {name_field!r} has duplicate district names: {', '.join(duplicated)}; "
             "expected one polygon (or multipolygon) per name"
         )
+    kinds = zones.geometry.geom_type
+    wrong = ~kinds.isin(["Polygon", "MultiPolygon"])
+    if wrong.any():
+        examples = ", ".join(f"{n!r} ({k})" for n, k in list(zip(names[wrong], kinds[wrong].fillna("no geometry")))[:5])
+        raise InputDataError(
+            f"{path}: {int(wrong.sum())} district(s) are not polygons: {examples}; expected one polygon "
+            "(or multipolygon) per district (points and lines have no area to summarise)"
+        )
     return gpd.GeoDataFrame({"district": names.to_numpy()}, geometry=zones.geometry.to_numpy(), crs=zones.crs)
 
 
