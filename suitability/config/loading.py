@@ -138,12 +138,13 @@ def load_config(path: str | Path) -> RunConfig:
         raise ConfigError(f"{path}: the config file is empty; expected the sections region, climate, scenarios, ...")
     if not isinstance(data, dict):
         raise ConfigError(f"{path}: expected a mapping of sections (region, climate, scenarios, ...), got {type(data).__name__}")
-    _refuse_placeholders(data, path, _key_lines(text))
+    lines = _key_lines(root)
+    _refuse_placeholders(data, path, lines)
     context = {"config_dir": path.parent.absolute(), "source_path": path}
     try:
         return RunConfig.model_validate(data, context=context)
     except ValidationError as exc:
-        raise ConfigError(format_validation_error(exc, path, _key_lines(root))) from None
+        raise ConfigError(format_validation_error(exc, path, lines)) from None
 
 
 def validate_config(data: dict, config_dir: str | Path | None = None) -> RunConfig:

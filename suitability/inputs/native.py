@@ -28,10 +28,10 @@ class Native:
     data: xr.DataArray
     driver: str
     file_units: str | None
-    time: Any = None
     #: What the reader did to the values or coordinates on reading (scale and offset applied, longitudes
     #: wrapped, axes flipped), in words; ``check`` lists them.
     transformations: tuple[str, ...] = ()
+    time: Any = None
 
 
 def keep_spatial(data: xr.DataArray) -> xr.DataArray:

@@ -34,7 +34,7 @@ Temperature (``capacity_temperature_response``):
   2002 form, normalised at 25 °C) responses of Vcmax (Ha 67294 J mol-1, Hd 144568 J mol-1, ΔS 472 J mol-1
   K-1), Vpmax (70373, 117910, 376; also used for Vpr, a decision here) and Jmax (77900, 191929, 627) fitted
   to maize by Massad, Tuzet & Bethenod (2007) Plant Cell Environ 30:1191 (doi:10.1111/j.1365-3040.2007.01691.x)
-  [values from two independent transcriptions of the paper's table, not from the paper itself; one gives
+  [values from two independent secondary copies of the paper's table, not from the paper itself; one gives
   Hd of Vpmax as 117930: see ``MASSAD_2007``]. Their optima (Medlyn et al. 2002 eq. 18) are about 32 °C
   (Vcmax), 43 °C (Vpmax) and 31 °C (Jmax);
 - "caemmerer2021": Arrhenius (von Caemmerer 2021 J Exp Bot 72:6003) for Vcmax (78.0 kJ mol-1) and Vpmax

@@ -211,20 +211,20 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
                 "stomata with the C4-crop g1 of Lin et al. (2015)"
             ),
             "model": "vc2000",
-            "kinetics": "caemmerer2000_c4",  # von Caemmerer (2000) Table 4.1 [P via transcriptions]
-            "vcmax25": 60.0,  # von Caemmerer (2000) Table 4.1 example leaf [P via transcriptions]
+            "kinetics": "caemmerer2000_c4",  # von Caemmerer (2000) Table 4.1 [P via secondary copies]
+            "vcmax25": 60.0,  # von Caemmerer (2000) Table 4.1 example leaf [P via secondary copies]
             "vpmax25": 120.0,  # idem
             "vpr25": 80.0,  # idem
             "jmax25": 400.0,  # idem
             "rd25": None,  # 0.01 Vcmax25 [M]
-            "rm_fraction": 0.5,  # Rm = 0.5 Rd, von Caemmerer (2000) [P via transcriptions]
-            "gbs": 0.003,  # mol m-2 s-1 bar-1, von Caemmerer (2000) Table 4.1 [P via transcriptions]
-            "x": 0.4,  # von Caemmerer (2000) Table 4.1 [P via transcriptions]
+            "rm_fraction": 0.5,  # Rm = 0.5 Rd, von Caemmerer (2000) [P via secondary copies]
+            "gbs": 0.003,  # mol m-2 s-1 bar-1, von Caemmerer (2000) Table 4.1 [P via secondary copies]
+            "x": 0.4,  # von Caemmerer (2000) Table 4.1 [P via secondary copies]
             "theta": 0.7,  # von Caemmerer (2000) [M]
             "spectral_correction": 0.32,  # [C] shared with the C3 sets (see above)
             "jmax_optimum_c": 43.0,  # von Caemmerer (2021), used only with "caemmerer2021"
             "jmax_width_c": 26.0,  # idem
-            "capacity_temperature_response": "massad2007",  # Massad et al. (2007) maize [P via transcriptions]
+            "capacity_temperature_response": "massad2007",  # Massad et al. (2007) maize [P via secondary copies]
             "chilling_response": "collatz1992",  # Collatz et al. (1992) low-temperature term [P form]
             "chilling_temperature_c": 13.0,  # Collatz et al. (1992) [P form]
             "stomatal_model": "medlyn",
@@ -274,7 +274,7 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "spectral_correction": 0.32,
             "jmax_optimum_c": 43.0,
             "jmax_width_c": 26.0,
-            # Massad, Tuzet & Bethenod (2007) peaked Vcmax, Vpmax, Jmax (maize) [P via two transcriptions].
+            # Massad, Tuzet & Bethenod (2007) peaked Vcmax, Vpmax, Jmax (maize) [P via two secondary copies].
             "capacity_temperature_response": "massad2007",
             # Collatz et al. (1992) low-temperature term on Vcmax, Vpmax, Vpr, half at 13 °C [P form].
             "chilling_response": "collatz1992",

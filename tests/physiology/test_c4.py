@@ -153,7 +153,7 @@ def _vc2000_light_saturated_net(temperature_c, **overrides):
 
 
 def test_massad_capacity_factors_match_the_published_peaked_form():
-    # Massad, Tuzet & Bethenod (2007) Plant Cell Environ 30:1191 (Ha, Hd, ΔS from two transcriptions of the
+    # Massad, Tuzet & Bethenod (2007) Plant Cell Environ 30:1191 (Ha, Hd, ΔS from two secondary copies of the
     # paper, not the paper itself): Vcmax 67294, 144568, 472; Vpmax 70373, 117910, 376; Jmax 77900, 191929,
     # 627 (J mol-1, J mol-1 K-1), in the peaked form of Medlyn et al. (2002) eq. 17 normalised at 25 °C,
     # written out here; optimum from Medlyn et al. (2002) eq. 18.
