@@ -17,8 +17,10 @@ venv: $(STAMP)
 demo: $(STAMP)
 	$(BIN)/suitability run configs/demo.yaml --overwrite
 
+# The tests marked "alone" measure a whole process (peak memory): they run after the rest, on their own.
 test: $(STAMP)
-	$(BIN)/python -m pytest -q -n 2 --timeout=900
+	$(BIN)/python -m pytest -q -n 2 --timeout=900 -m "not alone"
+	$(BIN)/python -m pytest -q -p no:xdist --timeout=900 -m alone
 
 # Kernel vs plain numpy, and end-to-end runs on a size series (about 15 min on 2 cores); results in
 # benchmarks/results/. Pass options with BENCH_ARGS, e.g. make bench BENCH_ARGS="--sizes 500 1000".

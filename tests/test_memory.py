@@ -25,7 +25,9 @@ from benchmarks.synthetic import write_region  # noqa: E402  (the repository roo
 
 PEAK_RSS_BOUND_BYTES = 1.5 * 2**30
 
-pytestmark = pytest.mark.slow  # a new process runs the pipeline on 6.6 million cells
+# A new process runs the pipeline on 6.6 million cells; its peak memory depends on what else runs beside
+# it, so `make test` runs it on its own after the parallel part (marker "alone").
+pytestmark = [pytest.mark.slow, pytest.mark.alone]
 
 
 def test_peak_memory_of_a_large_region_stays_under_the_bound(tmp_path):

@@ -186,7 +186,8 @@ def test_brief_with_links_planted_at_its_names_writes_around_them(tmp_path, fini
     (leftover / "kessarine_basin_co2_only.pdf").write_bytes(b"half a pdf")
     config = demo_config(brief=True)
     config["output"]["folder"] = str(tmp_path / "out")
-    result = cli("brief", write_config(tmp_path, config))
+    # Links at the final names count as existing briefs, which `brief` replaces only with --overwrite.
+    result = cli("brief", write_config(tmp_path, config), "--overwrite")
     assert result.exit_code == 0, result.output
     assert victim.read_text() == VICTIM_TEXT
     for final in ("kessarine_basin_co2_only.html", "kessarine_basin_districts.csv"):
