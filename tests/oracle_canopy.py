@@ -40,7 +40,7 @@ def _hyperbola(a, b, theta):
     return np.where(denominator > 0, 2.0 * a * b / np.where(denominator > 0, denominator, 1.0), 0.0)
 
 
-def _leaves(temperature, absorbed, vpd, water, co2_ppm, pressure, o2_pa, c3, c4):
+def _leaves(temperature, absorbed, vpd, co2_ppm, pressure, o2_pa, c3, c4):
     """C3 (net, gross, photorespiration) and C4 (net, gross) per leaf area [µmol m-2 s-1], and the C3 and
     C4 transpiration [mol H2O m-2 s-1]."""
     tk = temperature + KELVIN_OFFSET
@@ -135,8 +135,8 @@ def daily_canopy(tmin, tmax, shortwave, water, latitude, elevation, lai, day_of_
         temperature = 0.5 * (tmax + tmin) + 0.5 * (tmax - tmin) * np.cos(2 * np.pi * (hour - 14) / 24)
         vpd = np.maximum(0.6108 * np.exp(17.27 * temperature / (temperature + 237.3)) - vapour, 0.0)
         seconds = w * 0.5 * day_hours * 3600
-        sun = _leaves(temperature, i_sun, vpd, water, co2_ppm, pressure, o2_pa, c3, c4)
-        shade = _leaves(temperature, i_shade, vpd, water, co2_ppm, pressure, o2_pa, c3, c4)
+        sun = _leaves(temperature, i_sun, vpd, co2_ppm, pressure, o2_pa, c3, c4)
+        shade = _leaves(temperature, i_shade, vpd, co2_ppm, pressure, o2_pa, c3, c4)
         for total, s, h in zip(totals, sun, shade):
             total += seconds * (s * l_sun + h * l_shade)
     nodes, weights = np.polynomial.legendre.leggauss(NIGHT_POINTS)
@@ -144,7 +144,7 @@ def daily_canopy(tmin, tmax, shortwave, water, latitude, elevation, lai, day_of_
         hour = 0.5 * (24 - day_hours) * x
         temperature = 0.5 * (tmax + tmin) + 0.5 * (tmax - tmin) * np.cos(2 * np.pi * (hour - 14) / 24)
         vpd = np.maximum(0.6108 * np.exp(17.27 * temperature / (temperature + 237.3)) - vapour, 0.0)
-        dark = _leaves(temperature, 0.0, vpd, water, co2_ppm, pressure, o2_pa, c3, c4)
+        dark = _leaves(temperature, 0.0, vpd, co2_ppm, pressure, o2_pa, c3, c4)
         seconds = w * 0.5 * (24 - day_hours) * 3600
         totals[0] += seconds * dark[0] * lai
         totals[3] += seconds * dark[3] * lai

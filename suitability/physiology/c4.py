@@ -152,10 +152,10 @@ def collatz_temperature_terms(temperature_c, params) -> tuple:
     (k [mol m-2 s-1] times the CO2 mole fraction at standard pressure, so that kt · C [Pa] is in µmol m-2 s-1).
     """
     q10 = q10_response(temperature_c, params["q10"])
-    exp = ops.exp
-    enzyme = params["vmax25"] * q10 / ((1.0 + exp(0.3 * (params["low_temperature_c"] - temperature_c)))
-                                       * (1.0 + exp(0.3 * (temperature_c - params["high_temperature_c"]))))
-    respiration = params["rd25"] * q10 / (1.0 + exp(1.3 * (temperature_c - params["respiration_high_temperature_c"])))
+    enzyme = params["vmax25"] * q10 / ((1.0 + ops.exp(0.3 * (params["low_temperature_c"] - temperature_c)))
+                                       * (1.0 + ops.exp(0.3 * (temperature_c - params["high_temperature_c"]))))
+    respiration = params["rd25"] * q10 / (
+        1.0 + ops.exp(1.3 * (temperature_c - params["respiration_high_temperature_c"])))
     return (enzyme, respiration, params["k25"] * q10 * (1e3 / STANDARD_PRESSURE_KPA))
 
 
