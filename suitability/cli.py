@@ -239,10 +239,26 @@ def _check(config):
         _check_lines(config, reports)
     console.line(f"{len(cfg.scenarios)} scenarios: {escape(', '.join(s.name for s in cfg.scenarios))}")
     _print_assumptions(run_assumptions(cfg), "The run will assume:")
+    _print_uncertainty(cfg)
     if problems:
         raise InputDataError(f"{problems} problem(s) found in the inputs of {config}; see the notes above")
     console.line("[green]Config and inputs look usable.[/]")
     _print_caution()
+
+
+def _print_uncertainty(cfg) -> None:
+    """The parameter draws a run makes (config ``uncertainty``): count, seed, method, and each spread."""
+    if cfg.uncertainty is None:
+        return
+    from .provenance import uncertainty_record
+    from .physiology.uncertainty import spread_text
+
+    record = uncertainty_record(cfg)
+    varied = sum(row["varied"] for row in record["parameters"])
+    console.line(f"Parameter uncertainty: {record['draws']} draws, seed {record['seed']}, {record['method']} "
+                 f"over {varied} parameters (also in the manifest):")
+    for row in record["parameters"]:
+        console.line(f"  - {escape(spread_text(row))}")
 
 
 def _check_table(config, reports, with_scenarios: bool) -> None:

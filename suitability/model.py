@@ -17,6 +17,7 @@ indicators) is shared.
 
 from __future__ import annotations
 
+import functools
 import itertools
 import warnings
 from dataclasses import dataclass
@@ -35,7 +36,8 @@ from .physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from .runtime import ENGINES
 from .physiology import water_balance
 from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario, scale_water_availability
-from .variables import CLASS_NODATA, DATACUBE, OUTPUT_LAYERS, SEASONAL, layer_names
+from .physiology import uncertainty as parameter_uncertainty
+from .variables import CLASS_NODATA, DATACUBE, OUTPUT_LAYERS, SEASONAL, UNCERTAINTY, layer_names
 
 #: Day of year of the 15th of each month in a non-leap year; the representative day of the month.
 REPRESENTATIVE_DAY = np.array([15, 46, 74, 105, 135, 166, 196, 227, 258, 288, 319, 349])
@@ -45,6 +47,10 @@ DAYS_IN_MONTH = np.array([31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype
 SEASONAL_LAYERS = layer_names(SEASONAL)
 MONTHLY_LAYERS = layer_names(DATACUBE)
 _N_STACKED = len(SEASONAL_LAYERS) + 12 * len(MONTHLY_LAYERS)
+#: Layers from the parameter draws; the paired ones (``compares`` set) need the baseline's draws too.
+UNCERTAINTY_LAYERS = layer_names(UNCERTAINTY)
+PAIRED_LAYERS = tuple(n for n in UNCERTAINTY_LAYERS if OUTPUT_LAYERS[n].compares is not None)
+_BASELINE_PREFIX = "baseline:"
 _MONTHLY_INPUTS = ("tmin", "tmax", "shortwave", "par", "water_availability", "vpd", "humidity")
 _STATIC_INPUTS = ("elevation", "lai", "latitude")
 DEFAULT_LAI = 3.0
@@ -63,6 +69,10 @@ class ModelSettings:
     engine: "compiled" (the numba kernel) or "numpy" (see the module docstring).
     max_water_supply_mm: the soil's daily water supply at field capacity [mm d-1]
         (:mod:`suitability.physiology.water`).
+    draws: the parameter draws (config ``uncertainty``), each a pair of sorted (key, value) tuples of C3 and
+        C4 parameters (hashable); empty: no uncertainty layers.
+    baseline: the baseline scenario's settings when the draws are paired with the baseline's (the
+        scenario's change under uncertainty); None otherwise.
     """
 
     scenario: ScenarioSettings
@@ -75,6 +85,24 @@ class ModelSettings:
     lai: float = DEFAULT_LAI
     engine: str = "compiled"
     max_water_supply_mm: float = MAX_WATER_SUPPLY_MM_PER_DAY
+    draws: tuple = ()
+    baseline: ScenarioSettings | None = None
+
+    def draw_params(self):
+        """The draws as (C3 parameters, C4 parameters) dicts."""
+        return [(dict(c3), dict(c4)) for c3, c4 in self.draws]
+
+
+def uncertainty_layer_names(settings: ModelSettings) -> tuple[str, ...]:
+    """The uncertainty layers the model returns for ``settings`` (none without draws; the paired ones
+    only with a baseline to pair with)."""
+    if not settings.draws:
+        return ()
+    return tuple(n for n in UNCERTAINTY_LAYERS if settings.baseline is not None or n not in PAIRED_LAYERS)
+
+
+def _n_stacked(settings: ModelSettings) -> int:
+    return _N_STACKED + len(uncertainty_layer_names(settings))
 
 
 def evaluate(
@@ -86,6 +114,9 @@ def evaluate(
     classes: Any = None,
     scenario_layers: xr.Dataset | None = None,
     engine: str | None = None,
+    uncertainty: Any = None,
+    baseline: Any = None,
+    baseline_layers: xr.Dataset | None = None,
 ) -> xr.Dataset:
     """Evaluate both pathways on a climate dataset and return every per-scenario output layer.
 
@@ -100,20 +131,48 @@ def evaluate(
     season: config ``season`` section or mapping {"months": [...]} / {"min_mean_temperature_c": t}.
     classes: config ``classes`` section or mapping {"contested_margin": m}.
     engine: "compiled" or "numpy" (the pipeline passes the config's ``compute.engine``); None = "compiled".
+    uncertainty: config ``uncertainty`` section or mapping {"draws": n, "seed": s, "method": ...}, or None.
+        With it the result also holds the uncertainty layers of the registry: the model runs once per
+        parameter draw on the same inputs (:mod:`suitability.physiology.uncertainty`).
+    baseline, baseline_layers: the baseline scenario (and its own layers) to pair the draws with, for the
+        paired layers (``towards_c4_probability``, ``class_change_probability``); only with ``uncertainty``.
 
     Returns a Dataset with the layers of ``SEASONAL_LAYERS`` (y, x) and ``MONTHLY_LAYERS`` (month, y, x),
     assimilation in g C m-2 per season or month; ``pathway_class`` is uint8 with 255 as nodata.
     """
-    settings = model_settings(scenario, physiology=physiology, season=season, classes=classes, engine=engine)
+    settings = model_settings(scenario, physiology=physiology, season=season, classes=classes, engine=engine,
+                              uncertainty=uncertainty, baseline=baseline)
+    names, arrays, climate = _model_arrays(dataset, settings.scenario, scenario_layers, physiology)
+    derived = "derived_water_availability" in climate
+    spatial_dims = climate["latitude"].dims
+    if settings.baseline is not None:  # the baseline climate, for the draws paired with the baseline's
+        base_names, base_arrays, _ = _model_arrays(dataset, settings.baseline, baseline_layers, physiology)
+        names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
+        arrays = arrays + base_arrays
+    if any(isinstance(array, dask.array.Array) for array in arrays):
+        stacked = _map_blocks(arrays, names, settings, len(spatial_dims))
+    else:
+        stacked = _evaluate_block(*arrays, names=names, settings=settings)
+    coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
+    stacked = xr.DataArray(stacked, dims=("layer",) + spatial_dims, coords=coords)
+    result = _unstack(stacked, settings)
+    if derived:  # the registry's "derived" layer: written to the datacube
+        result["derived_water_availability"] = climate["derived_water_availability"]
+    return result
+
+
+def _model_arrays(dataset: xr.Dataset, scenario: ScenarioSettings, scenario_layers, physiology):
+    """(names, float32 arrays (month, *spatial) or (*spatial), climate) of the model's inputs under ``scenario``;
+    ``climate`` holds ``derived_water_availability`` when water availability was derived from rainfall."""
     diurnal_range = _get(physiology, "diurnal_range_c", DEFAULT_DIURNAL_RANGE_C)
-    climate = apply_scenario(dataset, settings.scenario, scenario_layers, diurnal_range_c=diurnal_range)
+    climate = apply_scenario(dataset, scenario, scenario_layers, diurnal_range_c=diurnal_range)
     climate = _with_latitude(climate)
     derived = "precipitation" in climate and "water_availability" not in climate
     if derived:
         climate = water_from_rainfall(climate, _get(physiology, "soil_water_capacity_mm",
                                                     water_balance.DEFAULT_SOIL_WATER_CAPACITY_MM),
                                       _get(physiology, "soil_water_retention", "exponential"))
-        climate = scale_water_availability(climate, settings.scenario)
+        climate = scale_water_availability(climate, scenario)
     names = tuple(n for n in _MONTHLY_INPUTS + _STATIC_INPUTS if n in climate)
     _check_inputs(names)
     spatial_dims = climate["latitude"].dims
@@ -127,18 +186,11 @@ def evaluate(
         else:
             layer = layer.transpose(*spatial_dims)
         arrays.append(layer.astype(np.float32).data)
-    if any(isinstance(array, dask.array.Array) for array in arrays):
-        stacked = _map_blocks(arrays, names, settings, len(spatial_dims))
-    else:
-        stacked = _evaluate_block(*arrays, names=names, settings=settings)
-    coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
-    stacked = xr.DataArray(stacked, dims=("layer",) + spatial_dims, coords=coords)
-    result = _unstack(stacked, settings)
-    if derived:  # the registry's "derived" layer: written to the datacube
+    if derived:
         derived_layer = climate["water_availability"].transpose("month", *spatial_dims).copy()
         derived_layer.attrs = {}  # the registry's long name and units are written, not the rainfall's
-        result["derived_water_availability"] = derived_layer
-    return result
+        climate = climate.assign(derived_water_availability=derived_layer)
+    return names, tuple(arrays), climate
 
 
 def _map_blocks(arrays, names, settings: ModelSettings, n_spatial: int):
@@ -159,7 +211,7 @@ def _map_blocks(arrays, names, settings: ModelSettings, n_spatial: int):
     for index in itertools.product(*(range(len(c)) for c in spatial_chunks)):
         blocks = tuple(array.blocks[(0,) * (array.ndim - n_spatial) + index] for array in aligned)
         graph[(name, 0) + index] = (_evaluate_embedded, _BlockInputs(blocks), names, settings)
-    return dask.array.Array(graph, name, chunks=((_N_STACKED,),) + spatial_chunks, dtype=np.float32,
+    return dask.array.Array(graph, name, chunks=((_n_stacked(settings),),) + spatial_chunks, dtype=np.float32,
                             meta=np.empty((0,) * (n_spatial + 1), np.float32))
 
 
@@ -190,8 +242,12 @@ def _evaluate_embedded(inputs: _BlockInputs, names: Sequence[str], settings: Mod
 
 
 def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None,
-                   engine: str | None = None) -> ModelSettings:
-    """Collect the model's settings from config sections or plain mappings (see :func:`evaluate`)."""
+                   engine: str | None = None, uncertainty: Any = None, baseline: Any = None) -> ModelSettings:
+    """Collect the model's settings from config sections or plain mappings (see :func:`evaluate`).
+
+    The parameter draws are made here, once, from the parameter sets and the seed alone, so every block
+    of cells (whatever the chunk size or scheduler) and every scenario gets the same draws.
+    """
     engine = engine if engine is not None else "compiled"
     if engine not in ENGINES:
         raise ValueError(f"engine: expected one of {', '.join(ENGINES)}, got {engine!r}")
@@ -204,6 +260,14 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
     if engine == "compiled" and not kernel.supports(c3_params, c4_params):
         _warn_numpy_engine(c3_params, c4_params)
         engine = "numpy"
+    draws: tuple = ()
+    if uncertainty is not None:
+        pairs = parameter_uncertainty.draw_parameters(
+            c3_params, c4_params, int(_get(uncertainty, "draws", 0)), int(_get(uncertainty, "seed", 0)),
+            _get(uncertainty, "method", "latin_hypercube"))
+        draws = tuple((tuple(sorted(c3.items())), tuple(sorted(c4.items()))) for c3, c4 in pairs)
+    elif baseline is not None:
+        raise ValueError("baseline: pairing with the baseline is for the parameter draws; give uncertainty too")
     return ModelSettings(
         scenario=ScenarioSettings.from_any(scenario),
         c3_params=c3_params,
@@ -215,32 +279,26 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         lai=float(_get(physiology, "lai", DEFAULT_LAI) or DEFAULT_LAI),
         engine=engine,
         max_water_supply_mm=float(_get(physiology, "max_water_supply_mm", MAX_WATER_SUPPLY_MM_PER_DAY)),
+        draws=draws,
+        baseline=ScenarioSettings.from_any(baseline) if baseline is not None else None,
     )
 
 
 def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSettings) -> np.ndarray:
     """Evaluate one block of cells. Monthly arrays arrive as (12, ...), static ones as (...).
 
-    Returns (n_layers, ...) float32: the seasonal layers, then 12 monthly C3 and 12 monthly C4 totals.
+    Returns (n_layers, ...) float32: the seasonal layers, then 12 monthly C3 and 12 monthly C4 totals, then
+    the uncertainty layers (:func:`uncertainty_layer_names`).
     """
     data = dict(zip(names, arrays))
-    shape = data["latitude"].shape
-    data = {name: np.moveaxis(values, 0, -1) if values.ndim == len(shape) + 1 else values
-            for name, values in data.items()}  # months last inside: (..., 12)
-    elevation = data.get("elevation", np.zeros(shape, np.float32))
-    lai = data.get("lai", np.full(shape, settings.lai, np.float32))
-    in_season = _season_mask(data, settings, shape)
-    if settings.engine == "compiled":
-        monthly, c3_gross, c3_photorespiration = _compiled_months(data, settings, in_season, elevation, lai)
-    else:
-        monthly, c3_gross, c3_photorespiration = _numpy_months(data, settings, in_season, elevation, lai)
-    valid = _valid_cells(data)
-    season_c3 = np.where(in_season, monthly["C3"], 0.0).sum(axis=-1)
-    season_c4 = np.where(in_season, monthly["C4"], 0.0).sum(axis=-1)
-    has_season = in_season.any(axis=-1)
-    nodata = ~valid | ~has_season | np.isnan(season_c3) | np.isnan(season_c4)
-    season_c3 = np.where(nodata, np.nan, season_c3)
-    season_c4 = np.where(nodata, np.nan, season_c4)
+    base = {n[len(_BASELINE_PREFIX):]: v for n, v in data.items() if n.startswith(_BASELINE_PREFIX)}
+    data = {n: v for n, v in data.items() if not n.startswith(_BASELINE_PREFIX)}
+    block = _Block.of(data, settings)
+    data, shape, in_season, elevation, lai, valid = (block.data, block.shape, block.in_season, block.elevation,
+                                                     block.lai, block.valid)
+    monthly, c3_gross, c3_photorespiration = _months(block, settings)
+    season_c3, season_c4, nodata = _season_totals(block, monthly)
+    has_season = block.has_season
     advantage = indicators.advantage_index(season_c3, season_c4)
     classes = indicators.with_growing_season(indicators.pathway_class(advantage, settings.contested_margin),
                                              valid, has_season)
@@ -254,7 +312,7 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
                 "pathway_class": classes, "c4_favoured_months": months_favoured,
                 "growing_season_months": indicators.growing_season_months(np.moveaxis(in_season, -1, 0), valid),
                 "photorespiration_share": share, "crossover_temperature": crossover}
-    out = np.empty((_N_STACKED,) + shape, np.float32)
+    out = np.empty((_n_stacked(settings),) + shape, np.float32)
     for i, name in enumerate(SEASONAL_LAYERS):
         values = np.asarray(seasonal[name], dtype=np.float64)
         if not OUTPUT_LAYERS[name].categorical and name != "growing_season_months":
@@ -263,13 +321,96 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     first = len(SEASONAL_LAYERS)
     out[first:first + 12] = np.moveaxis(np.where(valid[..., None], monthly["C3"], np.nan), -1, 0)
     out[first + 12:first + 24] = np.moveaxis(np.where(valid[..., None], monthly["C4"], np.nan), -1, 0)
+    if settings.draws:
+        base_block = _Block.of(base, settings, settings.baseline) if settings.baseline is not None else None
+        layers = _uncertainty_layers(block, base_block, settings)
+        for i, name in enumerate(uncertainty_layer_names(settings)):
+            out[_N_STACKED + i] = layers[name]
     return out
 
 
-def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
+@dataclass
+class _Block:
+    """One block of cells under one scenario: inputs (months last) and every parameter-independent term."""
+
+    data: dict
+    shape: tuple
+    scenario: ScenarioSettings
+    in_season: np.ndarray
+    has_season: np.ndarray
+    valid: np.ndarray
+    elevation: np.ndarray
+    lai: np.ndarray
+    kernel_inputs: dict | None = None
+
+    @classmethod
+    def of(cls, data: dict, settings: ModelSettings, scenario: ScenarioSettings | None = None) -> "_Block":
+        shape = data["latitude"].shape
+        data = {name: np.moveaxis(values, 0, -1) if values.ndim == len(shape) + 1 else values
+                for name, values in data.items()}  # months last inside: (..., 12)
+        in_season = _season_mask(data, settings, shape)
+        block = cls(data=data, shape=shape, in_season=in_season, has_season=in_season.any(axis=-1),
+                    valid=_valid_cells(data), elevation=data.get("elevation", np.zeros(shape, np.float32)),
+                    lai=data.get("lai", np.full(shape, settings.lai, np.float32)),
+                    scenario=scenario or settings.scenario)
+        if settings.engine == "compiled":
+            block.kernel_inputs = _kernel_inputs(block, settings)
+        return block
+
+
+def _months(block: _Block, settings: ModelSettings, c3_params: Any = None, c4_params: Any = None):
+    """Monthly nets per pathway, season C3 gross and photorespiration of a block, by the settings' engine,
+    with the settings' parameters or the given ones (a draw)."""
+    c3_params = settings.c3_params if c3_params is None else c3_params
+    c4_params = settings.c4_params if c4_params is None else c4_params
+    if settings.engine == "compiled":
+        return _compiled_months(block, settings, c3_params, c4_params)
+    return _numpy_months(block.data, settings, block.in_season, block.elevation, block.lai,
+                         block.scenario, c3_params, c4_params)
+
+
+def _season_totals(block: _Block, monthly):
+    """Season totals of C3 and C4 [g C m-2] (NaN where nodata) and the nodata mask."""
+    season_c3 = np.where(block.in_season, monthly["C3"], 0.0).sum(axis=-1)
+    season_c4 = np.where(block.in_season, monthly["C4"], 0.0).sum(axis=-1)
+    nodata = ~block.valid | ~block.has_season | np.isnan(season_c3) | np.isnan(season_c4)
+    return np.where(nodata, np.nan, season_c3), np.where(nodata, np.nan, season_c4), nodata
+
+
+def draw_advantages(block: _Block, settings: ModelSettings) -> np.ndarray:
+    """(draws, ...) float32 advantage index of every parameter draw: the kernel runs once per draw on the
+    block's shared inputs; everything else (season, validity, inputs) is the block's."""
+    out = np.empty((len(settings.draws),) + block.shape, np.float32)
+    for i, (c3_params, c4_params) in enumerate(settings.draw_params()):
+        monthly, _, _ = _months(block, settings, c3_params, c4_params)
+        season_c3, season_c4, _ = _season_totals(block, monthly)
+        out[i] = indicators.advantage_index(season_c3, season_c4)
+    return out
+
+
+def _uncertainty_layers(block: _Block, base_block: _Block | None, settings: ModelSettings) -> dict[str, np.ndarray]:
+    margin = settings.contested_margin
+    draws = draw_advantages(block, settings)
+    p_c4 = indicators.favoured_probability(draws, margin, "C4")
+    p_c3 = indicators.favoured_probability(draws, margin, "C3")
+    p05, p50, p95 = indicators.advantage_quantiles(draws, (0.05, 0.5, 0.95))
+    layers = {"c4_advantage_probability": p_c4, "c3_advantage_probability": p_c3, "advantage_p05": p05,
+              "advantage_p50": p50, "advantage_p95": p95,
+              "confidence_class": indicators.confidence_class(p_c3, p_c4)}
+    if base_block is not None:
+        base_draws = draw_advantages(base_block, settings)
+        layers["towards_c4_probability"] = indicators.towards_c4_probability(base_draws, draws)
+        layers["class_change_probability"] = indicators.class_change_probability(base_draws, draws, margin)
+    return layers
+
+
+def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, scenario=None, c3_params=None,
+                  c4_params=None):
     """Monthly net totals per pathway [g C m-2], season C3 gross and photorespiration, by the numpy physiology."""
     shape = in_season.shape[:-1]
-    scenario = settings.scenario
+    scenario = settings.scenario if scenario is None else scenario
+    c3_params = settings.c3_params if c3_params is None else c3_params
+    c4_params = settings.c4_params if c4_params is None else c4_params
     monthly = {p: np.full(shape + (12,), np.nan, np.float64) for p in ("C3", "C4")}
     c3_gross = np.zeros(shape, np.float64)
     c3_photorespiration = np.zeros(shape, np.float64)
@@ -277,7 +418,7 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
         if not in_season[..., index].any():
             continue
         month_inputs = _month_inputs(data, index)
-        for pathway, params in (("C3", settings.c3_params), ("C4", settings.c4_params)):
+        for pathway, params in (("C3", c3_params), ("C4", c4_params)):
             with np.errstate(all="ignore"):
                 day = daily_canopy_assimilation(
                     pathway,
@@ -301,8 +442,17 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
     return monthly, c3_gross, c3_photorespiration
 
 
-def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai):
+def _compiled_months(block: _Block, settings: ModelSettings, c3_params: Any, c4_params: Any):
     """The same three results as :func:`_numpy_months`, by the compiled kernel (:mod:`suitability.kernel`)."""
+    day = kernel.season_canopy_assimilation(**block.kernel_inputs, c3_params=c3_params, c4_params=c4_params)
+    monthly = {"C3": day.c3_net * DAYS_IN_MONTH, "C4": day.c4_net * DAYS_IN_MONTH}
+    return monthly, day.c3_gross_total, day.c3_photorespiration_total
+
+
+def _kernel_inputs(block: _Block, settings: ModelSettings) -> dict:
+    """The kernel's arguments except the parameters, once per block: C-contiguous float32 arrays, so that
+    each draw's kernel call reuses them without a copy."""
+    data, in_season, elevation, lai = block.data, block.in_season, block.elevation, block.lai
     humidity = {}
     if "vpd" in data:
         humidity["vpd_kpa"] = data["vpd"]
@@ -313,16 +463,15 @@ def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai):
         shortwave = data["shortwave"]
     else:  # mol m-2 d-1 of PAR back to MJ m-2 d-1 of shortwave, inverting light.par_from_shortwave
         shortwave = data["par"] / light.par_from_shortwave(1.0)
-    day = kernel.season_canopy_assimilation(
-        tmin_c=data["tmin"], tmax_c=data["tmax"], shortwave_mj=shortwave,
-        water_availability=data["water_availability"], latitude_deg=data["latitude"],
-        day_of_year=REPRESENTATIVE_DAY, co2_ppm=settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent,
-        elevation_m=elevation, lai=lai, in_season=in_season, c3_params=settings.c3_params,
-        c4_params=settings.c4_params, days_in_month=DAYS_IN_MONTH,
-        max_water_supply_mm=settings.max_water_supply_mm, **humidity,
+    contiguous = functools.partial(np.require, dtype=np.float32, requirements=["C", "A", "W"])
+    return dict(
+        tmin_c=contiguous(data["tmin"]), tmax_c=contiguous(data["tmax"]), shortwave_mj=contiguous(shortwave),
+        water_availability=contiguous(data["water_availability"]), latitude_deg=contiguous(data["latitude"]),
+        day_of_year=REPRESENTATIVE_DAY, co2_ppm=block.scenario.co2_ppm, o2_percent=block.scenario.o2_percent,
+        elevation_m=contiguous(elevation), lai=contiguous(lai), in_season=np.require(in_season, np.bool_, ["C", "A", "W"]),
+        days_in_month=DAYS_IN_MONTH, max_water_supply_mm=settings.max_water_supply_mm,
+        **{k: contiguous(v) for k, v in humidity.items()},
     )
-    monthly = {"C3": day.c3_net * DAYS_IN_MONTH, "C4": day.c4_net * DAYS_IN_MONTH}
-    return monthly, day.c3_gross_total, day.c3_photorespiration_total
 
 
 def _crossover_by_pressure(pressure_kpa: np.ndarray, settings: ModelSettings) -> np.ndarray:
@@ -386,7 +535,9 @@ def _valid_cells(data: Mapping[str, np.ndarray]) -> np.ndarray:
 
 def _unstack(stacked: xr.DataArray, settings: ModelSettings) -> xr.Dataset:
     layers = {}
-    for i, name in enumerate(SEASONAL_LAYERS):
+    seasonal = list(enumerate(SEASONAL_LAYERS))
+    seasonal += [(_N_STACKED + i, name) for i, name in enumerate(uncertainty_layer_names(settings))]
+    for i, name in seasonal:
         layer = stacked.isel(layer=i)
         if OUTPUT_LAYERS[name].categorical:
             layer = layer.fillna(CLASS_NODATA).astype(np.uint8)

@@ -32,7 +32,17 @@ from .provenance import MANIFEST_NAME, build_manifest, class_summary, input_chec
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
 from .runlock import RunLock
 from .runtime import compute_context
-from .variables import CHANGE, DATACUBE, DERIVED, ENSEMBLE, INPUT_VARIABLES, OUTPUT_LAYERS, SEASONAL, layer_names
+from .variables import (
+    CHANGE,
+    DATACUBE,
+    DERIVED,
+    ENSEMBLE,
+    INPUT_VARIABLES,
+    OUTPUT_LAYERS,
+    SEASONAL,
+    UNCERTAINTY,
+    layer_names,
+)
 
 SUMMARY_NAME = "class_summary.csv"
 DATACUBE_NAME = "monthly_assimilation.nc"
@@ -124,9 +134,11 @@ def run(
             for scenario in to_compute:
                 with clock(f"scenario_{scenario.name}_s"):
                     tags = scenario_tags(scenario, config_hash, hashes[scenario.name])
+                    draws = _draw_arguments(cfg, scenario, own_layers)
                     if scenario.name in ensembles:
                         members = {m: evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
-                                               classes=cfg.classes, scenario_layers=layers, engine=runtime.engine)
+                                               classes=cfg.classes, scenario_layers=layers, engine=runtime.engine,
+                                               **draws)
                                    for m, layers in own_layers[scenario.name].items()}
                         result = ensemble_result(members, cfg.classes.contested_margin)
                         tags = {**tags, "ensemble_members": ", ".join(members)}
@@ -135,7 +147,7 @@ def run(
                     else:
                         result = evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
                                           classes=cfg.classes, scenario_layers=own_layers.get(scenario.name),
-                                          engine=runtime.engine)
+                                          engine=runtime.engine, **draws)
                     written[scenario.name] = _write_scenario(cfg, grid, runtime, scenario, result, written, tags,
                                                              layers_of(scenario))
                 _refuse_empty_map(cfg, scenario, written[scenario.name])
@@ -182,6 +194,8 @@ def selected_layers(cfg: RunConfig, ensembles: set[str] | None = None):
     names += [name for name, layer in OUTPUT_LAYERS.items() if layer.required and name not in names]
     change = set(layer_names(CHANGE))
     ensemble = set(layer_names(ENSEMBLE))
+    if cfg.uncertainty is None:
+        names = [n for n in names if OUTPUT_LAYERS[n].kind != UNCERTAINTY]
     if ensembles is None:
         ensembles = {s.name for s in cfg.scenarios if s.members}
 
@@ -192,6 +206,17 @@ def selected_layers(cfg: RunConfig, ensembles: set[str] | None = None):
         return chosen
 
     return for_scenario
+
+
+def _draw_arguments(cfg: RunConfig, scenario, own_layers) -> dict[str, Any]:
+    """The model's parameter-draw arguments for ``scenario``: the config's ``uncertainty`` and, for a scenario
+    other than the baseline, the baseline scenario and its own layers to pair the draws with."""
+    if cfg.uncertainty is None:
+        return {}
+    arguments: dict[str, Any] = {"uncertainty": cfg.uncertainty}
+    if scenario.name != cfg.baseline:
+        arguments.update(baseline=cfg.baseline_scenario, baseline_layers=own_layers.get(cfg.baseline))
+    return arguments
 
 
 def scenario_members(cfg: RunConfig, scenario) -> list[str] | None:
@@ -242,6 +267,14 @@ def ensemble_result(members: dict[str, xr.Dataset], margin: float) -> xr.Dataset
         if OUTPUT_LAYERS.get(name) is not None and not OUTPUT_LAYERS[name].categorical:
             out[name] = indicators.ensemble_median(stack[name]).astype(np.float32)
     out["pathway_class"] = indicators.pathway_class(out["pathway_advantage"], margin)
+    # Parameter draws of every member pooled: a share of draws is the mean of the members' shares (each
+    # member has the same draws); the quantiles stay the median of the members' quantiles.
+    for name in (n for n in layer_names(UNCERTAINTY) if n.endswith("_probability") and n in stack):
+        out[name] = stack[name].mean("member", skipna=False).astype(np.float32)
+    if "confidence_class" in stack:
+        out["confidence_class"] = xr.apply_ufunc(indicators.confidence_class, out["c3_advantage_probability"],
+                                                 out["c4_advantage_probability"], dask="parallelized",
+                                                 output_dtypes=[np.uint8])
     out["ensemble_median_advantage"] = out["pathway_advantage"]
     out["c4_favoured_share"] = indicators.c4_favoured_share(stack["pathway_advantage"], margin).astype(np.float32)
     out["member_advantage"] = stack["pathway_advantage"]
@@ -486,7 +519,8 @@ def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, c
     import rioxarray
 
     changes = {}
-    for name in (n for n in names if OUTPUT_LAYERS[n].compares is not None):
+    # The uncertainty layers that compare with the baseline come from the model's paired draws, not from here.
+    for name in (n for n in names if OUTPUT_LAYERS[n].compares is not None and OUTPUT_LAYERS[n].kind != UNCERTAINTY):
         layer = OUTPUT_LAYERS[name]
         # an ensemble layer compares every member's layer (member_<compares>) with the baseline's
         scenario_values = result[layer.compares] if layer.kind == CHANGE else result["member_advantage"]

@@ -131,12 +131,24 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
         "briefs": {k: str(v) for k, v in briefs.items()},
         "summary": summary.to_dict(orient="records"),
         "assumptions": run_assumptions(cfg),
+        "uncertainty": uncertainty_record(cfg),
         "timings": {k: round(v, 3) for k, v in timings.items()},
         "python": platform.python_version(),
         "platform": platform.platform(),
         "packages": package_versions(),
         "caution": CAUTION,
     }
+
+
+def uncertainty_record(cfg) -> dict[str, Any] | None:
+    """The parameter draws of a run (None without ``uncertainty``): draws, seed, method and every declared
+    spread of both parameter sets, with its source and whether it varied."""
+    if cfg.uncertainty is None:
+        return None
+    from .physiology.uncertainty import varied_parameters
+
+    return {**cfg.uncertainty.model_dump(mode="json"),
+            "parameters": varied_parameters(cfg.physiology.c3.as_params(), cfg.physiology.c4.as_params())}
 
 
 def package_versions() -> dict[str, str | None]:
@@ -151,4 +163,5 @@ def package_versions() -> dict[str, str | None]:
 
 
 __all__ = ["MANIFEST_NAME", "input_files", "input_checksums", "output_records", "scenario_tags", "class_summary", "build_manifest",
+           "uncertainty_record",
            "package_versions", "PACKAGES"]

@@ -28,7 +28,8 @@ PROGRESS_NAME = ".suitability-progress.json"
 def scenario_hash(cfg: RunConfig, scenario, layer_names, input_checksums: dict[Path, str]) -> str:
     """sha256 (hex) of everything a scenario's outputs depend on, for ``run(resume=True)``.
 
-    That is: the tool version; the region, climate, season, physiology and classes sections; the layers
+    That is: the tool version; the region, climate, season, physiology and classes sections (and
+    ``uncertainty`` when set); the layers
     written for it and the COG and datacube settings; the scenario itself and (for other scenarios, whose
     change layers compare with it) the baseline scenario; and the sha256 of every input file it reads.
     Not included, since results do not depend on them: the compute section, output.folder,
@@ -45,6 +46,8 @@ def scenario_hash(cfg: RunConfig, scenario, layer_names, input_checksums: dict[P
         "baseline": None if scenario.name == baseline.name else baseline.model_dump(mode="json"),
         "inputs": {str(path): input_checksums[path] for path in sorted(files)},
     }
+    if dump.get("uncertainty") is not None:  # the parameter draws (a config without them hashes as before)
+        recipe["uncertainty"] = dump["uncertainty"]
     text = json.dumps(recipe, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 

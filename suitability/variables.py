@@ -105,7 +105,21 @@ CHANGE_AGREEMENT_LEGEND = {1: "members agree: toward C3", 2: "low agreement", 3:
 CHANGE_AGREEMENT_COLOURS = {1: (38, 66, 150, 255), 2: (221, 221, 221, 255), 3: (176, 45, 28, 255),
                             CLASS_NODATA: _TRANSPARENT}
 
+#: Confidence in the favoured pathway under parameter uncertainty (our own names and codes;
+#: thresholds in indicators.confidence_class).
+CONFIDENCE_C3_ROBUST, CONFIDENCE_C3_LIKELY, CONFIDENCE_UNCERTAIN, CONFIDENCE_C4_LIKELY, CONFIDENCE_C4_ROBUST = 1, 2, 3, 4, 5
+CONFIDENCE_LEGEND = {CONFIDENCE_C3_ROBUST: "C3 robust", CONFIDENCE_C3_LIKELY: "C3 likely",
+                     CONFIDENCE_UNCERTAIN: "uncertain", CONFIDENCE_C4_LIKELY: "C4 likely",
+                     CONFIDENCE_C4_ROBUST: "C4 robust"}
+#: The class colours, paler for "likely" (tints of our own between the class colour and white).
+CONFIDENCE_COLOURS = {CONFIDENCE_C3_ROBUST: _CLASS_RGBA[CLASS_C3], CONFIDENCE_C3_LIKELY: (140, 206, 184, 255),
+                      CONFIDENCE_UNCERTAIN: _CLASS_RGBA[CLASS_CONTESTED], CONFIDENCE_C4_LIKELY: (243, 207, 128, 255),
+                      CONFIDENCE_C4_ROBUST: _CLASS_RGBA[CLASS_C4], CLASS_NODATA: _TRANSPARENT}
+
 SEASONAL, CHANGE, DATACUBE, ENSEMBLE, DERIVED = "seasonal", "change", "datacube", "ensemble", "derived"
+#: Layers from the parameter draws (config ``uncertainty``): written only when it is set; those with
+#: ``compares`` only for scenarios other than the baseline, from draws paired with the baseline's.
+UNCERTAINTY = "uncertainty"
 
 
 @dataclass(frozen=True)
@@ -116,7 +130,9 @@ class OutputLayer:
     kind: "seasonal" (one (y, x) layer per scenario, from the model), "change" (a scenario against the
         baseline, written for every scenario but the baseline), "datacube" (monthly (month, y, x), in the
         NetCDF datacube only) or "ensemble" (written only for a scenario with members, from the members'
-        advantage; ``compares`` set: against the baseline, not for the baseline) or "derived" (a monthly
+        advantage; ``compares`` set: against the baseline, not for the baseline), "uncertainty" (from the
+        parameter draws, written only with config ``uncertainty``; ``compares`` set: from draws paired
+        with the baseline's, computed by the model, not for the baseline) or "derived" (a monthly
         input the model derives, e.g. water availability from rainfall; in the datacube when derived).
     valid_range: (min, max) of valid values. resampling: overview resampling ("mode" for classes).
     indicator: how it is computed: the name of the function in :mod:`suitability.indicators` (for
@@ -181,6 +197,27 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
                     "(after IPCC AR6 WGI Atlas.1): 1 toward C3, 2 low agreement, 3 toward C4, 255 nodata",
                     (1.0, 3.0), "mode", ENSEMBLE, "change_agreement", compares="pathway_advantage",
                     legend=CHANGE_AGREEMENT_LEGEND, colours=CHANGE_AGREEMENT_COLOURS),
+        OutputLayer("c4_advantage_probability", "1", "share of parameter draws in which C4 is favoured "
+                    "(advantage above the contested margin)", (0.0, 1.0), "average", UNCERTAINTY,
+                    "favoured_probability"),
+        OutputLayer("c3_advantage_probability", "1", "share of parameter draws in which C3 is favoured "
+                    "(advantage below minus the contested margin)", (0.0, 1.0), "average", UNCERTAINTY,
+                    "favoured_probability"),
+        OutputLayer("advantage_p05", "1", "5th percentile over the parameter draws of the pathway advantage",
+                    (-1.0, 1.0), "average", UNCERTAINTY, "advantage_quantiles"),
+        OutputLayer("advantage_p50", "1", "median over the parameter draws of the pathway advantage",
+                    (-1.0, 1.0), "average", UNCERTAINTY, "advantage_quantiles"),
+        OutputLayer("advantage_p95", "1", "95th percentile over the parameter draws of the pathway advantage",
+                    (-1.0, 1.0), "average", UNCERTAINTY, "advantage_quantiles"),
+        OutputLayer("confidence_class", "1", "favoured pathway under parameter uncertainty: 1 C3 robust, 2 C3 likely, "
+                    "3 uncertain, 4 C4 likely, 5 C4 robust, 255 nodata", (1.0, 5.0), "mode", UNCERTAINTY,
+                    "confidence_class", legend=CONFIDENCE_LEGEND, colours=CONFIDENCE_COLOURS),
+        OutputLayer("towards_c4_probability", "1", "share of paired parameter draws in which the scenario raises "
+                    "the C4 advantage against the baseline", (0.0, 1.0), "average", UNCERTAINTY,
+                    "towards_c4_probability", compares="pathway_advantage"),
+        OutputLayer("class_change_probability", "1", "share of paired parameter draws in which the scenario's "
+                    "favoured class differs from the baseline's", (0.0, 1.0), "average", UNCERTAINTY,
+                    "class_change_probability", compares="pathway_class"),
         OutputLayer("derived_water_availability", "1", "water availability derived from rainfall: AET/PET of a "
                     "monthly soil-water balance", (0.0, 1.0), "average", DERIVED, "water_from_rainfall"),
         OutputLayer("c3_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C3 canopy, as carbon",
@@ -196,5 +233,7 @@ def layer_names(*kinds: str) -> tuple[str, ...]:
     return tuple(name for name, layer in OUTPUT_LAYERS.items() if layer.kind in kinds)
 
 
-#: The GeoTIFF layers a run can write (``output.layers`` chooses among them): seasonal, change and ensemble layers.
-OUTPUT_VARIABLES: dict[str, OutputLayer] = {name: OUTPUT_LAYERS[name] for name in layer_names(SEASONAL, CHANGE, ENSEMBLE)}
+#: The GeoTIFF layers a run can write (``output.layers`` chooses among them): seasonal, change, ensemble and
+#: uncertainty layers.
+OUTPUT_VARIABLES: dict[str, OutputLayer] = {name: OUTPUT_LAYERS[name]
+                                           for name in layer_names(SEASONAL, CHANGE, ENSEMBLE, UNCERTAINTY)}

@@ -589,6 +589,20 @@ class ComputeConfig(_Section):
         return value
 
 
+#: Most draws of ``uncertainty.draws``: each draw is one more model evaluation per scenario (common practice,
+#: no source: 1000 draws give a probability to about +-0.03 at 95 %).
+MAX_DRAWS = 1000
+
+
+class UncertaintyConfig(_Section):
+    """Parameter uncertainty: ``draws`` parameter sets drawn over the published spreads of both sets
+    (:mod:`suitability.physiology.uncertainty`), seeded, giving per-cell probabilities of C4 advantage."""
+
+    draws: Annotated[int, Field(ge=2, le=MAX_DRAWS)]
+    seed: Annotated[int, Field(ge=0)] = 0
+    method: Literal["latin_hypercube", "sobol"] = "latin_hypercube"
+
+
 class BriefConfig(_Section):
     zones: ConfigPath
     name_field: Annotated[str, Field(min_length=1)]
@@ -608,6 +622,7 @@ class RunConfig(_Section):
     output: OutputConfig = Field(default_factory=dict)
     compute: ComputeConfig = Field(default_factory=dict)
     brief: BriefConfig | None = None
+    uncertainty: UncertaintyConfig | None = None
 
     _config_dir: Path = PrivateAttr(default_factory=Path.cwd)
     _source_path: Path | None = PrivateAttr(default=None)
@@ -663,6 +678,24 @@ class RunConfig(_Section):
             for spec in specs:
                 if spec.period is None:
                     spec.period = scenario.period
+        return self
+
+    @model_validator(mode="after")
+    def _uncertainty_declared(self) -> "RunConfig":
+        """With ``uncertainty``, both parameter sets must declare their spreads; the baseline (which every
+        scenario's draws are paired with) must be a single climate."""
+        if self.uncertainty is None:
+            return self
+        from ..physiology.uncertainty import spreads_of
+
+        for key in ("c3", "c4"):
+            try:
+                spreads_of(key.upper(), getattr(self.physiology, key).as_params())
+            except ValueError as exc:
+                raise _located(("uncertainty",), str(exc)) from None
+        if self.baseline_scenario.members:
+            raise _located(("uncertainty",), f"the baseline scenario {self.baseline!r} is an ensemble; paired parameter "
+                           "draws need a single baseline climate (run the ensemble as a non-baseline scenario)")
         return self
 
     @model_validator(mode="after")
@@ -736,6 +769,6 @@ def _did_you_mean(value: str, valid) -> str:
 __all__ = [
     "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
     "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
-    "ComputeConfig", "BriefConfig", "parse_crs", "is_month_pattern", "MONTH_FIELD", "MEMBER_FIELD", "ENGINES",
+    "ComputeConfig", "BriefConfig", "UncertaintyConfig", "parse_crs", "is_month_pattern", "MONTH_FIELD", "MEMBER_FIELD", "ENGINES",
     "LOCAL_SCHEDULERS",
 ]
