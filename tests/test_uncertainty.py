@@ -265,3 +265,31 @@ def test_check_lists_the_draws_and_the_run_writes_and_records_them(tmp_path):
     manifest = json.loads(result.manifest_path.read_text())
     assert manifest["uncertainty"]["draws"] == 4 and manifest["uncertainty"]["seed"] == 11
     assert {row["key"] for row in manifest["uncertainty"]["parameters"]} >= {"alpha", "vcmax25", "g1"}
+
+
+def test_draws_and_ensemble_members_are_orthogonal(tmp_path):
+    # Derived here: every member gets the same draws, so the ensemble's share of (member, draw) pairs
+    # favouring C4 is the mean of the members' shares, each member run alone as a scenario.
+    import rasterio
+    import yaml
+
+    import suitability
+    from test_ensembles import MEMBERS, _single, config, write_inputs
+
+    write_inputs(tmp_path)
+    singles = [_single(m, [2051, 2060], 560) for m in MEMBERS]
+    path = config(tmp_path, singles)
+    cfg = yaml.safe_load(path.read_text())
+    cfg["uncertainty"] = {"draws": 3, "seed": 2}
+    cfg["scenarios"] = [s for s in cfg["scenarios"] if s["name"] != "mid"]
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    layers = suitability.run(path).layers
+
+    def read(scenario, name):
+        with rasterio.open(layers[scenario][name]) as src:
+            return src.read(1)
+
+    for name in ("c4_advantage_probability", "towards_c4_probability", "class_change_probability"):
+        pooled = np.mean([read(f"late_{m}", name) for m in MEMBERS], axis=0)
+        np.testing.assert_allclose(read("late", name), pooled, atol=1e-6, err_msg=name)
+    assert set(np.unique(read("late", "confidence_class"))) <= {1, 2, 3, 4, 5, 255}
