@@ -472,6 +472,51 @@ def _parameters(name):
                  "`suitability curves --config CONFIG` shows their effect.")
 
 
+@app.command(short_help="Which parameters move the C3/C4 boundary most (one at a time over published ranges).")
+def sensitivity(
+    config: Path = typer.Argument(..., help="YAML config file."),
+    scenario: Optional[str] = typer.Option(None, "--scenario", help="Scenario to run (default: the baseline)."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Folder for the CSV and PNG (default: <output.folder>/sensitivity)."),
+    debug: bool = DebugOption,
+):
+    """Set each parameter with a published range to its low and high end, one at a time, and show how the
+    shares of C3-favoured, contested and C4-favoured cells of the region move."""
+    _sensitivity(config, scenario, out, debug=debug)
+
+
+@_handle_errors
+def _sensitivity(config, scenario, out):
+    from .config import load_config
+    from .errors import ConfigError
+    from .sensitivity import one_at_a_time, write_sensitivity
+
+    cfg = load_config(config)
+    if scenario is not None and scenario not in [s.name for s in cfg.scenarios]:
+        raise ConfigError(f"--scenario {scenario!r}: no such scenario; scenarios: {', '.join(s.name for s in cfg.scenarios)}")
+    try:
+        table = one_at_a_time(cfg, scenario)
+    except ValueError as exc:
+        raise ConfigError(f"{config}: {exc}") from None
+    name = scenario or cfg.baseline
+    folder = out if out is not None else Path(cfg.output.folder) / "sensitivity"
+    paths = write_sensitivity(table, folder, f"{cfg.region.name}, scenario {name}: one parameter at a time")
+    central = table[table["end"] == "central"].iloc[0]
+    console.line(f"Central run ({escape(name)}): C3 favoured {central['C3 favoured %']:.1f} %, contested "
+                 f"{central['contested %']:.1f} %, C4 favoured {central['C4 favoured %']:.1f} % of "
+                 f"{int(central['mapped cells'])} cells")
+    console.line("C4-favoured share at the low / high end of each range, largest swing first:")
+    for parameter in dict.fromkeys(table["parameter"]):
+        if parameter == "central":
+            continue
+        rows = table[table["parameter"] == parameter].set_index("end")
+        console.line(f"  {escape(parameter)}: {rows.loc['low', 'value']:.4g} -> {rows.loc['low', 'C4 favoured %']:.1f} %, "
+                     f"{rows.loc['high', 'value']:.4g} -> {rows.loc['high', 'C4 favoured %']:.1f} % "
+                     f"(swing {rows.loc['high', 'C4 share swing %']:+.1f} points)")
+    for path in paths.values():
+        console.line(f"Wrote {escape(str(path))}")
+    _print_caution()
+
+
 @app.command(short_help="Write a commented starter config to edit.")
 def init(
     path: Path = typer.Argument(Path("suitability.yaml"), help="Where to write the starter config."),

@@ -293,3 +293,29 @@ def test_draws_and_ensemble_members_are_orthogonal(tmp_path):
         pooled = np.mean([read(f"late_{m}", name) for m in MEMBERS], axis=0)
         np.testing.assert_allclose(read("late", name), pooled, atol=1e-6, err_msg=name)
     assert set(np.unique(read("late", "confidence_class"))) <= {1, 2, 3, 4, 5, 255}
+
+
+def test_sensitivity_lists_each_varied_parameter_with_both_ends(tmp_path):
+    from typer.testing import CliRunner
+
+    from suitability.cli import app
+    from suitability.config import load_config
+    from suitability.sensitivity import one_at_a_time
+
+    config = _uncertain_demo(tmp_path)
+    table = one_at_a_time(load_config(config))
+    varied = {f"{r['pathway']} {r['key']}" for r in varied_parameters("bernacchi2001", "collatz1992")}
+    assert set(table["parameter"]) == varied | {"central"}
+    shares = table[["C3 favoured %", "contested %", "C4 favoured %"]].sum(axis=1)
+    np.testing.assert_allclose(shares, 100.0, rtol=1e-9)
+    c4 = table.set_index(["parameter", "end"])["C4 favoured %"]
+    # Collatz et al. (1992) eq. 2: a larger C4 quantum yield raises C4 assimilation; FvCB (Farquhar et al.
+    # 1980): a larger C3 Vcmax raises C3 assimilation. So the C4 share moves with alpha and against Vcmax.
+    assert c4[("C4 alpha", "high")] >= c4[("C4 alpha", "low")]
+    assert c4[("C3 vcmax25", "high")] <= c4[("C3 vcmax25", "low")]
+    swings = table.dropna(subset=["C4 share swing %"])["C4 share swing %"].abs().tolist()
+    assert swings == sorted(swings, reverse=True)  # largest swing first
+    shown = CliRunner().invoke(app, ["sensitivity", str(config), "--out", str(tmp_path / "sens")])
+    assert shown.exit_code == 0, shown.output
+    assert (tmp_path / "sens" / "sensitivity.png").stat().st_size > 0
+    assert "largest swing first" in shown.output and "not yield forecasts" in shown.output
