@@ -468,6 +468,13 @@ def _parameters(name):
         unit = f" {row.unit}" if row.unit and row.unit != "-" else ""
         note = f"  ({escape(row.note)})" if row.note else ""
         console.line(f"  {row.key} = {escape(format_value(row.value))}{escape(unit)}: {escape(row.meaning)}{note}")
+    from .physiology.uncertainty import PARAMETER_UNCERTAINTY, spread_text, varied_parameters
+
+    if name in PARAMETER_UNCERTAINTY:
+        console.line("Published spread of its influential parameters (what the config's 'uncertainty' draws over):")
+        pair = {"c3_params": name} if pathway == "C3" else {"c4_params": name}
+        for row in (r for r in varied_parameters(**pair) if r["pathway"] == pathway):
+            console.line(f"  - {escape(spread_text(row))}")
     console.line("Change single values under physiology.c3.overrides or physiology.c4.overrides in the config; "
                  "`suitability curves --config CONFIG` shows their effect.")
 

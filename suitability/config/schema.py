@@ -602,6 +602,14 @@ class UncertaintyConfig(_Section):
     seed: Annotated[int, Field(ge=0)] = 0
     method: Literal["latin_hypercube", "sobol"] = "latin_hypercube"
 
+    @model_validator(mode="after")
+    def _sobol_in_powers_of_two(self) -> "UncertaintyConfig":
+        # A Sobol sequence keeps its balance properties only for 2^k points (Sobol 1967, from memory;
+        # scipy.stats.qmc.Sobol warns otherwise).
+        if self.method == "sobol" and self.draws & (self.draws - 1):
+            raise ValueError(f"method sobol: draws must be a power of 2 (e.g. 64 or 128), got {self.draws}")
+        return self
+
 
 class BriefConfig(_Section):
     zones: ConfigPath
