@@ -347,3 +347,25 @@ def test_parameters_shows_a_sets_published_spread():
     shown = " ".join(CliRunner().invoke(app, ["parameters", "c4_tropical_grass"], env={"COLUMNS": "200"}).output.split())
     # The declared range of alpha: Collatz et al. (1992) fit to Ehleringer & Pearcy (1983) NADP-ME.
     assert "C4 alpha: uniform 0.04..0.065" in shown and "Ehleringer & Pearcy (1983)" in shown
+
+
+def test_the_numpy_engine_gives_the_same_draws():
+    # model.py: both engines run the same equations (kernel tested against the numpy physiology within 1e-4
+    # relative, tests/test_kernel.py); so the draws' advantage agrees to that order.
+    climate = synthetic_climate([10.0, 26.0])
+    compiled = model.evaluate(climate, {"co2_ppm": 560}, uncertainty={"draws": 3, "seed": 1}, baseline={"co2_ppm": 420})
+    numpy_ = model.evaluate(climate, {"co2_ppm": 560}, uncertainty={"draws": 3, "seed": 1}, baseline={"co2_ppm": 420},
+                            engine="numpy")
+    for name in ("advantage_p05", "advantage_p50", "advantage_p95"):
+        np.testing.assert_allclose(numpy_[name].values, compiled[name].values, atol=1e-4, err_msg=name)
+
+
+@pytest.mark.slow
+def test_draws_are_bitwise_equal_with_worker_processes():
+    # dask's process scheduler pickles the settings (with the draws) to other processes: same bits.
+    chunked = model.evaluate(synthetic_climate(TEMPERATURES, chunks=True), {"co2_ppm": 420}, uncertainty=UNCERTAINTY)
+    reference = model.evaluate(synthetic_climate(TEMPERATURES), {"co2_ppm": 420}, uncertainty=UNCERTAINTY)
+    with dask.config.set(scheduler="processes", num_workers=2):
+        computed = chunked.compute()
+    for name in model.UNCERTAINTY_LAYERS[:6]:
+        np.testing.assert_array_equal(computed[name].values, reference[name].values, err_msg=name)
