@@ -7,10 +7,17 @@ was checked)."""
 
 from __future__ import annotations
 
+import sys
+from pathlib import Path
+
 import pytest
 
-from validation.comparisons import BANDS, KNOWN_DISAGREEMENTS, run_all
-from validation.run import report
+REPO = Path(__file__).resolve().parents[1]
+if str(REPO) not in sys.path:  # validation/ is a folder of the repository, not of the installed package
+    sys.path.insert(0, str(REPO))
+
+from validation.comparisons import BANDS, KNOWN_DISAGREEMENTS, run_all  # noqa: E402
+from validation.run import report  # noqa: E402
 
 
 @pytest.fixture(scope="module")
