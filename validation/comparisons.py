@@ -129,7 +129,8 @@ KNOWN_DISAGREEMENTS: dict[str, str] = {
         "The default C3 grass keeps its growth temperature at 25 °C (no acclimation to the cell's climate), so "
         "its peaked Vcmax/Jmax responses are too weak in cool months and the canopy tie falls near 17 °C; with "
         "acclimation to the daily mean (tests/physiology/test_calibration.py) it is 20.2 °C. The per-cell "
-        "acclimation of issue 10 addresses this. The parameter draws put the 95th-percentile tie near 22 °C."),
+        "acclimation of issue 10 addresses this. The ties of the draws' percentile advantages (last column) reach "
+        "towards the published value but stay below it."),
     "face_c3": (
         "The band was set on the smaller stimulation of the two C3 sets over 25-31 °C; that is the C3 cereal at "
         "25 °C (+15 %), where its high Vcmax leaves the light-saturated rate limited by electron transport, which "
