@@ -203,8 +203,8 @@ def spreads_of(pathway: str, params: Any = None) -> tuple[Spread, ...]:
 
 
 def unit_sample(draws: int, dimensions: int, seed: int, method: str = "latin_hypercube") -> np.ndarray:
-    """(draws, dimensions) points in [0, 1): a seeded Latin hypercube (centred in no way: scipy's random
-    placement within strata) or a scrambled Sobol sequence (scipy.stats.qmc)."""
+    """(draws, dimensions) points in [0, 1): a seeded Latin hypercube (each point at a random place within
+    its stratum, scipy's default) or a scrambled Sobol sequence (scipy.stats.qmc)."""
     from scipy.stats import qmc
 
     if draws < 1:
