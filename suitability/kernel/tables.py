@@ -41,6 +41,7 @@ class PathwayTables:
     stomatal: np.ndarray
     start_c: float
     step_c: float
+    growth_temperature_c: float = float("nan")
 
 
 def table_temperatures() -> np.ndarray:
@@ -91,4 +92,5 @@ def _cached_tables(pathway: str, items: tuple) -> PathwayTables:
     stomatal = np.array(stomatal_constants(params), np.float64)
     for array in (table, constants, stomatal):
         array.setflags(write=False)
-    return PathwayTables(model, table, constants, stomatal, float(t[0]), TABLE_STEP_C)
+    return PathwayTables(model, table, constants, stomatal, float(t[0]), TABLE_STEP_C,
+                         float(params.get("growth_temperature_c", np.nan)))

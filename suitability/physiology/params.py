@@ -364,11 +364,24 @@ def _check_value(pathway: str, key: str, value, default):
     return value
 
 
+def _derived_jmax25(params) -> float:
+    from .c3 import jmax_vcmax_ratio  # c3 registers its model on import; params needs only this equation
+
+    return float(jmax_vcmax_ratio(params["growth_temperature_c"])) * params["vcmax25"]
+
+
+def jmax25_is_derived(params) -> bool:
+    """Whether a resolved C3 mapping's Jmax25 is the Kattge & Knorr (2007) value derived from Vcmax25 and
+    Tg (its set has ``jmax25: None`` and no other value was given), so that it follows the growth
+    temperature under acclimation (:func:`suitability.physiology.c3.fvcb_acclimated_terms`)."""
+    base = PARAMETER_SETS["C3"].get(params.get("parameter_set"), {})
+    return base.get("jmax25", 0.0) is None and params["jmax25"] == _derived_jmax25(params)
+
+
 def _derive(pathway: str, merged: dict) -> dict:
     if pathway == "C3":
         if merged["jmax25"] is None:
-            ratio = 2.59 - 0.035 * merged["growth_temperature_c"]
-            merged["jmax25"] = ratio * merged["vcmax25"]
+            merged["jmax25"] = _derived_jmax25(merged)
         if merged["rd25"] is None:
             merged["rd25"] = 0.015 * merged["vcmax25"]
         if merged["tpu25"] is None:
