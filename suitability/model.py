@@ -27,10 +27,10 @@ import dask.array
 import numpy as np
 import xarray as xr
 
-from . import indicators, kernel
+from . import indicators, kernel, tie_solver
 from .config.schema import GROWING_SEASON_MIN_MEAN_TEMPERATURE_C, GROWING_SEASON_MIN_MEAN_TMIN_C
 from .physiology import atmosphere, light
-from .physiology import crossover_temperature, daily_canopy_assimilation
+from .physiology import daily_canopy_assimilation
 from .physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from .runtime import ENGINES
 from .physiology import water_balance
@@ -63,6 +63,10 @@ class ModelSettings:
     engine: "compiled" (the numba kernel) or "numpy" (see the module docstring).
     max_water_supply_mm: the soil's daily water supply at field capacity [mm d-1]
         (:mod:`suitability.physiology.water`).
+    growth_temperature: "month_mean" (C3 leaves acclimated to the cell's mean air temperature of the month,
+        Kattge & Knorr 2007) or "parameter_set" (the C3 set's own ``growth_temperature_c`` everywhere).
+    crossover: solve the canopy crossover per cell and month (:func:`canopy_crossover`); False leaves the
+        crossover layers NaN.
     """
 
     scenario: ScenarioSettings
@@ -75,6 +79,15 @@ class ModelSettings:
     lai: float = DEFAULT_LAI
     engine: str = "compiled"
     max_water_supply_mm: float = MAX_WATER_SUPPLY_MM_PER_DAY
+    growth_temperature: str = "month_mean"
+    crossover: bool = True
+
+
+#: Monthly mean temperatures [°C] searched for the canopy crossover (widened to include the month's own).
+CROSSOVER_SEARCH_C = (0.0, 45.0)
+#: Largest shifted daily maximum and smallest daily minimum [°C] the crossover search uses: the leaf
+#: models' valid range (atmosphere.TEMPERATURE_RANGE_C) less the 0.5 °C of the hourly course's rounding.
+_SHIFT_TMAX_C, _SHIFT_TMIN_C = atmosphere.TEMPERATURE_RANGE_C[1] - 0.5, atmosphere.TEMPERATURE_RANGE_C[0] + 0.5
 
 
 def evaluate(
@@ -215,6 +228,8 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         lai=float(_get(physiology, "lai", DEFAULT_LAI) or DEFAULT_LAI),
         engine=engine,
         max_water_supply_mm=float(_get(physiology, "max_water_supply_mm", MAX_WATER_SUPPLY_MM_PER_DAY)),
+        growth_temperature=str(_get(physiology, "growth_temperature", "month_mean")),
+        crossover=bool(_get(physiology, "crossover_temperature", True)),
     )
 
 
@@ -230,10 +245,7 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     elevation = data.get("elevation", np.zeros(shape, np.float32))
     lai = data.get("lai", np.full(shape, settings.lai, np.float32))
     in_season = _season_mask(data, settings, shape)
-    if settings.engine == "compiled":
-        monthly, c3_gross, c3_photorespiration = _compiled_months(data, settings, in_season, elevation, lai)
-    else:
-        monthly, c3_gross, c3_photorespiration = _numpy_months(data, settings, in_season, elevation, lai)
+    monthly, c3_gross, c3_photorespiration = _months(data, settings, in_season, elevation, lai)
     valid = _valid_cells(data)
     season_c3 = np.where(in_season, monthly["C3"], 0.0).sum(axis=-1)
     season_c4 = np.where(in_season, monthly["C4"], 0.0).sum(axis=-1)
@@ -249,7 +261,11 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
         settings.contested_margin,
     )
     share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
-    crossover = _crossover_by_pressure(atmosphere.air_pressure_from_elevation(elevation), settings)
+    if settings.crossover:
+        monthly_crossover = canopy_crossover(data, settings, in_season & valid[..., None], monthly, elevation, lai)
+    else:
+        monthly_crossover = np.full(in_season.shape, np.nan)
+    crossover = indicators.warmest_month_value(monthly_crossover, month_mean_temperature(data), in_season)
     seasonal = {"c3_assimilation": season_c3, "c4_assimilation": season_c4, "pathway_advantage": advantage,
                 "pathway_class": classes, "c4_favoured_months": months_favoured,
                 "growing_season_months": indicators.growing_season_months(np.moveaxis(in_season, -1, 0), valid),
@@ -261,12 +277,94 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
             values = np.where(nodata, np.nan, values)
         out[i] = values
     first = len(SEASONAL_LAYERS)
-    out[first:first + 12] = np.moveaxis(np.where(valid[..., None], monthly["C3"], np.nan), -1, 0)
-    out[first + 12:first + 24] = np.moveaxis(np.where(valid[..., None], monthly["C4"], np.nan), -1, 0)
+    by_month = {"c3_monthly_assimilation": monthly["C3"], "c4_monthly_assimilation": monthly["C4"],
+                "monthly_crossover_temperature": monthly_crossover}
+    for j, name in enumerate(MONTHLY_LAYERS):
+        out[first + 12 * j:first + 12 * (j + 1)] = np.moveaxis(np.where(valid[..., None], by_month[name], np.nan), -1, 0)
     return out
 
 
-def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
+def month_mean_temperature(data) -> np.ndarray:
+    """The monthly mean air temperature (Tmin + Tmax)/2 [°C], (..., 12) float64, as the season rule uses it."""
+    return 0.5 * (np.asarray(data["tmin"], np.float64) + np.asarray(data["tmax"], np.float64))
+
+
+def growth_temperature(data, settings: ModelSettings):
+    """The C3 leaves' growth temperature [°C] per cell and month, or None for the parameter set's own.
+
+    "month_mean": the month's mean air temperature (Tmin + Tmax)/2, float32 as the inputs. Kattge & Knorr
+    (2007) took the mean air temperature of the 30 days before a measurement (from memory); a monthly
+    climatology's own month stands for it (the representative day is the 15th, so half of its 30 days
+    are in the month before: a lag this ignores).
+    """
+    if settings.growth_temperature == "parameter_set":
+        return None
+    return (0.5 * (data["tmin"] + data["tmax"])).astype(np.float32)
+
+
+def _months(data, settings: ModelSettings, in_season, elevation, lai):
+    """Monthly net totals per pathway [g C m-2], season C3 gross and photorespiration, by the run's engine."""
+    growth = growth_temperature(data, settings)
+    if settings.engine == "compiled":
+        return _compiled_months(data, settings, in_season, elevation, lai, growth)
+    return _numpy_months(data, settings, in_season, elevation, lai, growth)
+
+
+def canopy_crossover(data, settings: ModelSettings, months, monthly, elevation, lai) -> np.ndarray:
+    """The canopy crossover [°C] of every cell and month of ``months`` (bool (..., 12)); NaN elsewhere.
+
+    The monthly mean temperature at which the month's advantage index of the two daily canopies
+    (:func:`indicators.advantage_index`) equals the class margin ``settings.contested_margin``, i.e. the
+    edge of "C4 favoured" as :func:`indicators.c4_favoured_months` counts it, solved with the same engine
+    and inputs as the model pass: the daily minimum and maximum shifted together (the daily range kept),
+    the C3 growth temperature following the month mean when it is "month_mean", and the cell's radiation,
+    day length, air pressure, water availability, humidity input (VPD or relative humidity held; the
+    vapour pressure from Tmin follows Tmin) and CO2 unchanged. The tie nearest the month's own mean on the
+    side its own result points to (:mod:`suitability.tie_solver`): a month is C4-favoured exactly when its
+    mean temperature is above its crossover. −inf: C4 favoured at every mean temperature down to the
+    lower end of :data:`CROSSOVER_SEARCH_C` (or the month's own, if colder); +inf: not C4-favoured at any
+    up to the upper end (or where the shifted day leaves the leaf models' temperature range).
+    ``monthly``: the model pass's monthly nets {"C3", "C4"} (..., 12).
+    """
+    shape = months.shape
+    n = int(np.prod(shape[:-1], dtype=np.int64))
+    flat = {name: (values.reshape(n, 12) if values.ndim == len(shape) else values.reshape(n))
+            for name, values in data.items()}
+    flat_elevation, flat_lai = np.reshape(elevation, n), np.reshape(lai, n)
+    margin = settings.contested_margin
+    start = np.where(months, indicators.advantage_index(monthly["C3"], monthly["C4"]) - margin, np.nan).reshape(n, 12)
+    mean = month_mean_temperature(data).reshape(n, 12)
+    lower = np.maximum(np.minimum(CROSSOVER_SEARCH_C[0], mean) - mean, _SHIFT_TMIN_C - flat["tmin"])
+    upper = np.minimum(np.maximum(CROSSOVER_SEARCH_C[1], mean) - mean, _SHIFT_TMAX_C - flat["tmax"])
+
+    def excess(offsets, active):
+        rows = active.any(axis=-1)
+        sub = {name: values[rows] for name, values in flat.items()}
+        shift = offsets[rows].astype(np.float32)
+        sub["tmin"] = sub["tmin"] + shift
+        sub["tmax"] = sub["tmax"] + shift
+        with np.errstate(all="ignore"):
+            nets, _, _ = _months(sub, settings, active[rows], flat_elevation[rows], flat_lai[rows])
+        g = np.full((n, 12), np.nan)
+        g[rows] = indicators.advantage_index(nets["C3"], nets["C4"]) - margin
+        return np.where(active, g, np.nan)
+
+    offset = tie_solver.nearest_tie(excess, start, np.minimum(lower, 0.0), np.maximum(upper, 0.0))
+    return side_consistent(mean + offset, mean, start > 0).reshape(shape)
+
+
+def side_consistent(crossover, mean, favoured) -> np.ndarray:
+    """The crossover as float32, moved by at most one float32 step so that, compared in float64,
+    ``mean > crossover`` exactly where ``favoured`` (rounding of a tie that lies within a float32 step of
+    the month's mean; NaN and ±inf unchanged)."""
+    value = np.asarray(crossover, np.float32)
+    with np.errstate(invalid="ignore"):
+        value = np.where(favoured & (value >= mean), np.nextafter(value, np.float32(-np.inf)), value)
+        value = np.where(~favoured & (value < mean), np.nextafter(value, np.float32(np.inf)), value)
+    return value.astype(np.float32)
+
+
+def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, growth=None):
     """Monthly net totals per pathway [g C m-2], season C3 gross and photorespiration, by the numpy physiology."""
     shape = in_season.shape[:-1]
     scenario = settings.scenario
@@ -289,6 +387,7 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
                     lai=lai,
                     params=params,
                     max_water_supply_mm=settings.max_water_supply_mm,
+                    growth_temperature_c=None if growth is None else growth[..., index],
                     **month_inputs,
                 )
             monthly[pathway][..., index] = np.asarray(day.net) * DAYS_IN_MONTH[index]
@@ -301,7 +400,7 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
     return monthly, c3_gross, c3_photorespiration
 
 
-def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai):
+def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai, growth=None):
     """The same three results as :func:`_numpy_months`, by the compiled kernel (:mod:`suitability.kernel`)."""
     humidity = {}
     if "vpd" in data:
@@ -319,28 +418,10 @@ def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai):
         day_of_year=REPRESENTATIVE_DAY, co2_ppm=settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent,
         elevation_m=elevation, lai=lai, in_season=in_season, c3_params=settings.c3_params,
         c4_params=settings.c4_params, days_in_month=DAYS_IN_MONTH,
-        max_water_supply_mm=settings.max_water_supply_mm, **humidity,
+        max_water_supply_mm=settings.max_water_supply_mm, growth_temperature_c=growth, **humidity,
     )
     monthly = {"C3": day.c3_net * DAYS_IN_MONTH, "C4": day.c4_net * DAYS_IN_MONTH}
     return monthly, day.c3_gross_total, day.c3_photorespiration_total
-
-
-def _crossover_by_pressure(pressure_kpa: np.ndarray, settings: ModelSettings) -> np.ndarray:
-    """Crossover temperature per cell, solved once per distinct air pressure (to 0.01 kPa) of the block.
-
-    The crossover depends on the cell only through its air pressure; rounding the pressure to 0.01 kPa
-    (about 1 m of elevation) changes it by far less than the 0.1 °C the maps resolve.
-    """
-    finite = np.isfinite(pressure_kpa)
-    rounded = np.round(np.where(finite, pressure_kpa, 101.3), 2)
-    distinct, inverse = np.unique(rounded, return_inverse=True)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        solved = crossover_temperature(
-            settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent, pressure_kpa=distinct,
-            params={"C3": settings.c3_params, "C4": settings.c4_params},
-        )
-    return np.where(finite, np.asarray(solved)[inverse.reshape(pressure_kpa.shape)], np.nan)
 
 
 def _month_inputs(data: Mapping[str, np.ndarray], index: int) -> dict[str, np.ndarray]:
