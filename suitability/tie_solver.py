@@ -20,8 +20,9 @@ several). Steps:
    the next tie beyond it, or none, is reported): C4's own decline above about 36 °C (Collatz et al.
    1992 high-temperature term) makes such bands where a cool month is searched upward;
 2. refine: the Illinois variant of regula falsi (Dowell & Jarratt 1971, BIT 11:168) on every bracket at
-   once, one model pass per iteration, until the bracket is narrower than :data:`TOLERANCE_C` (a
-   bisection step instead whenever the secant point falls outside the bracket's inner part).
+   once, one model pass per iteration, until the bracket is narrower than :data:`TOLERANCE_C`; each new
+   point at least half the tolerance inside the bracket (Dekker's minimum step), so that a root next to
+   one end closes the bracket instead of being approached from one side only.
 
 No tie within the search limits: −inf where the month stays C4-favoured down to the lower limit, +inf where
 it stays not C4-favoured (C3 favoured or contested) up to the upper limit; also where the model gives no
@@ -99,9 +100,11 @@ def _refine(excess, a, g_a, b, g_b, active, counter):
         with np.errstate(invalid="ignore", divide="ignore"):
             secant = b - g_b * (b - a) / (g_b - g_a)
         low, high = np.minimum(a, b), np.maximum(a, b)
-        margin = 0.05 * (high - low)
-        inside = np.isfinite(secant) & (secant > low + margin) & (secant < high - margin)
-        x = np.where(active, np.where(inside, secant, 0.5 * (a + b)), 0.0)
+        # At least half the tolerance from either end (Dekker's minimum step), so that a root next to an
+        # end closes the bracket in one more pass instead of creeping toward it.
+        step = 0.5 * TOLERANCE_C
+        x = np.where(np.isfinite(secant), np.clip(secant, low + step, high - step), 0.5 * (a + b))
+        x = np.where(active, x, 0.0)
         g = _call(excess, x, active, counter)
         g = np.where(np.isfinite(g), g, np.where(g_b > 0, g_b, g_a))  # a NaN inside a bracket: move toward it
         same_as_b = (g > 0) == (g_b > 0)
