@@ -330,10 +330,28 @@ def canopy_crossover(data, settings: ModelSettings, months, monthly, elevation, 
     n = int(np.prod(shape[:-1], dtype=np.int64))
     flat = {name: (values.reshape(n, 12) if values.ndim == len(shape) else values.reshape(n))
             for name, values in data.items()}
-    flat_elevation, flat_lai = np.reshape(elevation, n), np.reshape(lai, n)
-    margin = settings.contested_margin
-    start = np.where(months, indicators.advantage_index(monthly["C3"], monthly["C4"]) - margin, np.nan).reshape(n, 12)
+    start = np.where(months, indicators.advantage_index(monthly["C3"], monthly["C4"]) - settings.contested_margin,
+                     np.nan).reshape(n, 12)
     mean = month_mean_temperature(data).reshape(n, 12)
+    result = np.full((n, 12), np.nan, np.float32)
+    # Cells a slice at a time: the solver keeps about a dozen arrays per cell and month.
+    for first in range(0, n, CROSSOVER_BATCH_CELLS):
+        rows = slice(first, min(first + CROSSOVER_BATCH_CELLS, n))
+        if np.isfinite(start[rows]).any():
+            result[rows] = _crossover_of_cells({name: values[rows] for name, values in flat.items()}, settings,
+                                               start[rows], mean[rows], np.reshape(elevation, n)[rows],
+                                               np.reshape(lai, n)[rows])
+    return result.reshape(shape)
+
+
+#: Cells solved together by :func:`canopy_crossover` (bounds its memory: about 12 float64 arrays of 12 months).
+CROSSOVER_BATCH_CELLS = 16384
+
+
+def _crossover_of_cells(flat, settings: ModelSettings, start, mean, elevation, lai) -> np.ndarray:
+    """:func:`canopy_crossover` of cells (n, 12) given g at offset 0 (``start``) and the month means."""
+    n = start.shape[0]
+    margin = settings.contested_margin
     lower = np.maximum(np.minimum(CROSSOVER_SEARCH_C[0], mean) - mean, _SHIFT_TMIN_C - flat["tmin"])
     upper = np.minimum(np.maximum(CROSSOVER_SEARCH_C[1], mean) - mean, _SHIFT_TMAX_C - flat["tmax"])
 
@@ -344,13 +362,13 @@ def canopy_crossover(data, settings: ModelSettings, months, monthly, elevation, 
         sub["tmin"] = sub["tmin"] + shift
         sub["tmax"] = sub["tmax"] + shift
         with np.errstate(all="ignore"):
-            nets, _, _ = _months(sub, settings, active[rows], flat_elevation[rows], flat_lai[rows])
+            nets, _, _ = _months(sub, settings, active[rows], elevation[rows], lai[rows])
         g = np.full((n, 12), np.nan)
         g[rows] = indicators.advantage_index(nets["C3"], nets["C4"]) - margin
         return np.where(active, g, np.nan)
 
     offset = tie_solver.nearest_tie(excess, start, np.minimum(lower, 0.0), np.maximum(upper, 0.0))
-    return side_consistent(mean + offset, mean, start > 0).reshape(shape)
+    return side_consistent(mean + offset, mean, start > 0)
 
 
 def side_consistent(crossover, mean, favoured) -> np.ndarray:
