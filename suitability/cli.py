@@ -375,7 +375,7 @@ def _brief(config, scenario, overwrite):
     _print_caution()
 
 
-@app.command(short_help="Leaf C3/C4 assimilation versus temperature; crossover temperatures.")
+@app.command(short_help="Leaf C3/C4 assimilation versus temperature; leaf quantum-yield crossovers.")
 def curves(
     co2: List[float] = typer.Option([280.0, 420.0, 700.0], "--co2", help="CO2 in ppm; repeat for several."),
     absorbed_par: float = typer.Option(1500.0, help="Absorbed PAR of the leaf [µmol m-2 s-1]."),
@@ -388,7 +388,8 @@ def curves(
         None, "--elevation", help="Elevation in m for the air pressure (default sea level, or the config's)."),
     debug: bool = DebugOption,
 ):
-    """Leaf net assimilation of C3 and C4 versus leaf temperature, and the crossover temperature."""
+    """Leaf net assimilation of C3 and C4 versus leaf temperature, and the leaf quantum-yield crossover
+    (not the canopy crossover of the maps)."""
     _curves(co2, absorbed_par, out, config, o2, elevation, debug=debug)
 
 

@@ -14,7 +14,7 @@ import pandas as pd
 
 from .atomic import atomic_write
 from .outputs import write_csv
-from .physiology import crossover_temperature, leaf_assimilation
+from .physiology import quantum_yield_crossover, leaf_assimilation
 from .physiology.atmosphere import air_pressure_from_elevation
 
 LEAF_TEMPERATURES_C = np.arange(0.0, 50.5, 0.5)
@@ -27,7 +27,7 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
 
     co2_ppm: ambient CO2 mole fractions [µmol mol-1]. absorbed_par: [µmol m-2 s-1]. vpd_kpa: [kPa].
     Returns (curves, crossovers): curves has columns co2_ppm, leaf_temperature_c, c3_net, c4_net
-    [µmol m-2 s-1]; crossovers has co2_ppm and crossover_temperature_c [°C], the leaf quantum-yield
+    [µmol m-2 s-1]; crossovers has co2_ppm and quantum_yield_crossover_c [°C], the leaf quantum-yield
     crossover (``suitability.physiology.crossover``) at each pathway's Ci/Ca for ``vpd_kpa``.
     c3_params, c4_params: anything ``resolve_params`` accepts (None = the default set); they are used for
     the curves and for the crossover temperatures alike. o2_percent: ambient O2 [%]. elevation_m: elevation
@@ -49,9 +49,9 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
             "c3_net": np.asarray(c3.net), "c4_net": np.asarray(c4.net),
         }))
         # The leaf quantum-yield crossover at the curves' own VPD (each pathway's canopy Ci/Ca).
-        crossover = crossover_temperature(co2, o2_percent=o2_percent, params=crossover_params, vpd_kpa=vpd_kpa,
+        crossover = quantum_yield_crossover(co2, o2_percent=o2_percent, params=crossover_params, vpd_kpa=vpd_kpa,
                                           **pressure)
-        crossings.append({"co2_ppm": co2, "crossover_temperature_c": float(crossover)})
+        crossings.append({"co2_ppm": co2, "quantum_yield_crossover_c": float(crossover)})
     return pd.concat(rows, ignore_index=True), pd.DataFrame(crossings)
 
 

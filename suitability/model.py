@@ -28,10 +28,10 @@ import dask.array
 import numpy as np
 import xarray as xr
 
-from . import indicators, kernel
+from . import indicators, kernel, tie_solver
 from .config.schema import GROWING_SEASON_MIN_MEAN_TEMPERATURE_C, GROWING_SEASON_MIN_MEAN_TMIN_C
 from .physiology import atmosphere, light
-from .physiology import crossover_temperature, daily_canopy_assimilation
+from .physiology import daily_canopy_assimilation
 from .physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from .runtime import ENGINES
 from .physiology import water_balance
@@ -73,6 +73,10 @@ class ModelSettings:
         C4 parameters (hashable); empty: no uncertainty layers.
     baseline: the baseline scenario's settings when the draws are paired with the baseline's (the
         scenario's change under uncertainty); None otherwise.
+    growth_temperature: "month_mean" (C3 leaves acclimated to the cell's mean air temperature of the month,
+        Kattge & Knorr 2007) or "parameter_set" (the C3 set's own ``growth_temperature_c`` everywhere).
+    crossover: solve the canopy crossover per cell and month (:func:`canopy_crossover`); False leaves the
+        crossover layers NaN.
     """
 
     scenario: ScenarioSettings
@@ -87,6 +91,8 @@ class ModelSettings:
     max_water_supply_mm: float = MAX_WATER_SUPPLY_MM_PER_DAY
     draws: tuple = ()
     baseline: ScenarioSettings | None = None
+    growth_temperature: str = "month_mean"
+    crossover: bool = True
 
     def draw_params(self):
         """The draws as (C3 parameters, C4 parameters) dicts."""
@@ -103,6 +109,13 @@ def uncertainty_layer_names(settings: ModelSettings) -> tuple[str, ...]:
 
 def _n_stacked(settings: ModelSettings) -> int:
     return _N_STACKED + len(uncertainty_layer_names(settings))
+
+
+#: Monthly mean temperatures [°C] searched for the canopy crossover (widened to include the month's own).
+CROSSOVER_SEARCH_C = (0.0, 45.0)
+#: Largest shifted daily maximum and smallest daily minimum [°C] the crossover search uses: the leaf
+#: models' valid range (atmosphere.TEMPERATURE_RANGE_C) less the 0.5 °C of the hourly course's rounding.
+_SHIFT_TMAX_C, _SHIFT_TMIN_C = atmosphere.TEMPERATURE_RANGE_C[1] - 0.5, atmosphere.TEMPERATURE_RANGE_C[0] + 0.5
 
 
 def evaluate(
@@ -281,6 +294,8 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         max_water_supply_mm=float(_get(physiology, "max_water_supply_mm", MAX_WATER_SUPPLY_MM_PER_DAY)),
         draws=draws,
         baseline=ScenarioSettings.from_any(baseline) if baseline is not None else None,
+        growth_temperature=str(_get(physiology, "growth_temperature", "month_mean")),
+        crossover=bool(_get(physiology, "crossover_temperature", True)),
     )
 
 
@@ -307,7 +322,11 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
         settings.contested_margin,
     )
     share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
-    crossover = _crossover_by_pressure(atmosphere.air_pressure_from_elevation(elevation), settings)
+    if settings.crossover:
+        monthly_crossover = canopy_crossover(block, settings, in_season & valid[..., None], monthly)
+    else:
+        monthly_crossover = np.full(in_season.shape, np.nan)
+    crossover = indicators.warmest_month_value(monthly_crossover, month_mean_temperature(data), in_season)
     seasonal = {"c3_assimilation": season_c3, "c4_assimilation": season_c4, "pathway_advantage": advantage,
                 "pathway_class": classes, "c4_favoured_months": months_favoured,
                 "growing_season_months": indicators.growing_season_months(np.moveaxis(in_season, -1, 0), valid),
@@ -319,8 +338,10 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
             values = np.where(nodata, np.nan, values)
         out[i] = values
     first = len(SEASONAL_LAYERS)
-    out[first:first + 12] = np.moveaxis(np.where(valid[..., None], monthly["C3"], np.nan), -1, 0)
-    out[first + 12:first + 24] = np.moveaxis(np.where(valid[..., None], monthly["C4"], np.nan), -1, 0)
+    by_month = {"c3_monthly_assimilation": monthly["C3"], "c4_monthly_assimilation": monthly["C4"],
+                "monthly_crossover_temperature": monthly_crossover}
+    for j, name in enumerate(MONTHLY_LAYERS):
+        out[first + 12 * j:first + 12 * (j + 1)] = np.moveaxis(np.where(valid[..., None], by_month[name], np.nan), -1, 0)
     if settings.draws:
         base_block = _Block.of(base, settings, settings.baseline) if settings.baseline is not None else None
         layers = _uncertainty_layers(block, base_block, settings)
@@ -331,7 +352,10 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
 
 @dataclass
 class _Block:
-    """One block of cells under one scenario: inputs (months last) and every parameter-independent term."""
+    """One block of cells under one scenario: inputs (months last) and every parameter-independent term.
+
+    growth: the C3 growth temperature per cell and month [°C] (:func:`growth_temperature`), or None.
+    """
 
     data: dict
     shape: tuple
@@ -341,18 +365,26 @@ class _Block:
     valid: np.ndarray
     elevation: np.ndarray
     lai: np.ndarray
+    growth: np.ndarray | None = None
     kernel_inputs: dict | None = None
 
     @classmethod
     def of(cls, data: dict, settings: ModelSettings, scenario: ScenarioSettings | None = None) -> "_Block":
+        """The block of the model's inputs as dask hands them over (monthly arrays as (12, ...))."""
         shape = data["latitude"].shape
         data = {name: np.moveaxis(values, 0, -1) if values.ndim == len(shape) + 1 else values
                 for name, values in data.items()}  # months last inside: (..., 12)
-        in_season = _season_mask(data, settings, shape)
+        return cls.months_last(data, settings, _season_mask(data, settings, shape), scenario)
+
+    @classmethod
+    def months_last(cls, data: dict, settings: ModelSettings, in_season: np.ndarray,
+                    scenario: ScenarioSettings | None = None) -> "_Block":
+        """The block of inputs already months last, with the months to compute given."""
+        shape = data["latitude"].shape
         block = cls(data=data, shape=shape, in_season=in_season, has_season=in_season.any(axis=-1),
                     valid=_valid_cells(data), elevation=data.get("elevation", np.zeros(shape, np.float32)),
                     lai=data.get("lai", np.full(shape, settings.lai, np.float32)),
-                    scenario=scenario or settings.scenario)
+                    scenario=scenario or settings.scenario, growth=growth_temperature(data, settings))
         if settings.engine == "compiled":
             block.kernel_inputs = _kernel_inputs(block, settings)
         return block
@@ -366,7 +398,7 @@ def _months(block: _Block, settings: ModelSettings, c3_params: Any = None, c4_pa
     if settings.engine == "compiled":
         return _compiled_months(block, settings, c3_params, c4_params)
     return _numpy_months(block.data, settings, block.in_season, block.elevation, block.lai,
-                         block.scenario, c3_params, c4_params)
+                         block.scenario, c3_params, c4_params, block.growth)
 
 
 def _season_totals(block: _Block, monthly):
@@ -404,8 +436,97 @@ def _uncertainty_layers(block: _Block, base_block: _Block | None, settings: Mode
     return layers
 
 
-def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, scenario=None, c3_params=None,
-                  c4_params=None):
+
+def month_mean_temperature(data) -> np.ndarray:
+    """The monthly mean air temperature (Tmin + Tmax)/2 [°C], (..., 12) float64, as the season rule uses it."""
+    return 0.5 * (np.asarray(data["tmin"], np.float64) + np.asarray(data["tmax"], np.float64))
+
+
+def growth_temperature(data, settings: ModelSettings):
+    """The C3 leaves' growth temperature [°C] per cell and month, or None for the parameter set's own.
+
+    "month_mean": the month's mean air temperature (Tmin + Tmax)/2, float32 as the inputs. Kattge & Knorr
+    (2007) took the mean air temperature of the 30 days before a measurement (from memory); a monthly
+    climatology's own month stands for it (the representative day is the 15th, so half of its 30 days
+    are in the month before: a lag this ignores).
+    """
+    if settings.growth_temperature == "parameter_set":
+        return None
+    return (0.5 * (data["tmin"] + data["tmax"])).astype(np.float32)
+
+
+def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly) -> np.ndarray:
+    """The canopy crossover [°C] of every cell and month of ``months`` (bool (..., 12)); NaN elsewhere.
+
+    The monthly mean temperature at which the month's advantage index of the two daily canopies
+    (:func:`indicators.advantage_index`) equals the class margin ``settings.contested_margin``, i.e. the
+    edge of "C4 favoured" as :func:`indicators.c4_favoured_months` counts it, solved with the same engine
+    and inputs as the model pass: the daily minimum and maximum shifted together (the daily range kept),
+    the C3 growth temperature following the month mean when it is "month_mean", and the cell's radiation,
+    day length, air pressure, water availability, humidity input (VPD or relative humidity held; the
+    vapour pressure from Tmin follows Tmin) and CO2 unchanged. The tie nearest the month's own mean on the
+    side its own result points to (:mod:`suitability.tie_solver`): a month is C4-favoured exactly when its
+    mean temperature is above its crossover. −inf: C4 favoured at every mean temperature down to the
+    lower end of :data:`CROSSOVER_SEARCH_C` (or the month's own, if colder); +inf: not C4-favoured at any
+    up to the upper end (or where the shifted day leaves the leaf models' temperature range).
+    ``monthly``: the model pass's monthly nets {"C3", "C4"} (..., 12).
+    """
+    data = block.data
+    shape = months.shape
+    n = int(np.prod(shape[:-1], dtype=np.int64))
+    flat = {name: (values.reshape(n, 12) if values.ndim == len(shape) else values.reshape(n))
+            for name, values in data.items()}
+    start = np.where(months, indicators.advantage_index(monthly["C3"], monthly["C4"]) - settings.contested_margin,
+                     np.nan).reshape(n, 12)
+    mean = month_mean_temperature(data).reshape(n, 12)
+    result = np.full((n, 12), np.nan, np.float32)
+    # Cells a slice at a time: the solver keeps about a dozen arrays per cell and month.
+    for first in range(0, n, CROSSOVER_BATCH_CELLS):
+        rows = slice(first, min(first + CROSSOVER_BATCH_CELLS, n))
+        if np.isfinite(start[rows]).any():
+            result[rows] = _crossover_of_cells({name: values[rows] for name, values in flat.items()}, settings,
+                                               block.scenario, start[rows], mean[rows])
+    return result.reshape(shape)
+
+
+#: Cells solved together by :func:`canopy_crossover` (bounds its memory: about 12 float64 arrays of 12 months).
+CROSSOVER_BATCH_CELLS = 16384
+
+
+def _crossover_of_cells(flat, settings: ModelSettings, scenario: ScenarioSettings, start, mean) -> np.ndarray:
+    """:func:`canopy_crossover` of cells (n, 12) given g at offset 0 (``start``) and the month means."""
+    n = start.shape[0]
+    margin = settings.contested_margin
+    lower = np.maximum(np.minimum(CROSSOVER_SEARCH_C[0], mean) - mean, _SHIFT_TMIN_C - flat["tmin"])
+    upper = np.minimum(np.maximum(CROSSOVER_SEARCH_C[1], mean) - mean, _SHIFT_TMAX_C - flat["tmax"])
+
+    def excess(offsets, active):
+        rows = active.any(axis=-1)
+        sub = {name: values[rows] for name, values in flat.items()}
+        shift = offsets[rows].astype(np.float32)
+        sub["tmin"] = sub["tmin"] + shift
+        sub["tmax"] = sub["tmax"] + shift
+        with np.errstate(all="ignore"):
+            nets, _, _ = _months(_Block.months_last(sub, settings, active[rows], scenario), settings)
+        g = np.full((n, 12), np.nan)
+        g[rows] = indicators.advantage_index(nets["C3"], nets["C4"]) - margin
+        return np.where(active, g, np.nan)
+
+    offset = tie_solver.nearest_tie(excess, start, np.minimum(lower, 0.0), np.maximum(upper, 0.0))
+    return side_consistent(mean + offset, mean, start > 0)
+
+
+def side_consistent(crossover, mean, favoured) -> np.ndarray:
+    """The crossover as float32, moved by at most one float32 step so that, compared in float64,
+    ``mean > crossover`` exactly where ``favoured`` (rounding of a tie that lies within a float32 step of
+    the month's mean; NaN and ±inf unchanged)."""
+    value = np.asarray(crossover, np.float32)
+    with np.errstate(invalid="ignore"):
+        value = np.where(favoured & (value >= mean), np.nextafter(value, np.float32(-np.inf)), value)
+        value = np.where(~favoured & (value < mean), np.nextafter(value, np.float32(np.inf)), value)
+    return value.astype(np.float32)
+
+
     """Monthly net totals per pathway [g C m-2], season C3 gross and photorespiration, by the numpy physiology."""
     shape = in_season.shape[:-1]
     scenario = settings.scenario if scenario is None else scenario
@@ -430,6 +551,7 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, scen
                     lai=lai,
                     params=params,
                     max_water_supply_mm=settings.max_water_supply_mm,
+                    growth_temperature_c=None if growth is None else growth[..., index],
                     **month_inputs,
                 )
             monthly[pathway][..., index] = np.asarray(day.net) * DAYS_IN_MONTH[index]
@@ -471,25 +593,8 @@ def _kernel_inputs(block: _Block, settings: ModelSettings) -> dict:
         elevation_m=contiguous(elevation), lai=contiguous(lai), in_season=np.require(in_season, np.bool_, ["C", "A", "W"]),
         days_in_month=DAYS_IN_MONTH, max_water_supply_mm=settings.max_water_supply_mm,
         **{k: contiguous(v) for k, v in humidity.items()},
+        growth_temperature_c=None if block.growth is None else contiguous(block.growth),
     )
-
-
-def _crossover_by_pressure(pressure_kpa: np.ndarray, settings: ModelSettings) -> np.ndarray:
-    """Crossover temperature per cell, solved once per distinct air pressure (to 0.01 kPa) of the block.
-
-    The crossover depends on the cell only through its air pressure; rounding the pressure to 0.01 kPa
-    (about 1 m of elevation) changes it by far less than the 0.1 °C the maps resolve.
-    """
-    finite = np.isfinite(pressure_kpa)
-    rounded = np.round(np.where(finite, pressure_kpa, 101.3), 2)
-    distinct, inverse = np.unique(rounded, return_inverse=True)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        solved = crossover_temperature(
-            settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent, pressure_kpa=distinct,
-            params={"C3": settings.c3_params, "C4": settings.c4_params},
-        )
-    return np.where(finite, np.asarray(solved)[inverse.reshape(pressure_kpa.shape)], np.nan)
 
 
 def _month_inputs(data: Mapping[str, np.ndarray], index: int) -> dict[str, np.ndarray]:

@@ -14,6 +14,8 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 
+import numpy as np
+
 
 @dataclass(frozen=True)
 class Variable:
@@ -137,7 +139,8 @@ class OutputLayer:
     valid_range: (min, max) of valid values. resampling: overview resampling ("mode" for classes).
     indicator: how it is computed: the name of the function in :mod:`suitability.indicators` (for
         "seasonal" and "datacube" layers the model calls it inside its block function; "season_total" and
-        "monthly_total" are the model's own sums and "crossover_temperature" the physiology's solver).
+        "monthly_total" are the model's own sums and "canopy_crossover" the model's tie solver,
+        :func:`suitability.model.canopy_crossover`).
     compares: for change layers, the seasonal layer of baseline and scenario passed to ``indicator``.
     legend / colours: for categorical layers, code -> label and code -> RGBA (GeoTIFF colour table).
     required: always written whatever ``output.layers`` asks, because change layers or briefs need it.
@@ -182,8 +185,9 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
                     (0.0, 12.0), "average", SEASONAL, "growing_season_months"),
         OutputLayer("photorespiration_share", "1", "share of C3 gross carboxylation released by photorespiration",
                     (0.0, 1.0), "average", SEASONAL, "photorespiration_share"),
-        OutputLayer("crossover_temperature", "degC", "temperature above which C4 light-limited quantum yield exceeds C3",
-                    (0.0, 50.0), "average", SEASONAL, "crossover_temperature"),
+        OutputLayer("crossover_temperature", "degC", "canopy crossover of the warmest season month: the monthly mean "
+                    "temperature above which C4 is favoured in that month (-inf: C4 favoured down to 0 degC, +inf: "
+                    "not C4-favoured up to 45 degC)", (-np.inf, np.inf), "average", SEASONAL, "canopy_crossover"),
         OutputLayer("advantage_change", "1", "change of the pathway advantage against the baseline",
                     (-2.0, 2.0), "average", CHANGE, "advantage_change", compares="pathway_advantage"),
         OutputLayer("class_transition", "1", "baseline class * 10 + scenario class; 255 nodata",
@@ -224,6 +228,9 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
                     (-1e4, 1e5), "average", DATACUBE, "monthly_total"),
         OutputLayer("c4_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C4 canopy, as carbon",
                     (-1e4, 1e5), "average", DATACUBE, "monthly_total"),
+        OutputLayer("monthly_crossover_temperature", "degC", "canopy crossover of each season month: the monthly mean "
+                    "temperature above which C4 is favoured in that month (-inf: C4 favoured down to 0 degC, +inf: "
+                    "not C4-favoured up to 45 degC)", (-np.inf, np.inf), "average", DATACUBE, "canopy_crossover"),
     ]
 }
 

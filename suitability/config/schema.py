@@ -395,6 +395,12 @@ class PhysiologyConfig(_Section):
     max_water_supply_mm: Annotated[float, Field(gt=0, le=50)] = 5.0
     soil_water_capacity_mm: Annotated[float, Field(gt=0, le=2000)] = 150.0
     soil_water_retention: Literal["exponential", "linear"] = "exponential"
+    #: Growth temperature of the C3 acclimation (Kattge & Knorr 2007): "month_mean", each cell's mean air
+    #: temperature of the month; "parameter_set", the C3 set's own growth_temperature_c everywhere.
+    growth_temperature: Literal["month_mean", "parameter_set"] = "month_mean"
+    #: Solve the canopy crossover per cell and month (crossover_temperature and the datacube's
+    #: monthly_crossover_temperature; about ten model passes more); false leaves those layers NaN.
+    crossover_temperature: bool = True
 
     @field_validator("c3", "c4")
     @classmethod

@@ -29,10 +29,11 @@ Plant-type sets and the default pair
 and ``c4_cereal`` (maize: von Caemmerer 2000 with the Massad et al. 2007 temperature responses). The
 default pair (:data:`DEFAULT_SETS`) is the grass pair. Calibration check (tests/physiology/
 test_calibration.py), daily net canopy tie on a sunny mid-latitude summer day (22 MJ m-2, LAI 3, 10 °C
-range, 40° N, day 196): at 280/350/420/560/700 ppm 16.4/20.2/23.6/30.5/>46 °C with C3 acclimated to the
-daily mean (Kattge & Knorr 2007), 14.2/16.7/22.1/31.3/36.4 °C with Tg fixed at 25 °C; Collatz, Berry &
-Clark (1998) put the boundary near 22 °C (20-24) at ~350 ppm. No value was tuned to reach that band.
-The older ``bernacchi2001``/``collatz1992`` pair ties at 11.3/11.9/12.5/13.3/14.0 °C (Tg 25 °C).
+range, 40° N, day 196): at 280/350/420/560/700 ppm 16.4/20.2/23.1/25.6/29.9 °C with C3 acclimated to the
+daily mean (Kattge & Knorr 2007; the model's default, the month's mean air temperature per cell),
+14.2/16.7/22.1/25.7/29.8 °C with Tg fixed at 25 °C; Collatz, Berry & Clark (1998) put the boundary near
+22 °C (20-24) at ~350 ppm. No value was tuned to reach that band.
+The older ``bernacchi2001``/``collatz1992`` pair ties at 11.3/11.9/12.5/13.3/14.0 °C (Tg 25 °C; not re-measured).
 
 Keys common to both pathways
 ----------------------------
@@ -49,7 +50,8 @@ C3 keys (FvCB, ``c3.py``)
 Knorr 2007), rd25 = 0.015 vcmax25 (Collatz et al. 1991; widely used), tpu25 = no TPU limit (inf)],
 ``vcmax_temperature_response`` ("peaked" Kattge & Knorr 2007 with growth temperature; "arrhenius"
 Bernacchi et al. 2001 for Vcmax (Ea 65.33 kJ mol-1) and Bernacchi et al. 2003 for J (43.5); "collatz1991"
-Q10 2.4 with a high-temperature term), ``growth_temperature_c`` [°C] (Tg of Kattge & Knorr; 25 °C [CP]),
+Q10 2.4 with a high-temperature term), ``growth_temperature_c`` [°C] (Tg of Kattge & Knorr where no
+per-cell growth temperature is given, i.e. with ``physiology.growth_temperature: parameter_set``; 25 °C [CP]),
 ``theta`` [-] (curvature of J, 0.7, von Caemmerer 2000 eq. 2.14 [M default]), ``spectral_correction``
 [-] (f above).
 
@@ -364,11 +366,24 @@ def _check_value(pathway: str, key: str, value, default):
     return value
 
 
+def _derived_jmax25(params) -> float:
+    from .c3 import jmax_vcmax_ratio  # c3 registers its model on import; params needs only this equation
+
+    return float(jmax_vcmax_ratio(params["growth_temperature_c"])) * params["vcmax25"]
+
+
+def jmax25_is_derived(params) -> bool:
+    """Whether a resolved C3 mapping's Jmax25 is the Kattge & Knorr (2007) value derived from Vcmax25 and
+    Tg (its set has ``jmax25: None`` and no other value was given), so that it follows the growth
+    temperature under acclimation (:func:`suitability.physiology.c3.fvcb_acclimated_terms`)."""
+    base = PARAMETER_SETS["C3"].get(params.get("parameter_set"), {})
+    return base.get("jmax25", 0.0) is None and params["jmax25"] == _derived_jmax25(params)
+
+
 def _derive(pathway: str, merged: dict) -> dict:
     if pathway == "C3":
         if merged["jmax25"] is None:
-            ratio = 2.59 - 0.035 * merged["growth_temperature_c"]
-            merged["jmax25"] = ratio * merged["vcmax25"]
+            merged["jmax25"] = _derived_jmax25(merged)
         if merged["rd25"] is None:
             merged["rd25"] = 0.015 * merged["vcmax25"]
         if merged["tpu25"] is None:

@@ -93,7 +93,7 @@ class BriefContext:
     per_district: also write one brief per district. caution: the caution text every brief carries.
     notes: extra lines shown under the caution (e.g. that a demo's data are synthetic).
     crossover_function: crossover temperature [deg C] as a function of CO2 [ppm] (keyword o2_percent);
-        None uses :func:`suitability.physiology.crossover_temperature`.
+        None uses :func:`suitability.physiology.quantum_yield_crossover`.
     """
 
     region: str

@@ -339,13 +339,13 @@ def class_share_png(table: pd.DataFrame, scenarios: Sequence[str] | None = None,
 
 
 def physiology_crossover() -> Callable:
-    """:func:`suitability.physiology.crossover_temperature` (from its module if the package does not
-    re-export it). Imported late: figures must import without the science stack loaded."""
+    """:func:`suitability.physiology.quantum_yield_crossover`, the leaf quantum-yield crossover (from its
+    module if the package does not re-export it). Imported late: figures must import without the science stack loaded."""
     try:
-        from suitability.physiology import crossover_temperature
+        from suitability.physiology import quantum_yield_crossover
     except ImportError:
-        from suitability.physiology.crossover import crossover_temperature
-    return crossover_temperature
+        from suitability.physiology.crossover import quantum_yield_crossover
+    return quantum_yield_crossover
 
 
 def crossover_figure(
@@ -359,7 +359,7 @@ def crossover_figure(
     """Crossover temperature against CO2, with the region's warm-season mean temperature marked.
 
     The curve is ``crossover(co2_ppm, o2_percent=...)`` [deg C] (default:
-    :func:`suitability.physiology.crossover_temperature`) for CO2 in ``co2_range_ppm`` [ppm]. Above the
+    :func:`suitability.physiology.quantum_yield_crossover`) for CO2 in ``co2_range_ppm`` [ppm]. Above the
     curve C4 plants make better use of light; below it, C3 plants (Collatz et al. 1998). Each scenario is
     drawn as a point at its CO2 and the warm-season temperature plus its warming [deg C].
     """
