@@ -527,6 +527,8 @@ def side_consistent(crossover, mean, favoured) -> np.ndarray:
     return value.astype(np.float32)
 
 
+def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, scenario=None, c3_params=None,
+                  c4_params=None, growth=None):
     """Monthly net totals per pathway [g C m-2], season C3 gross and photorespiration, by the numpy physiology."""
     shape = in_season.shape[:-1]
     scenario = settings.scenario if scenario is None else scenario

@@ -26,6 +26,7 @@ PARAMETER_KEYS: dict[str, tuple[str, str]] = {
     "vcmax_temperature_response": ("", "temperature response of Vcmax and Jmax"),
     "growth_temperature_c": ("°C", "growth temperature of the Kattge & Knorr (2007) acclimation where no per-cell "
                                    "one is used (physiology.growth_temperature: parameter_set)"),
+    "jmax_ratio_factor": ("-", "factor on the derived Jmax25/Vcmax25 ratio (1; parameter draws vary it)"),
     "theta": ("-", "curvature of the light response"),
     "spectral_correction": ("-", "f, share of absorbed light not used by the photosystems"),
     "stomatal_model": ("", "how intercellular CO2 is found: medlyn (Medlyn et al. 2011) or fixed Ci/Ca"),

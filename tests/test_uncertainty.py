@@ -47,7 +47,7 @@ def test_every_parameter_set_declares_spreads_that_hold_its_own_value():
 def test_the_default_pair_varies_the_parameters_the_issue_names():
     keys = {(row["pathway"], row["key"]) for row in varied_parameters()}
     # Issue 11: C4 quantum yield, capacities, Jmax/Vcmax, g1, temperature-response terms.
-    assert {("C4", "alpha"), ("C3", "vcmax25"), ("C4", "vmax25"), ("C3", "jmax25"), ("C3", "g1"), ("C4", "g1"),
+    assert {("C4", "alpha"), ("C3", "vcmax25"), ("C4", "vmax25"), ("C3", "jmax_ratio_factor"), ("C3", "g1"), ("C4", "g1"),
             ("C4", "low_temperature_c"), ("C4", "q10")} <= keys
 
 
@@ -78,11 +78,19 @@ def test_draws_are_seeded_and_a_truncated_normal_keeps_its_declared_range():
     assert float(spread.quantile(0.5)) == pytest.approx(78.2)
 
 
-def test_jmax_varies_as_a_factor_on_the_jmax_derived_from_the_drawn_vcmax():
+def test_jmax_varies_as_a_factor_on_the_jmax_derived_from_the_drawn_vcmax_and_still_follows_tg():
+    from suitability.physiology.params import jmax25_is_derived, resolve_params
+
+    factors = []
     for c3, _ in draw_parameters(None, None, 10, seed=2):
+        resolved = resolve_params("C3", c3)
         # Kattge & Knorr (2007): Jmax25 = (2.59 - 0.035 Tg) Vcmax25, Tg 25 °C -> 1.715; the declared +-20 %.
-        ratio = c3["jmax25"] / c3["vcmax25"]
+        ratio = resolved["jmax25"] / resolved["vcmax25"]
         assert 0.8 * 1.715 - 1e-9 <= ratio <= 1.2 * 1.715 + 1e-9
+        # A drawn Jmax stays "derived", so under acclimation it follows each cell's growth temperature.
+        assert jmax25_is_derived(resolved)
+        factors.append(c3["jmax_ratio_factor"])
+    assert min(factors) < 0.9 and max(factors) > 1.1  # Latin hypercube: 10 strata over 0.8..1.2
 
 
 def test_an_overridden_parameter_is_held_and_the_others_keep_their_draws():

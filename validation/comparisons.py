@@ -22,7 +22,7 @@ import xarray as xr
 
 import suitability
 from suitability.model import DAYS_IN_MONTH, REPRESENTATIVE_DAY
-from suitability.physiology import crossover_temperature, daily_canopy_assimilation, leaf_assimilation, light
+from suitability.physiology import quantum_yield_crossover, daily_canopy_assimilation, leaf_assimilation, light
 from suitability.physiology.uncertainty import draw_parameters
 
 
@@ -125,12 +125,6 @@ KNOWN_DISAGREEMENTS: dict[str, str] = {
         "the 0.0534 Ehleringer & Björkman measured; the C3 yield is calibrated to their 0.0524 at 30 °C. With "
         "the C4 yield at their measured value the crossover falls inside the band (see the table), and that value "
         "lies within the declared spread of alpha, so the parameter draws bracket the observation."),
-    "canopy_tie_350": (
-        "The default C3 grass keeps its growth temperature at 25 °C (no acclimation to the cell's climate), so "
-        "its peaked Vcmax/Jmax responses are too weak in cool months and the canopy tie falls near 17 °C; with "
-        "acclimation to the daily mean (tests/physiology/test_calibration.py) it is 20.2 °C. The per-cell "
-        "acclimation of issue 10 addresses this. The ties of the draws' percentile advantages (last column) reach "
-        "towards the published value but stay below it."),
     "face_c3": (
         "The band was set on the smaller stimulation of the two C3 sets over 25-31 °C; that is the C3 cereal at "
         "25 °C (+15 %), where its high Vcmax leaves the light-saturated rate limited by electron transport, which "
@@ -212,13 +206,13 @@ def _crossing(x, y, level=0.0) -> float:
 
 
 def crossover(draws: int, seed: int = 11) -> tuple[list[Outcome], dict]:
-    """Leaf quantum-yield crossover against CO2 (physiology.crossover_temperature), and the canopy tie."""
+    """Leaf quantum-yield crossover against CO2 (physiology.quantum_yield_crossover), and the canopy tie."""
     co2 = np.array([180.0, 280.0, 330.0, 350.0, 420.0, 560.0, 700.0])
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", RuntimeWarning)
-        default = np.array([float(crossover_temperature(c)) for c in co2])
-        measured_alpha = np.array([float(crossover_temperature(c, params={"C4": {"alpha": 0.0534}})) for c in co2])
-        drawn = np.array([[float(crossover_temperature(c, params={"C3": c3, "C4": c4})) for c in (330.0,)]
+        default = np.array([float(quantum_yield_crossover(c)) for c in co2])
+        measured_alpha = np.array([float(quantum_yield_crossover(c, params={"C4": {"alpha": 0.0534}})) for c in co2])
+        drawn = np.array([[float(quantum_yield_crossover(c, params={"C3": c3, "C4": c4})) for c in (330.0,)]
                           for c3, c4 in draw_parameters(None, None, draws, seed)])[:, 0]
     q05, q50, q95 = np.nanpercentile(drawn, [5, 50, 95])
     at330 = float(default[co2 == 330.0][0])

@@ -52,7 +52,8 @@ Knorr 2007), rd25 = 0.015 vcmax25 (Collatz et al. 1991; widely used), tpu25 = no
 Bernacchi et al. 2001 for Vcmax (Ea 65.33 kJ mol-1) and Bernacchi et al. 2003 for J (43.5); "collatz1991"
 Q10 2.4 with a high-temperature term), ``growth_temperature_c`` [°C] (Tg of Kattge & Knorr where no
 per-cell growth temperature is given, i.e. with ``physiology.growth_temperature: parameter_set``; 25 °C [CP]),
-``theta`` [-] (curvature of J, 0.7, von Caemmerer 2000 eq. 2.14 [M default]), ``spectral_correction``
+``jmax_ratio_factor`` [-] (a factor on the derived Jmax25/Vcmax25 ratio, 1 in every set; the parameter draws
+vary it, so that a drawn Jmax still follows each cell's growth temperature), ``theta`` [-] (curvature of J, 0.7, von Caemmerer 2000 eq. 2.14 [M default]), ``spectral_correction``
 [-] (f above).
 
 C4 keys
@@ -102,6 +103,7 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "tpu25": None,
             "vcmax_temperature_response": "peaked",
             "growth_temperature_c": 25.0,
+            "jmax_ratio_factor": 1.0,  # factor on the derived Jmax25/Vcmax25 (parameter draws vary it)
             "theta": 0.7,
             "spectral_correction": 0.32,
             "stomatal_model": "medlyn",
@@ -123,6 +125,7 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "tpu25": 80.0 / 6.0,
             "vcmax_temperature_response": "collatz1991",
             "growth_temperature_c": 25.0,
+            "jmax_ratio_factor": 1.0,  # factor on the derived Jmax25/Vcmax25 (parameter draws vary it)
             "theta": 0.7,
             "spectral_correction": 0.36,
             "stomatal_model": "medlyn",
@@ -146,6 +149,7 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "tpu25": None,  # no TPU limit [CP]: not limiting at the CO2 of the maps (Sharkey 1985, from memory)
             "vcmax_temperature_response": "peaked",  # Kattge & Knorr (2007) [P]
             "growth_temperature_c": 25.0,  # Tg [CP]; the model may set it from each cell's climate
+            "jmax_ratio_factor": 1.0,  # factor on the derived Jmax25/Vcmax25 (parameter draws vary it)
             "theta": 0.7,  # von Caemmerer (2000) eq. 2.14 default [M]
             "spectral_correction": 0.32,  # [C] C3-grass yield 0.053 at 30 °C (Ehleringer & Pearcy 1983), see above
             "stomatal_model": "medlyn",
@@ -169,6 +173,7 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "tpu25": None,  # no TPU limit [CP]
             "vcmax_temperature_response": "peaked",  # Kattge & Knorr (2007) [P]
             "growth_temperature_c": 25.0,  # Tg [CP]
+            "jmax_ratio_factor": 1.0,  # factor on the derived Jmax25/Vcmax25 (parameter draws vary it)
             "theta": 0.7,  # von Caemmerer (2000) eq. 2.14 default [M]
             "spectral_correction": 0.32,  # [C] as for the C3 grass (Ehleringer & Pearcy 1983 C3 yield 0.053)
             "stomatal_model": "medlyn",
@@ -369,7 +374,7 @@ def _check_value(pathway: str, key: str, value, default):
 def _derived_jmax25(params) -> float:
     from .c3 import jmax_vcmax_ratio  # c3 registers its model on import; params needs only this equation
 
-    return float(jmax_vcmax_ratio(params["growth_temperature_c"])) * params["vcmax25"]
+    return float(jmax_vcmax_ratio(params["growth_temperature_c"])) * params["vcmax25"] * params["jmax_ratio_factor"]
 
 
 def jmax25_is_derived(params) -> bool:

@@ -9,8 +9,9 @@ A :class:`Spread` is a range ``[low, high]`` and how draws fall in it:
 - ``"uniform"``: evenly between low and high;
 - ``"normal"``: a normal distribution with mean (low + high)/2 and standard deviation (high − low)/4,
   truncated at low and high (i.e. a published mean ± sd is declared as mean ± 2 sd);
-- ``relative=True``: low and high are factors on the set's resolved value (used where the value is
-  derived, e.g. C3 ``jmax25`` from Vcmax25 and growth temperature).
+- ``relative=True``: low and high are factors on the set's resolved value (for a value the set derives;
+  the C3 Jmax is varied instead through ``jmax_ratio_factor``, a factor on the derived Jmax25/Vcmax25, so
+  that a drawn Jmax still follows each cell's growth temperature).
 
 :func:`draw_parameters` turns a pair of parameter mappings (what :func:`.params.resolve_params` takes) into
 ``draws`` pairs of parameter mappings: a Latin hypercube (McKay, Beckman & Conover 1979; scipy.stats.qmc)
@@ -99,7 +100,7 @@ def _c3(vcmax_mean: float, vcmax_sd: float, vcmax_source: str, g1: float, g1_ran
         with_jmax: bool = True) -> tuple[Spread, ...]:
     spreads = [Spread("vcmax25", vcmax_mean - 2 * vcmax_sd, vcmax_mean + 2 * vcmax_sd, "normal", vcmax_source)]
     if with_jmax:
-        spreads.append(Spread("jmax25", 0.8, 1.2, "uniform", _JMAX_RATIO, relative=True))
+        spreads.append(Spread("jmax_ratio_factor", 0.8, 1.2, "uniform", _JMAX_RATIO))
     spreads += [
         Spread("g1", *g1_range, "uniform", f"{_LIN_2015}: {g1:g} kPa^0.5; range of the type's estimates [M]"),
         Spread("theta", 0.6, 0.9, "uniform", _THETA),
