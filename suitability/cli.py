@@ -196,12 +196,12 @@ def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
         console.line(f"Kept from the earlier run (outputs up to date): {', '.join(result.resumed)}")
     table = Table(title="Share of mapped cells by favoured pathway (%)")
     table.add_column("scenario", no_wrap=True)
-    for heading in ("C3 favoured", "contested", "C4 favoured", "mapped cells"):
+    for heading in ("C3 favoured", "contested", "C4 favoured", "no growing season", "mapped cells"):
         table.add_column(heading, justify="right")
     for row in result.summary.to_dict(orient="records"):
         table.add_row(
-            escape(row["scenario"]), f"{row['C3 favoured %']:.1f}", f"{row['contested %']:.1f}",
-            f"{row['C4 favoured %']:.1f}", str(row["valid_cells"]),
+            escape(row["scenario"]), *(f"{100 * row[f'share_{key}']:.1f}" for key in ("c3", "contested", "c4", "noseason")),
+            str(row["valid_cells"]),
         )
     console.print(table)
     _print_assumptions(result.assumptions, "This run assumed (also in the manifest):")

@@ -75,7 +75,7 @@ def test_nodata_follows_input_nodata(demo_run):
 
 def _c4_share(result, scenario: str) -> float:
     row = result.summary.set_index("scenario").loc[scenario]
-    return row["C4 favoured %"]
+    return row["share_c4"]
 
 
 def test_co2_and_warming_pull_in_opposite_directions(demo_run):
