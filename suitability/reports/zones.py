@@ -36,6 +36,7 @@ from suitability.atomic import atomic_write
 from suitability.outputs import write_csv
 from suitability.errors import InputDataError, OutputError
 from suitability.grid import TargetGrid, ellipsoidal_zone_area_m2  # noqa: F401 - the area formula is re-exported
+from suitability.inputs.districts import read_zones  # noqa: F401 - read by the inputs; re-exported for the reports
 from suitability.variables import (
     CHANGE,
     CLASS_C3,
@@ -160,50 +161,6 @@ def output_grid(path: Path) -> TargetGrid:
                 f"{path}: expected a north-up grid without rotation, found transform {tuple(transform)[:6]}"
             )
         return TargetGrid(pyproj.CRS.from_user_input(dataset.crs.to_wkt()), transform, dataset.width, dataset.height)
-
-
-def read_zones(zones_path: str | os.PathLike, name_field: str) -> gpd.GeoDataFrame:
-    """Read district polygons (GeoPackage, GeoJSON, Shapefile, anything pyogrio reads).
-
-    Returns a GeoDataFrame with a ``district`` column (the names, as text) and the geometry, in the file's
-    CRS and order. Raises InputDataError naming the file when it cannot be read, is empty, has no CRS,
-    lacks ``name_field`` (the message lists the fields it has), has empty names or duplicate names.
-    """
-    path = Path(zones_path)
-    if not path.exists():
-        raise InputDataError(f"{path}: district file not found; expected a GeoPackage, GeoJSON or Shapefile")
-    try:
-        zones = gpd.read_file(path, engine="pyogrio")
-    except Exception as exc:  # pyogrio raises several types; all mean the same thing to the user
-        raise InputDataError(f"{path}: cannot read the districts ({exc}); expected a polygon layer") from exc
-    if len(zones) == 0:
-        raise InputDataError(f"{path}: the district file holds no features; expected one polygon per district")
-    if zones.crs is None:
-        raise InputDataError(f"{path}: the districts have no CRS; expected a layer with a defined CRS")
-    if name_field not in zones.columns:
-        fields = ", ".join(str(c) for c in zones.columns if c != zones.geometry.name) or "(none)"
-        raise InputDataError(
-            f"{path}: no field {name_field!r} for the district names; the layer has the fields: {fields}"
-        )
-    names = zones[name_field]
-    if names.isna().any() or (names.astype(str).str.strip() == "").any():
-        raise InputDataError(f"{path}: field {name_field!r} has empty district names; expected a name per district")
-    names = names.astype(str)
-    duplicated = sorted(set(names[names.duplicated()]))
-    if duplicated:
-        raise InputDataError(
-            f"{path}: field {name_field!r} has duplicate district names: {', '.join(duplicated)}; "
-            "expected one polygon (or multipolygon) per name"
-        )
-    kinds = zones.geometry.geom_type
-    wrong = ~kinds.isin(["Polygon", "MultiPolygon"])
-    if wrong.any():
-        examples = ", ".join(f"{n!r} ({k})" for n, k in list(zip(names[wrong], kinds[wrong].fillna("no geometry")))[:5])
-        raise InputDataError(
-            f"{path}: {int(wrong.sum())} district(s) are not polygons: {examples}; expected one polygon "
-            "(or multipolygon) per district (points and lines have no area to summarise)"
-        )
-    return gpd.GeoDataFrame({"district": names.to_numpy()}, geometry=zones.geometry.to_numpy(), crs=zones.crs)
 
 
 def zones_on_grid(zones: gpd.GeoDataFrame, grid_crs: pyproj.CRS) -> gpd.GeoDataFrame:
