@@ -101,6 +101,8 @@ def test_every_number_in_the_headline_is_the_tables(hundred):
     sentences = headline(region, context.scenarios, context.scenario("baseline"), "the 100 districts")
     for sentence in sentences:
         shown = re.findall(r"(?:less than |more than )?[\d,]+(?:\.\d+)? (?:ha|%)", sentence.text)
+        # The stated threshold ("in at least 90 % of parameter draws") is the rule, not a result.
+        shown = [n for n in shown if not (n == "90 %" and "90 % of" in sentence.text and "draws" in sentence.text)]
         from_table = [value for _, _, value in sentence.sources]
         # Every number in the words is one the sentence took from the region table, and each source cell
         # formats to the text shown (the sources name row and column of region_table).
@@ -151,18 +153,72 @@ def test_flagged_districts_are_named(hundred):
 
 
 CHROMIUM = shutil.which("chromium") or shutil.which("chromium-browser")
-CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
-                  "--disable-background-networking", "--disable-component-update", "--disable-sync",
-                  "--virtual-time-budget=8000"]
-_MEASURE = """<script>
-window.addEventListener('load', function () {
-  var root = document.documentElement, view = window.innerWidth;
+# What the page measures of itself: how wide it scrolls against the viewport, and any element (outside a
+# table's own scroll box) whose right edge passes the viewport.
+_MEASURE = """(function () {
+  var view = window.innerWidth;
   var wide = Array.prototype.filter.call(document.querySelectorAll('main *'), function (e) {
     return e.getBoundingClientRect().right > view + 1 && !e.closest('.table-scroll, table');
   }).slice(0, 5).map(function (e) { return e.tagName + '.' + e.className; });
-  document.body.setAttribute('data-measure', JSON.stringify({scroll: root.scrollWidth, view: view, wide: wide}));
-});
-</script>"""
+  return JSON.stringify({scroll: document.documentElement.scrollWidth, view: view, wide: wide,
+                         text: document.body.innerText});
+})()"""
+
+
+def _measure_in_chromium(url: str, width: int, profile: Path) -> dict:
+    """Load ``url`` in headless Chromium with a viewport ``width`` px wide and return :data:`_MEASURE`.
+
+    A headless window is at least 500 px wide, so the viewport is set through the DevTools protocol
+    (Emulation.setDeviceMetricsOverride), spoken over a websocket with tornado's client.
+    """
+    import asyncio
+    import time
+    import urllib.request
+
+    from tornado.websocket import websocket_connect
+
+    process = subprocess.Popen([CHROMIUM, "--headless", "--no-sandbox", "--disable-gpu", "--no-first-run",
+                                "--disable-background-networking", "--disable-component-update", "--disable-sync",
+                                f"--user-data-dir={profile}", "--remote-debugging-port=0", "about:blank"],
+                               stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    try:
+        port_file = profile / "DevToolsActivePort"
+        deadline = time.monotonic() + 60
+        while not (port_file.exists() and port_file.read_text().strip()):
+            assert time.monotonic() < deadline, "Chromium did not open its DevTools port"
+            time.sleep(0.2)
+        port = int(port_file.read_text().split()[0])
+        targets = json.load(urllib.request.urlopen(f"http://127.0.0.1:{port}/json/list", timeout=30))
+        socket_url = next(t["webSocketDebuggerUrl"] for t in targets if t["type"] == "page")
+
+        async def session() -> dict:
+            connection = await websocket_connect(socket_url, max_message_size=64 * 2**20)
+            counter = iter(range(1, 1000))
+
+            async def call(method, params=None, wait_for=None):
+                number = next(counter)
+                await connection.write_message(json.dumps({"id": number, "method": method, "params": params or {}}))
+                result, event_seen = None, wait_for is None
+                while result is None or not event_seen:
+                    message = json.loads(await asyncio.wait_for(connection.read_message(), 120))
+                    if message.get("id") == number:
+                        result = message.get("result", {})
+                    if message.get("method") == wait_for:
+                        event_seen = True
+                return result
+
+            await call("Emulation.setDeviceMetricsOverride",
+                       {"width": width, "height": 900, "deviceScaleFactor": 1, "mobile": False})
+            await call("Page.enable")
+            await call("Page.navigate", {"url": url}, wait_for="Page.loadEventFired")
+            value = await call("Runtime.evaluate", {"expression": _MEASURE, "returnByValue": True})
+            connection.close()
+            return json.loads(value["result"]["value"])
+
+        return asyncio.run(session())
+    finally:
+        process.terminate()
+        process.wait(timeout=30)
 
 
 @pytest.mark.slow  # headless Chromium
@@ -171,19 +227,11 @@ window.addEventListener('load', function () {
 @pytest.mark.parametrize("width", [1200, 400])
 def test_no_horizontal_overflow_in_headless_chromium(hundred, tmp_path, width):
     for name in ("marrowdene_reach_warming_only.html", "marrowdene_reach_comparison.html"):
-        page = tmp_path / name
-        page.write_text(hundred["paths"][name].read_text(encoding="utf-8").replace("</body>", _MEASURE + "</body>"),
-                        encoding="utf-8")
-        common = [CHROMIUM, *CHROMIUM_FLAGS, f"--user-data-dir={tmp_path / 'profile'}", f"--window-size={width},900"]
-        dom = subprocess.run([*common, "--dump-dom", page.as_uri()], check=True, capture_output=True, timeout=240,
-                             text=True).stdout
-        match = re.search(r"data-measure=\"([^\"]+)\"", dom)
-        assert match, "the measuring script did not run"
-        measure = json.loads(match.group(1).replace("&quot;", '"'))
+        measure = _measure_in_chromium(hundred["paths"][name].resolve().as_uri(), width, tmp_path / f"profile_{name}")
         assert measure["view"] == width
-        assert measure["scroll"] <= measure["view"], (name, measure)  # the page never scrolls sideways
-        assert measure["wide"] == [], (name, measure)
-        assert "Invented region" in dom and "not yield forecasts" in dom
+        assert measure["scroll"] <= measure["view"], (name, measure["scroll"], measure["wide"])  # never sideways
+        assert measure["wide"] == [], (name, measure["wide"])
+        assert "Invented region" in measure["text"] and "not yield forecasts" in measure["text"]
 
 
 @pytest.mark.slow  # 500 districts
