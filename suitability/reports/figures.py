@@ -418,6 +418,8 @@ def _draw_locator(figure: Figure, zones: gpd.GeoDataFrame, raster: _MapRaster, h
     xmin, ymin, xmax, ymax = on_map.total_bounds
     inset.set_xlim(min(fl, xmin), max(fr, xmax))
     inset.set_ylim(min(fb, ymin), max(ft, ymax))
+    inset.set_xlabel("")
+    inset.set_ylabel("")
     _set_ground_aspect(inset, raster)
 
 
@@ -669,7 +671,7 @@ _SCENARIO_STYLES = (("o", "#0072B2"), ("s", "#D55E00"), ("^", "#CC79A7"), ("D", 
 
 
 def district_crossover_figure(points: pd.DataFrame, highlight: str | None = None,
-                              size_in: tuple[float, float] = (7.0, 4.6)) -> Figure:
+                              size_in: tuple[float, float] = (7.0, 4.1)) -> Figure:
     """Each district's warm-month temperature against the crossover temperature of its cells.
 
     points: one row per district and scenario with ``district``, ``scenario`` (label), ``warm_c`` (the

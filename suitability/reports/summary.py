@@ -187,8 +187,8 @@ def scenario_sentences(s: pd.Series, scenario, baseline) -> list[Sentence]:
     to_c4_share, to_c3_share = percent_text(s["towards_c4_share"]), percent_text(s["towards_c3_share"])
     c4_after = percent_text(s["share_c4"])
     out = [Sentence(
-        f"With {words}: {to_c4} ({to_c4_share} of the area) move towards C4 crops and {to_c3} ({to_c3_share}) "
-        f"towards C3 crops; C4 crops then have the advantage on {c4_after} of the land with results.",
+        f"In the scenario \u201c{words}\u201d, {to_c4} ({to_c4_share} of the area) move towards C4 crops and {to_c3} "
+        f"({to_c3_share}) towards C3 crops; C4 crops then have the advantage on {c4_after} of the land with results.",
         ((name, "towards_c4_ha", to_c4), (name, "towards_c4_share", to_c4_share), (name, "towards_c3_ha", to_c3),
          (name, "towards_c3_share", to_c3_share), (name, "share_c4", c4_after)),
     )]
@@ -202,8 +202,9 @@ def scenario_sentences(s: pd.Series, scenario, baseline) -> list[Sentence]:
         k = math.ceil(MEMBER_SHARE * n - 1e-9)
         a4, a3 = hectares_text(s["agree_towards_c4_ha"]), hectares_text(s["agree_towards_c3_ha"])
         out.append(Sentence(
-            f"In at least {k} of {n} climate models, the balance moves towards C4 crops on {a4} and towards C3 "
-            f"crops on {a3}; elsewhere the models disagree on the direction.",
+            f"In at least {k} of {n} climate models, the balance shifts towards C4 crops on {a4} and towards C3 "
+            f"crops on {a3}, whether or not the favoured kind of crop changes; elsewhere the models disagree on "
+            "the direction.",
             ((name, "agree_towards_c4_ha", a4), (name, "agree_towards_c3_ha", a3)),
         ))
     if math.isfinite(members) and math.isfinite(s.get("c4_most_members_ha", math.nan)):

@@ -130,7 +130,7 @@ def test_transition_matrices_sum_to_the_district_areas(hundred):
 
 def test_agreement_and_draw_statements_appear_only_with_their_layers(hundred, tmp_path):
     text = " ".join(hundred["paths"]["marrowdene_reach_warming_only.html"].read_text(encoding="utf-8").split())
-    assert "In at least 8 of 10 climate models, the balance moves towards C4 crops on" in text  # 80 %: IPCC AR6 Atlas.1
+    assert "In at least 8 of 10 climate models, the balance shifts towards C4 crops on" in text  # 80 %: IPCC AR6 Atlas.1
     assert "parameter draws" not in text  # the warming scenario has no draws
     drawn = " ".join(hundred["paths"]["marrowdene_reach_co2_and_warming.html"].read_text(encoding="utf-8").split())
     assert "C4 crops have the advantage in at least 90 % of parameter draws on" in drawn
