@@ -262,6 +262,8 @@ def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dat
     from .reports import brief_context_from_config, build_brief
     from .reports.zones import district_monthly_means, output_grid
 
+    if members is None:  # a brief of a finished run: the members as the run found them
+        members = {s.name: found for s in cfg.scenarios if (found := scenario_members(cfg, s))}
     monthly = today["tmean"] if "tmean" in today else (today["tmin"] + today["tmax"]) / 2
     warm_season = indicators.warm_season_mean(indicators.regional_monthly_temperature(today).compute().to_numpy())
     grid = output_grid(Path(scenario_folders[cfg.baseline]) / "pathway_class.tif")

@@ -671,7 +671,7 @@ _SCENARIO_STYLES = (("o", "#0072B2"), ("s", "#D55E00"), ("^", "#CC79A7"), ("D", 
 
 
 def district_crossover_figure(points: pd.DataFrame, highlight: str | None = None,
-                              size_in: tuple[float, float] = (7.0, 4.1)) -> Figure:
+                              size_in: tuple[float, float] = (7.0, 3.8)) -> Figure:
     """Each district's warm-month temperature against the crossover temperature of its cells.
 
     points: one row per district and scenario with ``district``, ``scenario`` (label), ``warm_c`` (the
