@@ -201,3 +201,22 @@ def test_change_layers_are_the_differences_against_the_baseline(demo_run):
         expected = np.where((base_class == 255) | (classes == 255), 255,
                             base_class.astype(int) * 10 + classes.astype(int))
         np.testing.assert_array_equal(read(scenario, "class_transition"), expected)
+
+
+def test_the_demo_says_its_region_is_invented_everywhere(demo_run):
+    # Project rule: demo outputs say the region is invented (configs/demo.yaml sets region.invented).
+    for layers in demo_run.layers.values():
+        with rasterio.open(layers["pathway_class"]) as src:
+            assert src.tags()["region_note"].startswith("Invented region: Kessarine Basin does not exist")
+    assert demo_run.manifest["region_note"].startswith("Invented region")
+    pages = [p for p in demo_run.briefs.values() if p.suffix in (".html", ".pdf")]
+    assert pages and {p.stem.rsplit("_", 1)[-1] for p in pages} >= {"today", "comparison"}
+    import pypdf
+
+    for path in pages:
+        if path.suffix == ".html":
+            text = " ".join(path.read_text(encoding="utf-8").split())
+        else:
+            text = " ".join(pypdf.PdfReader(path).pages[0].extract_text().split())
+        assert "Invented region: Kessarine Basin does not exist" in text, path.name
+        assert "not yield forecasts" in text, path.name

@@ -528,7 +528,9 @@ def render_html(context: BriefContext, table: pd.DataFrame, page: BriefPage, dra
         sentences=[s.text for s in sentences],
         flags=[s.text for s in flags],
         moves={s.name: _moves(table, baseline.name, s.name, numbers) for s in others} if district is None else {},
-        matrices=[{"words": _title_words(s, context), "matrix": _matrix(region.loc[s.name])} for s in others],
+        # the comparison shows the scenarios side by side; each scenario's own brief has its full matrix
+        matrices=[{"words": _title_words(s, context), "matrix": _matrix(region.loc[s.name])} for s in others
+                  if page.kind != "comparison"],
         side_by_side=_side_by_side(region, context) if page.kind in ("comparison", "district") else [],
         most_c4=_today_extremes(table, baseline.name, numbers, "share_c4") if page.kind == "today" else [],
         most_c3=_today_extremes(table, baseline.name, numbers, "share_c3") if page.kind == "today" else [],
