@@ -50,6 +50,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 import rioxarray  # noqa: F401  (registers the .rio accessor used on layers and datasets)
 import xarray as xr
 
@@ -371,6 +372,22 @@ def write_csv(table, path) -> Path:
             safe[column] = safe[column].map(spreadsheet_safe)
     return atomic_write(path, lambda temporary: safe.to_csv(temporary, index=False, encoding="utf-8"),
                         what="the table")
+
+
+def write_data_dictionary(columns: Mapping[str, str], path) -> Path:
+    """Write the data dictionary of a CSV beside it (``<name>.columns.csv``): one row per column with its
+    meaning and its units, the text in the last [brackets] of the meaning ("" when it has none)."""
+    import re
+
+    rows = pd.DataFrame({"column": list(columns), "meaning": list(columns.values())})
+    rows["units"] = [next(iter(re.findall(r"\[([^\]]+)\]", m)[-1:]), "") for m in rows["meaning"]]
+    return write_csv(rows, path)
+
+
+def dictionary_path(csv_path) -> Path:
+    """``x.csv`` -> ``x.columns.csv``: where :func:`write_data_dictionary` puts a table's dictionary."""
+    csv_path = Path(csv_path)
+    return csv_path.with_name(csv_path.stem + ".columns.csv")
 
 
 # First characters that make a spreadsheet read a cell as a formula (or a DDE command).

@@ -37,6 +37,7 @@ from pathlib import Path
 import pandas as pd
 from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoescape
 
+from suitability import outputs
 from suitability.atomic import atomic_write, write_text_atomic
 from suitability.caution import CAUTION
 from suitability.errors import ConfigError, OutputError
@@ -552,9 +553,7 @@ def render_html(context: BriefContext, table: pd.DataFrame, page: BriefPage, dra
 
 def write_data_dictionary(path: Path) -> Path:
     """``<table>.columns.csv`` beside the district table: every column with its meaning and units."""
-    rows = pd.DataFrame({"column": list(COLUMNS), "meaning": list(COLUMNS.values())})
-    rows["units"] = rows["meaning"].str.extract(r"\[([^\]]+)\]\s*(?:\(.*\))?$")[0].fillna("")
-    return write_table_csv(rows, path)
+    return outputs.write_data_dictionary(COLUMNS, path)
 
 
 def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.DataFrame | None = None) -> dict[str, Path]:

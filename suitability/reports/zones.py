@@ -112,8 +112,8 @@ COLUMNS: dict[str, str] = {
     "c3_assimilation_mean": "area-weighted mean seasonal C3 assimilation [g C m-2]",
     "c4_assimilation_mean": "area-weighted mean seasonal C4 assimilation [g C m-2]",
     "c4_favoured_months_mean": "area-weighted mean number of months in which C4 is favoured [months]",
-    "advantage_change_mean": "area-weighted mean change of the advantage against the baseline (0 for it)",
-    "share_c4_change": "share_c4 minus the baseline's share_c4 [fraction; 0 for the baseline]",
+    "advantage_change_mean": "area-weighted mean change of the advantage against the baseline, 0 for it [-2..2]",
+    "share_c4_change": "share_c4 minus the baseline's share_c4, 0 for the baseline [-1..1]",
     "towards_c4_ha": "land whose class moves towards C4 against the baseline: C3 to contested, C3 to C4, "
                      "contested to C4 [ha]",
     "towards_c3_ha": "land whose class moves towards C3 against the baseline: C4 to contested, C4 to C3, "
@@ -121,7 +121,7 @@ COLUMNS: dict[str, str] = {
     **{transition_column(b, a): f"land in class {b} in the baseline and {a} in the scenario [ha] "
        "(nodata: no results, including land off the grid; the 25 columns sum to district_area_ha)"
        for b in TRANSITION_CLASSES for a in TRANSITION_CLASSES},
-    "members": "number of climate-model members of an ensemble scenario (NaN: a single climate)",
+    "members": "number of climate-model members of an ensemble scenario, empty for a single climate [count]",
     "c4_most_members_ha": f"land where C4 is favoured in at least {MEMBER_SHARE:.0%} of the members [ha]",
     "agree_towards_c4_ha": "land where the members agree (80 %) that the advantage moves towards C4 [ha]",
     "agree_towards_c3_ha": "land where the members agree (80 %) that the advantage moves towards C3 [ha]",

@@ -319,3 +319,19 @@ def test_context_from_a_run_config(tmp_path):
     assert any(r.startswith("Collatz, G.J., Ribas-Carbo") for r in context.references)
     assert any("Invented region" in note for note in context.notes)
     assert context.climate_data[0] == "Today's climate: tmin, tmax, shortwave, water_availability from t.tif (12-month climatology as given)."
+
+
+def test_the_district_table_is_rounded_and_has_a_data_dictionary(run):
+    table = pd.read_csv(run["paths"]["vellmark_uplands_districts.csv"])
+    dictionary = pd.read_csv(run["paths"]["vellmark_uplands_districts.columns.csv"], keep_default_na=False)
+    assert list(dictionary["column"]) == list(table.columns)  # every column explained, in order
+    units = dict(zip(dictionary["column"], dictionary["units"]))
+    assert units["district_area_ha"] == "ha" and units["share_c4"] == "0-1" and units["flag"] == ""
+    assert units["c3_assimilation_mean"] == "g C m-2"
+    # Rounding (common practice, no source): hectares to 0.01, fractions and means to 4 decimals.
+    for column in table.columns:
+        values = table[column].dropna()
+        if column.endswith("_ha") and len(values):
+            assert ((values * 100 - (values * 100).round()).abs() < 1e-6).all(), column
+        elif column.startswith("share_") and len(values):
+            assert ((values * 1e4 - (values * 1e4).round()).abs() < 1e-6).all(), column
