@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import io
 import math
+import textwrap
 import os
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -208,8 +209,10 @@ def _map_axes(figure: Figure, raster: _MapRaster, title: str):
     for spine in axes.spines.values():
         spine.set_edgecolor("#888888")
     if title:
-        figure.text(0.02, 0.985, title, ha="left", va="top", fontsize=10.5, color=_INK, parse_math=False, wrap=True,
-                    gid="title")
+        # Wrapped by hand: matplotlib's own wrapping measures text as mathematics, which a name with "$" breaks.
+        width = max(20, int(figure.get_figwidth() * 72 / (10.5 * 0.55)))  # characters per line at 10.5 pt
+        figure.text(0.02, 0.985, textwrap.fill(title, width), ha="left", va="top", fontsize=10.5, color=_INK,
+                    parse_math=False, gid="title")
     return axes
 
 
