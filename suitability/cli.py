@@ -209,8 +209,8 @@ def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
     console.line(f"Manifest: {escape(str(result.manifest_path))}")
     if result.briefs:
         console.line("Briefs and district tables:")
-        for path in result.briefs.values():
-            console.line(f"  {escape(str(path))}")
+        for line in _brief_lines(result.briefs):
+            console.line(f"  {line}")
     console.line(f"Run time: {result.manifest['timings']['total_s']:.1f} s")
     _print_caution()
 
@@ -354,9 +354,18 @@ def _brief(config, scenario, overwrite):
 
     cfg = load_config(config)
     paths = pipeline.briefs_of_finished_run(cfg, scenarios=scenario or None, overwrite=overwrite)
-    for name, path in paths.items():
-        console.line(f"{escape(name)}: {escape(str(path))}")
+    for line in _brief_lines(paths):
+        console.line(line)
     _print_caution()
+
+
+def _brief_lines(paths) -> list[str]:
+    """The briefs and tables one per line; the figures (PNG and SVG of each) as one line with their folder."""
+    figures = [path for name, path in paths.items() if str(name).startswith("figures/")]
+    lines = [escape(str(path)) for name, path in paths.items() if not str(name).startswith("figures/")]
+    if figures:
+        lines.append(f"{len(figures)} figure files (PNG and SVG) in {escape(str(figures[0].parent))}")
+    return lines
 
 
 @app.command(short_help="Leaf C3/C4 assimilation versus temperature; crossover temperatures.")
