@@ -39,7 +39,7 @@ from jinja2 import Environment, FileSystemLoader, StrictUndefined, select_autoes
 
 from suitability import outputs
 from suitability.atomic import atomic_write, write_text_atomic
-from suitability.caution import CAUTION
+from suitability.caution import CAUTION, invented_note
 from suitability.errors import ConfigError, OutputError
 from suitability.indicators import warm_season_mean  # noqa: F401 - re-exported: the brief's warm-season rule
 from suitability.reports import figures
@@ -675,11 +675,6 @@ def climate_sentences(cfg, time_info: Mapping | None = None) -> tuple[str, ...]:
     return tuple(lines)
 
 
-#: The note every brief of an invented region carries (config ``region.invented``).
-INVENTED_NOTE = ("Invented region: {region} does not exist. Its climate, terrain and districts were made up "
-                 "to show what the tool does; nothing here describes a real place.")
-
-
 def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, warm_season_temperature_c: float = math.nan,
                               caution: str = CAUTION, tool_version: str = "",
                               generated: date | None = None, district_climate: pd.DataFrame | None = None,
@@ -706,7 +701,7 @@ def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, warm
         for s in cfg.scenarios
     )
     models, references = model_sentences(cfg)
-    notes = (INVENTED_NOTE.format(region=cfg.region.name),) if getattr(cfg.region, "invented", False) else ()
+    notes = (invented_note(cfg.region.name),) if getattr(cfg.region, "invented", False) else ()
     return BriefContext(
         region=cfg.region.name,
         generated=generated or date.today(),
