@@ -72,6 +72,13 @@ def _text_bottom(page) -> float:
     return min(ys) if ys else float(page.mediabox.height)
 
 
+def _assert_no_near_empty_page(name: str, pages) -> None:
+    height = float(pages[0].mediabox.height)
+    for number, page in enumerate(pages[:-1], start=1):  # the last page ends the table wherever it ends
+        filled = height - _text_bottom(page)
+        assert len(page.images) or filled > 0.25 * height, f"{name}: page {number} is nearly empty"
+
+
 def _appendix_start(pages) -> int:
     return next(i for i, page in enumerate(pages) if "Appendix: district by district" in page.extract_text())
 
@@ -84,11 +91,7 @@ def test_a_hundred_district_brief_is_short_and_has_no_near_empty_page(hundred):
         # issue 14: "at most about 8 PDF pages before the appendix" (the comparison brief shows four scenarios'
         # maps, two to a page, so it may take two pages more)
         assert before <= (10 if "comparison" in name else 8), (name, before)
-        height = float(pages[0].mediabox.height)
-        for number, page in enumerate(pages[:-1], start=1):  # the last page ends the table wherever it ends
-            pictures = len(page.images)
-            filled = height - _text_bottom(page)
-            assert pictures or filled > 0.25 * height, f"{name}: page {number} is nearly empty"
+        _assert_no_near_empty_page(name, pages)
         text = " ".join(" ".join(p.extract_text() for p in pages).split())
         assert "Invented region" in text
         for district in hundred["region"].districts:  # every district is in the appendix
@@ -240,6 +243,8 @@ def test_five_hundred_districts_stay_readable(tmp_path):
     context = _context(region)
     table = zonal_statistics(region.zones_path, region.name_field, region.scenario_folders, "baseline")
     paths = build_brief(context, region.root / "out", table=table)
+    for name in ("marrowdene_reach_warming_only.pdf", "marrowdene_reach_co2_only.pdf", "marrowdene_reach_today.pdf"):
+        _assert_no_near_empty_page(name, _pages(paths[name]))
     pages = _pages(paths["marrowdene_reach_warming_only.pdf"])
     assert _appendix_start(pages) <= 8  # the summary does not grow with the districts; only the appendix does
     summary = pages[0].extract_text()
