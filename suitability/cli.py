@@ -196,12 +196,12 @@ def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
         console.line(f"Kept from the earlier run (outputs up to date): {', '.join(result.resumed)}")
     table = Table(title="Share of mapped cells by favoured pathway (%)")
     table.add_column("scenario", no_wrap=True)
-    for heading in ("C3 favoured", "contested", "C4 favoured", "mapped cells"):
+    for heading in ("C3 favoured", "contested", "C4 favoured", "no growing season", "mapped cells"):
         table.add_column(heading, justify="right")
     for row in result.summary.to_dict(orient="records"):
         table.add_row(
-            escape(row["scenario"]), f"{row['C3 favoured %']:.1f}", f"{row['contested %']:.1f}",
-            f"{row['C4 favoured %']:.1f}", str(row["valid_cells"]),
+            escape(row["scenario"]), *(f"{100 * row[f'share_{key}']:.1f}" for key in ("c3", "contested", "c4", "noseason")),
+            str(row["valid_cells"]),
         )
     console.print(table)
     _print_assumptions(result.assumptions, "This run assumed (also in the manifest):")
@@ -209,8 +209,8 @@ def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
     console.line(f"Manifest: {escape(str(result.manifest_path))}")
     if result.briefs:
         console.line("Briefs and district tables:")
-        for path in result.briefs.values():
-            console.line(f"  {escape(str(path))}")
+        for line in _brief_lines(result.briefs):
+            console.line(f"  {line}")
     console.line(f"Run time: {result.manifest['timings']['total_s']:.1f} s")
     _print_caution()
 
@@ -370,9 +370,18 @@ def _brief(config, scenario, overwrite):
 
     cfg = load_config(config)
     paths = pipeline.briefs_of_finished_run(cfg, scenarios=scenario or None, overwrite=overwrite)
-    for name, path in paths.items():
-        console.line(f"{escape(name)}: {escape(str(path))}")
+    for line in _brief_lines(paths):
+        console.line(line)
     _print_caution()
+
+
+def _brief_lines(paths) -> list[str]:
+    """The briefs and tables one per line; the figures (PNG and SVG of each) as one line with their folder."""
+    figures = [path for name, path in paths.items() if str(name).startswith("figures/")]
+    lines = [escape(str(path)) for name, path in paths.items() if not str(name).startswith("figures/")]
+    if figures:
+        lines.append(f"{len(figures)} figure files (PNG and SVG) in {escape(str(figures[0].parent))}")
+    return lines
 
 
 @app.command(short_help="Leaf C3/C4 assimilation versus temperature; leaf quantum-yield crossovers.")

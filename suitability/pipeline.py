@@ -20,6 +20,7 @@ import xarray as xr
 
 from . import indicators
 from ._version import __version__
+from .assumptions import run_assumptions
 from .caution import CAUTION
 from .config import ComputeConfig, RunConfig, load_config, validate_section
 from .errors import ConfigError, InputDataError, OutputError
@@ -133,7 +134,8 @@ def run(
             config_hash = cfg.config_hash()
             for scenario in to_compute:
                 with clock(f"scenario_{scenario.name}_s"):
-                    tags = scenario_tags(scenario, config_hash, hashes[scenario.name])
+                    tags = scenario_tags(scenario, config_hash, hashes[scenario.name],
+                                         invented_region=cfg.region.name if cfg.region.invented else None)
                     draws = _draw_arguments(cfg, scenario, own_layers)
                     if scenario.name in ensembles:
                         members = {m: evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
@@ -157,7 +159,8 @@ def run(
             briefs: dict[str, Path] = {}
             if cfg.brief is not None:
                 with clock("briefs_s"):
-                    briefs = make_briefs(cfg, {s.name: folder / s.name for s in scenarios}, today)
+                    briefs = make_briefs(cfg, {s.name: folder / s.name for s in scenarios}, today,
+                                         members=ensembles, assumptions=run_assumptions(cfg))
             timings["total_s"] = time.perf_counter() - started
             manifest = build_manifest(cfg, config_hash, written, summary, timings, briefs, checksums=checksums,
                                       records=records, resumed=resumed,
@@ -281,16 +284,28 @@ def ensemble_result(members: dict[str, xr.Dataset], margin: float) -> xr.Dataset
     return out
 
 
-def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dataset) -> dict[str, Path]:
+def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dataset, *, members=None,
+                assumptions=()) -> dict[str, Path]:
     """Zonal statistics, figures and HTML/PDF briefs for the scenarios already written.
 
-    today: the baseline climate on the grid (unmasked), from which the region's warm-season temperature is taken.
+    today: the baseline climate on the grid (unmasked): the region's warm-season temperature and each
+    district's monthly mean temperature (for the crossover chart) are taken from it, the latter computed
+    district window by district window. members: scenario -> its climate-model members.
     """
     from .reports import brief_context_from_config, build_brief
+    from .reports.zones import district_monthly_means, output_grid
 
+    if members is None:  # a brief of a finished run: the members as the run found them
+        members = {s.name: found for s in cfg.scenarios if (found := scenario_members(cfg, s))}
+    monthly = today["tmean"] if "tmean" in today else (today["tmin"] + today["tmax"]) / 2
     warm_season = indicators.warm_season_mean(indicators.regional_monthly_temperature(today).compute().to_numpy())
+    grid = output_grid(Path(scenario_folders[cfg.baseline]) / "pathway_class.tif")
+    district_climate = district_monthly_means(cfg.brief.zones, cfg.brief.name_field, grid,
+                                              monthly.transpose("month", "y", "x").data)
     context = brief_context_from_config(cfg, scenario_folders, warm_season_temperature_c=warm_season,
-                                        caution=CAUTION, tool_version=__version__)
+                                        caution=CAUTION, tool_version=__version__, district_climate=district_climate,
+                                        time_info=today.attrs.get("time_info", {}), members=members,
+                                        assumptions=assumptions or run_assumptions(cfg))
     return build_brief(context, Path(cfg.output.folder))
 
 
@@ -302,7 +317,7 @@ def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = 
         it, existing ones are an :class:`~suitability.errors.OutputError` listing them, and nothing is written).
     """
     from .errors import OutputError
-    from .reports.brief import slug
+    from .reports.brief import expected_files
 
     if cfg.brief is None:
         raise ConfigError(f"{cfg.source_path or '<config>'}: the config has no 'brief' section (zones, name_field)")
@@ -321,12 +336,8 @@ def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = 
     if missing:
         raise InputDataError(f"{folder}: no finished outputs for scenario(s) {', '.join(missing)} "
                              "(expected <scenario>/pathway_class.tif); run them first")
-    region = slug(cfg.region.name)
-    compared = [s.name for s in chosen if s.name != cfg.baseline] or [cfg.baseline]
-    stems = [f"{region}_{slug(n)}" for n in compared]
-    stems += [f"{region}_{slug(str(d))}" for d in zones["district"]] if cfg.brief.per_district else []
-    expected = [f"{region}_districts.csv", f"{region}_districts.gpkg"]
-    expected += [f"{stem}{ext}" for stem in stems for ext in (".html", ".pdf")]
+    expected = expected_files(cfg.region.name, [s.name for s in chosen], cfg.baseline,
+                              list(zones["district"]) if cfg.brief.per_district else [])
     existing = [name for name in expected if (folder / "brief" / name).exists()]
     if existing and not overwrite:
         raise OutputError(f"{folder / 'brief'}: {len(existing)} brief file(s) exist ({', '.join(existing)}); "

@@ -20,13 +20,15 @@ import pandas as pd
 
 from ._version import __version__
 from .assumptions import run_assumptions
-from .caution import CAUTION
+from .caution import CAUTION, invented_note
 from .config import MEMBER_FIELD, RunConfig
 from .inputs import layer_files
 from .outputs import file_checksum
-from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA
+from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NO_SEASON, CLASS_NODATA
 
 MANIFEST_NAME = "manifest.json"
+#: Column keys of the class shares in the class summary, as in the district table (share_c3, ...).
+SHARE_KEYS = {CLASS_C3: "c3", CLASS_CONTESTED: "contested", CLASS_C4: "c4", CLASS_NO_SEASON: "noseason"}
 #: Packages whose versions the manifest records.
 PACKAGES = ("numpy", "xarray", "dask", "distributed", "rasterio", "rioxarray", "rio-cogeo", "pyproj",
             "odc-geo", "pydantic", "numba", "geopandas", "exactextract")
@@ -66,9 +68,14 @@ def output_records(paths: dict[str, Path]) -> dict[str, dict[str, Any]]:
     return {name: {"path": str(p), "bytes": p.stat().st_size, "sha256": file_checksum(p)} for name, p in paths.items()}
 
 
-def scenario_tags(scenario, config_hash: str, scenario_hash: str) -> dict[str, str]:
-    """Dataset tags of every GeoTIFF (and attributes of the datacube) of one scenario."""
+def scenario_tags(scenario, config_hash: str, scenario_hash: str, *, invented_region: str | None = None) -> dict[str, str]:
+    """Dataset tags of every GeoTIFF (and attributes of the datacube) of one scenario.
+
+    invented_region: the region's name when the config marks it invented; a ``region_note`` tag says so.
+    """
+    note = {"region_note": invented_note(invented_region)} if invented_region else {}
     return {
+        **note,
         "scenario": scenario.name,
         "scenario_description": scenario.description or "",
         "co2_ppm": f"{scenario.co2_ppm:g}",
@@ -82,7 +89,11 @@ def scenario_tags(scenario, config_hash: str, scenario_hash: str) -> dict[str, s
 
 
 def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
-    """Share of valid cells per class for each scenario's ``pathway_class`` COG, read window by window."""
+    """Share of valid cells per class for each scenario's ``pathway_class`` COG, read window by window.
+
+    Columns: scenario, valid_cells (cells with a class: C3, contested, C4 or no growing season),
+    nodata_cells, and ``share_<class>`` per class as a fraction of the valid cells [0-1, 4 decimals], the
+    convention of every table the tool writes (the CLI shows them as percent)."""
     import rasterio
 
     rows = []
@@ -91,10 +102,10 @@ def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
         with rasterio.open(path) as src:
             for _, window in src.block_windows(1):
                 counts += np.bincount(src.read(1, window=window).ravel(), minlength=256)
-        valid = counts[[CLASS_C3, CLASS_CONTESTED, CLASS_C4]].sum()
+        valid = counts[list(CLASS_NAMES)].sum()
         row = {"scenario": scenario, "valid_cells": int(valid), "nodata_cells": int(counts[CLASS_NODATA])}
-        for code, label in CLASS_NAMES.items():
-            row[f"{label} %"] = round(100.0 * counts[code] / valid, 2) if valid else float("nan")
+        for code, key in SHARE_KEYS.items():
+            row[f"share_{key}"] = round(float(counts[code] / valid), 4) if valid else float("nan")
         rows.append(row)
     return pd.DataFrame(rows)
 
@@ -137,6 +148,7 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
         "platform": platform.platform(),
         "packages": package_versions(),
         "caution": CAUTION,
+        **({"region_note": invented_note(cfg.region.name)} if getattr(cfg.region, "invented", False) else {}),
     }
 
 

@@ -144,6 +144,10 @@ class OutputLayer:
     compares: for change layers, the seasonal layer of baseline and scenario passed to ``indicator``.
     legend / colours: for categorical layers, code -> label and code -> RGBA (GeoTIFF colour table).
     required: always written whatever ``output.layers`` asks, because change layers or briefs need it.
+    integer: whole counts (months): written as uint8 with nodata 255, like class codes but without a legend.
+    display_units: the units as people read them where the file format allows free text (GeoTIFF band
+        units, CSV, briefs), e.g. "g C m-2"; ``units`` stays the CF/UDUNITS string (in UDUNITS "C" would be
+        the coulomb, so the element cannot go into a CF units string; the long name says "as carbon").
     """
 
     name: str
@@ -157,6 +161,13 @@ class OutputLayer:
     legend: dict[int, str] | None = None
     colours: dict[int, tuple[int, int, int, int]] | None = None
     required: bool = False
+    integer: bool = False
+    display_units: str | None = None
+
+    @property
+    def readable_units(self) -> str:
+        """``display_units`` where set, else ``units``."""
+        return self.display_units or self.units
 
     @property
     def categorical(self) -> bool:
@@ -165,24 +176,26 @@ class OutputLayer:
 
 
 _CARBON = "g m-2"
+#: Carbon mass per area as people write it (GeoTIFF band units, README): grams of carbon per square metre.
+_CARBON_TEXT = "g C m-2"
 
 #: The registry of output layers, in the order the model returns them and the writers list them.
 OUTPUT_LAYERS: dict[str, OutputLayer] = {
     layer.name: layer
     for layer in [
         OutputLayer("c3_assimilation", _CARBON, "seasonal potential canopy net assimilation of a C3 canopy, as carbon",
-                    (-1e4, 1e5), "average", SEASONAL, "season_total"),
+                    (-1e4, 1e5), "average", SEASONAL, "season_total", display_units=_CARBON_TEXT),
         OutputLayer("c4_assimilation", _CARBON, "seasonal potential canopy net assimilation of a C4 canopy, as carbon",
-                    (-1e4, 1e5), "average", SEASONAL, "season_total"),
+                    (-1e4, 1e5), "average", SEASONAL, "season_total", display_units=_CARBON_TEXT),
         OutputLayer("pathway_advantage", "1", "normalised C4 minus C3 advantage (A4 - A3) / (A4 + A3)",
                     (-1.0, 1.0), "average", SEASONAL, "advantage_index", required=True),
         OutputLayer("pathway_class", "1", "favoured pathway: 1 C3, 2 contested, 3 C4, 4 no growing season, 255 nodata",
                     (1.0, 4.0), "mode", SEASONAL, "pathway_class", legend=PATHWAY_CLASS_LEGEND,
                     colours=PATHWAY_CLASS_COLOURS, required=True),
         OutputLayer("c4_favoured_months", "1", "number of season months in which C4 is favoured",
-                    (0.0, 12.0), "average", SEASONAL, "c4_favoured_months"),
+                    (0.0, 12.0), "average", SEASONAL, "c4_favoured_months", integer=True),
         OutputLayer("growing_season_months", "1", "number of months in the growing season (0: no growing season)",
-                    (0.0, 12.0), "average", SEASONAL, "growing_season_months"),
+                    (0.0, 12.0), "average", SEASONAL, "growing_season_months", integer=True),
         OutputLayer("photorespiration_share", "1", "share of C3 gross carboxylation released by photorespiration",
                     (0.0, 1.0), "average", SEASONAL, "photorespiration_share"),
         OutputLayer("crossover_temperature", "degC", "canopy crossover of the warmest season month: the monthly mean "
@@ -225,9 +238,9 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
         OutputLayer("derived_water_availability", "1", "water availability derived from rainfall: AET/PET of a "
                     "monthly soil-water balance", (0.0, 1.0), "average", DERIVED, "water_from_rainfall"),
         OutputLayer("c3_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C3 canopy, as carbon",
-                    (-1e4, 1e5), "average", DATACUBE, "monthly_total"),
+                    (-1e4, 1e5), "average", DATACUBE, "monthly_total", display_units=_CARBON_TEXT),
         OutputLayer("c4_monthly_assimilation", _CARBON, "monthly potential canopy net assimilation of a C4 canopy, as carbon",
-                    (-1e4, 1e5), "average", DATACUBE, "monthly_total"),
+                    (-1e4, 1e5), "average", DATACUBE, "monthly_total", display_units=_CARBON_TEXT),
         OutputLayer("monthly_crossover_temperature", "degC", "canopy crossover of each season month: the monthly mean "
                     "temperature above which C4 is favoured in that month (-inf: C4 favoured down to 0 degC, +inf: "
                     "not C4-favoured up to 45 degC)", (-np.inf, np.inf), "average", DATACUBE, "canopy_crossover"),

@@ -50,3 +50,16 @@ def test_write_curves_passes_the_parameters_to_the_crossover_table(tmp_path):
         rows = list(csv.DictReader(handle))
     expected = crossover_with_collatz_c4(0.04, 420.0, c3_ci_ratio=5.25 / 6.25)  # derived here (hand_derived.py)
     assert float(rows[0]["quantum_yield_crossover_c"]) == pytest.approx(expected, abs=1e-6)
+
+
+def test_curve_tables_come_with_their_units(tmp_path):
+    import pandas as pd
+
+    write_curves([420.0], tmp_path)
+    for name in ("leaf_curves", "crossover"):
+        table = pd.read_csv(tmp_path / f"{name}.csv")
+        dictionary = pd.read_csv(tmp_path / f"{name}.columns.csv")
+        assert list(dictionary["column"]) == list(table.columns)
+        assert dictionary["units"].notna().all()  # every column of these tables has units
+    units = dict(zip(*pd.read_csv(tmp_path / "leaf_curves.columns.csv")[["column", "units"]].to_numpy().T))
+    assert units["c3_net"] == "umol m-2 s-1" and units["leaf_temperature_c"] == "degC"

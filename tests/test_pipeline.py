@@ -78,7 +78,7 @@ def test_nodata_follows_input_nodata(demo_run):
 
 def _c4_share(result, scenario: str) -> float:
     row = result.summary.set_index("scenario").loc[scenario]
-    return row["C4 favoured %"]
+    return row["share_c4"]
 
 
 def test_co2_and_warming_pull_in_opposite_directions(demo_run):
@@ -213,8 +213,9 @@ def test_every_declared_output_layer_is_produced(demo_run):
             entry = declared[name]
             with rasterio.open(layers[name]) as src:
                 values = src.read(1)
-                assert src.count == 1 and src.units[0] == entry.units, (scenario, name, src.units)
-                if _is_categorical(entry):
+                units = getattr(entry, "readable_units", entry.units)  # "g C m-2" for carbon (README)
+                assert src.count == 1 and src.units[0] == units, (scenario, name, src.units)
+                if _is_categorical(entry) or getattr(entry, "integer", False):  # classes; whole month counts
                     assert src.dtypes[0] == "uint8" and src.nodata == 255, (scenario, name)
                     valid = values[values != 255]
                 else:
@@ -240,3 +241,22 @@ def test_change_layers_are_the_differences_against_the_baseline(demo_run):
         expected = np.where((base_class == 255) | (classes == 255), 255,
                             base_class.astype(int) * 10 + classes.astype(int))
         np.testing.assert_array_equal(read(scenario, "class_transition"), expected)
+
+
+def test_the_demo_says_its_region_is_invented_everywhere(demo_run):
+    # Project rule: demo outputs say the region is invented (configs/demo.yaml sets region.invented).
+    for layers in demo_run.layers.values():
+        with rasterio.open(layers["pathway_class"]) as src:
+            assert src.tags()["region_note"].startswith("Invented region: Kessarine Basin does not exist")
+    assert demo_run.manifest["region_note"].startswith("Invented region")
+    pages = [p for p in demo_run.briefs.values() if p.suffix in (".html", ".pdf")]
+    assert pages and {p.stem.rsplit("_", 1)[-1] for p in pages} >= {"today", "comparison"}
+    import pypdf
+
+    for path in pages:
+        if path.suffix == ".html":
+            text = " ".join(path.read_text(encoding="utf-8").split())
+        else:
+            text = " ".join(pypdf.PdfReader(path).pages[0].extract_text().split())
+        assert "Invented region: Kessarine Basin does not exist" in text, path.name
+        assert "not yield forecasts" in text, path.name

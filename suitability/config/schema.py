@@ -201,6 +201,8 @@ class RegionConfig(_Section):
     grid: GridConfig | None = None
     like: ConfigPath | None = None
     mask: ConfigPath | None = None
+    #: The region is made up (the demo, tests): briefs and GeoTIFF tags say so.
+    invented: bool = False
 
     @model_validator(mode="after")
     def _grid_or_like(self) -> "RegionConfig":

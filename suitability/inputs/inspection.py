@@ -91,6 +91,10 @@ def inspect_inputs(config: Any) -> list[LayerReport]:
     if getattr(config.region, "mask", None) is not None and grid is not None:
         reports.append(_inspect_mask(config.region, grid, config.config_dir))
     reports += _derived_water(config)
+    if getattr(config, "brief", None) is not None:
+        from .districts import inspect_districts
+
+        reports.append(inspect_districts(config.brief.zones, config.brief.name_field, grid))
     return reports
 
 
