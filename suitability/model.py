@@ -13,6 +13,10 @@ kernel is tested against, within 1e-4 relative). Both run the same equations (:m
 A registered leaf model that is marked as not compiled (:func:`suitability.kernel.supports`) runs on the
 numpy engine, with a warning once per pair of models. Everything after the daily values (season sums,
 indicators) is shared.
+
+The C3 leaves are acclimated to each cell's monthly mean temperature (:func:`growth_temperature`). The
+canopy crossover (:func:`canopy_crossover`) calls the same engine again on the same block, with the
+month's temperatures shifted, through :mod:`suitability.tie_solver`.
 """
 
 from __future__ import annotations
@@ -140,7 +144,8 @@ def evaluate(
         dask-backed; dask input stays lazy.
     scenario: a config scenario, a mapping (co2_ppm, o2_percent, temperature_offset_c, shortwave_factor,
         water_availability_factor) or None (420 ppm, present climate).
-    physiology: config ``physiology`` section or mapping {"c3": {...}, "c4": {...}, "lai": ...}.
+    physiology: config ``physiology`` section or mapping {"c3": {...}, "c4": {...}, "lai": ...,
+        "growth_temperature": "month_mean" | "parameter_set", "crossover_temperature": bool}.
     season: config ``season`` section or mapping {"months": [...]} / {"min_mean_temperature_c": t}.
     classes: config ``classes`` section or mapping {"contested_margin": m}.
     engine: "compiled" or "numpy" (the pipeline passes the config's ``compute.engine``); None = "compiled".
