@@ -120,7 +120,7 @@ def test_the_crossover_layers_agree_with_the_months_c4_is_favoured_in_every_cell
         assert np.array_equal(np.isnan(crossover), ~in_season)
         assert np.array_equal((mean > crossover)[in_season], favoured[in_season])
         with rasterio.open(demo_run.layers[scenario.name]["c4_favoured_months"]) as src:
-            months = src.read(1).astype(float)
+            months = src.read(1, masked=True).astype(float).filled(np.nan)  # uint8, nodata 255
         has = np.isfinite(months)
         np.testing.assert_array_equal(((mean > crossover) & in_season).sum(axis=0)[has], months[has])
         with rasterio.open(demo_run.layers[scenario.name]["crossover_temperature"]) as src:
