@@ -44,6 +44,8 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
     var = ds[variable]
     where = f"{path}: layer {name!r} (variable {variable!r})"
     file_units = var.attrs.get("units")
+    standard_name = var.attrs.get("standard_name")
+    described = f"{variable} ({standard_name})" if standard_name else str(variable)
     x_dim, y_dim = _spatial_dims(var, where)
     var = var.rename({x_dim: "x", y_dim: "y"})
     crs = var.rio.crs if var.rio.crs is not None else ds.rio.crs
@@ -78,7 +80,7 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
     var = var.rio.write_crs(crs)
     var.attrs = {}
     driver = "Zarr" if engine == "zarr" else "netCDF"
-    return Native(keep_spatial(var), driver, file_units, tuple(transformations))
+    return Native(keep_spatial(var), driver, file_units, tuple(transformations), variable=described)
 
 
 def _open_dataset(path: Path, name: str, engine: str | None) -> xr.Dataset:

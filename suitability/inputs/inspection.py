@@ -51,6 +51,7 @@ class LayerReport:
     nodata_share: float | None = None
     out_of_range_share: float | None = None
     time: str | None = None
+    variable: str | None = None
     problems: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
 
@@ -72,19 +73,31 @@ def inspect_inputs(config: Any) -> list[LayerReport]:
     for scenario in config.scenarios:
         entries += [(scenario.name, n, s) for n, s in (scenario.climate.items() if scenario.climate else ())]
     members_of = {s.name: _members(s, config.config_dir) for s in config.scenarios if s.climate}
+    scenarios = {s.name: s for s in config.scenarios}
     for scenario, name, spec in entries:
         members = members_of.get(scenario) if scenario else None
         if not members:
             reports.append(_inspect_layer(name, spec, config.config_dir, grid, scenario))
             continue
         # an ensemble: every member is opened; one line per layer, problems named by member
-        each = {m: _inspect_layer(name, spec, config.config_dir, grid, scenario, m) for m in members}
+        each = {m: _inspect_layer(name, scenarios[scenario].member_climate(m)[name], config.config_dir, grid, scenario, m)
+                for m in members}
         report = next(iter(each.values()))
+        report.path = str(spec.path[0]) + f" ... ({len(spec.path)} files)" if isinstance(spec.path, list) else str(spec.path)
         report.problems = [f"member {m}: {p}" for m, r in each.items() for p in r.problems]
         report.warnings = sorted({w for r in each.values() for w in r.warnings})
         opened = {m: r for m, r in each.items() if not r.problems}
         kinds = {r.time for r in opened.values()}
         first = next(iter(opened.values()), report)
+        steps = {m: next((k for k in ("daily", "monthly") if (r.time or "").startswith(k)), "12 months")
+                 for m, r in opened.items()}
+        if len(set(steps.values())) > 1:
+            report.problems.append("members mix time steps (" + "; ".join(f"{m}: {r.time}" for m, r in opened.items())
+                                   + "); expected the same (all monthly or all daily)")
+        variables = {m: r.variable for m, r in opened.items() if r.variable}
+        if len(set(variables.values())) > 1:
+            report.problems.append("members are read from different variables (" + ", ".join(
+                f"{m}: {v}" for m, v in variables.items()) + "); expected the same variable in every member")
         report.time = (f"{len(members)} members ({', '.join(members)}); {first.time}" if len(kinds) <= 1
                        else f"{len(members)} members, time axes differ: " + "; ".join(f"{m}: {r.time}" for m, r in opened.items()))
         reports.append(report)
@@ -121,6 +134,8 @@ def _members(scenario: Any, config_dir) -> list[str] | None:
     if scenario.members:
         return list(scenario.members)
     for name, spec in scenario.climate.items():
+        if isinstance(spec.path, list):
+            continue
         try:
             labels = member_labels(name, spec, absolute(spec.path, config_dir), INPUT_VARIABLES[name].monthly)
         except InputDataError:
@@ -150,6 +165,7 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
     elif "month" in converted.dims:
         report.time = "12 months"
     report.output_name = converted.name
+    report.variable = native.variable
     report.driver = native.driver
     report.warnings += [f"on reading: {t}" for t in native.transformations]
     report.file_units = native.file_units
