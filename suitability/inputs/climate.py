@@ -18,6 +18,7 @@ import xarray as xr
 from ..config import MEMBER_FIELD
 from ..errors import InputDataError
 from ..grid import TargetGrid, align_to_grid
+from ..physiology.energy import wind_speed_at_2m
 from ..variables import INPUT_VARIABLES
 from .checks import check_plausible, coverage_share, read_sample
 from .native import Native
@@ -83,6 +84,9 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int, member: str | N
         data = data * np.float32(scale) + np.float32(offset)
     if name == "water_stress":
         data = 1.0 - data
+    height = getattr(spec, "height_m", None)
+    if name == "wind_speed" and height is not None and height != 2.0:
+        data = wind_speed_at_2m(data, np.float32(height))  # the canonical layer is the wind at 2 m
     data = data.astype(np.float32)
     if data.rio.crs is None and native.data.rio.crs is not None:
         # Arithmetic drops the grid_mapping attribute, which is how a NetCDF names its CRS variable.
@@ -105,6 +109,8 @@ UNIT_EXAMPLES = {
     "shortwave": ("W m-2", "MJ m-2 d-1"), "par": ("mol m-2 d-1", "umol m-2 s-1"),
     "water_availability": ("fraction", "percent"), "water_stress": ("fraction", "percent"),
     "vpd": ("kPa", "hPa"), "humidity": ("percent", "fraction"), "elevation": ("m",), "lai": ("m2 m-2",),
+    "precipitation": ("kg m-2 s-1", "mm d-1"), "pet": ("mm d-1", "kg m-2 s-1"), "wind_speed": ("m s-1",),
+    "soil_water_capacity": ("mm",),
 }
 
 

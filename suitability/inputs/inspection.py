@@ -11,7 +11,7 @@ import xarray as xr
 
 from ..errors import InputDataError
 from ..grid import TargetGrid, align_to_grid
-from ..variables import INPUT_VARIABLES
+from ..variables import INPUT_VARIABLES, PENMAN_MONTEITH, pet_method
 from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, lost_cells, read_sample, region_window
 from .climate import load_mask, open_converted
 from .periods import ShortPeriodWarning
@@ -118,7 +118,12 @@ def _derived_water(config: Any) -> list[LayerReport]:
         if "precipitation" not in climate:
             continue
         base = config.climate
-        pet = "pet as given" if "pet" in climate or "pet" in base else "PET by Hargreaves-Samani (FAO-56 eq. 52) from tmin/tmax"
+        names = set(base.keys()) | set(climate.keys())
+        if {"par", "water_stress"} & set(climate.keys()):  # a scenario's alternative replaces the baseline's
+            names -= {"shortwave"} if "par" in climate else set()
+        pet = "pet as given" if "pet" in names else f"PET by {pet_method(names)}" + (
+            "" if pet_method(names) == PENMAN_MONTEITH else " from tmin/tmax (no wind_speed with humidity or vpd "
+            "and shortwave for Penman-Monteith)")
         bucket = ("soil_water_capacity layer" if "soil_water_capacity" in climate or "soil_water_capacity" in base
                   else f"capacity {capacity:g} mm")
         report = LayerReport(layer="water_availability", path="(derived from precipitation)", scenario=scenario, crs="-",
@@ -175,6 +180,10 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
     report.crs = crs.to_string() if crs is not None else None
     res_x, res_y = converted.rio.resolution(recalc=True)
     report.native_resolution = (abs(float(res_x)), abs(float(res_y)))
+    if name == "wind_speed":
+        height = getattr(spec, "height_m", None)
+        report.warnings.append(f"wind at {height:g} m brought to 2 m (FAO-56 eq. 47)" if height not in (None, 2.0)
+                               else "wind taken as measured at 2 m (set height_m, e.g. 10 for CMIP sfcWind)")
     if spec.units and native.file_units and units_differ(spec.units, native.file_units):
         report.warnings.append(f"declared units {spec.units!r} override the file's {native.file_units!r}")
     if grid is None:
