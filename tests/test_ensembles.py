@@ -289,3 +289,50 @@ def test_list_of_member_files_in_config():
     mixed = {**base, "members": ["cnrm", "ipsl"], "climate": {**base["climate"], "tmax": {"path": "d/{member}.nc"}}}
     with pytest.raises(ValueError, match="one way"):
         ScenarioConfig.model_validate(mixed)
+
+
+def _monthly_file(path, name, values, units):
+    time = xr.date_range("2000-01-01", periods=12, freq="MS", calendar="noleap", use_cftime=True)
+    data = np.broadcast_to(np.asarray(values, "f4")[:, None, None], (12, NY, NX))
+    xr.Dataset({name: (("time", "lat", "lon"), data, {"units": units})}, coords=_coords(time)).to_netcdf(path)
+
+
+def _bad_input(folder, case):
+    """The ensemble config with one bad input; returns (config path, the file and layer the error must name)."""
+    path = config(folder)
+    cfg = yaml.safe_load(path.read_text())
+    cfg["scenarios"] = cfg["scenarios"][:2]  # baseline and the three-member 'mid'
+    if case == "period outside the file":
+        cfg["scenarios"][1]["period"] = [2051, 2075]  # the member files hold 2031-2060
+        named = (folder / "tas_alpha.nc", "tmin")
+    elif case == "undecodable calendar":
+        with xr.open_dataset(folder / "tas_beta.nc", decode_times=False) as ds:
+            raw = ds.load()
+        raw["time"].attrs["calendar"] = "martian_sols"
+        raw.to_netcdf(folder / "tas_beta.nc")
+        named = (folder / "tas_beta.nc", "tmin")
+    else:
+        rain = np.array([2.0, 3, 4, 5, 4, 3, 2, 1, 1, 1, 2, 2])
+        if case == "negative rainfall":
+            _monthly_file(folder / "pr.nc", "pr", rain - 3.0, "mm d-1")
+            named = (folder / "pr.nc", "precipitation")
+        else:  # PET in mm per month declared as mm per day (threshold: common practice, no source)
+            _monthly_file(folder / "pr.nc", "pr", rain, "mm d-1")
+            _monthly_file(folder / "pet.nc", "pet", 30.0 * np.array([3.0, 3, 4, 5, 6, 6, 6, 5, 4, 4, 3, 3]), "mm d-1")
+            cfg["climate"]["pet"] = {"path": "pet.nc"}
+            named = (folder / "pet.nc", "pet")
+        del cfg["climate"]["water_availability"]
+        cfg["climate"]["precipitation"] = {"path": "pr.nc"}
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    return path, named
+
+
+@pytest.mark.parametrize("case", ["period outside the file", "undecodable calendar", "negative rainfall",
+                                  "PET totals declared per day"])
+def test_bad_input_is_named_and_nothing_is_written(tmp_path, case):
+    write_inputs(tmp_path)
+    path, (file, layer) = _bad_input(tmp_path, case)
+    with pytest.raises(InputDataError) as info:
+        suitability.run(path)
+    assert str(file) in str(info.value) and f"'{layer}'" in str(info.value), str(info.value)
+    assert not (tmp_path / "out").exists() or not any(p.is_file() for p in (tmp_path / "out").rglob("*"))
