@@ -3,8 +3,9 @@
 Everything here is invented (a fictional patch of ocean at about 21 deg S 55 deg E only fixes day length).
 The checks compare the ensemble layers with the same members run as single scenarios in the same run
 (derived here: median, share and sign agreement of those single runs), and the agreement classes with the
-rule of IPCC AR6 WGI Cross-Chapter Box Atlas.1 (simple approach: at least 80 % of models agree on the sign
-of change; the 80 % share from memory, confirmed by the Atlas's own code threshold th = 80).
+rule of IPCC AR6 WGI Cross-Chapter Box Atlas.1, simple approach, as AR6 figure captions state it (e.g.
+Chapter 9, Figure 9.3): "high model agreement, where >=80% of models agree on sign of change", low agreement
+below 80 %.
 """
 
 from __future__ import annotations
