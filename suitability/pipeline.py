@@ -135,10 +135,12 @@ def run(
                         members = {m: evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
                                                classes=cfg.classes, scenario_layers=layers, engine=runtime.engine)
                                    for m, layers in own_layers[scenario.name].items()}
-                        result = ensemble_result(members, cfg.classes.contested_margin)
                         tags = {**tags, "ensemble_members": ", ".join(members)}
                         member_paths = (_write_members(cfg, grid, runtime, scenario, members, tags, layers_of(scenario))
                                         if cfg.output.member_outputs else {})
+                        if member_paths and not cfg.output.datacube:  # the members' layers are written: not twice
+                            members = _written_members(member_paths, members, cfg.compute.chunk_size)
+                        result = ensemble_result(members, cfg.classes.contested_margin)
                     else:
                         member_paths = {}
                         result = evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
@@ -548,6 +550,24 @@ def _write_members(cfg, grid, runtime, scenario, members: dict[str, xr.Dataset],
                                    lock=None)
         paths.update({f"{MEMBERS_FOLDER}/{member}/{n}": p for n, p in written.items()})
     return paths
+
+
+def _written_members(paths: dict[str, Path], computed: dict[str, xr.Dataset], chunk: int) -> dict[str, xr.Dataset]:
+    """Each member's continuous layers as written by :func:`_write_members` (opened lazily), so that the
+    ensemble layers are taken from them instead of evaluating every member a second time."""
+    import rioxarray
+
+    members = {}
+    for member, result in computed.items():
+        layers = {}
+        for key, path in paths.items():
+            _, owner, name = key.split("/")
+            if owner == member and not OUTPUT_LAYERS[name].categorical:
+                written = rioxarray.open_rasterio(path, chunks={"x": chunk, "y": chunk}, lock=False, masked=True)
+                layers[name] = written.squeeze("band", drop=True).assign_coords(x=result.x, y=result.y).drop_vars(
+                    "spatial_ref", errors="ignore").astype(np.float32)
+        members[member] = xr.Dataset(layers)
+    return members
 
 
 def _georeferenced(layer, grid: TargetGrid):

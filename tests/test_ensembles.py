@@ -11,6 +11,7 @@ below 80 %.
 from __future__ import annotations
 
 import json
+import shutil
 from pathlib import Path
 
 import numpy as np
@@ -337,3 +338,55 @@ def test_bad_input_is_named_and_nothing_is_written(tmp_path, case):
         suitability.run(path)
     assert str(file) in str(info.value) and f"'{layer}'" in str(info.value), str(info.value)
     assert not (tmp_path / "out").exists() or not any(p.is_file() for p in (tmp_path / "out").rglob("*"))
+
+
+def test_check_shows_calendar_period_years_members_and_the_derived_method(tmp_path):
+    from suitability.config import load_config
+    from suitability.inputs import inspect_inputs
+
+    write_inputs(tmp_path)
+    rain = np.array([2.0, 3, 4, 5, 4, 3, 2, 1, 1, 1, 2, 2])
+    _monthly_file(tmp_path / "pr.nc", "pr", rain, "mm d-1")
+    _monthly_file(tmp_path / "rh.nc", "hurs", np.full(12, 70.0), "percent")
+    _monthly_file(tmp_path / "wind.nc", "sfcWind", np.full(12, 3.0), "m s-1")
+    path = config(tmp_path)
+    cfg = yaml.safe_load(path.read_text())
+    del cfg["climate"]["water_availability"]
+    cfg["climate"].update({"precipitation": {"path": "pr.nc"}, "humidity": {"path": "rh.nc"},
+                           "wind_speed": {"path": "wind.nc", "height_m": 10}})
+    cfg["scenarios"][2]["climate"] = {name: {"path": [f"tas_{m}.nc" for m in MEMBERS], "variable": f"tas{name[1:]}"}
+                                      for name in ("tmin", "tmax")}
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    reports = inspect_inputs(load_config(path))
+    mid = next(r for r in reports if r.layer == "tmin" and r.scenario == "mid")
+    assert mid.time.startswith("3 members (alpha, beta, gamma)") and "noleap calendar, 2031-2040 (10 years)" in mid.time
+    late = next(r for r in reports if r.layer == "tmax" and r.scenario == "late")
+    assert late.path.endswith("(3 files)") and "2051-2060 (10 years)" in late.time and not late.problems
+    wind = next(r for r in reports if r.layer == "wind_speed")
+    assert "wind at 10 m brought to 2 m (FAO-56 eq. 47)" in wind.warnings
+    derived = next(r for r in reports if r.layer == "water_availability" and r.path.startswith("(derived"))
+    assert "FAO-56 Penman-Monteith (eq. 6)" in derived.time and "Thornthwaite & Mather" in derived.time
+    # a member with daily steps among monthly ones is a problem of that layer, as the run refuses it
+    daily = xr.date_range("2031-01-01", "2040-12-31", freq="D", calendar="noleap", use_cftime=True)
+    ds = xr.Dataset({name: (("time", "lat", "lon"), np.full((daily.size, NY, NX), 295.0, "f4"), {"units": "K"})
+                     for name in ("tasmin", "tasmax")}, coords=_coords(daily))
+    ds.to_netcdf(tmp_path / "d_gamma.nc", encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
+    for member in ("alpha", "beta"):  # copies: the files opened above stay open in this process
+        shutil.copy(tmp_path / f"tas_{member}.nc", tmp_path / f"d_{member}.nc")
+    for name in ("tmin", "tmax"):
+        cfg["scenarios"][1]["climate"][name]["path"] = "d_{member}.nc"
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    reports = inspect_inputs(load_config(path))
+    mid = next(r for r in reports if r.layer == "tmin" and r.scenario == "mid")
+    assert any("members mix time steps" in p and "gamma: daily series" in p for p in mid.problems)
+
+
+def test_the_baseline_climate_takes_one_path_per_layer():
+    from pydantic import ValidationError
+
+    from suitability.config import ClimateConfig
+
+    layers = {"tmin": {"path": ["a.nc", "b.nc"]}, "tmax": {"path": "t.nc"}, "shortwave": {"path": "s.nc"},
+              "water_availability": {"path": "w.nc"}}
+    with pytest.raises(ValidationError, match="a list of files is for the ensemble members"):
+        ClimateConfig.model_validate(layers)
