@@ -129,6 +129,13 @@ def change_agreement(baseline_advantage, member_advantages, dim: str = "member",
     conflicting signals) also need >= 66 % of models to show a change greater than a variability
     threshold from the interannual variability of each model's reference period: the model runs on each
     member's 12-month climatology, so no year-to-year spread of the advantage exists to set that threshold.
+
+    Written here rather than with xclim.ensembles (robustness_fractions with test=None, then
+    robustness_categories with the sign threshold 0.8): without a significance test that is the same
+    three-line share of signs, we also need the direction of the agreeing members, and xclim 0.62 would
+    bring scikit-learn, pyarrow, yamale, boltons and bottleneck into the environment (bottleneck changes
+    how xarray sums float32 everywhere, see ECOSYSTEM.md). xclim also counts members with exactly no change
+    as a group that can "agree"; here they count for neither sign.
     """
     change = member_advantages - baseline_advantage
     valid = change.notnull().all(dim) & baseline_advantage.notnull()
