@@ -23,6 +23,7 @@ from .assumptions import run_assumptions
 from .caution import CAUTION
 from .config import RunConfig
 from .inputs import layer_files
+from .inputs.inspection import derived_methods
 from .outputs import file_checksum
 from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA
 
@@ -123,6 +124,7 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
         "inputs": inputs,
         "input_periods": input_time or {},
         "ensembles": {name: list(members) for name, members in (ensembles or {}).items()},
+        "derived": derived_methods(cfg),
         "member_outputs": member_outputs(outputs),
         "outputs": outputs,
         "scenario_records": records,

@@ -366,6 +366,9 @@ def test_check_shows_calendar_period_years_members_and_the_derived_method(tmp_pa
     assert "wind at 10 m brought to 2 m (FAO-56 eq. 47)" in wind.warnings
     derived = next(r for r in reports if r.layer == "water_availability" and r.path.startswith("(derived"))
     assert "FAO-56 Penman-Monteith (eq. 6)" in derived.time and "Thornthwaite & Mather" in derived.time
+    from suitability.inputs.inspection import derived_methods  # what the manifest records as "derived"
+
+    assert derived_methods(load_config(path)) == {"baseline": derived.time}
     # a member with daily steps among monthly ones is a problem of that layer, as the run refuses it
     daily = xr.date_range("2031-01-01", "2040-12-31", freq="D", calendar="noleap", use_cftime=True)
     ds = xr.Dataset({name: (("time", "lat", "lon"), np.full((daily.size, NY, NX), 295.0, "f4"), {"units": "K"})

@@ -110,28 +110,39 @@ def inspect_inputs(config: Any) -> list[LayerReport]:
 def _derived_water(config: Any) -> list[LayerReport]:
     """A line per climate (baseline and scenarios with their own rainfall) whose water comes from rainfall."""
     reports = []
+    for scenario, text in derived_methods(config).items():
+        report = LayerReport(layer="water_availability", path="(derived from precipitation)",
+                             scenario=None if scenario == "baseline" else scenario, crs="-",
+                             output_name="water_availability", canonical_units="1")
+        report.time = text
+        reports.append(report)
+    return reports
+
+
+def derived_methods(config: Any) -> dict[str, str]:
+    """"baseline" or scenario name -> how its water availability is derived from rainfall (the bucket, its
+    capacity, the PET method), for every climate (the baseline's, a scenario's own) that gives
+    ``precipitation``. ``check`` prints it; the manifest records it (``"derived"``)."""
+    methods = {}
     physiology = getattr(config, "physiology", None)
     capacity = getattr(physiology, "soil_water_capacity_mm", 150.0)
     retention = getattr(physiology, "soil_water_retention", "exponential")
-    sections = [(None, config.climate)] + [(s.name, s.climate) for s in config.scenarios if s.climate]
+    sections = [("baseline", config.climate)] + [(s.name, s.climate) for s in config.scenarios if s.climate]
     for scenario, climate in sections:
         if "precipitation" not in climate:
             continue
         base = config.climate
         names = set(base.keys()) | set(climate.keys())
-        if {"par", "water_stress"} & set(climate.keys()):  # a scenario's alternative replaces the baseline's
-            names -= {"shortwave"} if "par" in climate else set()
+        if "par" in climate:  # a scenario's par replaces the baseline's shortwave
+            names -= {"shortwave"}
         pet = "pet as given" if "pet" in names else f"PET by {pet_method(names)}" + (
             "" if pet_method(names) == PENMAN_MONTEITH else " from tmin/tmax (no wind_speed with humidity or vpd "
             "and shortwave for Penman-Monteith)")
         bucket = ("soil_water_capacity layer" if "soil_water_capacity" in climate or "soil_water_capacity" in base
                   else f"capacity {capacity:g} mm")
-        report = LayerReport(layer="water_availability", path="(derived from precipitation)", scenario=scenario, crs="-",
-                             output_name="water_availability", canonical_units="1")
-        report.time = (f"derived: AET/PET of a monthly soil-water balance (Thornthwaite & Mather, {retention} "
-                       f"retention, {bucket}); {pet}")
-        reports.append(report)
-    return reports
+        methods[scenario] = (f"derived: AET/PET of a monthly soil-water balance (Thornthwaite & Mather, {retention} "
+                             f"retention, {bucket}); {pet}")
+    return methods
 
 
 def _members(scenario: Any, config_dir) -> list[str] | None:
