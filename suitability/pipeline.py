@@ -247,12 +247,21 @@ def check_members_alike(scenario, own: dict[str, xr.Dataset]) -> None:
             raise InputDataError(f"{files[odd]}: layer {name!r} of scenario {scenario.name!r} mixes time steps between "
                                  f"members ({listed}); expected the same (all monthly or all daily)")
         found = {m: ds.attrs.get("variables", {}).get(name) for m, ds in own.items()}
-        if len({v for v in found.values() if v is not None}) > 1:
-            first = next(iter(found.values()))
-            odd = next(m for m, v in found.items() if v != first)
+        odd = next((m for m, v in found.items() if _other_variable(v, next(iter(found.values())))), None)
+        if odd is not None:
             listed = ", ".join(f"{m}: {v}" for m, v in found.items())
             raise InputDataError(f"{files[odd]}: layer {name!r} of scenario {scenario.name!r} is read from different "
                                  f"variables between members ({listed}); expected the same variable in every member")
+
+
+def _other_variable(described: str | None, first: str | None) -> bool:
+    """Whether two "name (standard_name)" descriptions of a member's variable name different quantities: the
+    names differ, or both give a CF standard_name and those differ (a missing standard_name is no conflict)."""
+    if described is None or first is None:
+        return False
+    name, _, standard = described.partition(" (")
+    first_name, _, first_standard = first.partition(" (")
+    return name != first_name or bool(standard and first_standard and standard != first_standard)
 
 
 def _time_info(own) -> dict:
