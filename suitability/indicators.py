@@ -119,8 +119,10 @@ def class_transition(baseline_class, scenario_class):
     return _where(nodata, CLASS_NODATA, code).astype(np.uint8)
 
 
-#: Share of members that must agree on the sign of a change for "members agree" (IPCC AR6 WGI Atlas,
-#: Cross-Chapter Box Atlas.1, simple approach: at least 80 % of models agree on the sign of change).
+#: Share of members that must agree on the sign of a change for "members agree": IPCC AR6 WGI, Cross-Chapter
+#: Box Atlas.1 (Gutiérrez et al. 2021), simple approach, as AR6 figure captions state it (e.g. Chapter 9,
+#: Figure 9.3): "high model agreement, where >=80% of models agree on sign of change"; "low model agreement,
+#: where <80% of models agree on sign of change".
 AGREEMENT_SHARE = 0.8
 AGREE_TOWARD_C3, LOW_AGREEMENT, AGREE_TOWARD_C4 = 1, 2, 3
 
@@ -143,11 +145,22 @@ def change_agreement(baseline_advantage, member_advantages, dim: str = "member",
     """Agreement of the members on the direction of the advantage change against the baseline.
 
     Classified after the simple approach of IPCC AR6 WGI Cross-Chapter Box Atlas.1: where at least
-    ``share`` (80 %) of the members give a change of the same sign, they agree (3: the C4 advantage rises,
-    1: it falls); otherwise low agreement (2). A change of exactly 0 counts for neither sign. 255 where
-    the baseline or any member is nodata. The Atlas's advanced approach also asks that 66 % of models show
-    a change beyond internal variability; climatologies carry no interannual variability, so it is not
-    applied here.
+    ``share`` (80 %) of the members give a change of the same sign, they agree (high model agreement); we
+    split that class by the direction the agreeing members give (3: the C4 advantage rises, 1: it falls);
+    otherwise low agreement (2). A change of exactly 0 counts for neither sign. 255 where the baseline or
+    any member is nodata.
+
+    Not the advanced approach of the same box, whose classes (robust signal, no change or no robust signal,
+    conflicting signals) also need >= 66 % of models to show a change greater than a variability
+    threshold from the interannual variability of each model's reference period: the model runs on each
+    member's 12-month climatology, so no year-to-year spread of the advantage exists to set that threshold.
+
+    Written here rather than with xclim.ensembles (robustness_fractions with test=None, then
+    robustness_categories with the sign threshold 0.8): without a significance test that is the same
+    three-line share of signs, we also need the direction of the agreeing members, and xclim 0.62 would
+    bring scikit-learn, pyarrow, yamale, boltons and bottleneck into the environment (bottleneck changes
+    how xarray sums float32 everywhere, see ECOSYSTEM.md). xclim also counts members with exactly no change
+    as a group that can "agree"; here they count for neither sign.
     """
     change = member_advantages - baseline_advantage
     valid = change.notnull().all(dim) & baseline_advantage.notnull()

@@ -34,14 +34,15 @@ import xarray as xr
 
 from . import indicators, kernel, tie_solver
 from .config.schema import GROWING_SEASON_MIN_MEAN_TEMPERATURE_C, GROWING_SEASON_MIN_MEAN_TMIN_C
-from .physiology import atmosphere, light
+from .physiology import atmosphere, energy, light
 from .physiology import daily_canopy_assimilation
 from .physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from .runtime import ENGINES
 from .physiology import water_balance
 from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario, scale_water_availability
 from .physiology import uncertainty as parameter_uncertainty
-from .variables import CLASS_NODATA, DATACUBE, OUTPUT_LAYERS, SEASONAL, UNCERTAINTY, layer_names
+from .variables import (CLASS_NODATA, DATACUBE, HARGREAVES_SAMANI, OUTPUT_LAYERS, PENMAN_MONTEITH, SEASONAL, UNCERTAINTY,  # noqa: F401
+                        layer_names, pet_method)
 
 #: Day of year of the 15th of each month in a non-leap year; the representative day of the month.
 REPRESENTATIVE_DAY = np.array([15, 46, 74, 105, 135, 166, 196, 227, 258, 288, 319, 349])
@@ -672,9 +673,10 @@ def water_from_rainfall(climate: xr.Dataset, capacity_mm: float = water_balance.
                         retention: str = "exponential") -> xr.Dataset:
     """``climate`` with ``water_availability`` (AET/PET of the monthly soil-water balance) and ``pet``.
 
-    climate: ``precipitation`` [mm d-1] (month, y, x); ``pet`` [mm d-1] if given, else Hargreaves-Samani
-    reference evapotranspiration from ``tmin``/``tmax`` [°C] and the extraterrestrial radiation of the
-    representative day of each month at the cell's ``latitude``; ``soil_water_capacity`` [mm] (y, x) if
+    climate: ``precipitation`` [mm d-1] (month, y, x); ``pet`` [mm d-1] if given, else the reference
+    evapotranspiration of :func:`pet_method`: FAO-56 Penman-Monteith where ``wind_speed``, ``shortwave`` and
+    ``humidity`` or ``vpd`` are given, else Hargreaves-Samani from ``tmin``/``tmax`` [°C], both with the
+    extraterrestrial radiation of the representative day of each month at the cell's ``latitude``; ``soil_water_capacity`` [mm] (y, x) if
     given, else ``capacity_mm``. Monthly totals are the daily rates times the days of the month (the same
     non-leap year as the assimilation totals). Lazy on dask data (whole months per block).
     """
@@ -683,8 +685,11 @@ def water_from_rainfall(climate: xr.Dataset, capacity_mm: float = water_balance.
     else:
         doy = xr.DataArray(REPRESENTATIVE_DAY, dims="month", coords={"month": np.arange(1, 13)})
         ra = xr.apply_ufunc(light.extraterrestrial_radiation, climate["latitude"], doy, dask="allowed")
-        pet = xr.apply_ufunc(water_balance.hargreaves_samani_et0, climate["tmin"], climate["tmax"], ra,
-                             dask="parallelized", output_dtypes=[np.float64])
+        if pet_method(climate) == PENMAN_MONTEITH:
+            pet = _penman_monteith(climate, ra)
+        else:
+            pet = xr.apply_ufunc(water_balance.hargreaves_samani_et0, climate["tmin"], climate["tmax"], ra,
+                                 dask="parallelized", output_dtypes=[np.float64])
     capacity = climate["soil_water_capacity"] if "soil_water_capacity" in climate else capacity_mm
     pet = pet.transpose("month", ...)
     rain = climate["precipitation"].transpose(*pet.dims)
@@ -702,6 +707,22 @@ def water_from_rainfall(climate: xr.Dataset, capacity_mm: float = water_balance.
     water = xr.apply_ufunc(availability, rain, pet, capacity, input_core_dims=[["month"], ["month"], []],
                            output_core_dims=[["month"]], dask="parallelized", output_dtypes=[np.float32])
     return climate.assign(water_availability=water.transpose(*climate["precipitation"].dims), pet=pet.astype(np.float32))
+
+
+def _penman_monteith(climate: xr.Dataset, extraterrestrial) -> xr.DataArray:
+    """FAO-56 Penman-Monteith ET0 [mm d-1] (month, ...) of a monthly climatology: ea from ``humidity``
+    (eq. 19) or ``vpd`` (ea = es − D), P from ``elevation`` (eq. 7; sea level without it), G of each month
+    from the mean temperatures of the months before and after it, the year taken round (eq. 43)."""
+    tmin, tmax = climate["tmin"], climate["tmax"]
+    if "humidity" in climate:
+        ea = atmosphere.actual_vapour_pressure_from_relative_humidity(100.0 * climate["humidity"], tmin, tmax)
+    else:
+        ea = atmosphere.actual_vapour_pressure_from_deficit(tmin, tmax, climate["vpd"])
+    elevation = climate["elevation"] if "elevation" in climate else xr.zeros_like(climate["latitude"], dtype=np.float32)
+    mean = 0.5 * (tmin + tmax)
+    heat = energy.monthly_soil_heat_flux(mean.roll(month=1, roll_coords=False), mean.roll(month=-1, roll_coords=False))
+    return energy.penman_monteith_et0(tmin, tmax, ea, climate["shortwave"], extraterrestrial, elevation,
+                                      atmosphere.air_pressure_from_elevation(elevation), climate["wind_speed"], heat)
 
 
 def _with_latitude(climate: xr.Dataset) -> xr.Dataset:

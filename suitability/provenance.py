@@ -23,6 +23,7 @@ from .assumptions import run_assumptions
 from .caution import CAUTION, invented_note
 from .config import MEMBER_FIELD, RunConfig
 from .inputs import layer_files
+from .inputs.inspection import derived_methods
 from .outputs import file_checksum
 from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NO_SEASON, CLASS_NODATA
 
@@ -48,12 +49,9 @@ def input_files(cfg: RunConfig, only=None) -> set[Path]:
         if extra is not None:
             files.add(Path(extra))
     for scenario in cfg.scenarios if only is None else only:
-        for spec in (scenario.climate or {}).values():
-            if MEMBER_FIELD in str(spec.path) and scenario.members:  # one file (set) per member
-                for member in scenario.members:
-                    files.update(layer_files(spec.model_copy(update={"path": Path(str(spec.path).replace(MEMBER_FIELD, member))}),
-                                             cfg.config_dir))
-            else:
+        for member in (scenario.members or [None]):  # one file (set) per member of a pattern or list
+            own = scenario.member_climate(member) if member else (scenario.climate or {})
+            for spec in own.values():
                 files.update(layer_files(spec, cfg.config_dir))
     return files
 
@@ -116,7 +114,8 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
 
     checksums: input path -> sha256 (computed here if None). input_time: "baseline" or scenario name ->
     layer -> calendar, period and years of the climatology it was made from (member -> layer -> ... for an
-    ensemble). ensembles: scenario -> its members. records: scenario name -> {"scenario_hash",
+    ensemble). ensembles: scenario -> its members. The manifest's ``member_outputs`` lists each member's own
+    layers (scenario -> member -> layer -> path), also recorded among the scenario's ``outputs``. records: scenario name -> {"scenario_hash",
     "outputs"} as kept for resume (outputs are hashed here if None). resumed: scenarios not recomputed.
     """
     if checksums is None:
@@ -136,6 +135,8 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
         "inputs": inputs,
         "input_periods": input_time or {},
         "ensembles": {name: list(members) for name, members in (ensembles or {}).items()},
+        "derived": derived_methods(cfg),
+        "member_outputs": member_outputs(outputs),
         "outputs": outputs,
         "scenario_records": records,
         "resumed_scenarios": list(resumed),
@@ -163,6 +164,18 @@ def uncertainty_record(cfg) -> dict[str, Any] | None:
             "parameters": varied_parameters(cfg.physiology.c3.as_params(), cfg.physiology.c4.as_params())}
 
 
+def member_outputs(outputs: dict[str, dict[str, dict]]) -> dict[str, dict[str, dict[str, str]]]:
+    """scenario -> member -> layer -> path of the members' own outputs (``output.member_outputs``), from the
+    scenario's output records, where they are named ``members/<member>/<layer>``."""
+    found: dict[str, dict[str, dict[str, str]]] = {}
+    for scenario, records in outputs.items():
+        for name, entry in records.items():
+            parts = name.split("/")
+            if len(parts) == 3 and parts[0] == "members":
+                found.setdefault(scenario, {}).setdefault(parts[1], {})[parts[2]] = entry["path"]
+    return found
+
+
 def package_versions() -> dict[str, str | None]:
     """Installed version of each of :data:`PACKAGES` (None if not installed)."""
     versions = {}
@@ -174,6 +187,6 @@ def package_versions() -> dict[str, str | None]:
     return versions
 
 
-__all__ = ["MANIFEST_NAME", "input_files", "input_checksums", "output_records", "scenario_tags", "class_summary", "build_manifest",
+__all__ = ["MANIFEST_NAME", "member_outputs", "input_files", "input_checksums", "output_records", "scenario_tags", "class_summary", "build_manifest",
            "uncertainty_record",
            "package_versions", "PACKAGES"]

@@ -53,6 +53,8 @@ INPUT_VARIABLES: dict[str, Variable] = {
         Variable("pet", "mm d-1", "mean daily reference (potential) evapotranspiration", (0.0, 30.0), "average", True),
         Variable("soil_water_capacity", "mm", "plant-available soil water capacity of the root zone",
                  (1.0, 2000.0), "average", False),
+        Variable("wind_speed", "m s-1", "mean wind speed at 2 m above the ground (FAO-56 Penman-Monteith PET)",
+                 (0.0, 40.0), "bilinear", True),
         Variable("vpd", "kPa", "mean daytime vapour pressure deficit", (0.0, 10.0), "bilinear", True),
         Variable("humidity", "1", "mean relative humidity as a fraction", (0.0, 1.0), "bilinear", True),
         Variable("elevation", "m", "ground elevation above sea level", (-500.0, 9000.0), "bilinear", False),
@@ -63,8 +65,22 @@ INPUT_VARIABLES: dict[str, Variable] = {
 # Aliases that mean the same quantity with the opposite sense or another name.
 WATER_LAYERS = ("water_availability", "water_stress")
 #: Layers from which water availability is derived by the soil-water balance (suitability.model).
-RAINFALL_LAYERS = ("precipitation", "pet", "soil_water_capacity")
+RAINFALL_LAYERS = ("precipitation", "pet", "soil_water_capacity", "wind_speed")
 RADIATION_LAYERS = ("shortwave", "par")
+
+#: The reference evapotranspiration the rainfall balance computes where no ``pet`` layer is given.
+PENMAN_MONTEITH = "FAO-56 Penman-Monteith (eq. 6)"
+HARGREAVES_SAMANI = "Hargreaves-Samani (FAO-56 eq. 52)"
+
+
+def pet_method(layers) -> str:
+    """Which reference evapotranspiration the rainfall balance computes from these layer names (without a
+    ``pet`` layer): FAO-56 Penman-Monteith where wind (``wind_speed``), humidity (``humidity`` or ``vpd``),
+    ``shortwave`` and ``tmin``/``tmax`` are given, else Hargreaves-Samani from Tmin and Tmax."""
+    names = set(layers)
+    if {"wind_speed", "shortwave", "tmin", "tmax"} <= names and names & {"humidity", "vpd"}:
+        return PENMAN_MONTEITH
+    return HARGREAVES_SAMANI
 
 CLASS_C3 = 1
 CLASS_CONTESTED = 2
