@@ -25,6 +25,20 @@ from suitability.variables import OUTPUT_LAYERS
 
 from test_model import synthetic_climate
 
+
+@pytest.fixture(autouse=True)
+def _registries_restored():
+    """Sets and spreads registered by a test are removed after it: other tests (e.g. the starter template's
+    list of every set) see only the package's own."""
+    sets = {pathway: dict(named) for pathway, named in PARAMETER_SETS.items()}
+    spreads = dict(PARAMETER_UNCERTAINTY)
+    yield
+    for pathway, named in sets.items():
+        PARAMETER_SETS[pathway].clear()
+        PARAMETER_SETS[pathway].update(named)
+    PARAMETER_UNCERTAINTY.clear()
+    PARAMETER_UNCERTAINTY.update(spreads)
+
 TEMPERATURES = [4.0, 12.0, 18.0, 24.0, 32.0]
 UNCERTAINTY = {"draws": 12, "seed": 7}
 
