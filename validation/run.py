@@ -70,17 +70,14 @@ def report(outcomes, figures: dict[str, bytes], draws: int, seconds: float, quic
     lines += ["## Global C4 share of GPP (optional comparison)", "", GLOBAL_SHARE_NOTE, "",
               "## Figures", ""]
     lines += [f"![{name}]({name})" for name in figures]
+    agree = [o.band.title for o in outcomes if o.passed]
+    disagree = [o.band.title for o in outcomes if not o.passed]
     lines += ["", "## What this says", "",
-              "Where the model agrees: the rise of the leaf crossover with CO2, the C4 leaves' indifference to "
-              "FACE CO2, the peak daily gross assimilation of a C4 and a C3 cereal and their ratio, and a strong "
-              "rank correlation of the C4 advantage with summer night temperature along a grassland gradient. "
-              "Where it disagrees, the reason is given under each result: the default C4 quantum yield (0.04 per "
-              "absorbed photon) lies below the measured 0.053, the default C3 grass does not acclimate to cool "
-              "climates (its canopy boundary sits about 5 °C below the published 22 °C at 350 ppm), and the model "
-              "maps a physiological advantage over the months of the growing season, not the abundance of grasses "
-              "shaped by competition, cool-season growth and land use, so it leans to C4 in cool dry places. The "
-              "parameter draws span the measured leaf crossover (see its note) and reach close to the published "
-              "canopy boundary (the percentile ties in its table): these maps need their probability layers.", ""]
+              "Where the model agrees (" + str(len(agree)) + " of " + str(len(outcomes)) + "): " + "; ".join(agree)
+              + ". Where it disagrees: " + ("; ".join(disagree) or "nowhere") + "; the reason is given under each "
+              "result. The model maps a physiological advantage over the months of the growing season, not the "
+              "abundance of grasses shaped by competition, cool-season growth and land use; the parameter draws "
+              "span the measured leaf crossover (see its note): these maps need their probability layers.", ""]
     return "\n".join(lines)
 
 
