@@ -205,6 +205,8 @@ def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
         )
     console.print(table)
     _print_assumptions(result.assumptions, "This run assumed (also in the manifest):")
+    if result.manifest.get("region_note"):  # invented_note(), recorded by the run as briefs and GeoTIFFs carry it
+        console.line(escape(result.manifest["region_note"]))
     console.line(f"Outputs: {escape(str(result.output_folder))}")
     console.line(f"Manifest: {escape(str(result.manifest_path))}")
     if result.briefs:

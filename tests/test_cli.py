@@ -102,3 +102,25 @@ def test_run_prints_the_caution_and_the_class_table(tmp_path):
     assert (out / "co2_only" / "class_transition.tif").exists()
     rerun = runner.invoke(app, ["run", str(path), "--no-progress"])
     assert rerun.exit_code == 4  # outputs exist and --overwrite was not given
+
+
+@pytest.mark.parametrize("invented", [True, False])
+def test_run_says_the_region_is_invented_only_when_the_config_says_so(tmp_path, invented):
+    # Project rule: every output of the invented demo says so; the text is suitability.caution.invented_note,
+    # the same line the briefs, GeoTIFF tags and manifest carry.
+    from suitability.caution import invented_note
+
+    path = _demo_copy(tmp_path, season={"months": [1]}, brief=None)
+    config = yaml.safe_load(path.read_text())
+    config["region"]["invented"] = invented
+    config["region"]["grid"]["bounds"] = [300000, 7300000, 320000, 7320000]  # a 20 x 20 cell corner
+    config["scenarios"] = config["scenarios"][:1]
+    config["output"]["datacube"] = False
+    path.write_text(yaml.safe_dump(config))
+    result = runner.invoke(app, ["run", str(path), "--no-progress"])
+    assert result.exit_code == 0, result.output
+    note = invented_note(config["region"]["name"])
+    assert (note in result.output) is invented
+    assert ("Invented region" in result.output) is invented
+    if invented:
+        assert result.output.index(note) < result.output.index("Outputs:")

@@ -407,7 +407,8 @@ def test_assumptions_are_listed_by_check_printed_by_run_and_recorded_in_the_mani
     assert checked.exit_code == 0, checked.output
     for words in expected:
         assert words in checked.output, words
-    assert "default set 'bernacchi2001'" not in checked.output  # the config names its C3 set
+    # The demo names its C3 set (the default one), so no note says a default was taken for C3.
+    assert f"default set '{DEFAULT_SETS['C3']}'" not in checked.output
     ran = runner.invoke(app, ["run", str(path), "--no-progress"])
     assert ran.exit_code == 0, ran.output
     for words in expected:

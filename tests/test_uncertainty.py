@@ -272,7 +272,9 @@ def test_check_lists_the_draws_and_the_run_writes_and_records_them(tmp_path):
     config = _uncertain_demo(tmp_path)
     shown = " ".join(CliRunner().invoke(app, ["check", str(config)], env={"COLUMNS": "200"}).output.split())
     assert "Parameter uncertainty: 4 draws, seed 11, latin_hypercube" in shown
-    assert "C4 alpha: uniform 0.052..0.069" in shown  # the demo's collatz1992 set (Ehleringer & Pearcy 1983)
+    # The demo's c4_tropical_grass set: from the Collatz et al. (1992) fitted 0.04 up to the NADP-ME grass
+    # yield 0.065 of Ehleringer & Pearcy (1983) (suitability/physiology/uncertainty.py, _C4_ALPHA).
+    assert "C4 alpha: uniform 0.04..0.065" in shown
     result = suitability.run(config)
     baseline, scenario = result.layers["baseline"], result.layers["co2_only"]
     assert set(model.UNCERTAINTY_LAYERS) - set(model.PAIRED_LAYERS) <= set(baseline)
@@ -326,7 +328,7 @@ def test_sensitivity_lists_each_varied_parameter_with_both_ends(tmp_path):
 
     config = _uncertain_demo(tmp_path)
     table = one_at_a_time(load_config(config))
-    varied = {f"{r['pathway']} {r['key']}" for r in varied_parameters("bernacchi2001", "collatz1992")}
+    varied = {f"{r['pathway']} {r['key']}" for r in varied_parameters("c3_temperate_grass", "c4_tropical_grass")}
     assert set(table["parameter"]) == varied | {"central"}
     shares = table[["C3 favoured %", "contested %", "C4 favoured %"]].sum(axis=1)
     np.testing.assert_allclose(shares, 100.0, rtol=1e-9)
