@@ -364,7 +364,8 @@ def _strip_axes(figure: Figure, left: float, width: float):
 
 
 def _draw_scale_bar(figure: Figure, axes, raster: _MapRaster) -> float:
-    """Scale bar below the map frame (off the data), about a quarter of the map wide; returns its length [m].
+    """Scale bar below the map frame (off the data), from its middle, a quarter of the map wide; returns its
+    length [m].
 
     Drawn in its own axes whose x axis has the map's ground scale, so the bar's length in that axes' data
     units is its length in map units."""
@@ -379,7 +380,7 @@ def _draw_scale_bar(figure: Figure, axes, raster: _MapRaster) -> float:
     bar_axes.set_xlim(left, right)
     bar_axes.set_ylim(0, 1)
     bar_axes.set_gid("scale_bar")
-    x0 = left
+    x0 = left + 0.5 * (right - left)  # mid-frame: the legends take the lower left of the page
     for i, colour in enumerate((_INK, "white")):
         bar_axes.add_patch(Rectangle((x0 + i * length_units / 2, 0.15), length_units / 2, 0.22, facecolor=colour,
                                      edgecolor=_INK, linewidth=0.8, zorder=5))
