@@ -29,8 +29,8 @@ from .grid import TargetGrid
 from .inputs import load_climate, load_mask
 from .inputs.readers import member_labels
 from .model import evaluate
-from .outputs import (check_output_folder, dictionary_path, remove_leftovers, with_sidecars, write_csv, write_data_dictionary,
-                      write_datacube, write_layers, write_manifest)
+from .outputs import (check_output_folder, dictionary_path, remove_leftovers, with_sidecars, write_csv,
+                      write_data_dictionary, write_datacube, write_layers, write_manifest)
 from .provenance import (MANIFEST_NAME, SUMMARY_COLUMNS, build_manifest, class_summary, input_checksums, input_files,
                          scenario_tags)
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
@@ -103,8 +103,9 @@ def run(
     opened and checked before anything is written; then the output folder is locked for this run
     (:class:`~suitability.runlock.RunLock`), existing outputs are checked, and each scenario is computed
     and written. A progress record (hidden file) is kept after each scenario so that an interrupted run
-    can be resumed; ``manifest.json`` and ``class_summary.csv`` of an earlier run are removed before the
-    first write and written anew at the end, so they are present only after a complete run.
+    can be resumed; ``manifest.json`` and ``class_summary.csv`` (with its ``.columns.csv``) of an earlier
+    run are removed before the first write and written anew at the end, so they are present only after a
+    complete run.
     """
     # An earlier run in this process leaves lazy arrays holding open NetCDF handles in reference cycles.
     # Collected at an arbitrary moment of this run, their closing met this run's reads of the same files and
@@ -502,7 +503,8 @@ def _warn_about_foreign_files(cfg: RunConfig, folder: Path) -> None:
         shown = ", ".join(inside[:3]) + (f" and {len(inside) - 3} more" if len(inside) > 3 else "")
         warnings.warn(f"output folder {folder} holds input files of this run ({shown}); keep outputs in a "
                       "folder of their own", stacklevel=3)
-    own = {MANIFEST_NAME, SUMMARY_NAME, dictionary_path(SUMMARY_NAME).name, PROGRESS_NAME, "brief", *(s.name for s in cfg.scenarios)}
+    own = {MANIFEST_NAME, SUMMARY_NAME, dictionary_path(SUMMARY_NAME).name, PROGRESS_NAME, "brief",
+           *(s.name for s in cfg.scenarios)}
     foreign = sorted(p.name for p in folder.iterdir()
                      if p.name not in own and not p.name.startswith(".suitability"))
     if foreign:
@@ -532,7 +534,8 @@ def _write_scenario(cfg, grid, runtime, scenario, result, written, tags, names) 
     scenario_folder = Path(cfg.output.folder) / scenario.name
     with _input_errors_named(cfg, scenario):
         with runtime.progress(f"{scenario.name}: computing and writing"):
-            paths = with_sidecars(write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=None))
+            paths = with_sidecars(write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog,
+                                               lock=None))
         if cfg.output.datacube:
             cube = result[list(layer_names(DATACUBE)) + [n for n in layer_names(DERIVED) if n in result]]
             cube.attrs.update(tags)
@@ -619,7 +622,8 @@ def _written_members(paths: dict[str, Path], computed: dict[str, xr.Dataset], ch
         layers = {}
         for key, path in paths.items():
             _, owner, name = key.split("/")
-            if owner == member and not OUTPUT_LAYERS[name].categorical:
+            # rasters only: the class layers' category sidecars (<layer>.aux.xml) are recorded here too
+            if owner == member and path.suffix == ".tif" and not OUTPUT_LAYERS[name].categorical:
                 written = rioxarray.open_rasterio(path, chunks={"x": chunk, "y": chunk}, lock=False, masked=True)
                 layers[name] = written.squeeze("band", drop=True).assign_coords(x=result.x, y=result.y).drop_vars(
                     "spatial_ref", errors="ignore").astype(np.float32)

@@ -103,7 +103,8 @@ def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
 
     Columns: scenario, valid_cells (cells with a class: C3, contested, C4 or no growing season),
     nodata_cells, and ``share_<class>`` per class as a fraction of the valid cells [0-1, 4 decimals], the
-    convention of every table the tool writes (the CLI shows them as percent)."""
+    convention of every table the tool writes (the CLI shows them as percent). The meaning and units of
+    each column: :data:`SUMMARY_COLUMNS` (written beside the CSV as ``class_summary.columns.csv``)."""
     import rasterio
 
     rows = []

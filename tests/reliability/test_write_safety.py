@@ -84,8 +84,8 @@ def test_a_link_at_a_category_sidecar_is_replaced_not_followed(tmp_path):
     sidecar = folder / "pathway_class.tif.aux.xml"
     sidecar.symlink_to(victim)
     codes = np.resize(np.array([1, 2, 3, 4, 255], np.uint8), (40, 50))
-    layer = xr.DataArray(codes, dims=("y", "x"), coords={"y": 7459500.0 - 1000 * np.arange(40),
-                                                         "x": 300500.0 + 1000 * np.arange(50)}).rio.write_crs("EPSG:32740")
+    coords = {"y": 7459500.0 - 1000 * np.arange(40), "x": 300500.0 + 1000 * np.arange(50)}
+    layer = xr.DataArray(codes, dims=("y", "x"), coords=coords).rio.write_crs("EPSG:32740")
     written = write_layers({"pathway_class": layer}, folder, cog_options={"overviews": False})
     assert pam_sidecar_path(written["pathway_class"]) == sidecar
     assert victim.read_text() == VICTIM_TEXT
