@@ -27,6 +27,12 @@ Layers (:func:`write_layers`)
     they are set on the staged COG and the file is copied once more with its overviews to restore the
     COG layout (the same final ``copy_src_overviews`` step rio-cogeo itself ends with).
 
+    Class layers also get GDAL category names and a raster attribute table (class names and colours from
+    the registry) in a PAM sidecar ``<name>.tif.aux.xml`` (:func:`category_pam_xml`; GeoTIFF has no tag
+    for them, GDAL reads the sidecar whenever it opens the file). It is written in the staging folder after
+    the COG validates and renamed just before its raster; :func:`with_sidecars` adds it to the paths the
+    manifest records.
+
     Dask chunks that are not whole multiples of the 512 tile are rechunked before writing: partial tile
     writes make GDAL rewrite compressed tiles (files up to 60 % larger for the same pixels).
 
@@ -210,9 +216,14 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
                 f"{type(error).__name__}: {error}{disk_full_hint(error, folder)}"
             ) from error
         finals = {name: _to_validated_cog(path, name, options) for name, path in staged.items()}
+        sidecars = {name: write_category_sidecar(name, path) for name, path in finals.items() if is_class_layer(name)}
         written = {}
         for name, path in finals.items():
             written[name] = folder / f"{name}.tif"
+            # The sidecar goes first: a run killed between the two renames leaves a sidecar without its
+            # raster (the layer counts as missing), never a class raster without its names.
+            if name in sidecars:
+                os.replace(sidecars[name], pam_sidecar_path(written[name]))
             os.replace(path, written[name])
         return written
     except OutputError:
@@ -224,6 +235,75 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
     finally:
         if staging is not None:
             shutil.rmtree(staging, ignore_errors=True)
+
+
+#: GDAL's Persistent Auxiliary Metadata (PAM) sidecar of a raster: ``<file name>.aux.xml`` beside it.
+PAM_SUFFIX = ".aux.xml"
+# GDALRATFieldType and GDALRATFieldUsage codes as GDAL serialises them in a PAM raster attribute table
+# (gdal.h; GDALRasterAttributeTable C++ API, https://gdal.org/en/stable/api/gdalrasterattributetable_cpp.html).
+_RAT_INTEGER, _RAT_STRING = 0, 2
+_RAT_MINMAX, _RAT_NAME, _RAT_RED, _RAT_GREEN, _RAT_BLUE = 5, 2, 6, 7, 8
+
+
+def pam_sidecar_path(raster) -> Path:
+    """``x.tif`` -> ``x.tif.aux.xml``: where GDAL looks for a raster's PAM sidecar."""
+    raster = Path(raster)
+    return raster.with_name(raster.name + PAM_SUFFIX)
+
+
+def category_pam_xml(name: str) -> str:
+    """The PAM sidecar (``<PAMDataset>``) of the class layer ``name``: GDAL category names and a thematic
+    raster attribute table (Value, Class name, Red, Green, Blue) from the registry's legend and colours.
+
+    GeoTIFF has no tag for either and rasterio cannot set them, so they go where GDAL itself keeps them
+    for a GeoTIFF: the ``.aux.xml`` sidecar, which GDAL reads whenever it opens the file. Category names
+    are a list indexed by pixel value (GDALRasterBand::GetCategoryNames), so codes without a class (0, the
+    gaps between transition codes) get an empty name; nodata (255) gets none. Written by hand with the
+    standard library because rasterio exposes neither API and the GDAL Python bindings are not a
+    dependency; tests/test_outputs.py has GDAL read it back.
+    """
+    import xml.etree.ElementTree as ET
+
+    layer = OUTPUT_LAYERS[name]
+    if not layer.categorical:
+        raise ValueError(f"{name!r} is not a class layer; only class layers get category names")
+    legend = dict(sorted(layer.legend.items()))
+    dataset = ET.Element("PAMDataset")
+    band = ET.SubElement(dataset, "PAMRasterBand", band="1")
+    categories = ET.SubElement(band, "CategoryNames")
+    for code in range(max(legend) + 1):
+        ET.SubElement(categories, "Category").text = legend.get(code, "")
+    table = ET.SubElement(band, "GDALRasterAttributeTable", tableType="thematic")
+    fields = [("Value", _RAT_INTEGER, _RAT_MINMAX), ("Class name", _RAT_STRING, _RAT_NAME),
+              ("Red", _RAT_INTEGER, _RAT_RED), ("Green", _RAT_INTEGER, _RAT_GREEN), ("Blue", _RAT_INTEGER, _RAT_BLUE)]
+    for index, (field, kind, usage) in enumerate(fields):
+        definition = ET.SubElement(table, "FieldDefn", index=str(index))
+        ET.SubElement(definition, "Name").text = field
+        ET.SubElement(definition, "Type").text = str(kind)
+        ET.SubElement(definition, "Usage").text = str(usage)
+    for row_index, (code, label) in enumerate(legend.items()):
+        row = ET.SubElement(table, "Row", index=str(row_index))
+        red, green, blue = layer.colours[code][:3]
+        for value in (code, label, red, green, blue):
+            ET.SubElement(row, "F").text = str(value)
+    ET.indent(dataset)
+    return ET.tostring(dataset, encoding="unicode") + "\n"
+
+
+def write_category_sidecar(name: str, raster) -> Path:
+    """Write :func:`category_pam_xml` of ``name`` beside ``raster`` (atomically); return the sidecar's path."""
+    return write_text_atomic(pam_sidecar_path(raster), category_pam_xml(name), what="the category names")
+
+
+def with_sidecars(paths: Mapping[str, Path]) -> dict[str, Path]:
+    """``paths`` (name -> written file) plus ``<name>.aux.xml`` -> the PAM sidecar of each that has one, so
+    that the manifest and the resume records list (and check) the sidecars with their rasters."""
+    found = dict(paths)
+    for name, path in paths.items():
+        sidecar = pam_sidecar_path(path)
+        if sidecar.is_file():
+            found[f"{name}{PAM_SUFFIX}"] = sidecar
+    return found
 
 
 def write_datacube(ds: xr.Dataset, path) -> Path:
@@ -548,6 +628,11 @@ def _json_ready(value: Any):
 
 __all__ = [
     "write_layers",
+    "write_category_sidecar",
+    "category_pam_xml",
+    "pam_sidecar_path",
+    "with_sidecars",
+    "PAM_SUFFIX",
     "write_datacube",
     "write_manifest",
     "file_checksum",

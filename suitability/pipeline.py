@@ -29,8 +29,10 @@ from .grid import TargetGrid
 from .inputs import load_climate, load_mask
 from .inputs.readers import member_labels
 from .model import evaluate
-from .outputs import check_output_folder, remove_leftovers, write_csv, write_datacube, write_layers, write_manifest
-from .provenance import MANIFEST_NAME, build_manifest, class_summary, input_checksums, input_files, scenario_tags
+from .outputs import (check_output_folder, dictionary_path, remove_leftovers, with_sidecars, write_csv,
+                      write_data_dictionary, write_datacube, write_layers, write_manifest)
+from .provenance import (MANIFEST_NAME, SUMMARY_COLUMNS, build_manifest, class_summary, input_checksums, input_files,
+                         scenario_tags)
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
 from .runlock import RunLock
 from .runtime import compute_context
@@ -101,8 +103,9 @@ def run(
     opened and checked before anything is written; then the output folder is locked for this run
     (:class:`~suitability.runlock.RunLock`), existing outputs are checked, and each scenario is computed
     and written. A progress record (hidden file) is kept after each scenario so that an interrupted run
-    can be resumed; ``manifest.json`` and ``class_summary.csv`` of an earlier run are removed before the
-    first write and written anew at the end, so they are present only after a complete run.
+    can be resumed; ``manifest.json`` and ``class_summary.csv`` (with its ``.columns.csv``) of an earlier
+    run are removed before the first write and written anew at the end, so they are present only after a
+    complete run.
     """
     # An earlier run in this process leaves lazy arrays holding open NetCDF handles in reference cycles.
     # Collected at an arbitrary moment of this run, their closing met this run's reads of the same files and
@@ -181,6 +184,7 @@ def run(
             manifest["input_warnings"] = input_warnings
             # The summary and the manifest are the last two files, written only when everything else is:
             # their presence says the run finished (a crash in the briefs leaves neither).
+            write_data_dictionary(SUMMARY_COLUMNS, dictionary_path(folder / SUMMARY_NAME))
             write_csv(summary, folder / SUMMARY_NAME)
             manifest_path = write_manifest(manifest, folder / MANIFEST_NAME)
             (folder / PROGRESS_NAME).unlink(missing_ok=True)
@@ -499,7 +503,8 @@ def _warn_about_foreign_files(cfg: RunConfig, folder: Path) -> None:
         shown = ", ".join(inside[:3]) + (f" and {len(inside) - 3} more" if len(inside) > 3 else "")
         warnings.warn(f"output folder {folder} holds input files of this run ({shown}); keep outputs in a "
                       "folder of their own", stacklevel=3)
-    own = {MANIFEST_NAME, SUMMARY_NAME, PROGRESS_NAME, "brief", *(s.name for s in cfg.scenarios)}
+    own = {MANIFEST_NAME, SUMMARY_NAME, dictionary_path(SUMMARY_NAME).name, PROGRESS_NAME, "brief",
+           *(s.name for s in cfg.scenarios)}
     foreign = sorted(p.name for p in folder.iterdir()
                      if p.name not in own and not p.name.startswith(".suitability"))
     if foreign:
@@ -516,7 +521,7 @@ def _prepare_folder(cfg: RunConfig, folder: Path, to_compute, layers_of, *, repl
                   for n in member_layers(layers_of(s))]
     names += [f"{s.name}/{DATACUBE_NAME}" for s in to_compute] if cfg.output.datacube else []
     check_output_folder(folder, names, replace)
-    for stale in (MANIFEST_NAME, SUMMARY_NAME):
+    for stale in (MANIFEST_NAME, SUMMARY_NAME, dictionary_path(SUMMARY_NAME).name):
         (folder / stale).unlink(missing_ok=True)
 
 
@@ -529,7 +534,8 @@ def _write_scenario(cfg, grid, runtime, scenario, result, written, tags, names) 
     scenario_folder = Path(cfg.output.folder) / scenario.name
     with _input_errors_named(cfg, scenario):
         with runtime.progress(f"{scenario.name}: computing and writing"):
-            paths = write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, lock=None)
+            paths = with_sidecars(write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog,
+                                               lock=None))
         if cfg.output.datacube:
             cube = result[list(layer_names(DATACUBE)) + [n for n in layer_names(DERIVED) if n in result]]
             cube.attrs.update(tags)
@@ -600,8 +606,8 @@ def _write_members(cfg, grid, runtime, scenario, members: dict[str, xr.Dataset],
         layers = {n: _georeferenced(result[n], grid) for n in member_layers(names)}
         folder = Path(cfg.output.folder) / scenario.name / MEMBERS_FOLDER / member
         with runtime.progress(f"{scenario.name}/{member}: computing and writing"):
-            written = write_layers(layers, folder, tags={**tags, "ensemble_member": member}, cog_options=cfg.output.cog,
-                                   lock=None)
+            written = with_sidecars(write_layers(layers, folder, tags={**tags, "ensemble_member": member},
+                                                 cog_options=cfg.output.cog, lock=None))
         paths.update({f"{MEMBERS_FOLDER}/{member}/{n}": p for n, p in written.items()})
     return paths
 
@@ -616,7 +622,8 @@ def _written_members(paths: dict[str, Path], computed: dict[str, xr.Dataset], ch
         layers = {}
         for key, path in paths.items():
             _, owner, name = key.split("/")
-            if owner == member and not OUTPUT_LAYERS[name].categorical:
+            # rasters only: the class layers' category sidecars (<layer>.aux.xml) are recorded here too
+            if owner == member and path.suffix == ".tif" and not OUTPUT_LAYERS[name].categorical:
                 written = rioxarray.open_rasterio(path, chunks={"x": chunk, "y": chunk}, lock=False, masked=True)
                 layers[name] = written.squeeze("band", drop=True).assign_coords(x=result.x, y=result.y).drop_vars(
                     "spatial_ref", errors="ignore").astype(np.float32)

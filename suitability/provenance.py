@@ -86,12 +86,25 @@ def scenario_tags(scenario, config_hash: str, scenario_hash: str, *, invented_re
     }
 
 
+#: The data dictionary of ``class_summary.csv`` (written beside it as ``class_summary.columns.csv``):
+#: every column of :func:`class_summary` with its meaning and, in the last [brackets], its units.
+SUMMARY_COLUMNS: dict[str, str] = {
+    "scenario": "scenario name, as in the config's scenarios [none: text]",
+    "valid_cells": "grid cells of the scenario's pathway_class map with a class (C3, contested, C4 or no "
+                   "growing season) [cells]",
+    "nodata_cells": "grid cells of the map without a result (outside the mask, nodata or invalid input) [cells]",
+    **{f"share_{key}": f"share of the valid cells where the map shows {CLASS_NAMES[code]!r} (cells / valid_cells, "
+                       "4 decimals) [0-1]" for code, key in SHARE_KEYS.items()},
+}
+
+
 def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
     """Share of valid cells per class for each scenario's ``pathway_class`` COG, read window by window.
 
     Columns: scenario, valid_cells (cells with a class: C3, contested, C4 or no growing season),
     nodata_cells, and ``share_<class>`` per class as a fraction of the valid cells [0-1, 4 decimals], the
-    convention of every table the tool writes (the CLI shows them as percent)."""
+    convention of every table the tool writes (the CLI shows them as percent). The meaning and units of
+    each column: :data:`SUMMARY_COLUMNS` (written beside the CSV as ``class_summary.columns.csv``)."""
     import rasterio
 
     rows = []
@@ -187,6 +200,6 @@ def package_versions() -> dict[str, str | None]:
     return versions
 
 
-__all__ = ["MANIFEST_NAME", "member_outputs", "input_files", "input_checksums", "output_records", "scenario_tags", "class_summary", "build_manifest",
+__all__ = ["MANIFEST_NAME", "SUMMARY_COLUMNS", "member_outputs", "input_files", "input_checksums", "output_records", "scenario_tags", "class_summary", "build_manifest",
            "uncertainty_record",
            "package_versions", "PACKAGES"]

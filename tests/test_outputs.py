@@ -13,6 +13,11 @@ External references used below:
   GDAL's GTiff driver page.
 - NetCDF: CF conventions grid mapping read back with ``pyproj.CRS.from_cf`` and by GDAL's netCDF driver.
 - SHA-256: FIPS 180-2 (NIST 2002), appendix B example messages and digests.
+- Category names and raster attribute tables: GDAL's Persistent Auxiliary Metadata (PAM, ``<file>.aux.xml``,
+  declared in gdal_pam.h, https://gdal.org/en/stable/doxygen/gdal__pam_8h_source.html: GCIF_CATEGORYNAMES)
+  and the GDALRasterAttributeTable C++ API page (https://gdal.org/en/stable/api/gdalrasterattributetable_cpp.html:
+  GFU_MinMax class value, GFU_Name class name, GFU_Red/Green/Blue class colour). GDAL itself is the oracle:
+  it reads our sidecar when it opens the GeoTIFF and writes what it read into a VRT copy.
 The rasters are random numbers on a made-up grid placed in the invented Kessarine Basin (UTM 40S).
 """
 
@@ -41,13 +46,15 @@ from suitability.outputs import (
     CLASS_TRANSITION_COLOURS,
     PATHWAY_CLASS_COLOURS,
     check_output_folder,
+    pam_sidecar_path,
+    with_sidecars,
     file_checksum,
     write_datacube,
     write_layers,
     write_manifest,
 )
 from suitability.runtime import compute_context
-from suitability.variables import OUTPUT_VARIABLES
+from suitability.variables import OUTPUT_LAYERS, OUTPUT_VARIABLES
 
 HEIGHT, WIDTH = 700, 1100  # > 512 both ways, so COG overviews are required
 TRANSFORM = Affine(1000.0, 0.0, 300000.0, 0.0, -1000.0, 7460000.0)
@@ -91,6 +98,11 @@ def our_files(folder: Path) -> list[str]:
     return sorted(p.name for p in folder.iterdir())
 
 
+def expected_files(names) -> list[str]:
+    """The files write_layers leaves for these layers: each COG, and the PAM sidecar of each class layer."""
+    return sorted([f"{n}.tif" for n in names] + [f"{n}.tif.aux.xml" for n in names if OUTPUT_LAYERS[n].categorical])
+
+
 @pytest.fixture(scope="module")
 def written(tmp_path_factory):
     folder = tmp_path_factory.mktemp("scenario")
@@ -106,8 +118,9 @@ def test_every_layer_is_a_valid_cog(written):
         # COG spec as checked by rio-cogeo's validator (strict: warnings count as failures)
         valid, errors, warnings = cog_validate(path, strict=True, quiet=True)
         assert valid, (name, errors, warnings)
-    # nothing else left in the folder: no temporaries, no staging folder
-    assert our_files(folder) == sorted(f"{n}.tif" for n in layers)
+    # nothing else left in the folder: no temporaries, no staging folder; class layers have their sidecar
+    assert our_files(folder) == expected_files(layers)
+    assert sum(name.endswith(".aux.xml") for name in our_files(folder)) == 2  # pathway_class, class_transition
 
 
 def test_grid_dtype_and_nodata_equal_the_input(written):
@@ -213,6 +226,71 @@ def test_class_layers_carry_their_colour_table(written):
     # our palette: three distinct readable classes, and nodata transparent
     assert len({PATHWAY_CLASS_COLOURS[c] for c in (1, 2, 3)}) == 3
     assert PATHWAY_CLASS_COLOURS[255][3] == 0 and CLASS_TRANSITION_COLOURS[255][3] == 0
+
+
+def gdal_read_categories(path: Path) -> tuple[list[str], list[tuple], dict]:
+    """Category names and raster attribute table of band 1 as GDAL reads them on opening ``path``.
+
+    rasterio has no API for either; GDAL's VRT driver writes the band's category names and attribute table
+    into the VRT XML (CreateCopy copies them from the source band), so a VRT copy shows what GDAL read."""
+    import xml.etree.ElementTree as ET
+
+    from rasterio.shutil import copy
+
+    vrt = path.with_name(path.stem + ".check.vrt")
+    copy(path, vrt, driver="VRT")
+    band = ET.parse(vrt).getroot().find("VRTRasterBand")
+    vrt.unlink()
+    names = [c.text or "" for c in band.findall("CategoryNames/Category")]
+    table = band.find("GDALRasterAttributeTable")
+    if table is None:
+        return names, [], {}
+    fields = {int(f.find("Usage").text): f.find("Name").text for f in table.findall("FieldDefn")}
+    rows = [tuple(f.text or "" for f in row.findall("F")) for row in table.findall("Row")]
+    return names, rows, {"type": table.get("tableType"), "usage": fields}
+
+
+def test_class_layers_carry_gdal_category_names_and_attribute_table(written):
+    folder, layers, paths = written
+    for name in ("pathway_class", "class_transition"):
+        legend, colours = OUTPUT_LAYERS[name].legend, OUTPUT_LAYERS[name].colours
+        assert pam_sidecar_path(paths[name]).is_file()
+        names, rows, table = gdal_read_categories(paths[name])
+        # GDAL category names are indexed by pixel value (GDALRasterBand::GetCategoryNames)
+        assert names == [legend.get(code, "") for code in range(max(legend) + 1)], name
+        assert {code: names[code] for code in legend} == legend
+        # RAT field usages (GDALRATFieldUsage): 5 GFU_MinMax, 2 GFU_Name, 6/7/8 GFU_Red/Green/Blue
+        assert table["type"] == "thematic" and set(table["usage"]) == {5, 2, 6, 7, 8}
+        assert [(int(r[0]), r[1], tuple(int(v) for v in r[2:])) for r in rows] == [
+            (code, legend[code], colours[code][:3]) for code in sorted(legend)]
+        # the COG beside its sidecar still validates, and GDAL still reads the embedded colour table
+        assert cog_validate(paths[name], strict=True, quiet=True)[0]
+        with rasterio.open(paths[name]) as src:
+            first = min(legend)
+            assert src.colormap(1)[first] == colours[first]
+    for name in ("pathway_advantage", "advantage_change"):  # continuous layers get no sidecar
+        assert not pam_sidecar_path(paths[name]).exists()
+        assert gdal_read_categories(paths[name]) == ([], [], {})
+    assert set(with_sidecars(paths)) == set(paths) | {"pathway_class.aux.xml", "class_transition.aux.xml"}
+
+
+@pytest.mark.parametrize("name", [n for n, layer in OUTPUT_VARIABLES.items() if layer.categorical])
+def test_every_class_layer_of_the_registry_gets_its_legend_as_category_names(name, tmp_path):
+    # every categorical layer of the registry (pathway_class, class_transition, change_agreement,
+    # confidence_class, ...), each written with its own codes on a small grid (no overviews needed)
+    legend = OUTPUT_LAYERS[name].legend
+    codes = np.resize(np.array(sorted(legend) + [255], np.uint8), 160 * 200).reshape(160, 200)
+    layer = xr.DataArray(da.from_array(codes, chunks=512), dims=("y", "x"),
+                         coords={"y": 7459500.0 - 1000 * np.arange(160), "x": 300500.0 + 1000 * np.arange(200)}
+                         ).rio.write_crs(CRS)
+    paths = write_layers({name: layer}, tmp_path, tags=TAGS, cog_options={"overviews": False})
+    assert our_files(tmp_path) == [f"{name}.tif", f"{name}.tif.aux.xml"]
+    names, rows, _ = gdal_read_categories(paths[name])
+    assert {code: names[code] for code in legend} == legend
+    assert not [n for code, n in enumerate(names) if code not in legend and n]  # no name for unused codes
+    assert [(int(r[0]), r[1]) for r in rows] == sorted(legend.items())
+    assert cog_validate(paths[name], strict=True, quiet=True)[0]
+    np.testing.assert_array_equal(read_band(paths[name]), codes)
 
 
 def test_all_layers_are_computed_in_one_dask_pass(tmp_path):
@@ -410,7 +488,7 @@ def test_write_through_a_local_cluster_matches_the_threaded_write(written, tmp_p
     for name, path in paths.items():
         assert cog_validate(path, strict=True, quiet=True)[0]
         np.testing.assert_array_equal(read_band(path), read_band(threaded_paths[name]))
-    assert our_files(tmp_path) == sorted(f"{n}.tif" for n in layers)
+    assert our_files(tmp_path) == expected_files(layers)
 
 
 def test_datacube_is_cf_netcdf_with_the_grid(tmp_path):

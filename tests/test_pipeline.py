@@ -144,6 +144,51 @@ def test_manifest_records_config_inputs_and_outputs(demo_run):
     assert "not yield forecasts" in manifest["caution"]
 
 
+def test_class_rasters_have_their_category_sidecar_recorded_in_the_manifest(demo_run):
+    # The PAM sidecar (<name>.tif.aux.xml, GDAL's Persistent Auxiliary Metadata, gdal_pam.h) of every class
+    # layer lies beside its COG and is recorded, with its checksum, among the scenario's outputs.
+    import xml.etree.ElementTree as ET
+
+    from suitability.outputs import file_checksum, pam_sidecar_path
+    from suitability.variables import OUTPUT_LAYERS
+
+    manifest = json.loads(demo_run.manifest_path.read_text())
+    for scenario, layers in demo_run.layers.items():
+        classes = [n for n, p in layers.items() if p.suffix == ".tif" and OUTPUT_LAYERS[n].categorical]
+        assert "pathway_class" in classes and (scenario == "baseline" or "class_transition" in classes)
+        for name in classes:
+            sidecar = pam_sidecar_path(layers[name])
+            entry = manifest["outputs"][scenario][f"{name}.aux.xml"]
+            assert entry["path"] == str(sidecar) and entry["sha256"] == file_checksum(sidecar)
+            legend = OUTPUT_LAYERS[name].legend
+            names = [c.text or "" for c in ET.parse(sidecar).getroot().iter("Category")]
+            assert {code: names[code] for code in legend} == legend  # GDAL reads them: tests/test_outputs.py
+
+
+def test_class_summary_has_a_data_dictionary_with_units(demo_run):
+    # Every column of class_summary.csv has an entry in class_summary.columns.csv with its units
+    # (issue 14: "units in CSV headers or a data dictionary beside each CSV"), and the values agree with them.
+    import pandas as pd
+
+    folder = demo_run.output_folder
+    summary = pd.read_csv(folder / "class_summary.csv")
+    dictionary = pd.read_csv(folder / "class_summary.columns.csv", keep_default_na=False)
+    assert list(dictionary["column"]) == list(summary.columns)
+    units = dict(zip(dictionary["column"], dictionary["units"]))
+    assert all(units[column].strip() for column in summary.columns), units
+    assert all(meaning.strip() for meaning in dictionary["meaning"])
+    for column, unit in units.items():
+        if unit == "0-1":
+            assert summary[column].between(0, 1).all(), column
+        elif unit == "cells":
+            assert (summary[column] >= 0).all() and (summary[column] % 1 == 0).all(), column
+    shares = [c for c, u in units.items() if u == "0-1"]
+    assert len(shares) == 4 and np.allclose(summary[shares].sum(axis=1), 1.0, atol=5e-4)  # 4 classes, rounded
+    with rasterio.open(demo_run.layers["baseline"]["pathway_class"]) as src:
+        cells = src.width * src.height
+    assert (summary["valid_cells"] + summary["nodata_cells"] == cells).all()
+
+
 def test_datacube_has_monthly_values(demo_run):
     import xarray as xr
 

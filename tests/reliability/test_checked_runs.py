@@ -282,3 +282,4 @@ def test_a_crash_in_the_briefs_leaves_no_summary_or_manifest(tmp_path, monkeypat
     out = tmp_path / "out"
     assert (out / "baseline" / "pathway_class.tif").exists()  # the scenario finished
     assert not (out / "class_summary.csv").exists() and not (out / "manifest.json").exists()
+    assert not (out / "class_summary.columns.csv").exists()  # its data dictionary comes with it

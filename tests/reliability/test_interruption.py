@@ -13,13 +13,15 @@ import os
 import signal
 import subprocess
 import time
+import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import pytest
 from rio_cogeo.cogeo import cog_validate
 
-from suitability.outputs import STAGING_PREFIX
+from suitability.outputs import STAGING_PREFIX, pam_sidecar_path
 from suitability.runlock import LOCK_NAME
+from suitability.variables import OUTPUT_LAYERS
 
 from .conftest import SUITABILITY, cli, demo_config, write_config
 
@@ -60,10 +62,19 @@ def _visible(folder: Path) -> list[Path]:
 def _assert_nothing_half_finished(folder: Path) -> None:
     names = {str(p.relative_to(folder)) for p in _visible(folder)}
     assert "manifest.json" not in names and "class_summary.csv" not in names, names
-    for path in _visible(folder):
+    visible = _visible(folder)
+    for path in visible:
+        if path.name.endswith(".tif.aux.xml"):
+            # a class layer's category names (GDAL PAM sidecar), complete: it is written whole and renamed
+            # before its raster, so a sidecar may stand alone but never a class raster without its names
+            assert OUTPUT_LAYERS[path.name.removesuffix(".tif.aux.xml")].categorical, path
+            assert ET.parse(path).getroot().find("PAMRasterBand/CategoryNames") is not None, path
+            continue
         assert path.suffix == ".tif", path
         valid, errors, _ = cog_validate(str(path), quiet=True)  # rio-cogeo's COG validator
         assert valid, (path, errors)
+        if OUTPUT_LAYERS[path.stem].categorical:
+            assert pam_sidecar_path(path) in visible, path
     assert any(n.startswith("baseline/") for n in names)  # the finished baseline is kept
 
 

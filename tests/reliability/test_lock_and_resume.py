@@ -172,6 +172,18 @@ def test_resume_recomputes_a_scenario_whose_output_was_damaged(tmp_path, finishe
         assert src.read(1).shape == (160, 200)  # whole again
 
 
+def test_resume_recomputes_a_scenario_whose_category_sidecar_was_lost(tmp_path, finished_run):
+    # The class layers' category names (PAM sidecar <name>.tif.aux.xml) are outputs like the rasters:
+    # recorded with their checksum, so a lost one makes the scenario be computed again.
+    config, folder = _finished_copy(tmp_path, finished_run)
+    lost = folder / "co2_only" / "class_transition.tif.aux.xml"
+    assert "class_transition.aux.xml" in json.loads((folder / "manifest.json").read_text())["outputs"]["co2_only"]
+    lost.unlink()
+    _, manifest = _resume(config)
+    assert manifest["resumed_scenarios"] == ["baseline"]
+    assert "<CategoryNames>" in lost.read_text()  # written again
+
+
 def test_resume_keeps_old_scenarios_and_computes_a_new_one(tmp_path, finished_run):
     config, folder = _finished_copy(tmp_path, finished_run)
     cfg = yaml.safe_load(config.read_text())

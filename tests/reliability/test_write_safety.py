@@ -70,6 +70,28 @@ def test_a_link_at_the_final_name_is_replaced_not_followed(tmp_path, name):
     assert not (folder / name).is_symlink() and (folder / name).read_text() == "new content\n"
 
 
+def test_a_link_at_a_category_sidecar_is_replaced_not_followed(tmp_path):
+    # The PAM sidecar of a class layer (<name>.tif.aux.xml) is renamed into place like the raster itself.
+    import numpy as np
+    import rioxarray  # noqa: F401
+    import xarray as xr
+
+    from suitability.outputs import pam_sidecar_path, write_layers
+
+    victim = _victim(tmp_path)
+    folder = tmp_path / "out"
+    folder.mkdir()
+    sidecar = folder / "pathway_class.tif.aux.xml"
+    sidecar.symlink_to(victim)
+    codes = np.resize(np.array([1, 2, 3, 4, 255], np.uint8), (40, 50))
+    coords = {"y": 7459500.0 - 1000 * np.arange(40), "x": 300500.0 + 1000 * np.arange(50)}
+    layer = xr.DataArray(codes, dims=("y", "x"), coords=coords).rio.write_crs("EPSG:32740")
+    written = write_layers({"pathway_class": layer}, folder, cog_options={"overviews": False})
+    assert pam_sidecar_path(written["pathway_class"]) == sidecar
+    assert victim.read_text() == VICTIM_TEXT
+    assert not sidecar.is_symlink() and "<CategoryNames>" in sidecar.read_text()
+
+
 @pytest.mark.parametrize("planted", [
     ".kessarine_basin_baseline.html.tmp-{pid}.html",  # the old fixed temporary name, with this pid
     ".kessarine_basin_baseline.tmp.html",             # the fixed name the issue reports for briefs
