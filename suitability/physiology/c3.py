@@ -42,7 +42,7 @@ import numpy as np
 from . import array_ops as ops
 from .elementwise import equation
 from .models import LeafModel, LeafRates, register_leaf_model
-from .rubisco import effective_michaelis_constant, rubisco_constants
+from .rubisco import effective_michaelis_constant, effective_michaelis_constant_given_ratio, rubisco_constants
 from .temperature import KELVIN_OFFSET, R_GAS, arrhenius, peaked_arrhenius, q10_response
 
 #: A capacity that never limits (an unlimited Jmax or Tp) [µmol m-2 s-1]. A large finite number rather
@@ -186,8 +186,16 @@ def fvcb(co2_pa, o2_pa, absorbed_par, vcmax, jmax, tpu, rd, kc, ko, gamma_star, 
     standard form (gross = 3 Tp, module docstring), 3 Tp/(C − Γ*); the smallest ρ limits, gross =
     ρ (C − Γ*) and photorespiration = ρ Γ*, which stays finite at C = 0. TPU can limit only where C > Γ*.
     """
+    return fvcb_given_km(co2_pa, absorbed_par, vcmax, jmax, tpu, rd, effective_michaelis_constant(kc, ko, o2_pa),
+                         gamma_star, theta, spectral_correction)
+
+
+@equation
+def fvcb_given_km(co2_pa, absorbed_par, vcmax, jmax, tpu, rd, km, gamma_star, theta, spectral_correction):
+    """:func:`fvcb` with the effective Michaelis constant Km = Kc (1 + O/Ko) [Pa] given (O2 enters only
+    through it and Γ*); other arguments as there. Returns :class:`C3Rates`."""
     electron_transport = electron_transport_rate(absorbed_par, jmax, theta, spectral_correction)
-    rate_rubisco = vcmax / (co2_pa + effective_michaelis_constant(kc, ko, o2_pa))
+    rate_rubisco = vcmax / (co2_pa + km)
     light_denominator = 4.0 * co2_pa + 8.0 * gamma_star
     # Divisions are guarded rather than left to produce inf/NaN: under dask, np.errstate does not reach
     # the computation and the warnings would surface. C = Γ* = 0 (no CO2, no O2) leaves Rubisco limiting.
@@ -211,8 +219,9 @@ def fvcb(co2_pa, o2_pa, absorbed_par, vcmax, jmax, tpu, rd, kc, ko, gamma_star, 
 def fvcb_temperature_terms(temperature_c, params) -> tuple:
     """Temperature terms of the FvCB model for the compiled engine's tables and the numpy engine.
 
-    Returns (Kc [Pa], Ko [Pa], Γ* per Pa of O2 [-], Vcmax, Jmax, Tp, Rd [µmol m-2 s-1]) at leaf temperature
+    Returns (Kc [Pa], Kc/Ko [-], Γ* per Pa of O2 [-], Vcmax, Jmax, Tp, Rd [µmol m-2 s-1]) at leaf temperature
     ``temperature_c`` [°C] for a resolved C3 mapping; an unlimited Jmax or Tp is :data:`UNLIMITED_RATE`.
+    Kc/Ko rather than Ko: Km = Kc + O · Kc/Ko then needs no division per leaf.
     """
     kc, ko, gamma_per_o2 = rubisco_constants(params["kinetics"], temperature_c, 1.0)  # Γ* ∝ O: at O = 1 Pa
     vcmax_factor, jmax_factor, rd_factor = capacity_temperature_factors(
@@ -220,7 +229,7 @@ def fvcb_temperature_terms(temperature_c, params) -> tuple:
     )
     jmax = UNLIMITED_RATE if math.isinf(params["jmax25"]) else params["jmax25"] * jmax_factor
     tpu = UNLIMITED_RATE if math.isinf(params["tpu25"]) else params["tpu25"] * vcmax_factor  # Tp follows Vcmax
-    return (kc, ko, gamma_per_o2, params["vcmax25"] * vcmax_factor, jmax, tpu, params["rd25"] * rd_factor)
+    return (kc, kc / ko, gamma_per_o2, params["vcmax25"] * vcmax_factor, jmax, tpu, params["rd25"] * rd_factor)
 
 
 def fvcb_constants(params) -> tuple:
@@ -233,8 +242,9 @@ def fvcb_leaf_rates(terms, constants, absorbed_par, co2_pa, o2_pa, capacity_scal
     """The FvCB leaf from its temperature terms (:func:`fvcb_temperature_terms`) and constants
     (:func:`fvcb_constants`): absorbed PAR [µmol m-2 s-1], CO2 and O2 at Rubisco [Pa], ``capacity_scale``
     [-] on Vcmax. Returns :class:`~suitability.physiology.models.LeafRates`."""
-    rates = fvcb(co2_pa, o2_pa, absorbed_par, terms[3] * capacity_scale, terms[4], terms[5], terms[6],
-                 terms[0], terms[1], terms[2] * o2_pa, constants[0], constants[1])
+    rates = fvcb_given_km(co2_pa, absorbed_par, terms[3] * capacity_scale, terms[4], terms[5], terms[6],
+                          effective_michaelis_constant_given_ratio(terms[0], terms[1], o2_pa), terms[2] * o2_pa,
+                          constants[0], constants[1])
     return LeafRates(rates.net, rates.gross, rates.photorespiration, rates.limitation, ops.nan, ops.nan)
 
 
