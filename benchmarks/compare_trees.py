@@ -55,13 +55,14 @@ start = time.perf_counter()
 run({k: v[:64] for k, v in cells.items()})
 load = time.perf_counter() - start
 run(cells)
-times = []
+times, cpu = [], []
 for _ in range(repeats):
-    start = time.perf_counter()
+    start, start_cpu = time.perf_counter(), time.thread_time()
     run(cells)
     times.append(time.perf_counter() - start)
-print(json.dumps({"load_s": load, "times_s": times, "median_s": statistics.median(times),
-                  "file": kernel.__file__}))
+    cpu.append(time.thread_time() - start_cpu)
+print(json.dumps({"load_s": load, "times_s": times, "median_s": statistics.median(times), "cpu_s": cpu,
+                  "median_cpu_s": statistics.median(cpu), "file": kernel.__file__}))
 """
 
 _REGION_CHILD = r"""
@@ -91,18 +92,25 @@ def kernel_rounds(trees: dict, n_cells: int, rounds: int, repeats: int, scratch:
     for tree in trees.values():  # compile or load numba's cache once, untimed
         _child(tree, _KERNEL_CHILD, cells_file, 1)
     rates = {name: [] for name in trees}
+    cpu_rates = {name: [] for name in trees}
     names = list(trees)
     for round_ in range(rounds):
         order = names if round_ % 2 == 0 else names[::-1]
         for name in order:
             measured = json.loads(_child(trees[name], _KERNEL_CHILD, cells_file, repeats))
             rates[name].append(n_cells * 12 / measured["median_s"])
-            print(f"  kernel round {round_} {name}: {rates[name][-1] / 1e6:.3f} M cell-steps/s", flush=True)
+            cpu_rates[name].append(n_cells * 12 / measured["median_cpu_s"])
+            print(f"  kernel round {round_} {name}: {rates[name][-1] / 1e6:.3f} M cell-steps/s wall, "
+                  f"{cpu_rates[name][-1] / 1e6:.3f} M per CPU second", flush=True)
     ratios = [new / old for new, old in zip(rates["new"], rates["old"])]
+    cpu_ratios = [new / old for new, old in zip(cpu_rates["new"], cpu_rates["old"])]
     return {"cells": n_cells, "rounds": rounds, "repeats_per_round": repeats,
-            "cell_steps_per_s": rates,
+            "cell_steps_per_s": rates, "cell_steps_per_cpu_s": cpu_rates,
             "median_cell_steps_per_s": {name: statistics.median(values) for name, values in rates.items()},
-            "paired_ratios_new_over_old": ratios, "median_ratio_new_over_old": statistics.median(ratios)}
+            "median_cell_steps_per_cpu_s": {name: statistics.median(values) for name, values in cpu_rates.items()},
+            "paired_ratios_new_over_old": ratios, "median_ratio_new_over_old": statistics.median(ratios),
+            "paired_cpu_ratios_new_over_old": cpu_ratios,
+            "median_cpu_ratio_new_over_old": statistics.median(cpu_ratios)}
 
 
 def end_to_end_rounds(trees: dict, size: int, rounds: int, scratch: Path) -> dict:
@@ -139,6 +147,39 @@ def _measure(tree: Path, config: Path) -> dict:
             "peak_rss_mib": round(usage.ru_maxrss / 1024, 1)}
 
 
+def markdown(result: dict) -> str:
+    old, new = result["commits"]["old"], result["commits"]["new"]
+    lines = [f"# Side-by-side run {result['created']}: {old} (old) against {new} (new)", "",
+             f"Machine: {result.get('cpu', 'unknown')}, {os.cpu_count()} cores; load average at start "
+             f"{tuple(round(v, 2) for v in result['load_average_at_start'])}, at end "
+             f"{tuple(round(v, 2) for v in result['load_average_at_end'])} (other work shared the machine). "
+             "Each tree in its own processes, alternately (benchmarks/compare_trees.py). Invented inputs "
+             "(benchmarks/synthetic.py). Ratios are medians of the pairs measured back to back.", ""]
+    k = result.get("kernel")
+    if k:
+        lines += [f"## Kernel, one thread, {k['cells']} cells x 12 months ({k['rounds']} rounds x {k['repeats_per_round']} runs)", "",
+                  "| tree | median cell-steps/s (wall) | median cell-steps per CPU second |", "|---|---|---|"]
+        for name in ("old", "new"):
+            lines.append(f"| {name} ({result['commits'][name]}) | {k['median_cell_steps_per_s'][name] / 1e6:.2f} M | "
+                         f"{k['median_cell_steps_per_cpu_s'][name] / 1e6:.2f} M |")
+        lines += ["", f"New over old, per CPU second: median {k['median_cpu_ratio_new_over_old']:.3f} (pairs: "
+                  + ", ".join(f"{r:.2f}" for r in k["paired_cpu_ratios_new_over_old"]) + f"); wall: median "
+                  f"{k['median_ratio_new_over_old']:.3f}.", ""]
+    if result.get("end_to_end"):
+        lines += ["## End to end (`suitability run`, 12 months x 3 scenarios, all layers, COG)", "",
+                  "| cells | tree | median wall s | median CPU s | median peak RSS MiB | runs (wall s) |", "|---|---|---|---|---|---|"]
+        for row in result["end_to_end"]:
+            for name in ("old", "new"):
+                runs = row["runs"][name]
+                cpu = sorted(r["cpu_s"] for r in runs)[len(runs) // 2]
+                lines.append(f"| {row['size']}² | {name} | {row['median_wall_s'][name]:.1f} | {cpu:.0f} | "
+                             f"{row['median_peak_rss_mib'][name]:.0f} | " + ", ".join(f"{r['wall_s']:.1f}" for r in runs) + " |")
+            lines.append(f"| {row['size']}² | old wall / new wall | {row['median_speedup']:.3f} | | | " +
+                         ", ".join(f"{r:.2f}" for r in row["paired_speedups_old_wall_over_new_wall"]) + " |")
+        lines.append("")
+    return "\n".join(lines)
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--old", type=Path, required=True, help="the other tree (e.g. a worktree of an older commit)")
@@ -153,7 +194,10 @@ def main() -> None:
     trees = {"old": args.old.resolve(), "new": args.new.resolve()}
     (REPO / "benchmarks" / "results" / "tmp").mkdir(parents=True, exist_ok=True)
     scratch = Path(tempfile.mkdtemp(prefix="compare-trees-", dir=REPO / "benchmarks" / "results" / "tmp"))
+    from benchmarks.run import machine
+
     result = {"created": datetime.now(timezone.utc).isoformat(timespec="seconds"), "load_average_at_start": os.getloadavg(),
+              "cpu": machine()["cpu"],
               "trees": {name: str(tree) for name, tree in trees.items()},
               "commits": {name: subprocess.run(["git", "-C", str(tree), "rev-parse", "--short", "HEAD"],
                                                capture_output=True, text=True).stdout.strip()
@@ -171,6 +215,7 @@ def main() -> None:
     result["load_average_at_end"] = os.getloadavg()
     args.out.parent.mkdir(parents=True, exist_ok=True)
     args.out.write_text(json.dumps(result, indent=2) + "\n")
+    args.out.with_suffix(".md").write_text(markdown(result))
     print(json.dumps({k: v for k, v in result.get("kernel", {}).items() if k.startswith("median")}, indent=1))
     for row in result["end_to_end"]:
         print(row["size"], row["median_wall_s"], row["median_peak_rss_mib"], f"speedup {row['median_speedup']:.3f}")

@@ -210,7 +210,7 @@ def _run(n_fields, weights, *, tmin_c, tmax_c, shortwave_mj, water_availability,
         cells_by_month(shortwave_mj, "shortwave_mj"), cells_by_month(water_availability, "water_availability"),
         humidity, humidity_kind, cells(latitude_deg, "latitude_deg", 0.0), cells(elevation_m, "elevation_m", 0.0),
         cells(lai, "lai", default_lai), season, days, float(co2_ppm), float(o2_percent),
-        c3.stomatal, c3.constants, c3.table, c4.stomatal, c4.constants, c4.table, saturation_table(),
+        c3.stomatal, c3.constants, c3.columns, c4.stomatal, c4.constants, c4.columns, saturation_table(),
         c3.start_c, 1.0 / c3.step_c, day_nodes, day_weights, night_nodes, night_weights, _UMOL_CO2_TO_G_C,
         float(max_water_supply_mm), np.require(weights, np.float64, ["C", "A", "W"]), daily, totals,
     )

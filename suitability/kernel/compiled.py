@@ -117,15 +117,16 @@ _moment_array = _stack_array(_N_MOMENT)
 
 
 @numba.njit(**_JIT)
-def _lerp(table, row, fraction, column):
-    low = table[row, column]
-    return low + fraction * (table[row + 1, column] - low)
+def _lerp(table, row, fraction, term):
+    low = table[term, row]
+    return low + fraction * (table[term, row + 1] - low)
 
 
 @numba.njit(**_JIT)
 def _terms(table, row, fraction):
-    """Every column of a pathway table at one temperature (a tuple of MAX_TERMS = 12 floats; the
-    columns a model does not use are dead code after inlining)."""
+    """Every term of a pathway table (tables.PathwayTables.columns: one term per table row) at one
+    temperature (a tuple of MAX_TERMS = 12 floats; the terms a model does not use are dead code after
+    inlining)."""
     return (_lerp(table, row, fraction, 0), _lerp(table, row, fraction, 1), _lerp(table, row, fraction, 2),
             _lerp(table, row, fraction, 3), _lerp(table, row, fraction, 4), _lerp(table, row, fraction, 5),
             _lerp(table, row, fraction, 6), _lerp(table, row, fraction, 7), _lerp(table, row, fraction, 8),
@@ -212,7 +213,7 @@ def _integrate_batch(setup, moment, acc, humidity_kind, c3_stomatal, c3_constant
                      night_nodes, night_weights):
     """Add every Gauss moment of the day and the night to acc (canopy._gauss_integral). ``day_nodes``
     are symmetric about 0 (numpy's leggauss); an odd middle node (x = 0) is counted once."""
-    last_row = c3_table.shape[0] - 2
+    last_row = c3_table.shape[1] - 2
     n_day = day_nodes.shape[0]
     n_pairs = (n_day + 1) // 2
     n_day_moments = 2 * n_pairs

@@ -195,22 +195,23 @@ def fvcb_given_km(co2_pa, absorbed_par, vcmax, jmax, tpu, rd, km, gamma_star, th
     """:func:`fvcb` with the effective Michaelis constant Km = Kc (1 + O/Ko) [Pa] given (O2 enters only
     through it and Γ*); other arguments as there. Returns :class:`C3Rates`."""
     electron_transport = electron_transport_rate(absorbed_par, jmax, theta, spectral_correction)
-    rate_rubisco = vcmax / (co2_pa + km)
     light_denominator = 4.0 * co2_pa + 8.0 * gamma_star
+    excess_co2 = co2_pa - gamma_star
     # Divisions are guarded rather than left to produce inf/NaN: under dask, np.errstate does not reach
     # the computation and the warnings would surface. C = Γ* = 0 (no CO2, no O2) leaves Rubisco limiting.
     # The inverses depend on CO2 and temperature only: a caller evaluating several leaves at one moment
-    # (sunlit, shaded) computes them once after inlining.
+    # (sunlit, shaded) computes them once after inlining, and the compiled form shares one division.
     positive = light_denominator > 0
-    inverse_light_denominator = 1.0 / ops.where(positive, light_denominator, 1.0)
+    inverse_michaelis, inverse_light_denominator, inverse_excess = ops.reciprocals(
+        co2_pa + km, ops.where(positive, light_denominator, 1.0), ops.where(excess_co2 > 0, excess_co2, 1.0))
+    rate_rubisco = vcmax * inverse_michaelis
     rate_light = ops.where(positive, electron_transport * inverse_light_denominator, ops.inf)
     light_limited = rate_light < rate_rubisco
     rate = ops.minimum(rate_rubisco, rate_light)
     # TPU (gross = 3 Tp, Sharkey 1985) limits where 3 Tp < ρ (C − Γ*), i.e. where 3 Tp/(C − Γ*) < ρ, which
     # needs C > Γ*; written without dividing by a C − Γ* that may be 0 or negative.
-    excess_co2 = co2_pa - gamma_star
     tpu_limited = (tpu < UNLIMITED_RATE) & (excess_co2 > 0) & (3.0 * tpu < rate * excess_co2)
-    rate = ops.where(tpu_limited, 3.0 * tpu * (1.0 / ops.where(excess_co2 > 0, excess_co2, 1.0)), rate)
+    rate = ops.where(tpu_limited, 3.0 * tpu * inverse_excess, rate)
     limitation = ops.where(tpu_limited, 3, ops.where(light_limited, 2, 1))
     gross = rate * excess_co2
     return C3Rates(gross - rd, gross, rate * gamma_star, limitation)

@@ -126,9 +126,13 @@ def sunset_hour_angle(latitude_deg, declination_rad):
     Reference: Allen et al. (1998) FAO-56, eq. 25.
     """
     valid = ops.in_range(latitude_deg, -90.0, 90.0)
-    phi = ops.deg2rad(ops.where_valid(valid, latitude_deg, 0.0))
+    # tan φ tan δ = (sin φ sin δ)/(cos φ cos δ) = a/b of solar_elevation_terms, which callers compute anyway
+    # (no tangent to evaluate). cos φ cos δ >= 0 for |φ| <= 90°; rounding can leave it 0 or a hair below 0 at
+    # a pole, where the floor keeps the sign of tan φ tan δ (polar day or night, as the tangents give).
+    a, b = solar_elevation_terms(latitude_deg, declination_rad)  # invalid φ: NaN below anyway
+    tangents = a / ops.maximum(b, 1e-300)
     # ops.minimum/ops.maximum rather than ops.clip: they are ufuncs, which xarray and dask keep lazy.
-    omega = ops.arccos(ops.minimum(ops.maximum(-ops.tan(phi) * ops.tan(declination_rad), -1.0), 1.0))
+    omega = ops.arccos(ops.minimum(ops.maximum(-tangents, -1.0), 1.0))
     return ops.where_valid(valid, omega)
 
 
