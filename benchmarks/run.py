@@ -231,8 +231,11 @@ def end_to_end(size: int, engine: str = "compiled", scenarios: int = SCENARIOS, 
     shutil.rmtree(folder, ignore_errors=True)
     config = write_region(folder, size, scenarios=scenarios, engine=engine, workers=os.cpu_count())
     command = [str(Path(sys.executable).parent / "suitability"), "run", str(config), "--no-progress"]
+    # This tree's package, not whichever one the environment's console script was installed from (an
+    # editable install of another checkout would otherwise be measured, and compile its kernel there).
+    environment = dict(os.environ, PYTHONPATH=os.pathsep.join(filter(None, [str(REPO), os.environ.get("PYTHONPATH")])))
     start = time.perf_counter()
-    process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=environment)
     _, status, usage = os.wait4(process.pid, 0)
     wall = time.perf_counter() - start
     stdout, stderr = process.stdout.read(), process.stderr.read()
