@@ -4,7 +4,7 @@ VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed-stamp
 
-.PHONY: demo test bench venv clean
+.PHONY: demo test bench validate venv clean
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PYTHON) -m venv $(VENV)
@@ -27,6 +27,11 @@ test: $(STAMP)
 BENCH_ARGS ?=
 bench: $(STAMP)
 	$(BIN)/python benchmarks/run.py $(BENCH_ARGS)
+
+# The model against published observations (a few minutes on 2 cores); report and figures in
+# validation/results/. The quick form runs in make test (tests/test_validation.py).
+validate: $(STAMP)
+	$(BIN)/python -m validation.run
 
 clean:
 	rm -rf out/ .pytest_cache .hypothesis

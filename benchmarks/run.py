@@ -9,12 +9,17 @@
 2. End to end: `suitability run` on the invented synthetic region for each size (size² cells x 12 months
    x 3 scenarios, every layer, COG outputs), each in its own process; wall time, cell-steps/s and the
    peak resident memory the operating system reports for that process (os.wait4 ru_maxrss).
-3. Results: benchmarks/results/latest.json and latest.md (a markdown table).
+3. Parameter draws (config ``uncertainty``): the model on one in-memory block without draws and with N
+   draws, and the kernel alone on the same cells; the cost of one more draw is (with - without) / N, given
+   as a ratio to the kernel alone (1.0 = a draw costs exactly one kernel call), also with paired draws.
+4. Results: benchmarks/results/latest.json and latest.md (a markdown table).
 
 Timings are measurements of this machine at this moment (other work on it shows up in them); ratios
 are measured side by side in one run. Nothing here asserts a timing.
 
-Usage: python benchmarks/run.py [--sizes 500 1000 2000 4000] [--kernel-cells 131072] [--quick] [--no-simd-check]
+Usage: python benchmarks/run.py [--sizes 500 1000 2000 4000] [--kernel-cells 131072] [--draws 16] [--quick]
+                                [--no-simd-check]
+       python benchmarks/run.py --draws-only      # only part 3
 """
 
 from __future__ import annotations
@@ -226,6 +231,64 @@ def kernel_benchmark(n_cells: int, n_baseline: int, n_package: int, repeats: int
     }
 
 
+def draw_cost_benchmark(n_cells: int, draws: int, repeats: int) -> dict:
+    """Seconds of the model on one in-memory block of ``n_cells`` cells without and with ``draws`` parameter
+    draws (and paired with a baseline), and of the kernel alone on the same cells; one thread."""
+    import xarray as xr
+
+    from suitability import kernel, model
+
+    cells = cell_inputs(n_cells)
+    keep = np.isfinite(cells["tmin"]).all(axis=1)  # land cells only, so every cell runs the full model
+    cells = {k: v[keep] for k, v in cells.items()}
+    n = len(cells["latitude"])
+    monthly = {k: (("month", "y", "x"), cells[k].T[:, None, :]) for k in ("tmin", "tmax", "shortwave", "water_availability")}
+    static = {k: (("y", "x"), cells[k][None, :]) for k in ("latitude", "elevation")}
+    climate = xr.Dataset({**monthly, **static}, coords={"month": np.arange(1, 13)})
+    scenario, baseline = {"co2_ppm": 560.0, "temperature_offset_c": 2.0}, {"co2_ppm": 420.0}
+    uncertainty = {"draws": draws, "seed": 1}
+    model.evaluate(climate.isel(x=slice(0, 64)), scenario, uncertainty={"draws": 2, "seed": 1})  # compile / load
+    # the model's default growing season (SeasonConfig), so that the kernel alone computes the same months
+    season = (0.5 * (cells["tmin"] + cells["tmax"]) >= 5.0) & (cells["tmin"] >= 0.0)
+
+    def kernel_alone():
+        kernel.season_canopy_assimilation(
+            tmin_c=cells["tmin"], tmax_c=cells["tmax"], shortwave_mj=cells["shortwave"],
+            water_availability=cells["water_availability"], latitude_deg=cells["latitude"],
+            elevation_m=cells["elevation"], day_of_year=model.REPRESENTATIVE_DAY, co2_ppm=560.0, in_season=season,
+            days_in_month=model.DAYS_IN_MONTH)
+
+    kernel_s = best_time(kernel_alone, repeats)
+    without_s = best_time(lambda: model.evaluate(climate, scenario), repeats)
+    with_s = best_time(lambda: model.evaluate(climate, scenario, uncertainty=uncertainty), repeats)
+    paired_s = best_time(lambda: model.evaluate(climate, scenario, uncertainty=uncertainty, baseline=baseline), repeats)
+    per_draw = (with_s - without_s) / draws
+    per_paired_draw = (paired_s - without_s) / draws
+    return {"cells": n, "draws": draws, "kernel_alone_s": round(kernel_s, 4), "model_without_draws_s": round(without_s, 4),
+            "model_with_draws_s": round(with_s, 4), "model_with_paired_draws_s": round(paired_s, 4),
+            "one_more_draw_s": round(per_draw, 4), "one_more_paired_draw_s": round(per_paired_draw, 4),
+            "draw_over_kernel": round(per_draw / kernel_s, 3), "paired_draw_over_kernel": round(per_paired_draw / kernel_s, 3),
+            "model_over_kernel": round(without_s / kernel_s, 3)}
+
+
+def draws_markdown(d: dict) -> list[str]:
+    return [
+        "## Parameter draws (one in-memory block, one thread)",
+        "",
+        f"{d['cells']} land cells x 12 months, {d['draws']} draws; a ratio of 1.0 means one more draw costs "
+        "exactly one call of the kernel alone.",
+        "",
+        "| what | seconds | ratio to the kernel alone |",
+        "|---|---|---|",
+        f"| kernel alone (season_canopy_assimilation, both pathways) | {d['kernel_alone_s']:.3f} | 1.00 |",
+        f"| model, no draws (inputs, kernel, indicators, crossover) | {d['model_without_draws_s']:.3f} | {d['model_over_kernel']:.2f} |",
+        f"| model with {d['draws']} draws | {d['model_with_draws_s']:.3f} | |",
+        f"| one more draw | {d['one_more_draw_s']:.3f} | {d['draw_over_kernel']:.2f} |",
+        f"| one more paired draw (scenario and baseline) | {d['one_more_paired_draw_s']:.3f} | {d['paired_draw_over_kernel']:.2f} |",
+        "",
+    ]
+
+
 def end_to_end(size: int, engine: str = "compiled", scenarios: int = SCENARIOS, keep: bool = False) -> dict:
     folder = SCRATCH / f"region_{size}_{engine}"
     shutil.rmtree(folder, ignore_errors=True)
@@ -270,6 +333,8 @@ def _simd_line(simd: dict | None) -> str:
 
 
 def markdown(results: dict) -> str:
+    if "kernel" not in results:  # --draws-only
+        return "\n".join([f"# Benchmark run {results['created']}", ""] + draws_markdown(results["draws"]))
     k = results["kernel"]
     lines = [
         f"# Benchmark run {results['created']}",
@@ -305,12 +370,14 @@ def markdown(results: dict) -> str:
         "| cells | engine | wall s | cell-steps/s | peak RSS MiB | CPU s | outputs MiB |",
         "|---|---|---|---|---|---|---|",
     ]
-    for row in results["end_to_end"]:
+    for row in results.get("end_to_end", []):
         if row.get("exit_code") != 0:
             lines.append(f"| {row['size']}² | {row['engine']} | failed | | | | |")
             continue
         lines.append(f"| {row['size']}² | {row['engine']} | {row['wall_s']:.1f} | {row['cell_steps_per_s'] / 1e6:.2f} M | "
                      f"{row['peak_rss_mib']:.0f} | {row['cpu_s']:.0f} | {row.get('output_mib', '')} |")
+    if "draws" in results:
+        lines += [""] + draws_markdown(results["draws"])
     return "\n".join(lines) + "\n"
 
 
@@ -324,11 +391,22 @@ def main() -> None:
     parser.add_argument("--out", type=Path, default=RESULTS)
     parser.add_argument("--no-simd-check", action="store_true",
                         help="skip compiling the kernel afresh to read the vector width it got (about a minute)")
+    parser.add_argument("--draws", type=int, default=16, help="parameter draws for the cost of one draw")
+    parser.add_argument("--draw-cells", type=int, default=16384, help="cells of the block for the draws' cost")
+    parser.add_argument("--draws-only", action="store_true", help="only the cost of parameter draws")
     args = parser.parse_args()
     if args.quick:
         args.sizes, args.kernel_cells, args.numpy_engine_size = [256, 512], 16384, 0
     SCRATCH.mkdir(parents=True, exist_ok=True)
     results = {"created": datetime.now(timezone.utc).isoformat(timespec="seconds"), "machine": machine()}
+    if args.draws_only:
+        print("parameter draws ...", flush=True)
+        results["draws"] = draw_cost_benchmark(args.draw_cells, args.draws, repeats=3)
+        args.out.mkdir(parents=True, exist_ok=True)
+        (args.out / "draws.json").write_text(json.dumps(results, indent=2) + "\n")
+        (args.out / "draws.md").write_text(markdown(results))
+        print(markdown(results))
+        return
     if not args.no_simd_check:
         print("kernel vector width (fresh compile) ...", flush=True)
         results["machine"]["kernel_simd"] = kernel_simd()
@@ -344,6 +422,8 @@ def main() -> None:
         rows.append(end_to_end(size))
         print(f"  {rows[-1].get('wall_s')} s, peak {rows[-1].get('peak_rss_mib')} MiB", flush=True)
     results["end_to_end"] = rows
+    print("parameter draws ...", flush=True)
+    results["draws"] = draw_cost_benchmark(args.draw_cells if not args.quick else 4096, args.draws, repeats=3)
     args.out.mkdir(parents=True, exist_ok=True)
     (args.out / "latest.json").write_text(json.dumps(results, indent=2) + "\n")
     (args.out / "latest.md").write_text(markdown(results))

@@ -196,12 +196,12 @@ def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
         console.line(f"Kept from the earlier run (outputs up to date): {', '.join(result.resumed)}")
     table = Table(title="Share of mapped cells by favoured pathway (%)")
     table.add_column("scenario", no_wrap=True)
-    for heading in ("C3 favoured", "contested", "C4 favoured", "mapped cells"):
+    for heading in ("C3 favoured", "contested", "C4 favoured", "no growing season", "mapped cells"):
         table.add_column(heading, justify="right")
     for row in result.summary.to_dict(orient="records"):
         table.add_row(
-            escape(row["scenario"]), f"{row['C3 favoured %']:.1f}", f"{row['contested %']:.1f}",
-            f"{row['C4 favoured %']:.1f}", str(row["valid_cells"]),
+            escape(row["scenario"]), *(f"{100 * row[f'share_{key}']:.1f}" for key in ("c3", "contested", "c4", "noseason")),
+            str(row["valid_cells"]),
         )
     console.print(table)
     _print_assumptions(result.assumptions, "This run assumed (also in the manifest):")
@@ -209,8 +209,8 @@ def _run(config, overwrite, resume, scheduler, workers, memory_limit, progress):
     console.line(f"Manifest: {escape(str(result.manifest_path))}")
     if result.briefs:
         console.line("Briefs and district tables:")
-        for path in result.briefs.values():
-            console.line(f"  {escape(str(path))}")
+        for line in _brief_lines(result.briefs):
+            console.line(f"  {line}")
     console.line(f"Run time: {result.manifest['timings']['total_s']:.1f} s")
     _print_caution()
 
@@ -239,10 +239,26 @@ def _check(config):
         _check_lines(config, reports)
     console.line(f"{len(cfg.scenarios)} scenarios: {escape(', '.join(s.name for s in cfg.scenarios))}")
     _print_assumptions(run_assumptions(cfg), "The run will assume:")
+    _print_uncertainty(cfg)
     if problems:
         raise InputDataError(f"{problems} problem(s) found in the inputs of {config}; see the notes above")
     console.line("[green]Config and inputs look usable.[/]")
     _print_caution()
+
+
+def _print_uncertainty(cfg) -> None:
+    """The parameter draws a run makes (config ``uncertainty``): count, seed, method, and each spread."""
+    if cfg.uncertainty is None:
+        return
+    from .provenance import uncertainty_record
+    from .physiology.uncertainty import spread_text
+
+    record = uncertainty_record(cfg)
+    varied = sum(row["varied"] for row in record["parameters"])
+    console.line(f"Parameter uncertainty: {record['draws']} draws, seed {record['seed']}, {record['method']} "
+                 f"over {varied} parameters (also in the manifest):")
+    for row in record["parameters"]:
+        console.line(f"  - {escape(spread_text(row))}")
 
 
 def _check_table(config, reports, with_scenarios: bool) -> None:
@@ -354,12 +370,21 @@ def _brief(config, scenario, overwrite):
 
     cfg = load_config(config)
     paths = pipeline.briefs_of_finished_run(cfg, scenarios=scenario or None, overwrite=overwrite)
-    for name, path in paths.items():
-        console.line(f"{escape(name)}: {escape(str(path))}")
+    for line in _brief_lines(paths):
+        console.line(line)
     _print_caution()
 
 
-@app.command(short_help="Leaf C3/C4 assimilation versus temperature; crossover temperatures.")
+def _brief_lines(paths) -> list[str]:
+    """The briefs and tables one per line; the figures (PNG and SVG of each) as one line with their folder."""
+    figures = [path for name, path in paths.items() if str(name).startswith("figures/")]
+    lines = [escape(str(path)) for name, path in paths.items() if not str(name).startswith("figures/")]
+    if figures:
+        lines.append(f"{len(figures)} figure files (PNG and SVG) in {escape(str(figures[0].parent))}")
+    return lines
+
+
+@app.command(short_help="Leaf C3/C4 assimilation versus temperature; leaf quantum-yield crossovers.")
 def curves(
     co2: List[float] = typer.Option([280.0, 420.0, 700.0], "--co2", help="CO2 in ppm; repeat for several."),
     absorbed_par: float = typer.Option(1500.0, help="Absorbed PAR of the leaf [µmol m-2 s-1]."),
@@ -372,7 +397,8 @@ def curves(
         None, "--elevation", help="Elevation in m for the air pressure (default sea level, or the config's)."),
     debug: bool = DebugOption,
 ):
-    """Leaf net assimilation of C3 and C4 versus leaf temperature, and the crossover temperature."""
+    """Leaf net assimilation of C3 and C4 versus leaf temperature, and the leaf quantum-yield crossover
+    (not the canopy crossover of the maps)."""
     _curves(co2, absorbed_par, out, config, o2, elevation, debug=debug)
 
 
@@ -452,8 +478,60 @@ def _parameters(name):
         unit = f" {row.unit}" if row.unit and row.unit != "-" else ""
         note = f"  ({escape(row.note)})" if row.note else ""
         console.line(f"  {row.key} = {escape(format_value(row.value))}{escape(unit)}: {escape(row.meaning)}{note}")
+    from .physiology.uncertainty import PARAMETER_UNCERTAINTY, spread_text, varied_parameters
+
+    if name in PARAMETER_UNCERTAINTY:
+        console.line("Published spread of its influential parameters (what the config's 'uncertainty' draws over):")
+        pair = {"c3_params": name} if pathway == "C3" else {"c4_params": name}
+        for row in (r for r in varied_parameters(**pair) if r["pathway"] == pathway):
+            console.line(f"  - {escape(spread_text(row))}")
     console.line("Change single values under physiology.c3.overrides or physiology.c4.overrides in the config; "
                  "`suitability curves --config CONFIG` shows their effect.")
+
+
+@app.command(short_help="Which parameters move the C3/C4 boundary most (one at a time over published ranges).")
+def sensitivity(
+    config: Path = typer.Argument(..., help="YAML config file."),
+    scenario: Optional[str] = typer.Option(None, "--scenario", help="Scenario to run (default: the baseline)."),
+    out: Optional[Path] = typer.Option(None, "--out", help="Folder for the CSV and PNG (default: <output.folder>/sensitivity)."),
+    debug: bool = DebugOption,
+):
+    """Set each parameter with a published range to its low and high end, one at a time, and show how the
+    shares of C3-favoured, contested and C4-favoured cells of the region move."""
+    _sensitivity(config, scenario, out, debug=debug)
+
+
+@_handle_errors
+def _sensitivity(config, scenario, out):
+    from .config import load_config
+    from .errors import ConfigError
+    from .sensitivity import one_at_a_time, write_sensitivity
+
+    cfg = load_config(config)
+    if scenario is not None and scenario not in [s.name for s in cfg.scenarios]:
+        raise ConfigError(f"--scenario {scenario!r}: no such scenario; scenarios: {', '.join(s.name for s in cfg.scenarios)}")
+    try:
+        table = one_at_a_time(cfg, scenario)
+    except ValueError as exc:
+        raise ConfigError(f"{config}: {exc}") from None
+    name = scenario or cfg.baseline
+    folder = out if out is not None else Path(cfg.output.folder) / "sensitivity"
+    paths = write_sensitivity(table, folder, f"{cfg.region.name}, scenario {name}: one parameter at a time")
+    central = table[table["end"] == "central"].iloc[0]
+    console.line(f"Central run ({escape(name)}): C3 favoured {central['C3 favoured %']:.1f} %, contested "
+                 f"{central['contested %']:.1f} %, C4 favoured {central['C4 favoured %']:.1f} % of "
+                 f"{int(central['mapped cells'])} cells")
+    console.line("C4-favoured share at the low / high end of each range, largest swing first:")
+    for parameter in dict.fromkeys(table["parameter"]):
+        if parameter == "central":
+            continue
+        rows = table[table["parameter"] == parameter].set_index("end")
+        console.line(f"  {escape(parameter)}: {rows.loc['low', 'value']:.4g} -> {rows.loc['low', 'C4 favoured %']:.1f} %, "
+                     f"{rows.loc['high', 'value']:.4g} -> {rows.loc['high', 'C4 favoured %']:.1f} % "
+                     f"(swing {rows.loc['high', 'C4 share swing %']:+.1f} points)")
+    for path in paths.values():
+        console.line(f"Wrote {escape(str(path))}")
+    _print_caution()
 
 
 @app.command(short_help="Write a commented starter config to edit.")

@@ -13,11 +13,18 @@ import numpy as np
 import pandas as pd
 
 from .atomic import atomic_write
-from .outputs import write_csv
-from .physiology import crossover_temperature, leaf_assimilation
+from .outputs import dictionary_path, write_csv, write_data_dictionary
+from .physiology import quantum_yield_crossover, leaf_assimilation
 from .physiology.atmosphere import air_pressure_from_elevation
 
 LEAF_TEMPERATURES_C = np.arange(0.0, 50.5, 0.5)
+#: The columns of ``leaf_curves.csv`` and ``crossover.csv`` with their units (written beside each CSV).
+CURVE_COLUMNS = {"co2_ppm": "ambient CO2 mole fraction [ppm]", "leaf_temperature_c": "leaf temperature [degC]",
+                 "c3_net": "net leaf CO2 assimilation of the C3 leaf [umol m-2 s-1]",
+                 "c4_net": "net leaf CO2 assimilation of the C4 leaf [umol m-2 s-1]"}
+CROSSOVER_COLUMNS = {"co2_ppm": "ambient CO2 mole fraction [ppm]",
+                     "quantum_yield_crossover_c": "leaf temperature above which the C4 light-limited quantum yield "
+                                                "exceeds the C3 one [degC]"}
 
 
 def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_kpa: float = 1.0,
@@ -27,7 +34,7 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
 
     co2_ppm: ambient CO2 mole fractions [µmol mol-1]. absorbed_par: [µmol m-2 s-1]. vpd_kpa: [kPa].
     Returns (curves, crossovers): curves has columns co2_ppm, leaf_temperature_c, c3_net, c4_net
-    [µmol m-2 s-1]; crossovers has co2_ppm and crossover_temperature_c [°C], the leaf quantum-yield
+    [µmol m-2 s-1]; crossovers has co2_ppm and quantum_yield_crossover_c [°C], the leaf quantum-yield
     crossover (``suitability.physiology.crossover``) at each pathway's Ci/Ca for ``vpd_kpa``.
     c3_params, c4_params: anything ``resolve_params`` accepts (None = the default set); they are used for
     the curves and for the crossover temperatures alike. o2_percent: ambient O2 [%]. elevation_m: elevation
@@ -49,9 +56,9 @@ def leaf_curves(co2_ppm: Iterable[float], *, absorbed_par: float = 1500.0, vpd_k
             "c3_net": np.asarray(c3.net), "c4_net": np.asarray(c4.net),
         }))
         # The leaf quantum-yield crossover at the curves' own VPD (each pathway's canopy Ci/Ca).
-        crossover = crossover_temperature(co2, o2_percent=o2_percent, params=crossover_params, vpd_kpa=vpd_kpa,
+        crossover = quantum_yield_crossover(co2, o2_percent=o2_percent, params=crossover_params, vpd_kpa=vpd_kpa,
                                           **pressure)
-        crossings.append({"co2_ppm": co2, "crossover_temperature_c": float(crossover)})
+        crossings.append({"co2_ppm": co2, "quantum_yield_crossover_c": float(crossover)})
     return pd.concat(rows, ignore_index=True), pd.DataFrame(crossings)
 
 
@@ -73,6 +80,8 @@ def write_curves(co2_ppm: Iterable[float], folder: Path, *, absorbed_par: float 
     paths = {"curves": folder / "leaf_curves.csv", "crossover": folder / "crossover.csv", "figure": folder / "leaf_curves.png"}
     write_csv(curves, paths["curves"])
     write_csv(crossings, paths["crossover"])
+    write_data_dictionary(CURVE_COLUMNS, dictionary_path(paths["curves"]))
+    write_data_dictionary(CROSSOVER_COLUMNS, dictionary_path(paths["crossover"]))
     figure, axis = plt.subplots(figsize=(7, 4.5), dpi=120)
     colours = plt.get_cmap("viridis")(np.linspace(0.1, 0.85, len(crossings)))
     for colour, (co2, group) in zip(colours, curves.groupby("co2_ppm", sort=False)):

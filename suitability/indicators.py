@@ -17,7 +17,18 @@ from __future__ import annotations
 import numpy as np
 import xarray as xr
 
-from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NO_SEASON, CLASS_NODATA
+from .variables import (
+    CLASS_C3,
+    CLASS_C4,
+    CLASS_CONTESTED,
+    CLASS_NO_SEASON,
+    CLASS_NODATA,
+    CONFIDENCE_C3_LIKELY,
+    CONFIDENCE_C3_ROBUST,
+    CONFIDENCE_C4_LIKELY,
+    CONFIDENCE_C4_ROBUST,
+    CONFIDENCE_UNCERTAIN,
+)
 
 
 def advantage_index(c3_total, c4_total):
@@ -69,6 +80,20 @@ def c4_favoured_months(monthly_c3, monthly_c4, in_season, margin: float = 0.05):
     return _where(missing, np.float32(np.nan), count)
 
 
+def warmest_month_value(monthly_values, monthly_mean_c, in_season):
+    """The value of the warmest season month of each cell (the first of equally warm ones); NaN where a
+    cell has no season month or its temperatures are NaN.
+
+    monthly_values, monthly_mean_c [°C], in_season: (..., 12), month last. Used for the seasonal canopy
+    crossover: that month is C4-favoured exactly when its mean temperature is above the value.
+    """
+    warmth = np.where(in_season & np.isfinite(monthly_mean_c), monthly_mean_c, -np.inf)
+    warmest = np.argmax(warmth, axis=-1)[..., None]
+    value = np.take_along_axis(np.asarray(monthly_values, np.float64), warmest, axis=-1)[..., 0]
+    has = np.isfinite(np.take_along_axis(warmth, warmest, axis=-1)[..., 0])
+    return np.where(has, value, np.nan)
+
+
 def photorespiration_share(c3_gross_total, c3_photorespiration_total):
     """Share of C3 gross carboxylation released again by photorespiration, in [0, 1].
 
@@ -94,8 +119,10 @@ def class_transition(baseline_class, scenario_class):
     return _where(nodata, CLASS_NODATA, code).astype(np.uint8)
 
 
-#: Share of members that must agree on the sign of a change for "members agree" (IPCC AR6 WGI Atlas,
-#: Cross-Chapter Box Atlas.1, simple approach: at least 80 % of models agree on the sign of change).
+#: Share of members that must agree on the sign of a change for "members agree": IPCC AR6 WGI, Cross-Chapter
+#: Box Atlas.1 (Gutiérrez et al. 2021), simple approach, as AR6 figure captions state it (e.g. Chapter 9,
+#: Figure 9.3): "high model agreement, where >=80% of models agree on sign of change"; "low model agreement,
+#: where <80% of models agree on sign of change".
 AGREEMENT_SHARE = 0.8
 AGREE_TOWARD_C3, LOW_AGREEMENT, AGREE_TOWARD_C4 = 1, 2, 3
 
@@ -118,11 +145,22 @@ def change_agreement(baseline_advantage, member_advantages, dim: str = "member",
     """Agreement of the members on the direction of the advantage change against the baseline.
 
     Classified after the simple approach of IPCC AR6 WGI Cross-Chapter Box Atlas.1: where at least
-    ``share`` (80 %) of the members give a change of the same sign, they agree (3: the C4 advantage rises,
-    1: it falls); otherwise low agreement (2). A change of exactly 0 counts for neither sign. 255 where
-    the baseline or any member is nodata. The Atlas's advanced approach also asks that 66 % of models show
-    a change beyond internal variability; climatologies carry no interannual variability, so it is not
-    applied here.
+    ``share`` (80 %) of the members give a change of the same sign, they agree (high model agreement); we
+    split that class by the direction the agreeing members give (3: the C4 advantage rises, 1: it falls);
+    otherwise low agreement (2). A change of exactly 0 counts for neither sign. 255 where the baseline or
+    any member is nodata.
+
+    Not the advanced approach of the same box, whose classes (robust signal, no change or no robust signal,
+    conflicting signals) also need >= 66 % of models to show a change greater than a variability
+    threshold from the interannual variability of each model's reference period: the model runs on each
+    member's 12-month climatology, so no year-to-year spread of the advantage exists to set that threshold.
+
+    Written here rather than with xclim.ensembles (robustness_fractions with test=None, then
+    robustness_categories with the sign threshold 0.8): without a significance test that is the same
+    three-line share of signs, we also need the direction of the agreeing members, and xclim 0.62 would
+    bring scikit-learn, pyarrow, yamale, boltons and bottleneck into the environment (bottleneck changes
+    how xarray sums float32 everywhere, see ECOSYSTEM.md). xclim also counts members with exactly no change
+    as a group that can "agree"; here they count for neither sign.
     """
     change = member_advantages - baseline_advantage
     valid = change.notnull().all(dim) & baseline_advantage.notnull()
@@ -130,6 +168,67 @@ def change_agreement(baseline_advantage, member_advantages, dim: str = "member",
     falling = (change < 0).astype(np.float32).mean(dim)
     code = _where(rising >= share, AGREE_TOWARD_C4, _where(falling >= share, AGREE_TOWARD_C3, LOW_AGREEMENT))
     return _where(valid, code, CLASS_NODATA).astype(np.uint8)
+
+
+# --- parameter uncertainty: arrays of draws, draw axis first ------------------------------------------------
+
+#: Shares of the parameter draws for the confidence classes: "likely" when at least 66 %, "robust" when at
+#: least 90 % of the draws favour a pathway. The cut-offs follow the calibrated likelihood language of the
+#: IPCC (Mastrandrea et al. 2010, guidance note for AR5 lead authors: likely 66-100 %, very likely
+#: 90-100 %; from memory); the class names are our own.
+LIKELY_SHARE, ROBUST_SHARE = 0.66, 0.90
+
+
+def _all_draws_valid(draws):
+    return ~np.isnan(draws).any(axis=0)
+
+
+def favoured_probability(draw_advantage, margin: float = 0.05, pathway: str = "C4"):
+    """Share of draws [0-1] in which ``pathway`` is favoured by the class rule of :func:`pathway_class`
+    (C4: advantage > margin; C3: advantage < -margin). draw_advantage: (draws, ...); NaN where any draw is NaN."""
+    draw_advantage = np.asarray(draw_advantage)
+    favoured = draw_advantage > margin if pathway == "C4" else draw_advantage < -margin
+    share = favoured.sum(axis=0) / draw_advantage.shape[0]
+    return np.where(_all_draws_valid(draw_advantage), share, np.nan)
+
+
+def advantage_quantiles(draw_advantage, probabilities=(0.05, 0.5, 0.95)):
+    """Quantiles over the draws of the advantage index (numpy's default linear interpolation between order
+    statistics, Hyndman & Fan 1996 definition 7), shape (len(probabilities), ...); NaN where any draw is NaN."""
+    draw_advantage = np.asarray(draw_advantage)
+    valid = _all_draws_valid(draw_advantage)
+    filled = np.where(valid, draw_advantage, 0.0)
+    return np.where(valid, np.quantile(filled, probabilities, axis=0), np.nan)
+
+
+def confidence_class(c3_probability, c4_probability):
+    """Confidence class from the shares of draws favouring each pathway (uint8): 5 "C4 robust" (C4 share
+    >= ROBUST_SHARE), 4 "C4 likely" (>= LIKELY_SHARE), 1 "C3 robust" and 2 "C3 likely" alike for C3,
+    otherwise 3 "uncertain"; 255 where either share is NaN."""
+    c3_probability, c4_probability = np.asarray(c3_probability), np.asarray(c4_probability)
+    code = np.full(np.shape(c4_probability), CONFIDENCE_UNCERTAIN, np.uint8)
+    code = np.where(c3_probability >= LIKELY_SHARE, CONFIDENCE_C3_LIKELY, code)
+    code = np.where(c3_probability >= ROBUST_SHARE, CONFIDENCE_C3_ROBUST, code)
+    code = np.where(c4_probability >= LIKELY_SHARE, CONFIDENCE_C4_LIKELY, code)
+    code = np.where(c4_probability >= ROBUST_SHARE, CONFIDENCE_C4_ROBUST, code)
+    return np.where(np.isnan(c3_probability) | np.isnan(c4_probability), CLASS_NODATA, code).astype(np.uint8)
+
+
+def towards_c4_probability(baseline_draws, scenario_draws):
+    """Share of PAIRED draws (the same parameters in baseline and scenario) in which the scenario's
+    advantage is higher than the baseline's; (draws, ...) each, NaN where any draw of either is NaN."""
+    baseline_draws, scenario_draws = np.asarray(baseline_draws), np.asarray(scenario_draws)
+    share = (scenario_draws > baseline_draws).sum(axis=0) / scenario_draws.shape[0]
+    return np.where(_all_draws_valid(baseline_draws) & _all_draws_valid(scenario_draws), share, np.nan)
+
+
+def class_change_probability(baseline_draws, scenario_draws, margin: float = 0.05):
+    """Share of PAIRED draws in which the class of :func:`pathway_class` differs between baseline and
+    scenario; (draws, ...) each, NaN where any draw of either is NaN."""
+    baseline_draws, scenario_draws = np.asarray(baseline_draws), np.asarray(scenario_draws)
+    changed = pathway_class(baseline_draws, margin) != pathway_class(scenario_draws, margin)
+    share = changed.sum(axis=0) / scenario_draws.shape[0]
+    return np.where(_all_draws_valid(baseline_draws) & _all_draws_valid(scenario_draws), share, np.nan)
 
 
 def regional_monthly_temperature(climate: xr.Dataset) -> xr.DataArray:

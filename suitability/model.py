@@ -13,10 +13,15 @@ kernel is tested against, within 1e-4 relative). Both run the same equations (:m
 A registered leaf model that is marked as not compiled (:func:`suitability.kernel.supports`) runs on the
 numpy engine, with a warning once per pair of models. Everything after the daily values (season sums,
 indicators) is shared.
+
+The C3 leaves are acclimated to each cell's monthly mean temperature (:func:`growth_temperature`). The
+canopy crossover (:func:`canopy_crossover`) calls the same engine again on the same block, with the
+month's temperatures shifted, through :mod:`suitability.tie_solver`.
 """
 
 from __future__ import annotations
 
+import functools
 import itertools
 import warnings
 from dataclasses import dataclass
@@ -27,15 +32,17 @@ import dask.array
 import numpy as np
 import xarray as xr
 
-from . import indicators, kernel
+from . import indicators, kernel, tie_solver
 from .config.schema import GROWING_SEASON_MIN_MEAN_TEMPERATURE_C, GROWING_SEASON_MIN_MEAN_TMIN_C
-from .physiology import atmosphere, light
-from .physiology import crossover_temperature, daily_canopy_assimilation
+from .physiology import atmosphere, energy, light
+from .physiology import daily_canopy_assimilation
 from .physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from .runtime import ENGINES
 from .physiology import water_balance
 from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario, scale_water_availability
-from .variables import CLASS_NODATA, DATACUBE, OUTPUT_LAYERS, SEASONAL, layer_names
+from .physiology import uncertainty as parameter_uncertainty
+from .variables import (CLASS_NODATA, DATACUBE, HARGREAVES_SAMANI, OUTPUT_LAYERS, PENMAN_MONTEITH, SEASONAL, UNCERTAINTY,  # noqa: F401
+                        layer_names, pet_method)
 
 #: Day of year of the 15th of each month in a non-leap year; the representative day of the month.
 REPRESENTATIVE_DAY = np.array([15, 46, 74, 105, 135, 166, 196, 227, 258, 288, 319, 349])
@@ -45,6 +52,10 @@ DAYS_IN_MONTH = np.array([31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype
 SEASONAL_LAYERS = layer_names(SEASONAL)
 MONTHLY_LAYERS = layer_names(DATACUBE)
 _N_STACKED = len(SEASONAL_LAYERS) + 12 * len(MONTHLY_LAYERS)
+#: Layers from the parameter draws; the paired ones (``compares`` set) need the baseline's draws too.
+UNCERTAINTY_LAYERS = layer_names(UNCERTAINTY)
+PAIRED_LAYERS = tuple(n for n in UNCERTAINTY_LAYERS if OUTPUT_LAYERS[n].compares is not None)
+_BASELINE_PREFIX = "baseline:"
 _MONTHLY_INPUTS = ("tmin", "tmax", "shortwave", "par", "water_availability", "vpd", "humidity")
 _STATIC_INPUTS = ("elevation", "lai", "latitude")
 DEFAULT_LAI = 3.0
@@ -63,6 +74,14 @@ class ModelSettings:
     engine: "compiled" (the numba kernel) or "numpy" (see the module docstring).
     max_water_supply_mm: the soil's daily water supply at field capacity [mm d-1]
         (:mod:`suitability.physiology.water`).
+    draws: the parameter draws (config ``uncertainty``), each a pair of sorted (key, value) tuples of C3 and
+        C4 parameters (hashable); empty: no uncertainty layers.
+    baseline: the baseline scenario's settings when the draws are paired with the baseline's (the
+        scenario's change under uncertainty); None otherwise.
+    growth_temperature: "month_mean" (C3 leaves acclimated to the cell's mean air temperature of the month,
+        Kattge & Knorr 2007) or "parameter_set" (the C3 set's own ``growth_temperature_c`` everywhere).
+    crossover: solve the canopy crossover per cell and month (:func:`canopy_crossover`); False leaves the
+        crossover layers NaN.
     """
 
     scenario: ScenarioSettings
@@ -75,6 +94,33 @@ class ModelSettings:
     lai: float = DEFAULT_LAI
     engine: str = "compiled"
     max_water_supply_mm: float = MAX_WATER_SUPPLY_MM_PER_DAY
+    draws: tuple = ()
+    baseline: ScenarioSettings | None = None
+    growth_temperature: str = "month_mean"
+    crossover: bool = True
+
+    def draw_params(self):
+        """The draws as (C3 parameters, C4 parameters) dicts."""
+        return [(dict(c3), dict(c4)) for c3, c4 in self.draws]
+
+
+def uncertainty_layer_names(settings: ModelSettings) -> tuple[str, ...]:
+    """The uncertainty layers the model returns for ``settings`` (none without draws; the paired ones
+    only with a baseline to pair with)."""
+    if not settings.draws:
+        return ()
+    return tuple(n for n in UNCERTAINTY_LAYERS if settings.baseline is not None or n not in PAIRED_LAYERS)
+
+
+def _n_stacked(settings: ModelSettings) -> int:
+    return _N_STACKED + len(uncertainty_layer_names(settings))
+
+
+#: Monthly mean temperatures [°C] searched for the canopy crossover (widened to include the month's own).
+CROSSOVER_SEARCH_C = (0.0, 45.0)
+#: Largest shifted daily maximum and smallest daily minimum [°C] the crossover search uses: the leaf
+#: models' valid range (atmosphere.TEMPERATURE_RANGE_C) less the 0.5 °C of the hourly course's rounding.
+_SHIFT_TMAX_C, _SHIFT_TMIN_C = atmosphere.TEMPERATURE_RANGE_C[1] - 0.5, atmosphere.TEMPERATURE_RANGE_C[0] + 0.5
 
 
 def evaluate(
@@ -86,6 +132,9 @@ def evaluate(
     classes: Any = None,
     scenario_layers: xr.Dataset | None = None,
     engine: str | None = None,
+    uncertainty: Any = None,
+    baseline: Any = None,
+    baseline_layers: xr.Dataset | None = None,
 ) -> xr.Dataset:
     """Evaluate both pathways on a climate dataset and return every per-scenario output layer.
 
@@ -96,24 +145,53 @@ def evaluate(
         dask-backed; dask input stays lazy.
     scenario: a config scenario, a mapping (co2_ppm, o2_percent, temperature_offset_c, shortwave_factor,
         water_availability_factor) or None (420 ppm, present climate).
-    physiology: config ``physiology`` section or mapping {"c3": {...}, "c4": {...}, "lai": ...}.
+    physiology: config ``physiology`` section or mapping {"c3": {...}, "c4": {...}, "lai": ...,
+        "growth_temperature": "month_mean" | "parameter_set", "crossover_temperature": bool}.
     season: config ``season`` section or mapping {"months": [...]} / {"min_mean_temperature_c": t}.
     classes: config ``classes`` section or mapping {"contested_margin": m}.
     engine: "compiled" or "numpy" (the pipeline passes the config's ``compute.engine``); None = "compiled".
+    uncertainty: config ``uncertainty`` section or mapping {"draws": n, "seed": s, "method": ...}, or None.
+        With it the result also holds the uncertainty layers of the registry: the model runs once per
+        parameter draw on the same inputs (:mod:`suitability.physiology.uncertainty`).
+    baseline, baseline_layers: the baseline scenario (and its own layers) to pair the draws with, for the
+        paired layers (``towards_c4_probability``, ``class_change_probability``); only with ``uncertainty``.
 
     Returns a Dataset with the layers of ``SEASONAL_LAYERS`` (y, x) and ``MONTHLY_LAYERS`` (month, y, x),
     assimilation in g C m-2 per season or month; ``pathway_class`` is uint8 with 255 as nodata.
     """
-    settings = model_settings(scenario, physiology=physiology, season=season, classes=classes, engine=engine)
+    settings = model_settings(scenario, physiology=physiology, season=season, classes=classes, engine=engine,
+                              uncertainty=uncertainty, baseline=baseline)
+    names, arrays, climate = _model_arrays(dataset, settings.scenario, scenario_layers, physiology)
+    derived = "derived_water_availability" in climate
+    spatial_dims = climate["latitude"].dims
+    if settings.baseline is not None:  # the baseline climate, for the draws paired with the baseline's
+        base_names, base_arrays, _ = _model_arrays(dataset, settings.baseline, baseline_layers, physiology)
+        names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
+        arrays = arrays + base_arrays
+    if any(isinstance(array, dask.array.Array) for array in arrays):
+        stacked = _map_blocks(arrays, names, settings, len(spatial_dims))
+    else:
+        stacked = _evaluate_block(*arrays, names=names, settings=settings)
+    coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
+    stacked = xr.DataArray(stacked, dims=("layer",) + spatial_dims, coords=coords)
+    result = _unstack(stacked, settings)
+    if derived:  # the registry's "derived" layer: written to the datacube
+        result["derived_water_availability"] = climate["derived_water_availability"]
+    return result
+
+
+def _model_arrays(dataset: xr.Dataset, scenario: ScenarioSettings, scenario_layers, physiology):
+    """(names, float32 arrays (month, *spatial) or (*spatial), climate) of the model's inputs under ``scenario``;
+    ``climate`` holds ``derived_water_availability`` when water availability was derived from rainfall."""
     diurnal_range = _get(physiology, "diurnal_range_c", DEFAULT_DIURNAL_RANGE_C)
-    climate = apply_scenario(dataset, settings.scenario, scenario_layers, diurnal_range_c=diurnal_range)
+    climate = apply_scenario(dataset, scenario, scenario_layers, diurnal_range_c=diurnal_range)
     climate = _with_latitude(climate)
     derived = "precipitation" in climate and "water_availability" not in climate
     if derived:
         climate = water_from_rainfall(climate, _get(physiology, "soil_water_capacity_mm",
                                                     water_balance.DEFAULT_SOIL_WATER_CAPACITY_MM),
                                       _get(physiology, "soil_water_retention", "exponential"))
-        climate = scale_water_availability(climate, settings.scenario)
+        climate = scale_water_availability(climate, scenario)
     names = tuple(n for n in _MONTHLY_INPUTS + _STATIC_INPUTS if n in climate)
     _check_inputs(names)
     spatial_dims = climate["latitude"].dims
@@ -127,18 +205,11 @@ def evaluate(
         else:
             layer = layer.transpose(*spatial_dims)
         arrays.append(layer.astype(np.float32).data)
-    if any(isinstance(array, dask.array.Array) for array in arrays):
-        stacked = _map_blocks(arrays, names, settings, len(spatial_dims))
-    else:
-        stacked = _evaluate_block(*arrays, names=names, settings=settings)
-    coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
-    stacked = xr.DataArray(stacked, dims=("layer",) + spatial_dims, coords=coords)
-    result = _unstack(stacked, settings)
-    if derived:  # the registry's "derived" layer: written to the datacube
+    if derived:
         derived_layer = climate["water_availability"].transpose("month", *spatial_dims).copy()
         derived_layer.attrs = {}  # the registry's long name and units are written, not the rainfall's
-        result["derived_water_availability"] = derived_layer
-    return result
+        climate = climate.assign(derived_water_availability=derived_layer)
+    return names, tuple(arrays), climate
 
 
 def _map_blocks(arrays, names, settings: ModelSettings, n_spatial: int):
@@ -159,7 +230,7 @@ def _map_blocks(arrays, names, settings: ModelSettings, n_spatial: int):
     for index in itertools.product(*(range(len(c)) for c in spatial_chunks)):
         blocks = tuple(array.blocks[(0,) * (array.ndim - n_spatial) + index] for array in aligned)
         graph[(name, 0) + index] = (_evaluate_embedded, _BlockInputs(blocks), names, settings)
-    return dask.array.Array(graph, name, chunks=((_N_STACKED,),) + spatial_chunks, dtype=np.float32,
+    return dask.array.Array(graph, name, chunks=((_n_stacked(settings),),) + spatial_chunks, dtype=np.float32,
                             meta=np.empty((0,) * (n_spatial + 1), np.float32))
 
 
@@ -190,8 +261,12 @@ def _evaluate_embedded(inputs: _BlockInputs, names: Sequence[str], settings: Mod
 
 
 def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None,
-                   engine: str | None = None) -> ModelSettings:
-    """Collect the model's settings from config sections or plain mappings (see :func:`evaluate`)."""
+                   engine: str | None = None, uncertainty: Any = None, baseline: Any = None) -> ModelSettings:
+    """Collect the model's settings from config sections or plain mappings (see :func:`evaluate`).
+
+    The parameter draws are made here, once, from the parameter sets and the seed alone, so every block
+    of cells (whatever the chunk size or scheduler) and every scenario gets the same draws.
+    """
     engine = engine if engine is not None else "compiled"
     if engine not in ENGINES:
         raise ValueError(f"engine: expected one of {', '.join(ENGINES)}, got {engine!r}")
@@ -204,6 +279,14 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
     if engine == "compiled" and not kernel.supports(c3_params, c4_params):
         _warn_numpy_engine(c3_params, c4_params)
         engine = "numpy"
+    draws: tuple = ()
+    if uncertainty is not None:
+        pairs = parameter_uncertainty.draw_parameters(
+            c3_params, c4_params, int(_get(uncertainty, "draws", 0)), int(_get(uncertainty, "seed", 0)),
+            _get(uncertainty, "method", "latin_hypercube"))
+        draws = tuple((tuple(sorted(c3.items())), tuple(sorted(c4.items()))) for c3, c4 in pairs)
+    elif baseline is not None:
+        raise ValueError("baseline: pairing with the baseline is for the parameter draws; give uncertainty too")
     return ModelSettings(
         scenario=ScenarioSettings.from_any(scenario),
         c3_params=c3_params,
@@ -215,32 +298,28 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         lai=float(_get(physiology, "lai", DEFAULT_LAI) or DEFAULT_LAI),
         engine=engine,
         max_water_supply_mm=float(_get(physiology, "max_water_supply_mm", MAX_WATER_SUPPLY_MM_PER_DAY)),
+        draws=draws,
+        baseline=ScenarioSettings.from_any(baseline) if baseline is not None else None,
+        growth_temperature=str(_get(physiology, "growth_temperature", "month_mean")),
+        crossover=bool(_get(physiology, "crossover_temperature", True)),
     )
 
 
 def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSettings) -> np.ndarray:
     """Evaluate one block of cells. Monthly arrays arrive as (12, ...), static ones as (...).
 
-    Returns (n_layers, ...) float32: the seasonal layers, then 12 monthly C3 and 12 monthly C4 totals.
+    Returns (n_layers, ...) float32: the seasonal layers, then 12 monthly C3 and 12 monthly C4 totals, then
+    the uncertainty layers (:func:`uncertainty_layer_names`).
     """
     data = dict(zip(names, arrays))
-    shape = data["latitude"].shape
-    data = {name: np.moveaxis(values, 0, -1) if values.ndim == len(shape) + 1 else values
-            for name, values in data.items()}  # months last inside: (..., 12)
-    elevation = data.get("elevation", np.zeros(shape, np.float32))
-    lai = data.get("lai", np.full(shape, settings.lai, np.float32))
-    in_season = _season_mask(data, settings, shape)
-    if settings.engine == "compiled":
-        monthly, c3_gross, c3_photorespiration = _compiled_months(data, settings, in_season, elevation, lai)
-    else:
-        monthly, c3_gross, c3_photorespiration = _numpy_months(data, settings, in_season, elevation, lai)
-    valid = _valid_cells(data)
-    season_c3 = np.where(in_season, monthly["C3"], 0.0).sum(axis=-1)
-    season_c4 = np.where(in_season, monthly["C4"], 0.0).sum(axis=-1)
-    has_season = in_season.any(axis=-1)
-    nodata = ~valid | ~has_season | np.isnan(season_c3) | np.isnan(season_c4)
-    season_c3 = np.where(nodata, np.nan, season_c3)
-    season_c4 = np.where(nodata, np.nan, season_c4)
+    base = {n[len(_BASELINE_PREFIX):]: v for n, v in data.items() if n.startswith(_BASELINE_PREFIX)}
+    data = {n: v for n, v in data.items() if not n.startswith(_BASELINE_PREFIX)}
+    block = _Block.of(data, settings)
+    data, shape, in_season, elevation, lai, valid = (block.data, block.shape, block.in_season, block.elevation,
+                                                     block.lai, block.valid)
+    monthly, c3_gross, c3_photorespiration = _months(block, settings)
+    season_c3, season_c4, nodata = _season_totals(block, monthly)
+    has_season = block.has_season
     advantage = indicators.advantage_index(season_c3, season_c4)
     classes = indicators.with_growing_season(indicators.pathway_class(advantage, settings.contested_margin),
                                              valid, has_season)
@@ -249,27 +328,218 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
         settings.contested_margin,
     )
     share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
-    crossover = _crossover_by_pressure(atmosphere.air_pressure_from_elevation(elevation), settings)
+    if settings.crossover:
+        monthly_crossover = canopy_crossover(block, settings, in_season & valid[..., None], monthly)
+    else:
+        monthly_crossover = np.full(in_season.shape, np.nan)
+    crossover = indicators.warmest_month_value(monthly_crossover, month_mean_temperature(data), in_season)
     seasonal = {"c3_assimilation": season_c3, "c4_assimilation": season_c4, "pathway_advantage": advantage,
                 "pathway_class": classes, "c4_favoured_months": months_favoured,
                 "growing_season_months": indicators.growing_season_months(np.moveaxis(in_season, -1, 0), valid),
                 "photorespiration_share": share, "crossover_temperature": crossover}
-    out = np.empty((_N_STACKED,) + shape, np.float32)
+    out = np.empty((_n_stacked(settings),) + shape, np.float32)
     for i, name in enumerate(SEASONAL_LAYERS):
         values = np.asarray(seasonal[name], dtype=np.float64)
         if not OUTPUT_LAYERS[name].categorical and name != "growing_season_months":
             values = np.where(nodata, np.nan, values)
         out[i] = values
     first = len(SEASONAL_LAYERS)
-    out[first:first + 12] = np.moveaxis(np.where(valid[..., None], monthly["C3"], np.nan), -1, 0)
-    out[first + 12:first + 24] = np.moveaxis(np.where(valid[..., None], monthly["C4"], np.nan), -1, 0)
+    by_month = {"c3_monthly_assimilation": monthly["C3"], "c4_monthly_assimilation": monthly["C4"],
+                "monthly_crossover_temperature": monthly_crossover}
+    for j, name in enumerate(MONTHLY_LAYERS):
+        out[first + 12 * j:first + 12 * (j + 1)] = np.moveaxis(np.where(valid[..., None], by_month[name], np.nan), -1, 0)
+    if settings.draws:
+        base_block = _Block.of(base, settings, settings.baseline) if settings.baseline is not None else None
+        layers = _uncertainty_layers(block, base_block, settings)
+        for i, name in enumerate(uncertainty_layer_names(settings)):
+            out[_N_STACKED + i] = layers[name]
     return out
 
 
-def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
+@dataclass
+class _Block:
+    """One block of cells under one scenario: inputs (months last) and every parameter-independent term.
+
+    growth: the C3 growth temperature per cell and month [°C] (:func:`growth_temperature`), or None.
+    """
+
+    data: dict
+    shape: tuple
+    scenario: ScenarioSettings
+    in_season: np.ndarray
+    has_season: np.ndarray
+    valid: np.ndarray
+    elevation: np.ndarray
+    lai: np.ndarray
+    growth: np.ndarray | None = None
+    kernel_inputs: dict | None = None
+
+    @classmethod
+    def of(cls, data: dict, settings: ModelSettings, scenario: ScenarioSettings | None = None) -> "_Block":
+        """The block of the model's inputs as dask hands them over (monthly arrays as (12, ...))."""
+        shape = data["latitude"].shape
+        data = {name: np.moveaxis(values, 0, -1) if values.ndim == len(shape) + 1 else values
+                for name, values in data.items()}  # months last inside: (..., 12)
+        return cls.months_last(data, settings, _season_mask(data, settings, shape), scenario)
+
+    @classmethod
+    def months_last(cls, data: dict, settings: ModelSettings, in_season: np.ndarray,
+                    scenario: ScenarioSettings | None = None) -> "_Block":
+        """The block of inputs already months last, with the months to compute given."""
+        shape = data["latitude"].shape
+        block = cls(data=data, shape=shape, in_season=in_season, has_season=in_season.any(axis=-1),
+                    valid=_valid_cells(data), elevation=data.get("elevation", np.zeros(shape, np.float32)),
+                    lai=data.get("lai", np.full(shape, settings.lai, np.float32)),
+                    scenario=scenario or settings.scenario, growth=growth_temperature(data, settings))
+        if settings.engine == "compiled":
+            block.kernel_inputs = _kernel_inputs(block, settings)
+        return block
+
+
+def _months(block: _Block, settings: ModelSettings, c3_params: Any = None, c4_params: Any = None):
+    """Monthly nets per pathway, season C3 gross and photorespiration of a block, by the settings' engine,
+    with the settings' parameters or the given ones (a draw)."""
+    c3_params = settings.c3_params if c3_params is None else c3_params
+    c4_params = settings.c4_params if c4_params is None else c4_params
+    if settings.engine == "compiled":
+        return _compiled_months(block, settings, c3_params, c4_params)
+    return _numpy_months(block.data, settings, block.in_season, block.elevation, block.lai,
+                         block.scenario, c3_params, c4_params, block.growth)
+
+
+def _season_totals(block: _Block, monthly):
+    """Season totals of C3 and C4 [g C m-2] (NaN where nodata) and the nodata mask."""
+    season_c3 = np.where(block.in_season, monthly["C3"], 0.0).sum(axis=-1)
+    season_c4 = np.where(block.in_season, monthly["C4"], 0.0).sum(axis=-1)
+    nodata = ~block.valid | ~block.has_season | np.isnan(season_c3) | np.isnan(season_c4)
+    return np.where(nodata, np.nan, season_c3), np.where(nodata, np.nan, season_c4), nodata
+
+
+def draw_advantages(block: _Block, settings: ModelSettings) -> np.ndarray:
+    """(draws, ...) float32 advantage index of every parameter draw: the kernel runs once per draw on the
+    block's shared inputs; everything else (season, validity, inputs) is the block's."""
+    out = np.empty((len(settings.draws),) + block.shape, np.float32)
+    for i, (c3_params, c4_params) in enumerate(settings.draw_params()):
+        monthly, _, _ = _months(block, settings, c3_params, c4_params)
+        season_c3, season_c4, _ = _season_totals(block, monthly)
+        out[i] = indicators.advantage_index(season_c3, season_c4)
+    return out
+
+
+def _uncertainty_layers(block: _Block, base_block: _Block | None, settings: ModelSettings) -> dict[str, np.ndarray]:
+    margin = settings.contested_margin
+    draws = draw_advantages(block, settings)
+    p_c4 = indicators.favoured_probability(draws, margin, "C4")
+    p_c3 = indicators.favoured_probability(draws, margin, "C3")
+    p05, p50, p95 = indicators.advantage_quantiles(draws, (0.05, 0.5, 0.95))
+    layers = {"c4_advantage_probability": p_c4, "c3_advantage_probability": p_c3, "advantage_p05": p05,
+              "advantage_p50": p50, "advantage_p95": p95,
+              "confidence_class": indicators.confidence_class(p_c3, p_c4)}
+    if base_block is not None:
+        base_draws = draw_advantages(base_block, settings)
+        layers["towards_c4_probability"] = indicators.towards_c4_probability(base_draws, draws)
+        layers["class_change_probability"] = indicators.class_change_probability(base_draws, draws, margin)
+    return layers
+
+
+
+def month_mean_temperature(data) -> np.ndarray:
+    """The monthly mean air temperature (Tmin + Tmax)/2 [°C], (..., 12) float64, as the season rule uses it."""
+    return 0.5 * (np.asarray(data["tmin"], np.float64) + np.asarray(data["tmax"], np.float64))
+
+
+def growth_temperature(data, settings: ModelSettings):
+    """The C3 leaves' growth temperature [°C] per cell and month, or None for the parameter set's own.
+
+    "month_mean": the month's mean air temperature (Tmin + Tmax)/2, float32 as the inputs. Kattge & Knorr
+    (2007) took the mean air temperature of the 30 days before a measurement (from memory); a monthly
+    climatology's own month stands for it (the representative day is the 15th, so half of its 30 days
+    are in the month before: a lag this ignores).
+    """
+    if settings.growth_temperature == "parameter_set":
+        return None
+    return (0.5 * (data["tmin"] + data["tmax"])).astype(np.float32)
+
+
+def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly) -> np.ndarray:
+    """The canopy crossover [°C] of every cell and month of ``months`` (bool (..., 12)); NaN elsewhere.
+
+    The monthly mean temperature at which the month's advantage index of the two daily canopies
+    (:func:`indicators.advantage_index`) equals the class margin ``settings.contested_margin``, i.e. the
+    edge of "C4 favoured" as :func:`indicators.c4_favoured_months` counts it, solved with the same engine
+    and inputs as the model pass: the daily minimum and maximum shifted together (the daily range kept),
+    the C3 growth temperature following the month mean when it is "month_mean", and the cell's radiation,
+    day length, air pressure, water availability, humidity input (VPD or relative humidity held; the
+    vapour pressure from Tmin follows Tmin) and CO2 unchanged. The tie nearest the month's own mean on the
+    side its own result points to (:mod:`suitability.tie_solver`): a month is C4-favoured exactly when its
+    mean temperature is above its crossover. −inf: C4 favoured at every mean temperature down to the
+    lower end of :data:`CROSSOVER_SEARCH_C` (or the month's own, if colder); +inf: not C4-favoured at any
+    up to the upper end (or where the shifted day leaves the leaf models' temperature range).
+    ``monthly``: the model pass's monthly nets {"C3", "C4"} (..., 12).
+    """
+    data = block.data
+    shape = months.shape
+    n = int(np.prod(shape[:-1], dtype=np.int64))
+    flat = {name: (values.reshape(n, 12) if values.ndim == len(shape) else values.reshape(n))
+            for name, values in data.items()}
+    start = np.where(months, indicators.advantage_index(monthly["C3"], monthly["C4"]) - settings.contested_margin,
+                     np.nan).reshape(n, 12)
+    mean = month_mean_temperature(data).reshape(n, 12)
+    result = np.full((n, 12), np.nan, np.float32)
+    # Cells a slice at a time: the solver keeps about a dozen arrays per cell and month.
+    for first in range(0, n, CROSSOVER_BATCH_CELLS):
+        rows = slice(first, min(first + CROSSOVER_BATCH_CELLS, n))
+        if np.isfinite(start[rows]).any():
+            result[rows] = _crossover_of_cells({name: values[rows] for name, values in flat.items()}, settings,
+                                               block.scenario, start[rows], mean[rows])
+    return result.reshape(shape)
+
+
+#: Cells solved together by :func:`canopy_crossover` (bounds its memory: about 12 float64 arrays of 12 months).
+CROSSOVER_BATCH_CELLS = 16384
+
+
+def _crossover_of_cells(flat, settings: ModelSettings, scenario: ScenarioSettings, start, mean) -> np.ndarray:
+    """:func:`canopy_crossover` of cells (n, 12) given g at offset 0 (``start``) and the month means."""
+    n = start.shape[0]
+    margin = settings.contested_margin
+    lower = np.maximum(np.minimum(CROSSOVER_SEARCH_C[0], mean) - mean, _SHIFT_TMIN_C - flat["tmin"])
+    upper = np.minimum(np.maximum(CROSSOVER_SEARCH_C[1], mean) - mean, _SHIFT_TMAX_C - flat["tmax"])
+
+    def excess(offsets, active):
+        rows = active.any(axis=-1)
+        sub = {name: values[rows] for name, values in flat.items()}
+        shift = offsets[rows].astype(np.float32)
+        sub["tmin"] = sub["tmin"] + shift
+        sub["tmax"] = sub["tmax"] + shift
+        with np.errstate(all="ignore"):
+            nets, _, _ = _months(_Block.months_last(sub, settings, active[rows], scenario), settings)
+        g = np.full((n, 12), np.nan)
+        g[rows] = indicators.advantage_index(nets["C3"], nets["C4"]) - margin
+        return np.where(active, g, np.nan)
+
+    offset = tie_solver.nearest_tie(excess, start, np.minimum(lower, 0.0), np.maximum(upper, 0.0))
+    return side_consistent(mean + offset, mean, start > 0)
+
+
+def side_consistent(crossover, mean, favoured) -> np.ndarray:
+    """The crossover as float32, moved by at most one float32 step so that, compared in float64,
+    ``mean > crossover`` exactly where ``favoured`` (rounding of a tie that lies within a float32 step of
+    the month's mean; NaN and ±inf unchanged)."""
+    value = np.asarray(crossover, np.float32)
+    with np.errstate(invalid="ignore"):
+        value = np.where(favoured & (value >= mean), np.nextafter(value, np.float32(-np.inf)), value)
+        value = np.where(~favoured & (value < mean), np.nextafter(value, np.float32(np.inf)), value)
+    return value.astype(np.float32)
+
+
+def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, scenario=None, c3_params=None,
+                  c4_params=None, growth=None):
     """Monthly net totals per pathway [g C m-2], season C3 gross and photorespiration, by the numpy physiology."""
     shape = in_season.shape[:-1]
-    scenario = settings.scenario
+    scenario = settings.scenario if scenario is None else scenario
+    c3_params = settings.c3_params if c3_params is None else c3_params
+    c4_params = settings.c4_params if c4_params is None else c4_params
     monthly = {p: np.full(shape + (12,), np.nan, np.float64) for p in ("C3", "C4")}
     c3_gross = np.zeros(shape, np.float64)
     c3_photorespiration = np.zeros(shape, np.float64)
@@ -277,7 +547,7 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
         if not in_season[..., index].any():
             continue
         month_inputs = _month_inputs(data, index)
-        for pathway, params in (("C3", settings.c3_params), ("C4", settings.c4_params)):
+        for pathway, params in (("C3", c3_params), ("C4", c4_params)):
             with np.errstate(all="ignore"):
                 day = daily_canopy_assimilation(
                     pathway,
@@ -289,6 +559,7 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
                     lai=lai,
                     params=params,
                     max_water_supply_mm=settings.max_water_supply_mm,
+                    growth_temperature_c=None if growth is None else growth[..., index],
                     **month_inputs,
                 )
             monthly[pathway][..., index] = np.asarray(day.net) * DAYS_IN_MONTH[index]
@@ -301,8 +572,17 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai):
     return monthly, c3_gross, c3_photorespiration
 
 
-def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai):
+def _compiled_months(block: _Block, settings: ModelSettings, c3_params: Any, c4_params: Any):
     """The same three results as :func:`_numpy_months`, by the compiled kernel (:mod:`suitability.kernel`)."""
+    day = kernel.season_canopy_assimilation(**block.kernel_inputs, c3_params=c3_params, c4_params=c4_params)
+    monthly = {"C3": day.c3_net * DAYS_IN_MONTH, "C4": day.c4_net * DAYS_IN_MONTH}
+    return monthly, day.c3_gross_total, day.c3_photorespiration_total
+
+
+def _kernel_inputs(block: _Block, settings: ModelSettings) -> dict:
+    """The kernel's arguments except the parameters, once per block: C-contiguous float32 arrays, so that
+    each draw's kernel call reuses them without a copy."""
+    data, in_season, elevation, lai = block.data, block.in_season, block.elevation, block.lai
     humidity = {}
     if "vpd" in data:
         humidity["vpd_kpa"] = data["vpd"]
@@ -313,34 +593,16 @@ def _compiled_months(data, settings: ModelSettings, in_season, elevation, lai):
         shortwave = data["shortwave"]
     else:  # mol m-2 d-1 of PAR back to MJ m-2 d-1 of shortwave, inverting light.par_from_shortwave
         shortwave = data["par"] / light.par_from_shortwave(1.0)
-    day = kernel.season_canopy_assimilation(
-        tmin_c=data["tmin"], tmax_c=data["tmax"], shortwave_mj=shortwave,
-        water_availability=data["water_availability"], latitude_deg=data["latitude"],
-        day_of_year=REPRESENTATIVE_DAY, co2_ppm=settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent,
-        elevation_m=elevation, lai=lai, in_season=in_season, c3_params=settings.c3_params,
-        c4_params=settings.c4_params, days_in_month=DAYS_IN_MONTH,
-        max_water_supply_mm=settings.max_water_supply_mm, **humidity,
+    contiguous = functools.partial(np.require, dtype=np.float32, requirements=["C", "A", "W"])
+    return dict(
+        tmin_c=contiguous(data["tmin"]), tmax_c=contiguous(data["tmax"]), shortwave_mj=contiguous(shortwave),
+        water_availability=contiguous(data["water_availability"]), latitude_deg=contiguous(data["latitude"]),
+        day_of_year=REPRESENTATIVE_DAY, co2_ppm=block.scenario.co2_ppm, o2_percent=block.scenario.o2_percent,
+        elevation_m=contiguous(elevation), lai=contiguous(lai), in_season=np.require(in_season, np.bool_, ["C", "A", "W"]),
+        days_in_month=DAYS_IN_MONTH, max_water_supply_mm=settings.max_water_supply_mm,
+        **{k: contiguous(v) for k, v in humidity.items()},
+        growth_temperature_c=None if block.growth is None else contiguous(block.growth),
     )
-    monthly = {"C3": day.c3_net * DAYS_IN_MONTH, "C4": day.c4_net * DAYS_IN_MONTH}
-    return monthly, day.c3_gross_total, day.c3_photorespiration_total
-
-
-def _crossover_by_pressure(pressure_kpa: np.ndarray, settings: ModelSettings) -> np.ndarray:
-    """Crossover temperature per cell, solved once per distinct air pressure (to 0.01 kPa) of the block.
-
-    The crossover depends on the cell only through its air pressure; rounding the pressure to 0.01 kPa
-    (about 1 m of elevation) changes it by far less than the 0.1 °C the maps resolve.
-    """
-    finite = np.isfinite(pressure_kpa)
-    rounded = np.round(np.where(finite, pressure_kpa, 101.3), 2)
-    distinct, inverse = np.unique(rounded, return_inverse=True)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)
-        solved = crossover_temperature(
-            settings.scenario.co2_ppm, o2_percent=settings.scenario.o2_percent, pressure_kpa=distinct,
-            params={"C3": settings.c3_params, "C4": settings.c4_params},
-        )
-    return np.where(finite, np.asarray(solved)[inverse.reshape(pressure_kpa.shape)], np.nan)
 
 
 def _month_inputs(data: Mapping[str, np.ndarray], index: int) -> dict[str, np.ndarray]:
@@ -386,7 +648,9 @@ def _valid_cells(data: Mapping[str, np.ndarray]) -> np.ndarray:
 
 def _unstack(stacked: xr.DataArray, settings: ModelSettings) -> xr.Dataset:
     layers = {}
-    for i, name in enumerate(SEASONAL_LAYERS):
+    seasonal = list(enumerate(SEASONAL_LAYERS))
+    seasonal += [(_N_STACKED + i, name) for i, name in enumerate(uncertainty_layer_names(settings))]
+    for i, name in seasonal:
         layer = stacked.isel(layer=i)
         if OUTPUT_LAYERS[name].categorical:
             layer = layer.fillna(CLASS_NODATA).astype(np.uint8)
@@ -409,9 +673,10 @@ def water_from_rainfall(climate: xr.Dataset, capacity_mm: float = water_balance.
                         retention: str = "exponential") -> xr.Dataset:
     """``climate`` with ``water_availability`` (AET/PET of the monthly soil-water balance) and ``pet``.
 
-    climate: ``precipitation`` [mm d-1] (month, y, x); ``pet`` [mm d-1] if given, else Hargreaves-Samani
-    reference evapotranspiration from ``tmin``/``tmax`` [°C] and the extraterrestrial radiation of the
-    representative day of each month at the cell's ``latitude``; ``soil_water_capacity`` [mm] (y, x) if
+    climate: ``precipitation`` [mm d-1] (month, y, x); ``pet`` [mm d-1] if given, else the reference
+    evapotranspiration of :func:`pet_method`: FAO-56 Penman-Monteith where ``wind_speed``, ``shortwave`` and
+    ``humidity`` or ``vpd`` are given, else Hargreaves-Samani from ``tmin``/``tmax`` [°C], both with the
+    extraterrestrial radiation of the representative day of each month at the cell's ``latitude``; ``soil_water_capacity`` [mm] (y, x) if
     given, else ``capacity_mm``. Monthly totals are the daily rates times the days of the month (the same
     non-leap year as the assimilation totals). Lazy on dask data (whole months per block).
     """
@@ -420,8 +685,11 @@ def water_from_rainfall(climate: xr.Dataset, capacity_mm: float = water_balance.
     else:
         doy = xr.DataArray(REPRESENTATIVE_DAY, dims="month", coords={"month": np.arange(1, 13)})
         ra = xr.apply_ufunc(light.extraterrestrial_radiation, climate["latitude"], doy, dask="allowed")
-        pet = xr.apply_ufunc(water_balance.hargreaves_samani_et0, climate["tmin"], climate["tmax"], ra,
-                             dask="parallelized", output_dtypes=[np.float64])
+        if pet_method(climate) == PENMAN_MONTEITH:
+            pet = _penman_monteith(climate, ra)
+        else:
+            pet = xr.apply_ufunc(water_balance.hargreaves_samani_et0, climate["tmin"], climate["tmax"], ra,
+                                 dask="parallelized", output_dtypes=[np.float64])
     capacity = climate["soil_water_capacity"] if "soil_water_capacity" in climate else capacity_mm
     pet = pet.transpose("month", ...)
     rain = climate["precipitation"].transpose(*pet.dims)
@@ -439,6 +707,22 @@ def water_from_rainfall(climate: xr.Dataset, capacity_mm: float = water_balance.
     water = xr.apply_ufunc(availability, rain, pet, capacity, input_core_dims=[["month"], ["month"], []],
                            output_core_dims=[["month"]], dask="parallelized", output_dtypes=[np.float32])
     return climate.assign(water_availability=water.transpose(*climate["precipitation"].dims), pet=pet.astype(np.float32))
+
+
+def _penman_monteith(climate: xr.Dataset, extraterrestrial) -> xr.DataArray:
+    """FAO-56 Penman-Monteith ET0 [mm d-1] (month, ...) of a monthly climatology: ea from ``humidity``
+    (eq. 19) or ``vpd`` (ea = es − D), P from ``elevation`` (eq. 7; sea level without it), G of each month
+    from the mean temperatures of the months before and after it, the year taken round (eq. 43)."""
+    tmin, tmax = climate["tmin"], climate["tmax"]
+    if "humidity" in climate:
+        ea = atmosphere.actual_vapour_pressure_from_relative_humidity(100.0 * climate["humidity"], tmin, tmax)
+    else:
+        ea = atmosphere.actual_vapour_pressure_from_deficit(tmin, tmax, climate["vpd"])
+    elevation = climate["elevation"] if "elevation" in climate else xr.zeros_like(climate["latitude"], dtype=np.float32)
+    mean = 0.5 * (tmin + tmax)
+    heat = energy.monthly_soil_heat_flux(mean.roll(month=1, roll_coords=False), mean.roll(month=-1, roll_coords=False))
+    return energy.penman_monteith_et0(tmin, tmax, ea, climate["shortwave"], extraterrestrial, elevation,
+                                      atmosphere.air_pressure_from_elevation(elevation), climate["wind_speed"], heat)
 
 
 def _with_latitude(climate: xr.Dataset) -> xr.Dataset:

@@ -50,6 +50,7 @@ from pathlib import Path
 from typing import Any
 
 import numpy as np
+import pandas as pd
 import rioxarray  # noqa: F401  (registers the .rio accessor used on layers and datasets)
 import xarray as xr
 
@@ -242,6 +243,9 @@ def write_datacube(ds: xr.Dataset, path) -> Path:
         if known is not None:
             variable.attrs.setdefault("long_name", known.long_name)
             variable.attrs.setdefault("units", known.units)
+            if known.display_units and known.display_units != known.units:
+                variable.attrs.setdefault("comment", f"{known.display_units}: the CF units string {known.units!r} "
+                                                     "cannot name the element; the values are mass of carbon")
         variable.attrs.pop("grid_mapping", None)
     ds = ds.rio.write_crs(crs).rio.write_coordinate_system()
     grid_mapping = ds.rio.grid_mapping
@@ -251,6 +255,11 @@ def write_datacube(ds: xr.Dataset, path) -> Path:
         if variable.name != grid_mapping:
             variable.attrs["grid_mapping"] = grid_mapping
     ds.attrs.setdefault("Conventions", "CF-1.8")
+    ds.attrs.setdefault("title", "Monthly potential canopy net assimilation of a C3 and a C4 crop canopy")
+    ds.attrs.setdefault("source", "suitability: C3 and C4 leaf models scaled to the canopy, per grid cell and month")
+    if "month" in ds.coords:
+        ds["month"].attrs.setdefault("long_name", "month of the year (1 January ... 12 December)")
+        ds["month"].attrs.setdefault("units", "1")
     ds.attrs = {key: _netcdf_attribute(value) for key, value in ds.attrs.items()}
     for variable in ds.data_vars.values():
         variable.attrs.update({key: _netcdf_attribute(value) for key, value in variable.attrs.items()})
@@ -319,6 +328,8 @@ def _as_tiled_dask(name: str, layer: xr.DataArray, da):
         data = da.from_array(np.asarray(data), chunks=TILE_SIZE, name=False)
     if is_class_layer(name):
         data = data.map_blocks(_class_codes, name, dtype=np.uint8)
+    elif OUTPUT_LAYERS[name].integer:
+        data = data.map_blocks(_whole_counts, dtype=np.uint8)
     else:
         data = data.astype(np.float32)
     aligned = tuple(_tile_aligned(axis_chunks) for axis_chunks in data.chunks)
@@ -329,6 +340,12 @@ def _tile_aligned(axis_chunks: tuple[int, ...]) -> tuple[int, ...] | int:
     if all(c % TILE_SIZE == 0 for c in axis_chunks[:-1]):
         return axis_chunks
     return max(TILE_SIZE, axis_chunks[0] // TILE_SIZE * TILE_SIZE)
+
+
+def _whole_counts(block: np.ndarray) -> np.ndarray:
+    """Counts (months) as uint8, NaN -> 255; the model's counts are whole numbers held in floats."""
+    values = np.asarray(block, dtype="float64")
+    return np.where(np.isnan(values), CLASS_NODATA, np.rint(values)).astype(np.uint8)
 
 
 def _class_codes(block: np.ndarray, name: str) -> np.ndarray:
@@ -355,6 +372,22 @@ def write_csv(table, path) -> Path:
             safe[column] = safe[column].map(spreadsheet_safe)
     return atomic_write(path, lambda temporary: safe.to_csv(temporary, index=False, encoding="utf-8"),
                         what="the table")
+
+
+def write_data_dictionary(columns: Mapping[str, str], path) -> Path:
+    """Write the data dictionary of a CSV beside it (``<name>.columns.csv``): one row per column with its
+    meaning and its units, the text in the last [brackets] of the meaning ("" when it has none)."""
+    import re
+
+    rows = pd.DataFrame({"column": list(columns), "meaning": list(columns.values())})
+    rows["units"] = [next(iter(re.findall(r"\[([^\]]+)\]", m)[-1:]), "") for m in rows["meaning"]]
+    return write_csv(rows, path)
+
+
+def dictionary_path(csv_path) -> Path:
+    """``x.csv`` -> ``x.columns.csv``: where :func:`write_data_dictionary` puts a table's dictionary."""
+    csv_path = Path(csv_path)
+    return csv_path.with_name(csv_path.stem + ".columns.csv")
 
 
 # First characters that make a spreadsheet read a cell as a formula (or a DDE command).
@@ -416,12 +449,12 @@ def _create_tiled_geotiff(path: Path, name: str, dtype, grid: _Grid, tags: Mappi
     categorical = variable.categorical
     profile = dict(options.creation_options(dtype), width=grid.width, height=grid.height, count=1,
                    dtype=np.dtype(dtype).name, crs=grid.crs, transform=grid.transform,
-                   nodata=CLASS_NODATA if categorical else np.nan, SPARSE_OK=True)
+                   nodata=CLASS_NODATA if categorical or variable.integer else np.nan, SPARSE_OK=True)
     with rasterio.open(path, "w", **profile) as dst:
         dst.update_tags(**{str(key): _tag_text(value) for key, value in tags.items()})
         dst.set_band_description(1, variable.long_name)
-        dst.set_band_unit(1, variable.units)
-        band_tags = {"long_name": variable.long_name, "units": variable.units}
+        dst.set_band_unit(1, variable.readable_units)
+        band_tags = {"long_name": variable.long_name, "units": variable.readable_units}
         if categorical:
             band_tags.update({f"class_{code}": label for code, label in CLASS_LEGENDS[name].items()})
             dst.colorinterp = [ColorInterp.palette]
@@ -443,7 +476,7 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
     try:
         cog_translate(
             tiled, cog, profile,
-            nodata=CLASS_NODATA if categorical else np.nan,
+            nodata=CLASS_NODATA if categorical or variable.integer else np.nan,
             overview_level=None if options.overviews else 0,
             overview_resampling=variable.resampling,
             forward_band_tags=True,
@@ -452,10 +485,10 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
             in_memory=False,  # a disk temporary keeps peak memory flat on large regions
         )
         with rasterio.open(cog) as check:
-            units_kept = check.units[0] == variable.units
+            units_kept = check.units[0] == variable.readable_units
         if not units_kept:
             with rasterio.open(cog, "r+", IGNORE_COG_LAYOUT_BREAK="YES") as dst:
-                dst.set_band_unit(1, variable.units)
+                dst.set_band_unit(1, variable.readable_units)
             relaid = cog.with_name(cog.name.replace(".cog-", ".final-"))
             copy(cog, relaid, copy_src_overviews=True, **profile)
             cog = relaid

@@ -24,7 +24,9 @@ PARAMETER_KEYS: dict[str, tuple[str, str]] = {
     "rd25": ("µmol m-2 s-1", "leaf (day) respiration at 25 °C"),
     "tpu25": ("µmol m-2 s-1", "triose-phosphate use limit at 25 °C (inf: no limit)"),
     "vcmax_temperature_response": ("", "temperature response of Vcmax and Jmax"),
-    "growth_temperature_c": ("°C", "growth temperature of the Kattge & Knorr (2007) peaked response"),
+    "growth_temperature_c": ("°C", "growth temperature of the Kattge & Knorr (2007) acclimation where no per-cell "
+                                   "one is used (physiology.growth_temperature: parameter_set)"),
+    "jmax_ratio_factor": ("-", "factor on the derived Jmax25/Vcmax25 ratio (1; parameter draws vary it)"),
     "theta": ("-", "curvature of the light response"),
     "spectral_correction": ("-", "f, share of absorbed light not used by the photosystems"),
     "stomatal_model": ("", "how intercellular CO2 is found: medlyn (Medlyn et al. 2011) or fixed Ci/Ca"),
@@ -54,7 +56,8 @@ PARAMETER_KEYS: dict[str, tuple[str, str]] = {
 
 #: (pathway, key) -> how the value is derived when the set leaves it empty (physiology/params.py, _derive).
 DERIVED = {
-    ("C3", "jmax25"): "derived: (2.59 - 0.035 growth_temperature_c) x vcmax25 (Kattge & Knorr 2007)",
+    ("C3", "jmax25"): "derived: (2.59 - 0.035 Tg) x vcmax25 (Kattge & Knorr 2007), shown at Tg = "
+                      "growth_temperature_c; follows each cell's Tg under acclimation",
     ("C3", "rd25"): "derived: 0.015 x vcmax25 (Collatz et al. 1991)",
     ("C3", "tpu25"): "derived: no TPU limit",
     ("C4", "rd25"): "derived: 0.01 x vcmax25 (from memory, see physiology/params.py)",

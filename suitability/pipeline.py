@@ -7,6 +7,7 @@ provenance (manifest, checksums, tags) in :mod:`suitability.provenance`, resume 
 
 from __future__ import annotations
 
+import gc
 import time
 import warnings
 from contextlib import contextmanager
@@ -20,6 +21,7 @@ import xarray as xr
 
 from . import indicators
 from ._version import __version__
+from .assumptions import run_assumptions
 from .caution import CAUTION
 from .config import ComputeConfig, RunConfig, load_config, validate_section
 from .errors import ConfigError, InputDataError, OutputError
@@ -32,9 +34,21 @@ from .provenance import MANIFEST_NAME, build_manifest, class_summary, input_chec
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
 from .runlock import RunLock
 from .runtime import compute_context
-from .variables import CHANGE, DATACUBE, DERIVED, ENSEMBLE, INPUT_VARIABLES, OUTPUT_LAYERS, SEASONAL, layer_names
+from .variables import (
+    CHANGE,
+    DATACUBE,
+    DERIVED,
+    ENSEMBLE,
+    INPUT_VARIABLES,
+    OUTPUT_LAYERS,
+    SEASONAL,
+    UNCERTAINTY,
+    layer_names,
+)
 
 SUMMARY_NAME = "class_summary.csv"
+#: Sub-folder of a scenario's folder holding each member's layers (``output.member_outputs``).
+MEMBERS_FOLDER = "members"
 DATACUBE_NAME = "monthly_assimilation.nc"
 
 
@@ -90,6 +104,10 @@ def run(
     can be resumed; ``manifest.json`` and ``class_summary.csv`` of an earlier run are removed before the
     first write and written anew at the end, so they are present only after a complete run.
     """
+    # An earlier run in this process leaves lazy arrays holding open NetCDF handles in reference cycles.
+    # Collected at an arbitrary moment of this run, their closing met this run's reads of the same files and
+    # crashed HDF5 (a segmentation fault on the second run of one Python session); collect them first.
+    gc.collect()
     cfg = load_config(config) if isinstance(config, (str, Path)) else config
     cfg = _with_overrides(cfg, overwrite=overwrite, scheduler=scheduler, workers=workers, memory_limit=memory_limit)
     started = time.perf_counter()
@@ -112,32 +130,39 @@ def run(
             _clear_after_takeover(lock, folder, [s.name for s in scenarios])
             _warn_about_foreign_files(cfg, folder)
             checksums = input_checksums(cfg)
-            hashes = {s.name: scenario_hash(cfg, s, layers_of(s), checksums) for s in scenarios}
+            hashes = {s.name: scenario_hash(cfg, s, layers_of(s), checksums, ensembles.get(s.name)) for s in scenarios}
             records = verified_records(folder, hashes, cfg.baseline) if resume else {}
             resumed = [s.name for s in scenarios if s.name in records]
             to_compute = [s for s in scenarios if s.name not in records]
-            _prepare_folder(cfg, folder, to_compute, layers_of, replace=cfg.output.overwrite or resume)
+            _prepare_folder(cfg, folder, to_compute, layers_of, replace=cfg.output.overwrite or resume, ensembles=ensembles)
             _check_disk_space(cfg, grid, folder, to_compute, layers_of)
             write_progress(folder, records)
             written = {name: record_paths(folder, name, record) for name, record in records.items()}
             config_hash = cfg.config_hash()
             for scenario in to_compute:
                 with clock(f"scenario_{scenario.name}_s"):
-                    tags = scenario_tags(scenario, config_hash, hashes[scenario.name])
+                    tags = scenario_tags(scenario, config_hash, hashes[scenario.name],
+                                         invented_region=cfg.region.name if cfg.region.invented else None)
+                    draws = _draw_arguments(cfg, scenario, own_layers)
                     if scenario.name in ensembles:
                         members = {m: evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
-                                               classes=cfg.classes, scenario_layers=layers, engine=runtime.engine)
+                                               classes=cfg.classes, scenario_layers=layers, engine=runtime.engine,
+                                               **draws)
                                    for m, layers in own_layers[scenario.name].items()}
-                        result = ensemble_result(members, cfg.classes.contested_margin)
                         tags = {**tags, "ensemble_members": ", ".join(members)}
-                        if cfg.output.member_outputs:
-                            _write_members(cfg, grid, runtime, scenario, members, tags, layers_of(scenario))
+                        member_paths = (_write_members(cfg, grid, runtime, scenario, members, tags, layers_of(scenario))
+                                        if cfg.output.member_outputs else {})
+                        if member_paths and not cfg.output.datacube:  # the members' layers are written: not twice
+                            members = _written_members(member_paths, members, cfg.compute.chunk_size)
+                        result = ensemble_result(members, cfg.classes.contested_margin)
                     else:
+                        member_paths = {}
                         result = evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
                                           classes=cfg.classes, scenario_layers=own_layers.get(scenario.name),
-                                          engine=runtime.engine)
+                                          engine=runtime.engine, **draws)
                     written[scenario.name] = _write_scenario(cfg, grid, runtime, scenario, result, written, tags,
                                                              layers_of(scenario))
+                    written[scenario.name].update(member_paths)
                 _refuse_empty_map(cfg, scenario, written[scenario.name])
                 records[scenario.name] = scenario_record(hashes[scenario.name], written[scenario.name])
                 write_progress(folder, records)
@@ -145,7 +170,8 @@ def run(
             briefs: dict[str, Path] = {}
             if cfg.brief is not None:
                 with clock("briefs_s"):
-                    briefs = make_briefs(cfg, {s.name: folder / s.name for s in scenarios}, today)
+                    briefs = make_briefs(cfg, {s.name: folder / s.name for s in scenarios}, today,
+                                         members=ensembles, assumptions=run_assumptions(cfg))
             timings["total_s"] = time.perf_counter() - started
             manifest = build_manifest(cfg, config_hash, written, summary, timings, briefs, checksums=checksums,
                                       records=records, resumed=resumed,
@@ -182,6 +208,8 @@ def selected_layers(cfg: RunConfig, ensembles: set[str] | None = None):
     names += [name for name, layer in OUTPUT_LAYERS.items() if layer.required and name not in names]
     change = set(layer_names(CHANGE))
     ensemble = set(layer_names(ENSEMBLE))
+    if cfg.uncertainty is None:
+        names = [n for n in names if OUTPUT_LAYERS[n].kind != UNCERTAINTY]
     if ensembles is None:
         ensembles = {s.name for s in cfg.scenarios if s.members}
 
@@ -194,6 +222,17 @@ def selected_layers(cfg: RunConfig, ensembles: set[str] | None = None):
     return for_scenario
 
 
+def _draw_arguments(cfg: RunConfig, scenario, own_layers) -> dict[str, Any]:
+    """The model's parameter-draw arguments for ``scenario``: the config's ``uncertainty`` and, for a scenario
+    other than the baseline, the baseline scenario and its own layers to pair the draws with."""
+    if cfg.uncertainty is None:
+        return {}
+    arguments: dict[str, Any] = {"uncertainty": cfg.uncertainty}
+    if scenario.name != cfg.baseline:
+        arguments.update(baseline=cfg.baseline_scenario, baseline_layers=own_layers.get(cfg.baseline))
+    return arguments
+
+
 def scenario_members(cfg: RunConfig, scenario) -> list[str] | None:
     """The ensemble members of a scenario: its ``members`` list, else the labels of a member dimension in
     its own layers' files (which must agree between layers); None for a single climate."""
@@ -201,6 +240,8 @@ def scenario_members(cfg: RunConfig, scenario) -> list[str] | None:
         return list(scenario.members)
     found, where = None, None
     for name, spec in (scenario.climate.items() if scenario.climate else ()):
+        if isinstance(spec.path, list):  # only with members, returned above
+            continue
         labels = member_labels(name, spec, Path(spec.path), INPUT_VARIABLES[name].monthly)
         if labels is None:
             continue
@@ -215,14 +256,40 @@ def _own_layers(cfg: RunConfig, grid: TargetGrid, scenario, members: list[str] |
     """A scenario's own layers on the grid: one Dataset, or member -> Dataset for an ensemble."""
     if not members:
         return load_climate(scenario.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
-    own = {m: load_climate(scenario.climate, grid, cfg.config_dir, cfg.compute.chunk_size, member=m) for m in members}
-    for name in scenario.climate.keys():  # members must come with the same kind of time steps
+    own = {m: load_climate(scenario.member_climate(m), grid, cfg.config_dir, cfg.compute.chunk_size, member=m)
+           for m in members}
+    check_members_alike(scenario, own)
+    return own
+
+
+def check_members_alike(scenario, own: dict[str, xr.Dataset]) -> None:
+    """Members must give each layer from the same kind of time steps (all monthly or all daily, or all 12
+    months) and from the same file variable; their grids may differ (each is aligned on the run's grid)."""
+    for name in scenario.climate.keys():
+        files = {m: scenario.member_climate(m)[name].path for m in own}
         kinds = {m: ds.attrs["time_info"].get(name, {}).get("steps", "12 months") for m, ds in own.items()}
         if len(set(kinds.values())) > 1:
+            first = next(iter(kinds.values()))
+            odd = next(m for m, k in kinds.items() if k != first)
             listed = ", ".join(f"{m}: {k}" for m, k in kinds.items())
-            raise InputDataError(f"{scenario.climate[name].path}: layer {name!r} of scenario {scenario.name!r} mixes "
-                                 f"time steps between members ({listed}); expected the same (all monthly or all daily)")
-    return own
+            raise InputDataError(f"{files[odd]}: layer {name!r} of scenario {scenario.name!r} mixes time steps between "
+                                 f"members ({listed}); expected the same (all monthly or all daily)")
+        found = {m: ds.attrs.get("variables", {}).get(name) for m, ds in own.items()}
+        odd = next((m for m, v in found.items() if _other_variable(v, next(iter(found.values())))), None)
+        if odd is not None:
+            listed = ", ".join(f"{m}: {v}" for m, v in found.items())
+            raise InputDataError(f"{files[odd]}: layer {name!r} of scenario {scenario.name!r} is read from different "
+                                 f"variables between members ({listed}); expected the same variable in every member")
+
+
+def _other_variable(described: str | None, first: str | None) -> bool:
+    """Whether two "name (standard_name)" descriptions of a member's variable name different quantities: the
+    names differ, or both give a CF standard_name and those differ (a missing standard_name is no conflict)."""
+    if described is None or first is None:
+        return False
+    name, _, standard = described.partition(" (")
+    first_name, _, first_standard = first.partition(" (")
+    return name != first_name or bool(standard and first_standard and standard != first_standard)
 
 
 def _time_info(own) -> dict:
@@ -242,22 +309,42 @@ def ensemble_result(members: dict[str, xr.Dataset], margin: float) -> xr.Dataset
         if OUTPUT_LAYERS.get(name) is not None and not OUTPUT_LAYERS[name].categorical:
             out[name] = indicators.ensemble_median(stack[name]).astype(np.float32)
     out["pathway_class"] = indicators.pathway_class(out["pathway_advantage"], margin)
+    # Parameter draws of every member pooled: a share of draws is the mean of the members' shares (each
+    # member has the same draws); the quantiles stay the median of the members' quantiles.
+    for name in (n for n in layer_names(UNCERTAINTY) if n.endswith("_probability") and n in stack):
+        out[name] = stack[name].mean("member", skipna=False).astype(np.float32)
+    if "confidence_class" in stack:
+        out["confidence_class"] = xr.apply_ufunc(indicators.confidence_class, out["c3_advantage_probability"],
+                                                 out["c4_advantage_probability"], dask="parallelized",
+                                                 output_dtypes=[np.uint8])
     out["ensemble_median_advantage"] = out["pathway_advantage"]
     out["c4_favoured_share"] = indicators.c4_favoured_share(stack["pathway_advantage"], margin).astype(np.float32)
     out["member_advantage"] = stack["pathway_advantage"]
     return out
 
 
-def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dataset) -> dict[str, Path]:
+def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dataset, *, members=None,
+                assumptions=()) -> dict[str, Path]:
     """Zonal statistics, figures and HTML/PDF briefs for the scenarios already written.
 
-    today: the baseline climate on the grid (unmasked), from which the region's warm-season temperature is taken.
+    today: the baseline climate on the grid (unmasked): the region's warm-season temperature and each
+    district's monthly mean temperature (for the crossover chart) are taken from it, the latter computed
+    district window by district window. members: scenario -> its climate-model members.
     """
     from .reports import brief_context_from_config, build_brief
+    from .reports.zones import district_monthly_means, output_grid
 
+    if members is None:  # a brief of a finished run: the members as the run found them
+        members = {s.name: found for s in cfg.scenarios if (found := scenario_members(cfg, s))}
+    monthly = today["tmean"] if "tmean" in today else (today["tmin"] + today["tmax"]) / 2
     warm_season = indicators.warm_season_mean(indicators.regional_monthly_temperature(today).compute().to_numpy())
+    grid = output_grid(Path(scenario_folders[cfg.baseline]) / "pathway_class.tif")
+    district_climate = district_monthly_means(cfg.brief.zones, cfg.brief.name_field, grid,
+                                              monthly.transpose("month", "y", "x").data)
     context = brief_context_from_config(cfg, scenario_folders, warm_season_temperature_c=warm_season,
-                                        caution=CAUTION, tool_version=__version__)
+                                        caution=CAUTION, tool_version=__version__, district_climate=district_climate,
+                                        time_info=today.attrs.get("time_info", {}), members=members,
+                                        assumptions=assumptions or run_assumptions(cfg))
     return build_brief(context, Path(cfg.output.folder))
 
 
@@ -269,7 +356,7 @@ def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = 
         it, existing ones are an :class:`~suitability.errors.OutputError` listing them, and nothing is written).
     """
     from .errors import OutputError
-    from .reports.brief import slug
+    from .reports.brief import expected_files
 
     if cfg.brief is None:
         raise ConfigError(f"{cfg.source_path or '<config>'}: the config has no 'brief' section (zones, name_field)")
@@ -288,12 +375,8 @@ def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = 
     if missing:
         raise InputDataError(f"{folder}: no finished outputs for scenario(s) {', '.join(missing)} "
                              "(expected <scenario>/pathway_class.tif); run them first")
-    region = slug(cfg.region.name)
-    compared = [s.name for s in chosen if s.name != cfg.baseline] or [cfg.baseline]
-    stems = [f"{region}_{slug(n)}" for n in compared]
-    stems += [f"{region}_{slug(str(d))}" for d in zones["district"]] if cfg.brief.per_district else []
-    expected = [f"{region}_districts.csv", f"{region}_districts.gpkg"]
-    expected += [f"{stem}{ext}" for stem in stems for ext in (".html", ".pdf")]
+    expected = expected_files(cfg.region.name, [s.name for s in chosen], cfg.baseline,
+                              list(zones["district"]) if cfg.brief.per_district else [])
     existing = [name for name in expected if (folder / "brief" / name).exists()]
     if existing and not overwrite:
         raise OutputError(f"{folder / 'brief'}: {len(existing)} brief file(s) exist ({', '.join(existing)}); "
@@ -425,9 +508,12 @@ def _warn_about_foreign_files(cfg: RunConfig, folder: Path) -> None:
                       f"write ({shown}); they are left as they are", stacklevel=3)
 
 
-def _prepare_folder(cfg: RunConfig, folder: Path, to_compute, layers_of, *, replace: bool) -> None:
+def _prepare_folder(cfg: RunConfig, folder: Path, to_compute, layers_of, *, replace: bool, ensembles=None) -> None:
     """Refuse to replace outputs unless allowed; remove the summary and manifest of an earlier run."""
     names = [f"{s.name}/{n}.tif" for s in to_compute for n in layers_of(s)]
+    if cfg.output.member_outputs:
+        names += [f"{s.name}/{MEMBERS_FOLDER}/{m}/{n}.tif" for s in to_compute for m in (ensembles or {}).get(s.name, ())
+                  for n in member_layers(layers_of(s))]
     names += [f"{s.name}/{DATACUBE_NAME}" for s in to_compute] if cfg.output.datacube else []
     check_output_folder(folder, names, replace)
     for stale in (MANIFEST_NAME, SUMMARY_NAME):
@@ -468,7 +554,9 @@ def _input_errors_named(cfg: RunConfig, scenario):
             text += f" {seen}"
             seen = seen.__cause__ or seen.__context__
         specs = [(name, spec) for name, spec in cfg.climate.items()]
-        specs += [(name, spec) for name, spec in (scenario.climate.items() if scenario.climate else ())]
+        for member in (scenario.members or [None]):
+            own = scenario.member_climate(member) if member else (scenario.climate or {})
+            specs += [(name, spec) for name, spec in own.items()]
         candidates = [(name, path) for name, spec in specs for path in layer_files(spec, cfg.config_dir)]
         candidates += [("mask", Path(cfg.region.mask))] if cfg.region.mask is not None else []
         for name, path in candidates:
@@ -486,7 +574,8 @@ def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, c
     import rioxarray
 
     changes = {}
-    for name in (n for n in names if OUTPUT_LAYERS[n].compares is not None):
+    # The uncertainty layers that compare with the baseline come from the model's paired draws, not from here.
+    for name in (n for n in names if OUTPUT_LAYERS[n].compares is not None and OUTPUT_LAYERS[n].kind != UNCERTAINTY):
         layer = OUTPUT_LAYERS[name]
         # an ensemble layer compares every member's layer (member_<compares>) with the baseline's
         scenario_values = result[layer.compares] if layer.kind == CHANGE else result["member_advantage"]
@@ -498,14 +587,41 @@ def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, c
     return changes
 
 
-def _write_members(cfg, grid, runtime, scenario, members: dict[str, xr.Dataset], tags, names) -> None:
-    """Each member's seasonal layers in ``<scenario>/members/<member>/`` (``output.member_outputs``)."""
-    seasonal = [n for n in names if OUTPUT_LAYERS[n].kind == SEASONAL]
+def member_layers(names) -> list[str]:
+    """The layers written per member (``output.member_outputs``): the seasonal ones among ``names``."""
+    return [n for n in names if OUTPUT_LAYERS[n].kind == SEASONAL]
+
+
+def _write_members(cfg, grid, runtime, scenario, members: dict[str, xr.Dataset], tags, names) -> dict[str, Path]:
+    """Each member's seasonal layers in ``<scenario>/members/<member>/`` (``output.member_outputs``);
+    returns ``"members/<member>/<layer>"`` -> path, recorded with the scenario's outputs (manifest, resume)."""
+    paths = {}
     for member, result in members.items():
-        layers = {n: _georeferenced(result[n], grid) for n in seasonal}
-        folder = Path(cfg.output.folder) / scenario.name / "members" / member
+        layers = {n: _georeferenced(result[n], grid) for n in member_layers(names)}
+        folder = Path(cfg.output.folder) / scenario.name / MEMBERS_FOLDER / member
         with runtime.progress(f"{scenario.name}/{member}: computing and writing"):
-            write_layers(layers, folder, tags={**tags, "ensemble_member": member}, cog_options=cfg.output.cog, lock=None)
+            written = write_layers(layers, folder, tags={**tags, "ensemble_member": member}, cog_options=cfg.output.cog,
+                                   lock=None)
+        paths.update({f"{MEMBERS_FOLDER}/{member}/{n}": p for n, p in written.items()})
+    return paths
+
+
+def _written_members(paths: dict[str, Path], computed: dict[str, xr.Dataset], chunk: int) -> dict[str, xr.Dataset]:
+    """Each member's continuous layers as written by :func:`_write_members` (opened lazily), so that the
+    ensemble layers are taken from them instead of evaluating every member a second time."""
+    import rioxarray
+
+    members = {}
+    for member, result in computed.items():
+        layers = {}
+        for key, path in paths.items():
+            _, owner, name = key.split("/")
+            if owner == member and not OUTPUT_LAYERS[name].categorical:
+                written = rioxarray.open_rasterio(path, chunks={"x": chunk, "y": chunk}, lock=False, masked=True)
+                layers[name] = written.squeeze("band", drop=True).assign_coords(x=result.x, y=result.y).drop_vars(
+                    "spatial_ref", errors="ignore").astype(np.float32)
+        members[member] = xr.Dataset(layers)
+    return members
 
 
 def _georeferenced(layer, grid: TargetGrid):

@@ -20,13 +20,16 @@ import pandas as pd
 
 from ._version import __version__
 from .assumptions import run_assumptions
-from .caution import CAUTION
+from .caution import CAUTION, invented_note
 from .config import MEMBER_FIELD, RunConfig
 from .inputs import layer_files
+from .inputs.inspection import derived_methods
 from .outputs import file_checksum
-from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NODATA
+from .variables import CLASS_C3, CLASS_C4, CLASS_CONTESTED, CLASS_NAMES, CLASS_NO_SEASON, CLASS_NODATA
 
 MANIFEST_NAME = "manifest.json"
+#: Column keys of the class shares in the class summary, as in the district table (share_c3, ...).
+SHARE_KEYS = {CLASS_C3: "c3", CLASS_CONTESTED: "contested", CLASS_C4: "c4", CLASS_NO_SEASON: "noseason"}
 #: Packages whose versions the manifest records.
 PACKAGES = ("numpy", "xarray", "dask", "distributed", "rasterio", "rioxarray", "rio-cogeo", "pyproj",
             "odc-geo", "pydantic", "numba", "geopandas", "exactextract")
@@ -46,12 +49,9 @@ def input_files(cfg: RunConfig, only=None) -> set[Path]:
         if extra is not None:
             files.add(Path(extra))
     for scenario in cfg.scenarios if only is None else only:
-        for spec in (scenario.climate or {}).values():
-            if MEMBER_FIELD in str(spec.path) and scenario.members:  # one file (set) per member
-                for member in scenario.members:
-                    files.update(layer_files(spec.model_copy(update={"path": Path(str(spec.path).replace(MEMBER_FIELD, member))}),
-                                             cfg.config_dir))
-            else:
+        for member in (scenario.members or [None]):  # one file (set) per member of a pattern or list
+            own = scenario.member_climate(member) if member else (scenario.climate or {})
+            for spec in own.values():
                 files.update(layer_files(spec, cfg.config_dir))
     return files
 
@@ -66,9 +66,14 @@ def output_records(paths: dict[str, Path]) -> dict[str, dict[str, Any]]:
     return {name: {"path": str(p), "bytes": p.stat().st_size, "sha256": file_checksum(p)} for name, p in paths.items()}
 
 
-def scenario_tags(scenario, config_hash: str, scenario_hash: str) -> dict[str, str]:
-    """Dataset tags of every GeoTIFF (and attributes of the datacube) of one scenario."""
+def scenario_tags(scenario, config_hash: str, scenario_hash: str, *, invented_region: str | None = None) -> dict[str, str]:
+    """Dataset tags of every GeoTIFF (and attributes of the datacube) of one scenario.
+
+    invented_region: the region's name when the config marks it invented; a ``region_note`` tag says so.
+    """
+    note = {"region_note": invented_note(invented_region)} if invented_region else {}
     return {
+        **note,
         "scenario": scenario.name,
         "scenario_description": scenario.description or "",
         "co2_ppm": f"{scenario.co2_ppm:g}",
@@ -82,7 +87,11 @@ def scenario_tags(scenario, config_hash: str, scenario_hash: str) -> dict[str, s
 
 
 def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
-    """Share of valid cells per class for each scenario's ``pathway_class`` COG, read window by window."""
+    """Share of valid cells per class for each scenario's ``pathway_class`` COG, read window by window.
+
+    Columns: scenario, valid_cells (cells with a class: C3, contested, C4 or no growing season),
+    nodata_cells, and ``share_<class>`` per class as a fraction of the valid cells [0-1, 4 decimals], the
+    convention of every table the tool writes (the CLI shows them as percent)."""
     import rasterio
 
     rows = []
@@ -91,10 +100,10 @@ def class_summary(class_paths: dict[str, Path]) -> pd.DataFrame:
         with rasterio.open(path) as src:
             for _, window in src.block_windows(1):
                 counts += np.bincount(src.read(1, window=window).ravel(), minlength=256)
-        valid = counts[[CLASS_C3, CLASS_CONTESTED, CLASS_C4]].sum()
+        valid = counts[list(CLASS_NAMES)].sum()
         row = {"scenario": scenario, "valid_cells": int(valid), "nodata_cells": int(counts[CLASS_NODATA])}
-        for code, label in CLASS_NAMES.items():
-            row[f"{label} %"] = round(100.0 * counts[code] / valid, 2) if valid else float("nan")
+        for code, key in SHARE_KEYS.items():
+            row[f"share_{key}"] = round(float(counts[code] / valid), 4) if valid else float("nan")
         rows.append(row)
     return pd.DataFrame(rows)
 
@@ -105,7 +114,8 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
 
     checksums: input path -> sha256 (computed here if None). input_time: "baseline" or scenario name ->
     layer -> calendar, period and years of the climatology it was made from (member -> layer -> ... for an
-    ensemble). ensembles: scenario -> its members. records: scenario name -> {"scenario_hash",
+    ensemble). ensembles: scenario -> its members. The manifest's ``member_outputs`` lists each member's own
+    layers (scenario -> member -> layer -> path), also recorded among the scenario's ``outputs``. records: scenario name -> {"scenario_hash",
     "outputs"} as kept for resume (outputs are hashed here if None). resumed: scenarios not recomputed.
     """
     if checksums is None:
@@ -125,18 +135,45 @@ def build_manifest(cfg, config_hash, written, summary, timings, briefs, *, check
         "inputs": inputs,
         "input_periods": input_time or {},
         "ensembles": {name: list(members) for name, members in (ensembles or {}).items()},
+        "derived": derived_methods(cfg),
+        "member_outputs": member_outputs(outputs),
         "outputs": outputs,
         "scenario_records": records,
         "resumed_scenarios": list(resumed),
         "briefs": {k: str(v) for k, v in briefs.items()},
         "summary": summary.to_dict(orient="records"),
         "assumptions": run_assumptions(cfg),
+        "uncertainty": uncertainty_record(cfg),
         "timings": {k: round(v, 3) for k, v in timings.items()},
         "python": platform.python_version(),
         "platform": platform.platform(),
         "packages": package_versions(),
         "caution": CAUTION,
+        **({"region_note": invented_note(cfg.region.name)} if getattr(cfg.region, "invented", False) else {}),
     }
+
+
+def uncertainty_record(cfg) -> dict[str, Any] | None:
+    """The parameter draws of a run (None without ``uncertainty``): draws, seed, method and every declared
+    spread of both parameter sets, with its source and whether it varied."""
+    if cfg.uncertainty is None:
+        return None
+    from .physiology.uncertainty import varied_parameters
+
+    return {**cfg.uncertainty.model_dump(mode="json"),
+            "parameters": varied_parameters(cfg.physiology.c3.as_params(), cfg.physiology.c4.as_params())}
+
+
+def member_outputs(outputs: dict[str, dict[str, dict]]) -> dict[str, dict[str, dict[str, str]]]:
+    """scenario -> member -> layer -> path of the members' own outputs (``output.member_outputs``), from the
+    scenario's output records, where they are named ``members/<member>/<layer>``."""
+    found: dict[str, dict[str, dict[str, str]]] = {}
+    for scenario, records in outputs.items():
+        for name, entry in records.items():
+            parts = name.split("/")
+            if len(parts) == 3 and parts[0] == "members":
+                found.setdefault(scenario, {}).setdefault(parts[1], {})[parts[2]] = entry["path"]
+    return found
 
 
 def package_versions() -> dict[str, str | None]:
@@ -150,5 +187,6 @@ def package_versions() -> dict[str, str | None]:
     return versions
 
 
-__all__ = ["MANIFEST_NAME", "input_files", "input_checksums", "output_records", "scenario_tags", "class_summary", "build_manifest",
+__all__ = ["MANIFEST_NAME", "member_outputs", "input_files", "input_checksums", "output_records", "scenario_tags", "class_summary", "build_manifest",
+           "uncertainty_record",
            "package_versions", "PACKAGES"]

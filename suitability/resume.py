@@ -25,12 +25,15 @@ from .provenance import MANIFEST_NAME, input_files, output_records
 PROGRESS_NAME = ".suitability-progress.json"
 
 
-def scenario_hash(cfg: RunConfig, scenario, layer_names, input_checksums: dict[Path, str]) -> str:
+def scenario_hash(cfg: RunConfig, scenario, layer_names, input_checksums: dict[Path, str], members=None) -> str:
     """sha256 (hex) of everything a scenario's outputs depend on, for ``run(resume=True)``.
 
-    That is: the tool version; the region, climate, season, physiology and classes sections; the layers
+    That is: the tool version; the region, climate, season, physiology and classes sections (and
+    ``uncertainty`` when set); the layers
     written for it and the COG and datacube settings; the scenario itself and (for other scenarios, whose
     change layers compare with it) the baseline scenario; and the sha256 of every input file it reads.
+    For an ensemble (``members``: its member names, also those of a member dimension), the members and
+    whether each member's layers are written (``output.member_outputs``).
     Not included, since results do not depend on them: the compute section, output.folder,
     output.overwrite, the brief section and the other scenarios.
     """
@@ -45,6 +48,10 @@ def scenario_hash(cfg: RunConfig, scenario, layer_names, input_checksums: dict[P
         "baseline": None if scenario.name == baseline.name else baseline.model_dump(mode="json"),
         "inputs": {str(path): input_checksums[path] for path in sorted(files)},
     }
+    if dump.get("uncertainty") is not None:  # the parameter draws (a config without them hashes as before)
+        recipe["uncertainty"] = dump["uncertainty"]
+    if members:
+        recipe["members"] = {"names": list(members), "outputs": dump["output"]["member_outputs"]}
     text = json.dumps(recipe, sort_keys=True, separators=(",", ":"), ensure_ascii=False)
     return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
@@ -55,8 +62,10 @@ def scenario_record(scenario_hash: str, paths: dict[str, Path]) -> dict[str, Any
 
 
 def record_paths(folder: Path, scenario: str, record: dict) -> dict[str, Path]:
-    """Output name -> path in ``folder``'s scenario folder, of a record."""
-    return {name: folder / scenario / Path(entry["path"]).name for name, entry in record["outputs"].items()}
+    """Output name -> path in ``folder``'s scenario folder, of a record. A member's output is named
+    ``members/<member>/<layer>`` and lies in that sub-folder."""
+    return {name: folder / scenario / Path(name).parent / Path(entry["path"]).name
+            for name, entry in record["outputs"].items()}
 
 
 def verified_records(folder: Path, hashes: dict[str, str], baseline: str) -> dict[str, dict]:

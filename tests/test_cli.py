@@ -16,7 +16,7 @@ from typer.testing import CliRunner
 
 from suitability.cli import app
 from suitability.config import load_config
-from suitability.physiology import crossover_temperature
+from suitability.physiology import quantum_yield_crossover
 
 from conftest import write_demo_config
 
@@ -74,13 +74,13 @@ def test_curves_writes_table_and_figure(tmp_path):
     with open(tmp_path / "crossover.csv") as handle:
         rows = list(csv.DictReader(handle))
     # An empty cell is NaN (the CSV writer's nodata): no crossing below 50 °C.
-    crossover = {float(r["co2_ppm"]): float(r["crossover_temperature_c"] or "nan") for r in rows}
+    crossover = {float(r["co2_ppm"]): float(r["quantum_yield_crossover_c"] or "nan") for r in rows}
     # The table is the physiology's leaf quantum-yield crossover of the default (grass) sets at the curves'
     # VPD; Ehleringer et al. 1997: it rises with CO2. With the Collatz et al. (1992) fitted C4 yield 0.04 it
     # lies far above the Collatz et al. (1998) 22 °C (37.9 °C at 350 ppm, no crossing below 50 °C at
     # 700 ppm, NaN); the 22 °C checks are on the grass yields (tests/physiology/test_crossover.py) and on
     # the canopy tie (tests/physiology/test_calibration.py).
-    expected = crossover_temperature([280.0, 350.0], vpd_kpa=1.0)
+    expected = quantum_yield_crossover([280.0, 350.0], vpd_kpa=1.0)
     assert [crossover[280.0], crossover[350.0]] == pytest.approx(list(expected), abs=1e-9)
     assert crossover[280.0] < crossover[350.0]
     assert math.isnan(crossover[700.0]) or crossover[700.0] > crossover[350.0]

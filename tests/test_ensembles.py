@@ -3,13 +3,16 @@
 Everything here is invented (a fictional patch of ocean at about 21 deg S 55 deg E only fixes day length).
 The checks compare the ensemble layers with the same members run as single scenarios in the same run
 (derived here: median, share and sign agreement of those single runs), and the agreement classes with the
-rule of IPCC AR6 WGI Cross-Chapter Box Atlas.1 (simple approach: at least 80 % of models agree on the sign
-of change; the 80 % share from memory, confirmed by the Atlas's own code threshold th = 80).
+rule of IPCC AR6 WGI Cross-Chapter Box Atlas.1, simple approach, as AR6 figure captions state it (e.g.
+Chapter 9, Figure 9.3): "high model agreement, where >=80% of models agree on sign of change", low agreement
+below 80 %.
 """
 
 from __future__ import annotations
 
 import json
+import shutil
+from pathlib import Path
 
 import numpy as np
 import pytest
@@ -108,7 +111,10 @@ def ensemble_run(tmp_path_factory):
     folder = tmp_path_factory.mktemp("ensemble")
     write_inputs(folder)
     singles = [_single(m, [2051, 2060], 560) for m in MEMBERS]
-    result = suitability.run(config(folder, singles, member_outputs=True))
+    listed = {"name": "late_list", "co2_ppm": 560, "period": [2051, 2060],  # the third form: a list of files
+              "climate": {"tmin": {"path": [f"tas_{m}.nc" for m in MEMBERS], "variable": "tasmin"},
+                          "tmax": {"path": [f"tas_{m}.nc" for m in MEMBERS], "variable": "tasmax"}}}
+    result = suitability.run(config(folder, [*singles, listed], member_outputs=True))
     return folder, result
 
 
@@ -118,7 +124,47 @@ def test_ensemble_layers_are_written_for_ensembles_only(ensemble_run):
         assert {"ensemble_median_advantage", "c4_favoured_share", "change_agreement"} <= set(result.layers[name])
     assert not {"ensemble_median_advantage", "c4_favoured_share", "change_agreement"} & set(result.layers["baseline"])
     assert "ensemble_median_advantage" not in result.layers["late_alpha"]
-    assert result.manifest["ensembles"] == {"mid": list(MEMBERS), "late": list(MEMBERS)}
+    assert result.manifest["ensembles"] == {"mid": list(MEMBERS), "late": list(MEMBERS), "late_list": list(MEMBERS)}
+
+
+def test_members_as_a_list_of_files_equal_the_member_dimension(ensemble_run):
+    _, result = ensemble_run  # member names taken from the file names tas_alpha.nc, ... (the part that differs)
+    for layer in ("ensemble_median_advantage", "c4_favoured_share", "change_agreement", "pathway_class"):
+        np.testing.assert_array_equal(_read(result.layers["late_list"][layer]), _read(result.layers["late"][layer]))
+
+
+def test_member_outputs_are_in_the_manifest_and_resume_keeps_or_redoes_them(ensemble_run):
+    folder, result = ensemble_run
+    manifest = result.manifest  # as written by the fixture's run (a later resumed run replaces the file)
+    members = manifest["member_outputs"]["late"]
+    assert set(members) == set(MEMBERS)
+    recorded = manifest["outputs"]["late"]["members/beta/pathway_advantage"]
+    assert recorded["path"] == members["beta"]["pathway_advantage"]
+    assert recorded["path"].endswith("late/members/beta/pathway_advantage.tif") and len(recorded["sha256"]) == 64
+    config_file = manifest["config_file"]
+    again = _run_apart(config_file)
+    assert set(again["resumed_scenarios"]) == set(result.layers)  # nothing changed: every scenario kept, members too
+    assert again["member_outputs"] == manifest["member_outputs"]
+    Path(members["gamma"]["pathway_class"]).unlink()  # a member's output lost: its scenario is computed again
+    redone = _run_apart(config_file)
+    assert "late" not in redone["resumed_scenarios"] and "mid" in redone["resumed_scenarios"]
+    assert Path(members["gamma"]["pathway_class"]).exists()
+    assert redone["outputs"]["late"]["members/gamma/pathway_class"]["sha256"] == \
+        manifest["outputs"]["late"]["members/gamma/pathway_class"]["sha256"]
+
+
+def _run_apart(config_file) -> dict:
+    """``run(resume=True)`` in a fresh interpreter, as a second CLI call would be; returns its manifest.
+
+    In this test process a further run that reopens the ensemble file (string member labels) while the
+    earlier runs' handles are still open crashes inside netCDF-C/HDF5 (segmentation fault in
+    H5T__vlen_disk_isnull, seen with gdb); a second run in a fresh process does not."""
+    import subprocess
+    import sys
+
+    code = "import sys, suitability; print(suitability.run(sys.argv[1], resume=True).manifest_path)"
+    done = subprocess.run([sys.executable, "-c", code, str(config_file)], capture_output=True, text=True, check=True)
+    return json.loads(Path(done.stdout.strip().splitlines()[-1]).read_text())
 
 
 def test_ensemble_layers_equal_the_members_run_alone(ensemble_run):
@@ -153,7 +199,7 @@ def test_change_agreement_follows_the_sign_rule(ensemble_run):
 
 def test_manifest_records_periods_and_members(ensemble_run):
     _, result = ensemble_run
-    manifest = json.loads(result.manifest_path.read_text())
+    manifest = result.manifest  # as written by the fixture's run (a later resumed run replaces the file)
     mid = manifest["input_periods"]["mid"]
     assert set(mid) == set(MEMBERS)
     assert mid["beta"]["tmin"]["period"] == [2031, 2040] and mid["beta"]["tmin"]["calendar"] == "noleap"
@@ -180,5 +226,170 @@ def test_mixed_monthly_and_daily_members_are_refused(tmp_path):
     ds.to_netcdf(tmp_path / "tas_gamma.nc", encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
     with pytest.raises(InputDataError, match="mixes time steps between members") as info:
         suitability.run(config(tmp_path))
-    assert "tas_{member}.nc" in str(info.value) and "'tmin'" in str(info.value)
+    assert str(tmp_path / "tas_gamma.nc") in str(info.value) and "'tmin'" in str(info.value)
     assert not (tmp_path / "out").exists() or not any((tmp_path / "out").rglob("*.tif"))  # nothing written
+
+
+def test_members_with_different_variables_are_refused(tmp_path):
+    write_inputs(tmp_path)
+    with xr.open_dataset(tmp_path / "tas_beta.nc") as ds:
+        renamed = ds.rename(tasmin="tn", tasmax="tx").load()
+    renamed.to_netcdf(tmp_path / "tas_beta.nc", encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
+    with pytest.raises(InputDataError) as info:  # the variable named in the config is missing in one member
+        suitability.run(config(tmp_path))
+    assert str(tmp_path / "tas_beta.nc") in str(info.value) and "'tmin'" in str(info.value)
+    assert "no variable 'tasmin'" in str(info.value)
+    assert not (tmp_path / "out").exists() or not any((tmp_path / "out").rglob("*.tif"))
+    # without 'variable' each member file's only variable is read: a member giving another quantity is refused
+    for member in MEMBERS:
+        with xr.open_dataset(tmp_path / f"tas_{member}.nc") as ds:
+            one = ds[["tn" if member == "beta" else "tasmin"]].rename({"tn": "tasmin"} if member == "beta" else {}).load()
+        if member == "gamma":
+            one = one.rename(tasmin="tas").assign(tas=lambda d: d["tas"].assign_attrs(standard_name="air_temperature"))
+        one.to_netcdf(tmp_path / f"tmin_{member}.nc", encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
+    path = config(tmp_path)
+    cfg = yaml.safe_load(path.read_text())
+    cfg["scenarios"][1]["climate"] = {"tmin": {"path": "tmin_{member}.nc"}}
+    cfg["scenarios"] = cfg["scenarios"][:2]
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    with pytest.raises(InputDataError, match="different variables between members") as info:
+        suitability.run(path)
+    assert str(tmp_path / "tmin_gamma.nc") in str(info.value) and "tas (air_temperature)" in str(info.value)
+    assert not (tmp_path / "out").exists() or not any((tmp_path / "out").rglob("*.tif"))
+
+
+def test_members_on_different_grids_are_aligned(tmp_path):
+    write_inputs(tmp_path)
+    with xr.open_dataset(tmp_path / "tas_beta.nc") as ds:  # beta on a coarser grid (every other cell)
+        coarse = ds.isel(lat=slice(0, None, 2), lon=slice(0, None, 2)).load()
+    coarse.to_netcdf(tmp_path / "tas_beta.nc", encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
+    path = config(tmp_path)
+    cfg = yaml.safe_load(path.read_text())
+    cfg["scenarios"] = cfg["scenarios"][:2]
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    result = suitability.run(path)
+    share = _read(result.layers["mid"]["c4_favoured_share"])
+    assert share.shape == (NY, NX) and np.isfinite(share[2:-2, 2:-2]).all()
+
+
+def test_list_of_member_files_in_config():
+    from suitability.config import load_config  # noqa: F401 - the schema is what is tested
+    from suitability.config.schema import ScenarioConfig
+
+    base = {"name": "s", "co2_ppm": 500, "climate": {"tmin": {"path": ["d/tasmin_cnrm.nc", "d/tasmin_ipsl.nc"]},
+                                                     "tmax": {"path": ["d/tasmax_cnrm.nc", "d/tasmax_ipsl.nc"]}}}
+    scenario = ScenarioConfig.model_validate(base)
+    assert scenario.members == ["cnrm", "ipsl"]
+    assert scenario.member_climate("ipsl")["tmax"].path.name == "tasmax_ipsl.nc"
+    named = ScenarioConfig.model_validate({**base, "members": ["m1", "m2"]})
+    assert named.member_climate("m2")["tmin"].path.name == "tasmin_ipsl.nc"
+    with pytest.raises(ValueError, match="one name per file"):
+        ScenarioConfig.model_validate({**base, "members": ["a", "b", "c"]})
+    uneven = {**base, "climate": {**base["climate"], "tmax": {"path": ["a.nc", "b.nc", "c.nc"]}}}
+    with pytest.raises(ValueError, match="one file per member"):
+        ScenarioConfig.model_validate(uneven)
+    mixed = {**base, "members": ["cnrm", "ipsl"], "climate": {**base["climate"], "tmax": {"path": "d/{member}.nc"}}}
+    with pytest.raises(ValueError, match="one way"):
+        ScenarioConfig.model_validate(mixed)
+
+
+def _monthly_file(path, name, values, units):
+    time = xr.date_range("2000-01-01", periods=12, freq="MS", calendar="noleap", use_cftime=True)
+    data = np.broadcast_to(np.asarray(values, "f4")[:, None, None], (12, NY, NX))
+    xr.Dataset({name: (("time", "lat", "lon"), data, {"units": units})}, coords=_coords(time)).to_netcdf(path)
+
+
+def _bad_input(folder, case):
+    """The ensemble config with one bad input; returns (config path, the file and layer the error must name)."""
+    path = config(folder)
+    cfg = yaml.safe_load(path.read_text())
+    cfg["scenarios"] = cfg["scenarios"][:2]  # baseline and the three-member 'mid'
+    if case == "period outside the file":
+        cfg["scenarios"][1]["period"] = [2051, 2075]  # the member files hold 2031-2060
+        named = (folder / "tas_alpha.nc", "tmin")
+    elif case == "undecodable calendar":
+        with xr.open_dataset(folder / "tas_beta.nc", decode_times=False) as ds:
+            raw = ds.load()
+        raw["time"].attrs["calendar"] = "martian_sols"
+        raw.to_netcdf(folder / "tas_beta.nc")
+        named = (folder / "tas_beta.nc", "tmin")
+    else:
+        rain = np.array([2.0, 3, 4, 5, 4, 3, 2, 1, 1, 1, 2, 2])
+        if case == "negative rainfall":
+            _monthly_file(folder / "pr.nc", "pr", rain - 3.0, "mm d-1")
+            named = (folder / "pr.nc", "precipitation")
+        else:  # PET in mm per month declared as mm per day (threshold: common practice, no source)
+            _monthly_file(folder / "pr.nc", "pr", rain, "mm d-1")
+            _monthly_file(folder / "pet.nc", "pet", 30.0 * np.array([3.0, 3, 4, 5, 6, 6, 6, 5, 4, 4, 3, 3]), "mm d-1")
+            cfg["climate"]["pet"] = {"path": "pet.nc"}
+            named = (folder / "pet.nc", "pet")
+        del cfg["climate"]["water_availability"]
+        cfg["climate"]["precipitation"] = {"path": "pr.nc"}
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    return path, named
+
+
+@pytest.mark.parametrize("case", ["period outside the file", "undecodable calendar", "negative rainfall",
+                                  "PET totals declared per day"])
+def test_bad_input_is_named_and_nothing_is_written(tmp_path, case):
+    write_inputs(tmp_path)
+    path, (file, layer) = _bad_input(tmp_path, case)
+    with pytest.raises(InputDataError) as info:
+        suitability.run(path)
+    assert str(file) in str(info.value) and f"'{layer}'" in str(info.value), str(info.value)
+    assert not (tmp_path / "out").exists() or not any(p.is_file() for p in (tmp_path / "out").rglob("*"))
+
+
+def test_check_shows_calendar_period_years_members_and_the_derived_method(tmp_path):
+    from suitability.config import load_config
+    from suitability.inputs import inspect_inputs
+
+    write_inputs(tmp_path)
+    rain = np.array([2.0, 3, 4, 5, 4, 3, 2, 1, 1, 1, 2, 2])
+    _monthly_file(tmp_path / "pr.nc", "pr", rain, "mm d-1")
+    _monthly_file(tmp_path / "rh.nc", "hurs", np.full(12, 70.0), "percent")
+    _monthly_file(tmp_path / "wind.nc", "sfcWind", np.full(12, 3.0), "m s-1")
+    path = config(tmp_path)
+    cfg = yaml.safe_load(path.read_text())
+    del cfg["climate"]["water_availability"]
+    cfg["climate"].update({"precipitation": {"path": "pr.nc"}, "humidity": {"path": "rh.nc"},
+                           "wind_speed": {"path": "wind.nc", "height_m": 10}})
+    cfg["scenarios"][2]["climate"] = {name: {"path": [f"tas_{m}.nc" for m in MEMBERS], "variable": f"tas{name[1:]}"}
+                                      for name in ("tmin", "tmax")}
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    reports = inspect_inputs(load_config(path))
+    mid = next(r for r in reports if r.layer == "tmin" and r.scenario == "mid")
+    assert mid.time.startswith("3 members (alpha, beta, gamma)") and "noleap calendar, 2031-2040 (10 years)" in mid.time
+    late = next(r for r in reports if r.layer == "tmax" and r.scenario == "late")
+    assert late.path.endswith("(3 files)") and "2051-2060 (10 years)" in late.time and not late.problems
+    wind = next(r for r in reports if r.layer == "wind_speed")
+    assert "wind at 10 m brought to 2 m (FAO-56 eq. 47)" in wind.warnings
+    derived = next(r for r in reports if r.layer == "water_availability" and r.path.startswith("(derived"))
+    assert "FAO-56 Penman-Monteith (eq. 6)" in derived.time and "Thornthwaite & Mather" in derived.time
+    from suitability.inputs.inspection import derived_methods  # what the manifest records as "derived"
+
+    assert derived_methods(load_config(path)) == {"baseline": derived.time}
+    # a member with daily steps among monthly ones is a problem of that layer, as the run refuses it
+    daily = xr.date_range("2031-01-01", "2040-12-31", freq="D", calendar="noleap", use_cftime=True)
+    ds = xr.Dataset({name: (("time", "lat", "lon"), np.full((daily.size, NY, NX), 295.0, "f4"), {"units": "K"})
+                     for name in ("tasmin", "tasmax")}, coords=_coords(daily))
+    ds.to_netcdf(tmp_path / "d_gamma.nc", encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
+    for member in ("alpha", "beta"):  # copies: the files opened above stay open in this process
+        shutil.copy(tmp_path / f"tas_{member}.nc", tmp_path / f"d_{member}.nc")
+    for name in ("tmin", "tmax"):
+        cfg["scenarios"][1]["climate"][name]["path"] = "d_{member}.nc"
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    reports = inspect_inputs(load_config(path))
+    mid = next(r for r in reports if r.layer == "tmin" and r.scenario == "mid")
+    assert any("members mix time steps" in p and "gamma: daily series" in p for p in mid.problems)
+
+
+def test_the_baseline_climate_takes_one_path_per_layer():
+    from pydantic import ValidationError
+
+    from suitability.config import ClimateConfig
+
+    layers = {"tmin": {"path": ["a.nc", "b.nc"]}, "tmax": {"path": "t.nc"}, "shortwave": {"path": "s.nc"},
+              "water_availability": {"path": "w.nc"}}
+    with pytest.raises(ValidationError, match="a list of files is for the ensemble members"):
+        ClimateConfig.model_validate(layers)

@@ -511,7 +511,7 @@ def test_curves_elevation_and_o2_options(tmp_path):
     assert "O2 21 %, elevation 2000 m (--elevation)" in result.output
     written = pd.read_csv(tmp_path / "crossover.csv")
     _, direct = leaf_curves([420.0], o2_percent=21.0, elevation_m=2000.0)
-    np.testing.assert_allclose(written["crossover_temperature_c"], direct["crossover_temperature_c"], rtol=1e-9)
+    np.testing.assert_allclose(written["quantum_yield_crossover_c"], direct["quantum_yield_crossover_c"], rtol=1e-9)
     bad = runner.invoke(app, ["curves", "--o2", "0", "--out", str(tmp_path)])
     assert bad.exit_code == 2 and CAUTION_WORDS not in bad.output
 

@@ -24,7 +24,7 @@ import numpy as np
 import pytest
 import xarray as xr
 
-from suitability import kernel, model
+from suitability import kernel, model, tie_solver
 from suitability.errors import ConfigError
 from suitability.physiology import canopy
 from suitability.physiology.light import extraterrestrial_radiation
@@ -75,19 +75,20 @@ def random_cells(n, seed):
                 latitude=as32(latitude), elevation=as32(elevation), lai=as32(lai), season=season)
 
 
-def numpy_reference(cells, pathway, params, month, co2_ppm, **humidity):
+def numpy_reference(cells, pathway, params, month, co2_ppm, growth=None, **humidity):
     """The numpy physiology for one month of every cell (float64 copies of the float32 inputs)."""
     f64 = lambda a: np.asarray(a, np.float64)  # noqa: E731
     return canopy.daily_canopy_assimilation(
-        pathway, tmin_c=f64(cells["tmin"][:, month]), tmax_c=f64(cells["tmax"][:, month]),
+        pathway, growth_temperature_c=growth, tmin_c=f64(cells["tmin"][:, month]), tmax_c=f64(cells["tmax"][:, month]),
         shortwave_mj=f64(cells["shortwave"][:, month]), latitude_deg=f64(cells["latitude"]),
         day_of_year=int(DAYS[month]), co2_ppm=co2_ppm, elevation_m=f64(cells["elevation"]),
         water_availability=f64(cells["water"][:, month]), lai=f64(cells["lai"]), params=params,
         **{k: f64(v[:, month]) for k, v in humidity.items()})
 
 
-def run_kernel(cells, co2_ppm, c3_params=None, c4_params=None, **humidity):
+def run_kernel(cells, co2_ppm, c3_params=None, c4_params=None, growth=None, **humidity):
     return kernel.monthly_canopy_assimilation(
+        growth_temperature_c=growth,
         tmin_c=cells["tmin"], tmax_c=cells["tmax"], shortwave_mj=cells["shortwave"],
         water_availability=cells["water"], latitude_deg=cells["latitude"], day_of_year=DAYS, co2_ppm=co2_ppm,
         elevation_m=cells["elevation"], lai=cells["lai"], in_season=cells["season"], c3_params=c3_params,
@@ -128,16 +129,28 @@ def humidity_inputs(kind, n, seed=5):
     return {}
 
 
-def check_kernel_against_numpy(c3_params, c4_params, humidity_kind, n, seed):
+def growth_temperatures(cells, seed=3):
+    """Per-cell growth temperatures [°C], (n, 12): the month's mean air temperature plus noise, so that some
+    fall below and above the Kattge & Knorr range (11-35 °C), and one NaN (NaN in C3 for that cell and month)."""
+    rng = np.random.default_rng(seed)
+    growth = 0.5 * (cells["tmin"] + cells["tmax"]) + rng.uniform(-8.0, 8.0, cells["tmin"].shape)
+    growth = np.asarray(growth, np.float32)
+    growth[14, 5] = np.nan
+    return growth
+
+
+def check_kernel_against_numpy(c3_params, c4_params, humidity_kind, n, seed, per_cell_growth=False):
     """The public kernel function against the numpy physiology, every month and both pathways."""
     cells = random_cells(n, seed=seed)
     humidity = humidity_inputs(humidity_kind, n)
     co2 = 520.0
-    result = run_kernel(cells, co2, c3_params, c4_params, **humidity)
+    growth = growth_temperatures(cells) if per_cell_growth else None
+    result = run_kernel(cells, co2, c3_params, c4_params, growth=growth, **humidity)
     for month in range(12):
         season = cells["season"][:, month]
         for pathway, params in (("C3", c3_params), ("C4", c4_params)):
-            reference = numpy_reference(cells, pathway, params, month, co2, **humidity)
+            month_growth = None if growth is None else np.asarray(growth[:, month], np.float64)
+            reference = numpy_reference(cells, pathway, params, month, co2, month_growth, **humidity)
             got = {"net": getattr(result, f"{pathway.lower()}_net")[:, month],
                    "gross": getattr(result, f"{pathway.lower()}_gross")[:, month]}
             if pathway == "C3":
@@ -149,6 +162,8 @@ def check_kernel_against_numpy(c3_params, c4_params, humidity_kind, n, seed):
     assert np.isnan(result.c4_net[5, 2]) and np.isnan(result.c4_net[7, 4]) and np.isnan(result.c4_net[8, 7])
     if humidity_kind == "vpd":
         assert np.isnan(result.c3_net[13, 3]) and np.isnan(result.c4_net[13, 3])  # the invalid VPD
+    if per_cell_growth and cells["season"][14, 5] and resolve_params("C3", c3_params)["vcmax_temperature_response"] == "peaked":
+        assert np.isnan(result.c3_net[14, 5])  # the NaN growth temperature (C3 acclimates, C4 does not)
 
 
 # Every published C3 set x every C4 set (read from the registry, so a new set is covered without an edit
@@ -171,6 +186,26 @@ def test_kernel_equals_numpy_physiology_with_overrides(case, humidity_kind):
     # Derived here, as above, for the default sets (None) and overrides of model options and values.
     c3_params, c4_params = PARAMETER_CASES[case]
     check_kernel_against_numpy(c3_params, c4_params, humidity_kind, n=160, seed=11 + len(case))
+
+
+@pytest.mark.parametrize("c3_set,humidity_kind", [(c3, kind) for c3 in PARAMETER_SETS["C3"]
+                                                   for kind in ("from tmin", "vpd")])
+def test_kernel_equals_numpy_physiology_with_per_cell_growth_temperature(c3_set, humidity_kind):
+    # Derived here, as above: with a growth temperature per cell and month (Kattge & Knorr 2007
+    # acclimation, suitability.physiology.c3), inside and outside the range it is applied over.
+    check_kernel_against_numpy(c3_set, "c4_tropical_grass", humidity_kind, n=96, seed=31, per_cell_growth=True)
+
+
+def test_per_cell_growth_temperature_changes_only_the_acclimated_cells():
+    # Derived here: two cells with the same inputs but growth temperatures 15 and 30 °C (both inside the
+    # Kattge & Knorr range) differ in C3, not in C4; the same growth temperature gives the same bits.
+    cells = realistic_days(1, seed=41)
+    twin = {k: np.concatenate([v, v, v]) for k, v in cells.items()}
+    growth = np.repeat(np.array([[15.0], [30.0], [15.0]], np.float32), 12, axis=1)
+    result = run_kernel(twin, 420.0, growth=growth)
+    assert np.all(np.abs(result.c3_net[0] - result.c3_net[1]) > 1e-3 * np.abs(result.c3_net[0]))
+    np.testing.assert_array_equal(result.c4_net[0], result.c4_net[1])
+    np.testing.assert_array_equal(result.c3_net[0], result.c3_net[2])
 
 
 def realistic_days(count, seed):
@@ -293,8 +328,15 @@ def test_model_engines_agree(vpd, season):
         assert np.array_equal(np.isnan(a), np.isnan(b))
         scale = np.nanmax(np.abs(b))
         assert np.nanmax(np.abs(a - b)) <= KERNEL_TOLERANCE * scale
-    for name in ("pathway_advantage", "photorespiration_share", "crossover_temperature"):
+    for name in ("pathway_advantage", "photorespiration_share"):
         np.testing.assert_allclose(compiled[name].values, reference[name].values, rtol=0, atol=KERNEL_TOLERANCE)
+    # The canopy crossover: each engine solves the tie to tie_solver.TOLERANCE_C (0.02 °C); the engines' 1e-4
+    # relative difference moves a tie by far less, so they agree within two tolerances (derived here).
+    for name in ("crossover_temperature", "monthly_crossover_temperature"):
+        a, b = compiled[name].values.astype(float), reference[name].values.astype(float)
+        assert np.array_equal(np.isnan(a), np.isnan(b)) and np.array_equal(np.isinf(a), np.isinf(b))
+        finite = np.isfinite(a)
+        assert finite.sum() > 100 and np.max(np.abs(a[finite] - b[finite])) <= 2 * tie_solver.TOLERANCE_C
     differs = compiled["pathway_class"].values != reference["pathway_class"].values
     margin_distance = np.abs(np.abs(reference["pathway_advantage"].values) - 0.05)
     assert np.all(margin_distance[differs] < KERNEL_TOLERANCE)

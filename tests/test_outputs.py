@@ -485,3 +485,30 @@ def test_file_checksum_matches_published_sha256_vectors(tmp_path):
     cog = tmp_path / "bytes.bin"
     cog.write_bytes(os.urandom(3_000_001))
     assert file_checksum(cog, block_size=65536) == hashlib.sha256(cog.read_bytes()).hexdigest()
+
+
+def test_datacube_carries_cf_attributes_and_carbon_units(tmp_path):
+    # CF-1.8 (section 3.1: units, long_name): every variable of the registry gets its units and long name;
+    # the month axis is labelled; carbon is named in words because UDUNITS reads "C" as the coulomb.
+    monthly = np.zeros((12, 3, 3), np.float32)
+    cube = xr.Dataset({"c3_monthly_assimilation": (("month", "y", "x"), monthly)},
+                      coords={"month": np.arange(1, 13), "y": [2.5, 1.5, 0.5], "x": [0.5, 1.5, 2.5]})
+    cube = cube.rio.write_crs("EPSG:32740")
+    path = write_datacube(cube, tmp_path / "cube.nc")
+    with xr.open_dataset(path) as written:
+        variable = written["c3_monthly_assimilation"]
+        assert variable.attrs["units"] == "g m-2" and "as carbon" in variable.attrs["long_name"]
+        assert variable.attrs["comment"].startswith("g C m-2")
+        assert written["month"].attrs["units"] == "1" and "month of the year" in written["month"].attrs["long_name"]
+        assert written.attrs["Conventions"] == "CF-1.8" and written.attrs["title"]
+
+
+def test_month_counts_are_whole_numbers_in_uint8(tmp_path):
+    counts = np.array([[0, 3, 12], [np.nan, 7, 1]] * 2, dtype=np.float32)[:, :3]
+    layer = xr.DataArray(counts, dims=("y", "x"), coords={"y": [3.5, 2.5, 1.5, 0.5], "x": [0.5, 1.5, 2.5]})
+    layer = layer.rio.write_crs("EPSG:32740").rio.write_transform(Affine(1, 0, 0, 0, -1, 4))
+    path = write_layers({"c4_favoured_months": layer}, tmp_path)["c4_favoured_months"]
+    with rasterio.open(path) as src:
+        assert src.dtypes[0] == "uint8" and src.nodata == 255
+        values = src.read(1)
+    assert values.tolist() == [[0, 3, 12], [255, 7, 1], [0, 3, 12], [255, 7, 1]]

@@ -171,3 +171,21 @@ def test_period_in_config_validation():
         LayerSpec.model_validate({"path": "a.nc", "period": [2070, 2041]})
     with pytest.raises(ValueError, match="two whole years"):
         LayerSpec.model_validate({"path": "a.nc", "period": ["2041", 2070.5]})
+
+
+def test_wind_at_10_m_is_brought_to_2_m_and_km_per_hour_declared_as_m_per_s_is_refused(tmp_path):
+    # FAO-56 eq. 47: u2 = u10 · 4.87 / ln(67.8 · 10 − 5.42) = 0.748 u10 (the factor of FAO-56 Example 14)
+    path, _, _ = series(tmp_path / "sfcWind.nc", lambda t: np.full(len(t), 4.0), units="m s-1", name="sfcWind",
+                        years=(2041, 2050), ramp=0.0)
+    at_2m = open_layer("wind_speed", spec(path, height_m=10))
+    np.testing.assert_allclose(at_2m.values, 4.0 * 4.87 / np.log(67.8 * 10 - 5.42), rtol=1e-6)
+    np.testing.assert_allclose(open_layer("wind_speed", spec(path)).values, 4.0, rtol=1e-6)  # given at 2 m
+    fast, _, _ = series(tmp_path / "kmh.nc", lambda t: np.full(len(t), 14.4 * 3), units="m s-1", name="sfcWind",
+                        years=(2041, 2050), ramp=0.0)  # 43.2: km h-1 values declared in m s-1
+    with pytest.raises(InputDataError, match="look like km h-1") as info:
+        open_layer("wind_speed", spec(fast))
+    assert "kmh.nc" in str(info.value) and "'wind_speed'" in str(info.value)
+    with pytest.raises(ValueError, match="wind_speed layer only"):
+        from suitability.config import ClimateLayers
+
+        ClimateLayers.model_validate({"tmin": {"path": "t.nc", "height_m": 10}})

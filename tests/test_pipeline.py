@@ -15,12 +15,15 @@ from pathlib import Path
 import numpy as np
 import pytest
 import rasterio
+import xarray as xr
 import yaml
 from rio_cogeo.cogeo import cog_validate
 
 import suitability
+from suitability import indicators
 from suitability.config import load_config
 from suitability.grid import TargetGrid
+from suitability.inputs.climate import load_climate
 
 from conftest import write_demo_config
 
@@ -75,7 +78,7 @@ def test_nodata_follows_input_nodata(demo_run):
 
 def _c4_share(result, scenario: str) -> float:
     row = result.summary.set_index("scenario").loc[scenario]
-    return row["C4 favoured %"]
+    return row["share_c4"]
 
 
 def test_co2_and_warming_pull_in_opposite_directions(demo_run):
@@ -85,12 +88,49 @@ def test_co2_and_warming_pull_in_opposite_directions(demo_run):
 
 
 def test_crossover_temperature_rises_with_co2_in_the_maps(demo_run):
-    # Ehleringer et al. 1997: the crossover temperature rises with CO2.
-    def mean_crossover(scenario):
+    # Ehleringer et al. 1997: the crossover temperature rises with CO2 (cell by cell, where both are a number).
+    def crossover(scenario):
         with rasterio.open(demo_run.layers[scenario]["crossover_temperature"]) as src:
-            return np.nanmean(src.read(1))
+            return src.read(1).astype(float)
 
-    assert mean_crossover("co2_only") > mean_crossover("baseline")
+    now, raised = crossover("baseline"), crossover("co2_only")
+    both = np.isfinite(now) & np.isfinite(raised)
+    assert both.sum() > 1000 and (raised[both] > now[both]).all()
+
+
+def test_the_crossover_layers_agree_with_the_months_c4_is_favoured_in_every_cell_and_month(demo_run):
+    # Derived here from the definitions (suitability.model.canopy_crossover, indicators.c4_favoured_months):
+    # in every cell and season month of every scenario, the month's mean temperature (Tmin + Tmax)/2 is above
+    # its crossover exactly when the month's own advantage index exceeds the class margin (0.05); ±inf
+    # (no tie between 0 and 45 °C) count as numbers; the seasonal layer is the warmest season month's.
+    cfg = load_config(DEMO)
+    grid = TargetGrid.from_region(cfg.region, cfg.config_dir)
+    climate = load_climate(cfg.climate, grid, cfg.config_dir)
+    checked = 0
+    for scenario in cfg.scenarios:
+        offset = np.float32(scenario.temperature_offset_c)
+        tmin, tmax = ((climate[name] + offset).astype(np.float32).values.astype(float) for name in ("tmin", "tmax"))
+        mean = 0.5 * (tmin + tmax)
+        with xr.open_dataset(demo_run.scenario_folders[scenario.name] / "monthly_assimilation.nc") as cube:
+            c3 = cube["c3_monthly_assimilation"].values.astype(float)
+            c4 = cube["c4_monthly_assimilation"].values.astype(float)
+            crossover = cube["monthly_crossover_temperature"].values.astype(float)
+        in_season = np.isfinite(c3) & np.isfinite(c4)
+        favoured = indicators.advantage_index(c3, c4) > cfg.classes.contested_margin
+        assert np.array_equal(np.isnan(crossover), ~in_season)
+        assert np.array_equal((mean > crossover)[in_season], favoured[in_season])
+        with rasterio.open(demo_run.layers[scenario.name]["c4_favoured_months"]) as src:
+            months = src.read(1, masked=True).astype(float).filled(np.nan)  # uint8, nodata 255
+        has = np.isfinite(months)
+        np.testing.assert_array_equal(((mean > crossover) & in_season).sum(axis=0)[has], months[has])
+        with rasterio.open(demo_run.layers[scenario.name]["crossover_temperature"]) as src:
+            seasonal = src.read(1).astype(float)
+        warmest = np.argmax(np.where(in_season, mean, -np.inf), axis=0)
+        expected = np.take_along_axis(crossover, warmest[None], axis=0)[0]
+        some = in_season.any(axis=0)
+        np.testing.assert_array_equal(seasonal[some], expected[some])
+        checked += int(in_season.sum())
+    assert checked > 100_000  # 4 scenarios x ~32 000 cells x their season months
 
 
 def test_manifest_records_config_inputs_and_outputs(demo_run):
@@ -173,8 +213,9 @@ def test_every_declared_output_layer_is_produced(demo_run):
             entry = declared[name]
             with rasterio.open(layers[name]) as src:
                 values = src.read(1)
-                assert src.count == 1 and src.units[0] == entry.units, (scenario, name, src.units)
-                if _is_categorical(entry):
+                units = getattr(entry, "readable_units", entry.units)  # "g C m-2" for carbon (README)
+                assert src.count == 1 and src.units[0] == units, (scenario, name, src.units)
+                if _is_categorical(entry) or getattr(entry, "integer", False):  # classes; whole month counts
                     assert src.dtypes[0] == "uint8" and src.nodata == 255, (scenario, name)
                     valid = values[values != 255]
                 else:
@@ -200,3 +241,22 @@ def test_change_layers_are_the_differences_against_the_baseline(demo_run):
         expected = np.where((base_class == 255) | (classes == 255), 255,
                             base_class.astype(int) * 10 + classes.astype(int))
         np.testing.assert_array_equal(read(scenario, "class_transition"), expected)
+
+
+def test_the_demo_says_its_region_is_invented_everywhere(demo_run):
+    # Project rule: demo outputs say the region is invented (configs/demo.yaml sets region.invented).
+    for layers in demo_run.layers.values():
+        with rasterio.open(layers["pathway_class"]) as src:
+            assert src.tags()["region_note"].startswith("Invented region: Kessarine Basin does not exist")
+    assert demo_run.manifest["region_note"].startswith("Invented region")
+    pages = [p for p in demo_run.briefs.values() if p.suffix in (".html", ".pdf")]
+    assert pages and {p.stem.rsplit("_", 1)[-1] for p in pages} >= {"today", "comparison"}
+    import pypdf
+
+    for path in pages:
+        if path.suffix == ".html":
+            text = " ".join(path.read_text(encoding="utf-8").split())
+        else:
+            text = " ".join(pypdf.PdfReader(path).pages[0].extract_text().split())
+        assert "Invented region: Kessarine Basin does not exist" in text, path.name
+        assert "not yield forecasts" in text, path.name

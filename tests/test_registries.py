@@ -29,6 +29,7 @@ from suitability.variables import (
     OUTPUT_LAYERS,
     OUTPUT_VARIABLES,
     SEASONAL,
+    UNCERTAINTY,
     layer_names,
 )
 
@@ -37,7 +38,7 @@ from suitability.variables import (
 
 def test_every_output_layer_has_a_known_kind_and_a_valid_range():
     for name, layer in OUTPUT_LAYERS.items():
-        assert layer.kind in (SEASONAL, CHANGE, DATACUBE, ENSEMBLE, DERIVED), name
+        assert layer.kind in (SEASONAL, CHANGE, DATACUBE, ENSEMBLE, DERIVED, UNCERTAINTY), name
         low, high = layer.valid_range
         assert low < high, name
 
@@ -46,11 +47,11 @@ def test_the_model_returns_the_registered_seasonal_and_monthly_layers_in_registr
     assert SEASONAL_LAYERS == layer_names(SEASONAL)
     assert MONTHLY_LAYERS == layer_names(DATACUBE)
     # what output.layers may ask for: every GeoTIFF layer, none of the datacube's
-    assert list(OUTPUT_VARIABLES) == list(layer_names(SEASONAL, CHANGE, ENSEMBLE))
+    assert list(OUTPUT_VARIABLES) == list(layer_names(SEASONAL, CHANGE, ENSEMBLE, UNCERTAINTY))
 
 
-def test_ensemble_layers_name_an_indicator():
-    for name in layer_names(ENSEMBLE):
+def test_ensemble_and_uncertainty_layers_name_an_indicator():
+    for name in layer_names(ENSEMBLE, UNCERTAINTY):
         assert callable(getattr(indicators, OUTPUT_LAYERS[name].indicator)), name
 
 
@@ -77,7 +78,7 @@ def test_change_indicators_give_the_documented_codes():
 
 def test_categorical_layers_have_a_colour_for_every_code_and_a_transparent_nodata():
     categorical = [name for name, layer in OUTPUT_LAYERS.items() if layer.categorical]
-    assert set(categorical) == {"pathway_class", "class_transition", "change_agreement"}
+    assert set(categorical) == {"pathway_class", "class_transition", "change_agreement", "confidence_class"}
     for name in categorical:
         layer = OUTPUT_LAYERS[name]
         assert set(layer.colours) == set(layer.legend) | {CLASS_NODATA}, name

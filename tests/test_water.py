@@ -41,6 +41,35 @@ def test_rainfall_gives_the_balance_of_the_physiology_functions():
     assert (out.water_availability.values[5:9, 0, 1] <= out.water_availability.values[5:9, 0, 0] + 1e-6).all()
 
 
+def test_penman_monteith_where_wind_and_humidity_are_given():
+    # By hand: FAO-56 eq. 19 (ea from mean RH), eq. 43 (G from the neighbouring months, the year taken
+    # round), eq. 6 (suitability.physiology.energy.penman_monteith_et0, checked against pyet and FAO-56
+    # Example 17 in tests/physiology/test_energy.py), then the bucket as above.
+    from suitability.model import HARGREAVES_SAMANI, PENMAN_MONTEITH, pet_method
+    from suitability.physiology import atmosphere, energy
+
+    ds = rainy_climate([14.0, 27.0])
+    assert pet_method(ds.data_vars) == HARGREAVES_SAMANI  # no wind: Hargreaves-Samani
+    ds["humidity"] = xr.full_like(ds["tmin"], 0.6)
+    ds["wind_speed"] = xr.full_like(ds["tmin"], 2.5)
+    assert pet_method(ds.data_vars) == PENMAN_MONTEITH
+    out = water_from_rainfall(ds, 150.0)
+    for j in range(2):
+        tmin, tmax = ds.tmin.values[:, 0, j].astype(float), ds.tmax.values[:, 0, j].astype(float)
+        ra = light.extraterrestrial_radiation(-15.0, REPRESENTATIVE_DAY)
+        ea = atmosphere.actual_vapour_pressure_from_relative_humidity(60.0, tmin, tmax)
+        mean = (tmin + tmax) / 2
+        heat = 0.07 * (np.roll(mean, -1) - np.roll(mean, 1))
+        pet = energy.penman_monteith_et0(tmin, tmax, ea, ds.shortwave.values[:, 0, j].astype(float), ra, 0.0, 101.3,
+                                         2.5, heat)
+        np.testing.assert_allclose(out.pet.values[:, 0, j], pet, rtol=1e-4)
+        _, aet = wb.monthly_soil_water_balance(RAIN.astype(float) * DAYS_IN_MONTH, pet * DAYS_IN_MONTH, 150.0)
+        np.testing.assert_allclose(out.water_availability.values[:, 0, j], aet / (pet * DAYS_IN_MONTH), rtol=1e-4)
+    # more wind, more demand for the same rain (the aerodynamic term of eq. 6 grows with u2)
+    windy = water_from_rainfall(ds.assign(wind_speed=ds["wind_speed"] * 2), 150.0)
+    assert (windy.pet.values > out.pet.values).all()
+
+
 def test_given_pet_and_capacity_layer_are_used_and_dask_stays_lazy():
     ds = rainy_climate([20.0, 20.0], chunks=True)
     ds["pet"] = xr.full_like(ds["tmin"], 4.0)

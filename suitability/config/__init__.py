@@ -11,6 +11,7 @@ from .schema import (
     MEMBER_FIELD,
     MONTH_FIELD,
     BriefConfig,
+    UncertaintyConfig,
     ClassesConfig,
     ClimateConfig,
     ClimateLayers,
@@ -32,6 +33,6 @@ from .schema import (
 __all__ = [
     "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
     "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
-    "ComputeConfig", "BriefConfig", "load_config", "validate_config", "validate_section", "parse_crs",
+    "ComputeConfig", "BriefConfig", "UncertaintyConfig", "load_config", "validate_config", "validate_section", "parse_crs",
     "is_month_pattern", "MONTH_FIELD", "MEMBER_FIELD", "ENGINES", "LOCAL_SCHEDULERS", "dotted_key", "format_validation_error",
 ]

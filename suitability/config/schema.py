@@ -83,6 +83,22 @@ def _check_period(value: Any) -> Any:
 
 
 
+def member_names_from_files(paths: list[Path]) -> list[str]:
+    """Member names for a list of member files: the part of the file names that differs (``tas_cnrm.nc``,
+    ``tas_ipsl.nc`` -> ``cnrm``, ``ipsl``), else the parent folders' names (``cnrm/tas.nc``), else
+    ``member1``, ``member2``, ... Only letters, digits, '_' and '-' are kept (names become folder names)."""
+    stems = [Path(p).name.split(".")[0] for p in paths]
+    # the common prefix and suffix, cut back to a separator so that tas_mpi / tas_miroc give mpi / miroc
+    prefix = re.sub(r"[^_.-]*$", "", os.path.commonprefix(stems))
+    rest = [s[len(prefix):] for s in stems]
+    suffix = re.sub(r"^[^_.-]*", "", os.path.commonprefix([r[::-1] for r in rest])[::-1])
+    for candidates in ([r[:len(r) - len(suffix)] for r in rest], [Path(p).parent.name for p in paths]):
+        cleaned = [re.sub(r"[^A-Za-z0-9_-]", "", c).strip("_-") for c in candidates]
+        if all(cleaned) and len(set(cleaned)) == len(cleaned):
+            return cleaned
+    return [f"member{i}" for i in range(1, len(paths) + 1)]
+
+
 def is_month_pattern(path: str | Path) -> bool:
     """True if ``path`` holds a ``{month}`` or ``{month:<format>}`` placeholder."""
     return MONTH_FIELD.search(str(path)) is not None
@@ -201,6 +217,8 @@ class RegionConfig(_Section):
     grid: GridConfig | None = None
     like: ConfigPath | None = None
     mask: ConfigPath | None = None
+    #: The region is made up (the demo, tests): briefs and GeoTIFF tags say so.
+    invented: bool = False
 
     @model_validator(mode="after")
     def _grid_or_like(self) -> "RegionConfig":
@@ -210,15 +228,21 @@ class RegionConfig(_Section):
 
 
 class LayerSpec(_Section):
-    """One climate input layer: where it is and how to read it."""
+    """One climate input layer: where it is and how to read it.
 
-    path: ConfigPath
+    ``path`` is one path; in a scenario's own climate it may also be a list of files, one per ensemble
+    member (:meth:`ScenarioConfig.member_climate`). ``height_m``: for ``wind_speed``, the height above
+    ground the wind is given at [m]; it is brought to 2 m by FAO-56 eq. 47.
+    """
+
+    path: ConfigPath | Annotated[list[ConfigPath], Field(min_length=2)]
     variable: Annotated[str, Field(min_length=1)] | None = None
     units: Annotated[str, Field(min_length=1)] | None = None
     resampling: str | None = None
     nodata: float | None = None
     band: Annotated[int, Field(ge=1)] | None = None
     period: tuple[int, int] | None = None
+    height_m: Annotated[float, Field(gt=0, le=100)] | None = None
 
     _period_years = field_validator("period", mode="before")(classmethod(lambda cls, v: _check_period(v)))
 
@@ -236,8 +260,8 @@ class LayerSpec(_Section):
 
     @field_validator("path")
     @classmethod
-    def _month_format_valid(cls, value: Path) -> Path:
-        for match in MONTH_FIELD.finditer(str(value)):
+    def _month_format_valid(cls, value: Path | list[Path]) -> Path | list[Path]:
+        for match in (m for path in (value if isinstance(value, list) else [value]) for m in MONTH_FIELD.finditer(str(path))):
             try:
                 format(12, match.group("spec") or "")
             except ValueError as exc:
@@ -246,7 +270,12 @@ class LayerSpec(_Section):
 
     @property
     def is_month_pattern(self) -> bool:
-        return is_month_pattern(self.path)
+        return any(is_month_pattern(path) for path in self.paths)
+
+    @property
+    def paths(self) -> list[Path]:
+        """The path as a list (one element unless the layer lists a file per ensemble member)."""
+        return list(self.path) if isinstance(self.path, list) else [self.path]
 
 
 class ClimateLayers(RootModel[dict[str, LayerSpec]]):
@@ -270,6 +299,8 @@ class ClimateLayers(RootModel[dict[str, LayerSpec]]):
         for name, spec in self.root.items():
             if spec.is_month_pattern and not INPUT_VARIABLES[name].monthly:
                 raise _located((name, "path"), f"a {{month}} pattern path is only for monthly layers; {name!r} is static")
+            if spec.height_m is not None and name != "wind_speed":
+                raise _located((name, "height_m"), f"height_m is for the wind_speed layer only, not {name!r}")
         return self
 
     def items(self):
@@ -312,6 +343,10 @@ class ClimateConfig(ClimateLayers):
     @model_validator(mode="after")
     def _complete(self) -> "ClimateConfig":
         names = set(self.root)
+        for name, spec in self.root.items():
+            if isinstance(spec.path, list):
+                raise _located((name, "path"), "a list of files is for the ensemble members of a scenario's own "
+                               "climate (scenarios[].climate); the baseline climate takes one path per layer")
         problems = []
         if not ({"tmin", "tmax"} <= names or "tmean" in names):
             problems.append("temperature: give tmin and tmax, or tmean")
@@ -322,7 +357,7 @@ class ClimateConfig(ClimateLayers):
             problems.append("radiation: give shortwave or par")
         if not names & {"water_availability", "water_stress", "precipitation"}:
             problems.append("water: give water_availability or water_stress, or precipitation (with optional pet)")
-        for name in ("pet", "soil_water_capacity"):
+        for name in ("pet", "soil_water_capacity", "wind_speed"):
             if name in names and "precipitation" not in names:
                 problems.append(f"{name} is given without precipitation (it serves the soil-water balance of rainfall)")
         for a, b in _EXCLUSIVE:
@@ -395,6 +430,12 @@ class PhysiologyConfig(_Section):
     max_water_supply_mm: Annotated[float, Field(gt=0, le=50)] = 5.0
     soil_water_capacity_mm: Annotated[float, Field(gt=0, le=2000)] = 150.0
     soil_water_retention: Literal["exponential", "linear"] = "exponential"
+    #: Growth temperature of the C3 acclimation (Kattge & Knorr 2007): "month_mean", each cell's mean air
+    #: temperature of the month; "parameter_set", the C3 set's own growth_temperature_c everywhere.
+    growth_temperature: Literal["month_mean", "parameter_set"] = "month_mean"
+    #: Solve the canopy crossover per cell and month (crossover_temperature and the datacube's
+    #: monthly_crossover_temperature; about ten model passes more); false leaves those layers NaN.
+    crossover_temperature: bool = True
 
     @field_validator("c3", "c4")
     @classmethod
@@ -462,14 +503,50 @@ class ScenarioConfig(_Section):
 
     @model_validator(mode="after")
     def _member_patterns(self) -> "ScenarioConfig":
-        patterned = [name for name, spec in (self.climate.items() if self.climate else ()) if MEMBER_FIELD in str(spec.path)]
+        specs = dict(self.climate.items()) if self.climate else {}
+        patterned = [name for name, spec in specs.items() if MEMBER_FIELD in str(spec.path)]
+        listed = {name: spec.paths for name, spec in specs.items() if isinstance(spec.path, list)}
+        if patterned and listed:
+            raise _located(("climate", next(iter(listed)), "path"),
+                           f"give the members one way: a list of files here, or a {MEMBER_FIELD} pattern "
+                           f"(as layer {patterned[0]!r} does), not both")
+        if listed:
+            counts = {name: len(paths) for name, paths in listed.items()}
+            if len(set(counts.values())) > 1:
+                raise _located(("climate", next(iter(listed)), "path"),
+                               "every layer listing member files needs one file per member; counts: "
+                               + ", ".join(f"{name} {count}" for name, count in counts.items()))
+            count = next(iter(counts.values()))
+            if self.members is None:
+                self.members = member_names_from_files(next(iter(listed.values())))
+            elif len(self.members) != count:
+                raise _located(("members",), f"{len(self.members)} member names for {count} files per layer; "
+                               "expected one name per file, in the same order")
+            return self
         if patterned and not self.members:
             raise _located(("climate", patterned[0], "path"),
                            f"holds {MEMBER_FIELD} but the scenario lists no members (members: [name, ...])")
         if self.members and not self.climate:
-            raise ValueError("members: an ensemble needs climate layers of its own (with a {member} pattern path "
-                             "or a member dimension)")
+            raise ValueError("members: an ensemble needs climate layers of its own (with a {member} pattern path, "
+                             "a list of files per layer or a member dimension)")
         return self
+
+    def member_climate(self, member: str) -> dict[str, LayerSpec]:
+        """The scenario's own layers as read for one ensemble member: a ``{member}`` pattern filled in, the
+        member's file of a list of files; a layer with one plain path is returned as it is (a file with a
+        member dimension, from which the reader takes the member's slice)."""
+        specs = {}
+        index = self.members.index(member) if self.members and member in self.members else None
+        for name, spec in (self.climate.items() if self.climate else ()):
+            if isinstance(spec.path, list):
+                if index is None:
+                    raise KeyError(f"no member {member!r} in scenario {self.name!r}")
+                specs[name] = spec.model_copy(update={"path": spec.path[index]})
+            elif MEMBER_FIELD in str(spec.path):
+                specs[name] = spec.model_copy(update={"path": Path(str(spec.path).replace(MEMBER_FIELD, member))})
+            else:
+                specs[name] = spec
+        return specs
 
     @field_validator("name")
     @classmethod
@@ -589,6 +666,28 @@ class ComputeConfig(_Section):
         return value
 
 
+#: Most draws of ``uncertainty.draws``: each draw is one more model evaluation per scenario (common practice,
+#: no source: 1000 draws give a probability to about +-0.03 at 95 %).
+MAX_DRAWS = 1000
+
+
+class UncertaintyConfig(_Section):
+    """Parameter uncertainty: ``draws`` parameter sets drawn over the published spreads of both sets
+    (:mod:`suitability.physiology.uncertainty`), seeded, giving per-cell probabilities of C4 advantage."""
+
+    draws: Annotated[int, Field(ge=2, le=MAX_DRAWS)]
+    seed: Annotated[int, Field(ge=0)] = 0
+    method: Literal["latin_hypercube", "sobol"] = "latin_hypercube"
+
+    @model_validator(mode="after")
+    def _sobol_in_powers_of_two(self) -> "UncertaintyConfig":
+        # A Sobol sequence keeps its balance properties only for 2^k points (Sobol 1967, from memory;
+        # scipy.stats.qmc.Sobol warns otherwise).
+        if self.method == "sobol" and self.draws & (self.draws - 1):
+            raise ValueError(f"method sobol: draws must be a power of 2 (e.g. 64 or 128), got {self.draws}")
+        return self
+
+
 class BriefConfig(_Section):
     zones: ConfigPath
     name_field: Annotated[str, Field(min_length=1)]
@@ -608,6 +707,7 @@ class RunConfig(_Section):
     output: OutputConfig = Field(default_factory=dict)
     compute: ComputeConfig = Field(default_factory=dict)
     brief: BriefConfig | None = None
+    uncertainty: UncertaintyConfig | None = None
 
     _config_dir: Path = PrivateAttr(default_factory=Path.cwd)
     _source_path: Path | None = PrivateAttr(default=None)
@@ -663,6 +763,24 @@ class RunConfig(_Section):
             for spec in specs:
                 if spec.period is None:
                     spec.period = scenario.period
+        return self
+
+    @model_validator(mode="after")
+    def _uncertainty_declared(self) -> "RunConfig":
+        """With ``uncertainty``, both parameter sets must declare their spreads; the baseline (which every
+        scenario's draws are paired with) must be a single climate."""
+        if self.uncertainty is None:
+            return self
+        from ..physiology.uncertainty import spreads_of
+
+        for key in ("c3", "c4"):
+            try:
+                spreads_of(key.upper(), getattr(self.physiology, key).as_params())
+            except ValueError as exc:
+                raise _located(("uncertainty",), str(exc)) from None
+        if self.baseline_scenario.members:
+            raise _located(("uncertainty",), f"the baseline scenario {self.baseline!r} is an ensemble; paired parameter "
+                           "draws need a single baseline climate (run the ensemble as a non-baseline scenario)")
         return self
 
     @model_validator(mode="after")
@@ -736,6 +854,6 @@ def _did_you_mean(value: str, valid) -> str:
 __all__ = [
     "RunConfig", "RegionConfig", "GridConfig", "LayerSpec", "ClimateLayers", "ClimateConfig", "SeasonConfig",
     "PathwayConfig", "PhysiologyConfig", "ScenarioConfig", "ClassesConfig", "CogConfig", "OutputConfig",
-    "ComputeConfig", "BriefConfig", "parse_crs", "is_month_pattern", "MONTH_FIELD", "MEMBER_FIELD", "ENGINES",
+    "ComputeConfig", "BriefConfig", "UncertaintyConfig", "parse_crs", "is_month_pattern", "member_names_from_files", "MONTH_FIELD", "MEMBER_FIELD", "ENGINES",
     "LOCAL_SCHEDULERS",
 ]

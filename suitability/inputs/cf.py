@@ -44,6 +44,8 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
     var = ds[variable]
     where = f"{path}: layer {name!r} (variable {variable!r})"
     file_units = var.attrs.get("units")
+    standard_name = var.attrs.get("standard_name")
+    described = f"{variable} ({standard_name})" if standard_name else str(variable)
     x_dim, y_dim = _spatial_dims(var, where)
     var = var.rename({x_dim: "x", y_dim: "y"})
     crs = var.rio.crs if var.rio.crs is not None else ds.rio.crs
@@ -63,7 +65,7 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
     keep = {"x", "y", "month", "time", "member"}
     var = var.drop_vars([c for c in var.coords if c not in keep])
     var = var.transpose(*[d for d in ("member", "time", "month", "y", "x") if d in var.dims])
-    var = guarded_chunk(var, {"month": -1, "time": 31, "y": chunk, "x": chunk}, where)
+    var = guarded_chunk(var, {"month": -1, "time": _time_chunk(var, chunk), "y": chunk, "x": chunk}, where)
     transformations = [f"applied the file's scale_factor {var.encoding['scale_factor']:g} and add_offset "
                        f"{var.encoding.get('add_offset', 0):g} (CF)"] if "scale_factor" in var.encoding else []
     before = var["x"].values
@@ -78,7 +80,21 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
     var = var.rio.write_crs(crs)
     var.attrs = {}
     driver = "Zarr" if engine == "zarr" else "netCDF"
-    return Native(keep_spatial(var), driver, file_units, tuple(transformations))
+    return Native(keep_spatial(var), driver, file_units, tuple(transformations), variable=described)
+
+
+#: Values per read chunk of a time series (4e6 float32: 16 MB): a small grid's series is read in few, long
+#: chunks rather than thousands of month-long ones; a large block keeps at least a month of days per chunk.
+_SERIES_CHUNK_VALUES = 4_000_000
+
+
+def _time_chunk(var: xr.DataArray, chunk: int) -> int:
+    """Time steps per chunk of a series: as many as fit :data:`_SERIES_CHUNK_VALUES` for one spatial block,
+    at least 31 (a month of days)."""
+    if "time" not in var.dims:
+        return 31
+    cells = min(var.sizes["y"], chunk) * min(var.sizes["x"], chunk)
+    return int(max(31, min(var.sizes["time"], _SERIES_CHUNK_VALUES // max(cells, 1))))
 
 
 def _open_dataset(path: Path, name: str, engine: str | None) -> xr.Dataset:

@@ -96,6 +96,11 @@ def _sample_index(size: int, windows: int = 8, width: int = SAMPLE_SIDE // 8):
     return np.concatenate([np.arange(start, start + width) for start in starts])
 
 
+#: A monthly mean wind speed above this [m s-1] is taken as a units slip: the windiest stations' annual means
+#: are about 10-20 m s-1 (common practice, no source).
+_MAX_MEDIAN_WIND_M_S = 25.0
+
+
 def check_plausible(name: str, declared: str, scale: float, offset: float, sample: np.ndarray, where: str) -> None:
     """Refuse declared units that the values contradict (the tell-tale cases of swapped units)."""
     values = sample[np.isfinite(sample)]
@@ -126,6 +131,12 @@ def check_plausible(name: str, declared: str, scale: float, offset: float, sampl
                 f"mm d-1, more than any climate's monthly mean rate; they look like totals per month: divide by the "
                 "days of each month, or give the daily rate's units (e.g. mm d-1, kg m-2 s-1)"
             )
+    if name == "wind_speed" and float(np.median(scale * values + offset)) > _MAX_MEDIAN_WIND_M_S:
+        raise InputDataError(
+            f"{where}: declared as {declared} but the values ({spread}) give a median of "
+            f"{float(np.median(scale * values + offset)):.4g} m s-1, more than any climate's monthly mean wind; "
+            "they look like km h-1 or knots: declare their units (e.g. units: km h-1)"
+        )
     low, high = INPUT_VARIABLES[output_name(name, declared)].valid_range
     converted = scale * values + offset
     if name == "water_stress":

@@ -18,6 +18,7 @@ import xarray as xr
 from ..config import MEMBER_FIELD
 from ..errors import InputDataError
 from ..grid import TargetGrid, align_to_grid
+from ..physiology.energy import wind_speed_at_2m
 from ..variables import INPUT_VARIABLES
 from .checks import check_plausible, coverage_share, read_sample
 from .native import Native
@@ -83,6 +84,9 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int, member: str | N
         data = data * np.float32(scale) + np.float32(offset)
     if name == "water_stress":
         data = 1.0 - data
+    height = getattr(spec, "height_m", None)
+    if name == "wind_speed" and height is not None and height != 2.0:
+        data = wind_speed_at_2m(data, np.float32(height))  # the canonical layer is the wind at 2 m
     data = data.astype(np.float32)
     if data.rio.crs is None and native.data.rio.crs is not None:
         # Arithmetic drops the grid_mapping attribute, which is how a NetCDF names its CRS variable.
@@ -94,6 +98,8 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int, member: str | N
     }
     if native.time is not None:
         data.attrs["time_info"] = native.time.as_record()
+    if native.variable is not None:
+        data.attrs["source_variable"] = native.variable
     return data, native
 
 
@@ -103,6 +109,8 @@ UNIT_EXAMPLES = {
     "shortwave": ("W m-2", "MJ m-2 d-1"), "par": ("mol m-2 d-1", "umol m-2 s-1"),
     "water_availability": ("fraction", "percent"), "water_stress": ("fraction", "percent"),
     "vpd": ("kPa", "hPa"), "humidity": ("percent", "fraction"), "elevation": ("m",), "lai": ("m2 m-2",),
+    "precipitation": ("kg m-2 s-1", "mm d-1"), "pet": ("mm d-1", "kg m-2 s-1"), "wind_speed": ("m s-1",),
+    "soil_water_capacity": ("mm",),
 }
 
 
@@ -126,16 +134,20 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
     monthly layers (month, y, x), month = 1..12, static layers (y, x); member: the ensemble member whose
     files (``{member}`` in a path) or slice (a member dimension) are read; chunks {"month": -1, "y": chunk,
     "x": chunk}, coordinates exactly the grid's; ``attrs["time_info"]`` maps each layer made from a time
-    series (or a dated 12-step file) to its calendar, period and years (:meth:`.periods.TimeInfo.as_record`). A layer not reaching the region is an InputDataError; one
+    series (or a dated 12-step file) to its calendar, period and years (:meth:`.periods.TimeInfo.as_record`);
+    ``attrs["variables"]`` each NetCDF/Zarr layer to the file variable it came from. A layer not reaching the region is an InputDataError; one
     covering it partly gives an InputCoverageWarning with the share covered (cells outside are NaN).
     """
     layers: dict[str, xr.DataArray] = {}
     time_info: dict[str, dict] = {}
+    variables: dict[str, str] = {}
     for name, spec in climate_config.items():
         converted, _ = open_converted(name, spec, config_dir, chunk, member)
         layer = _valid_only(converted)
         if "time_info" in layer.attrs:
             time_info[name] = layer.attrs["time_info"]
+        if "source_variable" in layer.attrs:
+            variables[name] = layer.attrs["source_variable"]
         path = member_path(absolute(spec.path, config_dir), member)
         share = coverage_share(layer, grid)
         if share <= 0.0:
@@ -155,6 +167,7 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
     # Every monthly layer was checked to hold each month 1..12 once (sorted), so their months agree.
     dataset = xr.Dataset(layers).rio.write_crs(grid.crs.to_wkt())
     dataset.attrs["time_info"] = time_info
+    dataset.attrs["variables"] = variables
     return dataset
 
 

@@ -11,7 +11,7 @@ import xarray as xr
 
 from ..errors import InputDataError
 from ..grid import TargetGrid, align_to_grid
-from ..variables import INPUT_VARIABLES
+from ..variables import INPUT_VARIABLES, PENMAN_MONTEITH, pet_method
 from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, lost_cells, read_sample, region_window
 from .climate import load_mask, open_converted
 from .periods import ShortPeriodWarning
@@ -51,6 +51,7 @@ class LayerReport:
     nodata_share: float | None = None
     out_of_range_share: float | None = None
     time: str | None = None
+    variable: str | None = None
     problems: list[str] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
 
@@ -72,48 +73,80 @@ def inspect_inputs(config: Any) -> list[LayerReport]:
     for scenario in config.scenarios:
         entries += [(scenario.name, n, s) for n, s in (scenario.climate.items() if scenario.climate else ())]
     members_of = {s.name: _members(s, config.config_dir) for s in config.scenarios if s.climate}
+    scenarios = {s.name: s for s in config.scenarios}
     for scenario, name, spec in entries:
         members = members_of.get(scenario) if scenario else None
         if not members:
             reports.append(_inspect_layer(name, spec, config.config_dir, grid, scenario))
             continue
         # an ensemble: every member is opened; one line per layer, problems named by member
-        each = {m: _inspect_layer(name, spec, config.config_dir, grid, scenario, m) for m in members}
+        each = {m: _inspect_layer(name, scenarios[scenario].member_climate(m)[name], config.config_dir, grid, scenario, m)
+                for m in members}
         report = next(iter(each.values()))
+        report.path = str(spec.path[0]) + f" ... ({len(spec.path)} files)" if isinstance(spec.path, list) else str(spec.path)
         report.problems = [f"member {m}: {p}" for m, r in each.items() for p in r.problems]
         report.warnings = sorted({w for r in each.values() for w in r.warnings})
         opened = {m: r for m, r in each.items() if not r.problems}
         kinds = {r.time for r in opened.values()}
         first = next(iter(opened.values()), report)
+        steps = {m: next((k for k in ("daily", "monthly") if (r.time or "").startswith(k)), "12 months")
+                 for m, r in opened.items()}
+        if len(set(steps.values())) > 1:
+            report.problems.append("members mix time steps (" + "; ".join(f"{m}: {r.time}" for m, r in opened.items())
+                                   + "); expected the same (all monthly or all daily)")
+        variables = {m: r.variable for m, r in opened.items() if r.variable}
+        if len(set(variables.values())) > 1:
+            report.problems.append("members are read from different variables (" + ", ".join(
+                f"{m}: {v}" for m, v in variables.items()) + "); expected the same variable in every member")
         report.time = (f"{len(members)} members ({', '.join(members)}); {first.time}" if len(kinds) <= 1
                        else f"{len(members)} members, time axes differ: " + "; ".join(f"{m}: {r.time}" for m, r in opened.items()))
         reports.append(report)
     if getattr(config.region, "mask", None) is not None and grid is not None:
         reports.append(_inspect_mask(config.region, grid, config.config_dir))
     reports += _derived_water(config)
+    if getattr(config, "brief", None) is not None:
+        from .districts import inspect_districts
+
+        reports.append(inspect_districts(config.brief.zones, config.brief.name_field, grid))
     return reports
 
 
 def _derived_water(config: Any) -> list[LayerReport]:
     """A line per climate (baseline and scenarios with their own rainfall) whose water comes from rainfall."""
     reports = []
+    for scenario, text in derived_methods(config).items():
+        report = LayerReport(layer="water_availability", path="(derived from precipitation)",
+                             scenario=None if scenario == "baseline" else scenario, crs="-",
+                             output_name="water_availability", canonical_units="1")
+        report.time = text
+        reports.append(report)
+    return reports
+
+
+def derived_methods(config: Any) -> dict[str, str]:
+    """"baseline" or scenario name -> how its water availability is derived from rainfall (the bucket, its
+    capacity, the PET method), for every climate (the baseline's, a scenario's own) that gives
+    ``precipitation``. ``check`` prints it; the manifest records it (``"derived"``)."""
+    methods = {}
     physiology = getattr(config, "physiology", None)
     capacity = getattr(physiology, "soil_water_capacity_mm", 150.0)
     retention = getattr(physiology, "soil_water_retention", "exponential")
-    sections = [(None, config.climate)] + [(s.name, s.climate) for s in config.scenarios if s.climate]
+    sections = [("baseline", config.climate)] + [(s.name, s.climate) for s in config.scenarios if s.climate]
     for scenario, climate in sections:
         if "precipitation" not in climate:
             continue
         base = config.climate
-        pet = "pet as given" if "pet" in climate or "pet" in base else "PET by Hargreaves-Samani (FAO-56 eq. 52) from tmin/tmax"
+        names = set(base.keys()) | set(climate.keys())
+        if "par" in climate:  # a scenario's par replaces the baseline's shortwave
+            names -= {"shortwave"}
+        pet = "pet as given" if "pet" in names else f"PET by {pet_method(names)}" + (
+            "" if pet_method(names) == PENMAN_MONTEITH else " from tmin/tmax (no wind_speed with humidity or vpd "
+            "and shortwave for Penman-Monteith)")
         bucket = ("soil_water_capacity layer" if "soil_water_capacity" in climate or "soil_water_capacity" in base
                   else f"capacity {capacity:g} mm")
-        report = LayerReport(layer="water_availability", path="(derived from precipitation)", scenario=scenario, crs="-",
-                             output_name="water_availability", canonical_units="1")
-        report.time = (f"derived: AET/PET of a monthly soil-water balance (Thornthwaite & Mather, {retention} "
-                       f"retention, {bucket}); {pet}")
-        reports.append(report)
-    return reports
+        methods[scenario] = (f"derived: AET/PET of a monthly soil-water balance (Thornthwaite & Mather, {retention} "
+                             f"retention, {bucket}); {pet}")
+    return methods
 
 
 def _members(scenario: Any, config_dir) -> list[str] | None:
@@ -121,6 +154,8 @@ def _members(scenario: Any, config_dir) -> list[str] | None:
     if scenario.members:
         return list(scenario.members)
     for name, spec in scenario.climate.items():
+        if isinstance(spec.path, list):
+            continue
         try:
             labels = member_labels(name, spec, absolute(spec.path, config_dir), INPUT_VARIABLES[name].monthly)
         except InputDataError:
@@ -150,6 +185,7 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
     elif "month" in converted.dims:
         report.time = "12 months"
     report.output_name = converted.name
+    report.variable = native.variable
     report.driver = native.driver
     report.warnings += [f"on reading: {t}" for t in native.transformations]
     report.file_units = native.file_units
@@ -159,6 +195,10 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
     report.crs = crs.to_string() if crs is not None else None
     res_x, res_y = converted.rio.resolution(recalc=True)
     report.native_resolution = (abs(float(res_x)), abs(float(res_y)))
+    if name == "wind_speed":
+        height = getattr(spec, "height_m", None)
+        report.warnings.append(f"wind at {height:g} m brought to 2 m (FAO-56 eq. 47)" if height not in (None, 2.0)
+                               else "wind taken as measured at 2 m (set height_m, e.g. 10 for CMIP sfcWind)")
     if spec.units and native.file_units and units_differ(spec.units, native.file_units):
         report.warnings.append(f"declared units {spec.units!r} override the file's {native.file_units!r}")
     if grid is None:

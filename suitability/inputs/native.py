@@ -32,6 +32,9 @@ class Native:
     #: wrapped, axes flipped), in words; ``check`` lists them.
     transformations: tuple[str, ...] = ()
     time: Any = None
+    #: The file variable the layer was read from, with its CF standard_name if it has one (NetCDF/Zarr:
+    #: "tasmin (air_temperature)"); None for formats without named variables.
+    variable: str | None = None
 
 
 def keep_spatial(data: xr.DataArray) -> xr.DataArray:

@@ -14,7 +14,8 @@ decoded ``time`` axis (numpy datetime64 for the standard calendars, cftime objec
   Averaging the days directly weights each month by its days, which is the monthly total divided by the
   total days, the same quantity practice computes as "sum per month, then mean over years" up to the
   weight of a leap February;
-- everything stays lazy (dask ``groupby``); the result is chunked whole along ``month``.
+- everything stays lazy: per time chunk, monthly sums and counts, added up over the chunks by dask (memory
+  does not grow with the length of the series); the result is chunked whole along ``month``.
 
 Decisions (the issue was silent):
 - A file of 12 steps holding each month once is a climatology already (often stamped with a placeholder
@@ -127,12 +128,43 @@ def to_climatology(data: xr.DataArray, period: tuple[int, int] | None, where: st
     if present != set(MONTHS):
         raise InputDataError(f"{where}: months {sorted(set(MONTHS) - present)} have no time step in {first}-{last}; "
                              "expected every month of the year")
-    with xr.set_options(use_bottleneck=False):  # float32 sums with bottleneck lose precision (ECOSYSTEM.md)
-        climatology = chosen.astype(np.float64).groupby("time.month").mean("time").astype(np.float32)
-    climatology = climatology.assign_coords(month=climatology["month"].values.astype(int)).sortby("month")
-    climatology = climatology.chunk({"month": -1})
+    climatology = _monthly_means(chosen, months[keep])
     info = TimeInfo("daily" if daily else "monthly", calendar, (first, last), last - first + 1, steps)
     return climatology, info
+
+
+def _monthly_means(series: xr.DataArray, months: np.ndarray) -> xr.DataArray:
+    """The mean of each calendar month (month 1..12, y, x) of a (time, y, x) series, NaN skipped, lazily.
+
+    Each time chunk is reduced on its own to per-month sums and counts of valid values (float64), and
+    those are added up over the chunks (a dask tree reduction), so memory holds a few time chunks of one
+    block at once, whatever the length of the series. (xarray's groupby, without the optional flox, sorts
+    the steps by month first: a shuffle that held the whole series of a block in memory, 23 GB for 30
+    years of daily data on a 512 x 512 block.) The same means as ``groupby("time.month").mean()``.
+    """
+    import dask.array as da
+
+    onehot = np.eye(12)[months - 1]  # (time, 12): which month each step belongs to
+    data = series.data if isinstance(series.data, da.Array) else da.from_array(series.data, chunks=(31, -1, -1))
+
+    def sums_and_counts(block, block_info=None):
+        start, stop = block_info[0]["array-location"][0]
+        values = block.astype(np.float64)
+        valid = np.isfinite(values)
+        weights = onehot[start:stop]
+        sums = np.tensordot(weights, np.where(valid, values, 0.0), axes=(0, 0))
+        counts = np.tensordot(weights, valid.astype(np.float64), axes=(0, 0))
+        return np.stack([sums, counts])[None]
+
+    chunks = ((1,) * len(data.chunks[0]), (2,), (12,)) + data.chunks[1:]
+    parts = da.map_blocks(sums_and_counts, data, chunks=chunks, new_axis=[1, 2], dtype=np.float64)
+    total = parts.sum(axis=0)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        means = da.where(total[1] > 0, total[0] / total[1], np.nan).astype(np.float32)
+    coords = {name: series.coords[name] for name in ("y", "x") if name in series.coords}
+    out = xr.DataArray(means, dims=("month", "y", "x"), coords={"month": np.arange(1, 13), **coords},
+                       name=series.name)
+    return out.rio.write_crs(series.rio.crs) if series.rio.crs is not None else out
 
 
 def _check_twelve_months(months: np.ndarray, steps: int, where: str) -> None:

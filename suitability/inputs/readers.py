@@ -133,13 +133,13 @@ def read_native(name: str, spec: Any, path: Path, monthly: bool, chunk: int, mem
             raise InputDataError(f"{path}: layer {name!r} has members {', '.join(labels)}; {expected}")
         crs = native.data.rio.crs
         native = Native(native.data.sel(member=member, drop=True).rio.write_crs(crs), native.driver, native.file_units,
-                        transformations=native.transformations, time=native.time)
+                        transformations=native.transformations, time=native.time, variable=native.variable)
     if "time" in native.data.dims:  # a series: the monthly climatology over the layer's period
         where = f"{path}: layer {name!r}" + (f" (variable {options['variable']!r})" if options["variable"] else "")
         crs = native.data.rio.crs
         data, info = to_climatology(native.data, getattr(spec, "period", None), where)
         native = Native(data.transpose("month", "y", "x").rio.write_crs(crs), native.driver, native.file_units,
-                        transformations=native.transformations, time=info)
+                        transformations=native.transformations, time=info, variable=native.variable)
     return native
 
 

@@ -73,7 +73,8 @@ def compiled_entry(c3_model: LeafModel, c4_model: LeafModel):
         if not model.compiled:
             raise ValueError(f"leaf model {model.name!r} is not available in the compiled engine; use "
                              "compute.engine: numpy")
-    return specialise(_compiled.monthly_cells, {"C3_RATES": c3_model.rates, "C4_RATES": c4_model.rates},
+    return specialise(_compiled.monthly_cells, {"C3_RATES": c3_model.rates, "C4_RATES": c4_model.rates,
+                                                "C3_ACCLIMATE": c3_model.acclimate, "C4_ACCLIMATE": c4_model.acclimate},
                       key=f"{c3_model.name}_{c4_model.name}")
 
 
@@ -97,7 +98,7 @@ def monthly_canopy_assimilation(
     *, tmin_c, tmax_c, shortwave_mj, water_availability, latitude_deg, day_of_year, co2_ppm,
     elevation_m=None, lai=None, default_lai=3.0, vpd_kpa=None, actual_vapour_pressure_kpa=None,
     in_season=None, o2_percent=20.95, c3_params=None, c4_params=None,
-    max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY,
+    max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY, growth_temperature_c=None,
 ) -> MonthlyCanopyAssimilation:
     """Daily C3 and C4 canopy assimilation on 12 representative days per cell, by the compiled kernel.
 
@@ -120,6 +121,9 @@ def monthly_canopy_assimilation(
     c3_params, c4_params : as :func:`suitability.physiology.resolve_params` accepts.
     max_water_supply_mm : the soil's daily water supply at field capacity [mm d-1]
         (:mod:`suitability.physiology.water`).
+    growth_temperature_c : growth temperature Tg [°C] of the leaves of both pathways, (..., 12), e.g. the
+        month's mean air temperature (acclimation, ``LeafModel.acclimate``); None = each parameter set's
+        own ``growth_temperature_c``. NaN gives NaN in a pathway whose model acclimates.
 
     Returns :class:`MonthlyCanopyAssimilation` (float64 arrays of shape (..., 12)).
     References: as :func:`suitability.physiology.daily_canopy_assimilation`.
@@ -130,7 +134,7 @@ def monthly_canopy_assimilation(
                            default_lai=default_lai, vpd_kpa=vpd_kpa,
                            actual_vapour_pressure_kpa=actual_vapour_pressure_kpa, in_season=in_season,
                            o2_percent=o2_percent, c3_params=c3_params, c4_params=c4_params,
-                           max_water_supply_mm=max_water_supply_mm)
+                           max_water_supply_mm=max_water_supply_mm, growth_temperature_c=growth_temperature_c)
     daily = daily.reshape((5,) + shape + (12,))
     return MonthlyCanopyAssimilation(c3_net=daily[A_C3_NET], c3_gross=daily[A_C3_GROSS],
                                      c3_photorespiration=daily[A_C3_PHOTO], c4_net=daily[A_C4_NET],
@@ -171,7 +175,7 @@ def season_canopy_assimilation(*, days_in_month, **inputs) -> SeasonCanopyAssimi
 def _run(n_fields, weights, *, tmin_c, tmax_c, shortwave_mj, water_availability, latitude_deg, day_of_year,
          co2_ppm, elevation_m=None, lai=None, default_lai=3.0, vpd_kpa=None, actual_vapour_pressure_kpa=None,
          in_season=None, o2_percent=20.95, c3_params=None, c4_params=None,
-         max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY):
+         max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY, growth_temperature_c=None):
     """Prepare the arrays and run the compiled kernel; returns (daily (n_fields, n, 12), totals (2, n), shape)."""
     if vpd_kpa is not None and actual_vapour_pressure_kpa is not None:
         raise ValueError("give vpd_kpa or actual_vapour_pressure_kpa, not both")
@@ -197,6 +201,11 @@ def _run(n_fields, weights, *, tmin_c, tmax_c, shortwave_mj, water_availability,
         humidity = cells_by_month(actual_vapour_pressure_kpa, "actual_vapour_pressure_kpa")
     else:
         humidity_kind, humidity = HUMIDITY_FROM_TMIN, np.zeros((1, 12), np.float32)
+    if growth_temperature_c is None:
+        growth = np.zeros((0, 12), np.float32)
+    else:
+        growth = cells_by_month(growth_temperature_c, "growth_temperature_c")
+    growth_defaults = np.array([c3.growth_temperature_c, c4.growth_temperature_c], np.float64)
     season = _kernel_array(True if in_season is None else in_season, np.bool_, shape + (12,), (n, 12), "in_season")
     days = np.asarray(day_of_year, np.float64)
     if days.shape != (12,) or not np.all(days == days.round()):
@@ -212,7 +221,8 @@ def _run(n_fields, weights, *, tmin_c, tmax_c, shortwave_mj, water_availability,
         cells(lai, "lai", default_lai), season, days, float(co2_ppm), float(o2_percent),
         c3.stomatal, c3.constants, c3.columns, c4.stomatal, c4.constants, c4.columns, saturation_table(),
         c3.start_c, 1.0 / c3.step_c, day_nodes, day_weights, night_nodes, night_weights, _UMOL_CO2_TO_G_C,
-        float(max_water_supply_mm), np.require(weights, np.float64, ["C", "A", "W"]), daily, totals,
+        float(max_water_supply_mm), np.require(weights, np.float64, ["C", "A", "W"]), growth, growth_defaults,
+        daily, totals,
     )
     return daily, totals, shape
 

@@ -11,8 +11,10 @@ definition, :mod:`suitability.physiology.elementwise`); this module only arrange
   computed once per pair; the temperature-only terms of the leaf models come from tables
   (:mod:`.tables`);
 * the functions marked ``@template`` name the leaf models' rates as the globals ``C3_RATES`` and
-  ``C4_RATES``; :func:`suitability.physiology.elementwise.specialise` binds them to the registered
-  models of a run and compiles one entry point per pair of models.
+  ``C4_RATES``, and their acclimation to the growth temperature (``LeafModel.acclimate``, once per
+  moment on the tabulated terms) as ``C3_ACCLIMATE`` and ``C4_ACCLIMATE``;
+  :func:`suitability.physiology.elementwise.specialise` binds them to the registered models of a run
+  and compiles one entry point per pair of models.
 
 Each cell is computed independently, in a fixed order, with no reduction across cells: results are
 bitwise identical whatever the block (chunk) size, the number of workers or the scheduler.
@@ -67,8 +69,8 @@ HUMIDITY_FROM_TMIN, HUMIDITY_VPD, HUMIDITY_VAPOUR_PRESSURE = 0, 1, 2
 
 # setup[field, lane]: the day of one cell and month
 (_S_A, _S_B, _S_GLOBAL_AMPLITUDE, _S_DIFFUSE_AMPLITUDE, _S_TMIN, _S_TMAX, _S_DAY_LENGTH, _S_LAI, _S_E_KD,
- _S_HUMIDITY, _S_WATER, _S_CO2, _S_PRESSURE, _S_O2, _S_ENERGY) = range(15)
-_N_SETUP = 15
+ _S_HUMIDITY, _S_WATER, _S_CO2, _S_PRESSURE, _S_O2, _S_ENERGY, _S_C3_GROWTH, _S_C4_GROWTH) = range(17)
+_N_SETUP = 17
 # cells[field, lane]: what does not change with the month
 _C_VALID, _C_LATITUDE, _C_LAI, _C_E_KD, _C_PRESSURE, _C_O2, _C_ELEVATION = range(7)
 _N_CELL = 7
@@ -158,8 +160,10 @@ def _moment_rates(setup, lane, temperature, sunlit_par, shaded_par, sunlit_lai, 
     c4_co2_pa = co2_partial_pressure_pa(c4_ci_ppm, pressure)
     c3_scale = capacity_scale_given(water, c3_stomatal)
     c4_scale = capacity_scale_given(water, c4_stomatal)
-    c3_terms = _terms(c3_table, row, fraction)
-    c4_terms = _terms(c4_table, row, fraction)
+    # The leaf-temperature terms from the tables, completed for the growth temperature of the cell and
+    # month (acclimation; the identity for models without it).
+    c3_terms = C3_ACCLIMATE(_terms(c3_table, row, fraction), c3_constants, setup[_S_C3_GROWTH, lane])  # noqa: F821
+    c4_terms = C4_ACCLIMATE(_terms(c4_table, row, fraction), c4_constants, setup[_S_C4_GROWTH, lane])  # noqa: F821
     sun3 = C3_RATES(c3_terms, c3_constants, sunlit_par, c3_co2_pa, o2_pa, c3_scale)  # noqa: F821 (bound)
     shade3 = C3_RATES(c3_terms, c3_constants, shaded_par, c3_co2_pa, o2_pa, c3_scale)  # noqa: F821
     sun4 = C4_RATES(c4_terms, c4_constants, sunlit_par, c4_co2_pa, o2_pa, c4_scale)  # noqa: F821
@@ -304,8 +308,11 @@ def _setup_cell(cells, lane, cell, latitude, elevation, lai, co2_ppm, o2_percent
 
 @template
 def _setup_lane(setup, cells, lane, cell, month, tmin, tmax, shortwave, water, humidity, humidity_kind, season,
-                day_of_year, declination, co2_ppm):
-    """The day's quantities of one cell and month (canopy._prepare); False where the result is NaN."""
+                day_of_year, declination, co2_ppm, growth, growth_defaults):
+    """The day's quantities of one cell and month (canopy._prepare); False where the result is NaN.
+
+    ``growth``: the growth temperature [°C] of every cell and month, (n, 12), used by both pathways; an
+    empty (0, 12) array means each pathway's own default, ``growth_defaults`` = (C3, C4) [°C]."""
     t_low = tmin[cell, month]
     t_high = tmax[cell, month]
     daily_shortwave = shortwave[cell, month]
@@ -323,6 +330,13 @@ def _setup_lane(setup, cells, lane, cell, month, tmin, tmax, shortwave, water, h
         setup[_S_HUMIDITY, lane] = given
     else:
         setup[_S_HUMIDITY, lane] = actual_vapour_pressure_from_tmin(t_low)
+    if growth.shape[0] > 0:
+        growth_temperature = growth[cell, month]  # NaN makes NaN the results of the models that use it
+        setup[_S_C3_GROWTH, lane] = growth_temperature
+        setup[_S_C4_GROWTH, lane] = growth_temperature
+    else:
+        setup[_S_C3_GROWTH, lane] = growth_defaults[0]
+        setup[_S_C4_GROWTH, lane] = growth_defaults[1]
     # the vapour pressure of the net radiation (canopy._prepare)
     vapour = setup[_S_HUMIDITY, lane] if humidity_kind != HUMIDITY_VPD else actual_vapour_pressure_from_deficit(
         t_low, t_high, setup[_S_HUMIDITY, lane])
@@ -369,11 +383,13 @@ def _limit_by_water_supply(acc, lane, water, max_supply_mm, energy_limit_mm):
 def monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitude, elevation, lai, season, days,
                   co2_ppm, o2_percent, c3_stomatal, c3_constants, c3_table, c4_stomatal, c4_constants, c4_table,
                   saturation, table_start, table_inverse_step, day_nodes, day_weights, night_nodes, night_weights,
-                  to_carbon, max_supply_mm, weights, out, totals):
+                  to_carbon, max_supply_mm, weights, growth, growth_defaults, out, totals):
     """Fill out[field, cell, month] with the first out.shape[0] of C3 net, C4 net, C3 gross, C3
     photorespiration, C4 gross [g C m-2 d-1], and add weights[month] x C3 gross and photorespiration of
     the season months to totals[0, cell] and totals[1, cell] [g C m-2]; ``to_carbon`` converts µmol CO2
-    to g C; ``max_supply_mm`` is the soil's water supply at field capacity [mm d-1]. The entry point that :func:`suitability.physiology.elementwise.specialise` compiles."""
+    to g C; ``max_supply_mm`` is the soil's water supply at field capacity [mm d-1]; ``growth`` and
+    ``growth_defaults`` the growth temperatures (:func:`_setup_lane`). The entry point that
+    :func:`suitability.physiology.elementwise.specialise` compiles."""
     n = tmin.shape[0]
     setup = _setup_array()
     cells = _cell_array()
@@ -393,7 +409,7 @@ def monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitud
                 cell = start + lane
                 valid = declination == declination and cells[_C_VALID, lane] == 1.0 and _setup_lane(
                     setup, cells, lane, cell, month, tmin, tmax, shortwave, water, humidity, humidity_kind, season,
-                    day_of_year, declination, co2_ppm)
+                    day_of_year, declination, co2_ppm, growth, growth_defaults)
                 if not valid:
                     _fill_harmless(setup, lane)
                 for field in range(_N_ACC):

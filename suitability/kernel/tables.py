@@ -5,8 +5,15 @@ are tabulated every :data:`TABLE_STEP_C` °C over the leaf models' valid tempera
 functions themselves and interpolated linearly in the kernel. The interpolation error is at most
 h²/8 · max|f''/f|; the most curved term is the Collatz et al. (1992) respiration cut-off
 1/(1 + e^{1.3 (T − 55)}) with |f''/f| <= 1.69 K⁻², so with h = 0.01 K the error is below 2.2e-5 relative
-(derived here), and below 2e-7 for the Arrhenius terms. The saturation vapour pressure e°(T) (FAO-56
-eq. 11) is tabulated alike, for the hourly vapour pressure deficit.
+(derived here), and below 2e-7 for the Arrhenius terms (including the deactivation factor fArr(T; Hd) of
+the peaked responses, |f''/f| = (Hd/(R Tk²))² − 2 Hd/(R Tk³) <= 0.28 K⁻² above -60 °C for Hd = 200 kJ
+mol-1: below 3.5e-6, derived here). The
+saturation vapour pressure e°(T) (FAO-56 eq. 11) is tabulated alike, for the hourly vapour pressure deficit.
+
+Terms that depend on the growth temperature (acclimation) are not tabulated: the tables hold only
+leaf-temperature terms, and the leaf model's ``acclimate`` equation completes them for the cell's growth
+temperature inside the kernel (:mod:`suitability.physiology.models`), so acclimation adds no
+interpolation error.
 """
 
 from __future__ import annotations
@@ -45,6 +52,7 @@ class PathwayTables:
     stomatal: np.ndarray
     start_c: float
     step_c: float
+    growth_temperature_c: float = float("nan")
 
     @property
     def table(self) -> np.ndarray:
@@ -99,4 +107,5 @@ def _cached_tables(pathway: str, items: tuple) -> PathwayTables:
     stomatal = np.array(stomatal_constants(params), np.float64)
     for array in (by_term, constants, stomatal):
         array.setflags(write=False)
-    return PathwayTables(model, by_term, constants, stomatal, float(t[0]), TABLE_STEP_C)
+    return PathwayTables(model, by_term, constants, stomatal, float(t[0]), TABLE_STEP_C,
+                         float(params.get("growth_temperature_c", np.nan)))

@@ -28,6 +28,16 @@ Capacity temperature responses (``vcmax_temperature_response`` parameter):
   Environ 26:1419 J Ea 43.5 kJ mol-1, applied to Jmax;
 - "collatz1991": Collatz et al. (1991) Vmax = Vmax25 2.4^((T−25)/10) / (1 + exp((S Tk − H)/(R Tk))),
   S 710 J mol-1 K-1, H 220 kJ mol-1 [from memory]; this form is not normalised (0.966 at 25 °C), as published.
+Acclimation to growth temperature (Kattge & Knorr 2007, their eqs. for ΔS(Tg) and Jmax25/Vcmax25 =
+2.59 − 0.035 Tg): the growth temperature Tg [°C] may differ from cell to cell and month to month
+(``growth_temperature_c`` of :func:`fvcb_acclimated_terms`; the parameter set's ``growth_temperature_c``
+when none is given). Kattge & Knorr took Tg as the mean air temperature of the 30 days before the
+measurement (from memory); their data span growth temperatures of about 11-35 °C (from memory), and Tg
+outside that range is held at its nearest end (:data:`GROWTH_TEMPERATURE_RANGE_C`), as the CLM5 technical
+note does (Lawrence et al. 2018, eqs. 9.15-9.16: "acclimation is restricted" to 11-35 °C). Tg changes ΔS of
+Vcmax and Jmax ("peaked" only), and Jmax25 where the set derives it from Vcmax25 (``jmax25: None``).
+The peaked responses are written as :func:`~.temperature.peaked_given`: the leaf temperature enters
+through Arrhenius factors (tabulated by the compiled engine), Tg through ΔS only.
 Rd: Arrhenius Ea 46.39 kJ mol-1 (Bernacchi et al. 2001), or for "collatz1991"
 Rd = Rd25 2^((T−25)/10) / (1 + exp(1.3 (T − 55))) (Collatz et al. 1991 [from memory]). Tp follows Vcmax.
 """
@@ -43,7 +53,7 @@ from . import array_ops as ops
 from .elementwise import equation
 from .models import LeafModel, LeafRates, register_leaf_model
 from .rubisco import effective_michaelis_constant, effective_michaelis_constant_given_ratio, rubisco_constants
-from .temperature import KELVIN_OFFSET, R_GAS, arrhenius, peaked_arrhenius, q10_response
+from .temperature import KELVIN_OFFSET, R_GAS, arrhenius, peaked_arrhenius, peaked_given, q10_response
 
 #: A capacity that never limits (an unlimited Jmax or Tp) [µmol m-2 s-1]. A large finite number rather
 #: than inf, so that tables of it can be interpolated and no inf - inf can arise.
@@ -58,6 +68,20 @@ KATTGE_KNORR_2007 = {
     "jmax_entropy_intercept": 659.70,
     "jmax_entropy_slope": -0.75,
 }
+# The same numbers as module floats, for the equations (which the compiled engine freezes as constants).
+_VCMAX_ENTROPY_INTERCEPT = KATTGE_KNORR_2007["vcmax_entropy_intercept"]
+_VCMAX_ENTROPY_SLOPE = KATTGE_KNORR_2007["vcmax_entropy_slope"]
+_JMAX_ENTROPY_INTERCEPT = KATTGE_KNORR_2007["jmax_entropy_intercept"]
+_JMAX_ENTROPY_SLOPE = KATTGE_KNORR_2007["jmax_entropy_slope"]
+_DEACTIVATION_ENERGY = KATTGE_KNORR_2007["deactivation_energy"]
+#: Kattge & Knorr (2007): Jmax25/Vcmax25 = 2.59 − 0.035 Tg [-, °C-1].
+JMAX_RATIO_INTERCEPT = 2.59
+JMAX_RATIO_SLOPE = -0.035
+GROWTH_TEMPERATURE_RANGE_C = (11.0, 35.0)
+"""Growth temperatures [°C] over which the Kattge & Knorr (2007) acclimation is applied; outside, Tg is
+held at the nearest end (module docstring: the range of their data, from memory; the same restriction as
+the CLM5 technical note, Lawrence et al. 2018, eqs. 9.15-9.16)."""
+_TG_LOW, _TG_HIGH = GROWTH_TEMPERATURE_RANGE_C
 BERNACCHI_CAPACITY_ACTIVATION = {"vcmax": 65330.0, "jmax": 43500.0, "rd": 46390.0}
 COLLATZ_1991_VMAX = {"q10": 2.4, "entropy": 710.0, "deactivation_energy": 220000.0}
 
@@ -71,13 +95,27 @@ class C3Rates(NamedTuple):
     limitation: object
 
 
+@equation
+def acclimation_temperature(growth_temperature_c):
+    """Tg [°C] as the acclimation uses it: held within :data:`GROWTH_TEMPERATURE_RANGE_C` (module docstring).
+    NaN stays NaN."""
+    return ops.where(growth_temperature_c < _TG_LOW, _TG_LOW,
+                     ops.where(growth_temperature_c > _TG_HIGH, _TG_HIGH, growth_temperature_c))
+
+
+@equation
 def kattge_knorr_entropies(growth_temperature_c):
-    """ΔS of Vcmax and Jmax [J mol-1 K-1] acclimated to growth temperature Tg [°C] (Kattge & Knorr 2007)."""
-    kk = KATTGE_KNORR_2007
-    return (
-        kk["vcmax_entropy_intercept"] + kk["vcmax_entropy_slope"] * growth_temperature_c,
-        kk["jmax_entropy_intercept"] + kk["jmax_entropy_slope"] * growth_temperature_c,
-    )
+    """ΔS of Vcmax and Jmax [J mol-1 K-1] acclimated to growth temperature Tg [°C] (Kattge & Knorr 2007):
+    ΔS = 668.39 − 1.07 Tg (Vcmax), 659.70 − 0.75 Tg (Jmax), Tg held within :data:`GROWTH_TEMPERATURE_RANGE_C`."""
+    tg = acclimation_temperature(growth_temperature_c)
+    return (_VCMAX_ENTROPY_INTERCEPT + _VCMAX_ENTROPY_SLOPE * tg, _JMAX_ENTROPY_INTERCEPT + _JMAX_ENTROPY_SLOPE * tg)
+
+
+@equation
+def jmax_vcmax_ratio(growth_temperature_c):
+    """Jmax25/Vcmax25 [-] acclimated to growth temperature Tg [°C]: 2.59 − 0.035 Tg (Kattge & Knorr 2007),
+    Tg held within :data:`GROWTH_TEMPERATURE_RANGE_C`."""
+    return JMAX_RATIO_INTERCEPT + JMAX_RATIO_SLOPE * acclimation_temperature(growth_temperature_c)
 
 
 def capacity_temperature_factors(temperature_c, response: str, growth_temperature_c=25.0):
@@ -218,24 +256,61 @@ def fvcb_given_km(co2_pa, absorbed_par, vcmax, jmax, tpu, rd, km, gamma_star, th
 
 
 def fvcb_temperature_terms(temperature_c, params) -> tuple:
-    """Temperature terms of the FvCB model for the compiled engine's tables and the numpy engine.
+    """Leaf-temperature terms of the FvCB model for the compiled engine's tables and the numpy engine.
 
-    Returns (Kc [Pa], Kc/Ko [-], Γ* per Pa of O2 [-], Vcmax, Jmax, Tp, Rd [µmol m-2 s-1]) at leaf temperature
-    ``temperature_c`` [°C] for a resolved C3 mapping; an unlimited Jmax or Tp is :data:`UNLIMITED_RATE`.
+    Returns (Kc [Pa], Kc/Ko [-], Γ* per Pa of O2 [-], Vcmax, Jmax, Tp [µmol m-2 s-1] before acclimation,
+    Rd [µmol m-2 s-1], fArr(T; Hd) [-]) at leaf temperature ``temperature_c`` [°C] for a resolved C3 mapping.
     Kc/Ko rather than Ko: Km = Kc + O · Kc/Ko then needs no division per leaf.
+    "Before acclimation": for the "peaked" response Vcmax25 · fArr(T; Ha) and Jmax25 · fArr(T; Ha) with the
+    set's own Jmax25, to be completed by :func:`fvcb_acclimated_terms` for a growth temperature; for the other
+    responses the full values (and fArr(T; Hd) = 0). An unlimited Jmax or Tp is :data:`UNLIMITED_RATE`.
     """
     kc, ko, gamma_per_o2 = rubisco_constants(params["kinetics"], temperature_c, 1.0)  # Γ* ∝ O: at O = 1 Pa
-    vcmax_factor, jmax_factor, rd_factor = capacity_temperature_factors(
-        temperature_c, params["vcmax_temperature_response"], params["growth_temperature_c"]
-    )
+    response = params["vcmax_temperature_response"]
+    if response == "peaked":
+        kk = KATTGE_KNORR_2007
+        vcmax_factor = arrhenius(temperature_c, kk["vcmax_activation_energy"])
+        jmax_factor = arrhenius(temperature_c, kk["jmax_activation_energy"])
+        rd_factor = arrhenius(temperature_c, BERNACCHI_CAPACITY_ACTIVATION["rd"])
+        deactivation = arrhenius(temperature_c, kk["deactivation_energy"])
+    else:
+        vcmax_factor, jmax_factor, rd_factor = capacity_temperature_factors(temperature_c, response)
+        deactivation = 0.0 * temperature_c
     jmax = UNLIMITED_RATE if math.isinf(params["jmax25"]) else params["jmax25"] * jmax_factor
     tpu = UNLIMITED_RATE if math.isinf(params["tpu25"]) else params["tpu25"] * vcmax_factor  # Tp follows Vcmax
-    return (kc, kc / ko, gamma_per_o2, params["vcmax25"] * vcmax_factor, jmax, tpu, params["rd25"] * rd_factor)
+    return (kc, kc / ko, gamma_per_o2, params["vcmax25"] * vcmax_factor, jmax, tpu, params["rd25"] * rd_factor,
+            deactivation)
 
 
 def fvcb_constants(params) -> tuple:
-    """(θ, f) of a resolved C3 mapping."""
-    return (float(params["theta"]), float(params["spectral_correction"]))
+    """(θ, f, 1 if the response is "peaked" else 0, 1 if Jmax25 follows Tg else 0, the set's Tg [°C]) of a
+    resolved C3 mapping. Jmax25 follows Tg where the set derives it (``jmax25: None``, Kattge & Knorr 2007)."""
+    from .params import jmax25_is_derived  # params imports the leaf models' registry, not this module
+
+    return (float(params["theta"]), float(params["spectral_correction"]),
+            1.0 if params["vcmax_temperature_response"] == "peaked" else 0.0,
+            1.0 if jmax25_is_derived(params) else 0.0, float(params["growth_temperature_c"]))
+
+
+@equation
+def fvcb_acclimated_terms(terms, constants, growth_temperature_c):
+    """The FvCB terms (:func:`fvcb_temperature_terms`) completed for growth temperature Tg [°C].
+
+    "peaked": Vcmax = terms[3] · peaked_given(1, fArr(T; Hd), ΔSv(Tg), Hd), Jmax alike with ΔSj(Tg), Tp
+    follows Vcmax (:func:`~.temperature.peaked_given`, :func:`kattge_knorr_entropies`); where Jmax25 is
+    derived, it is scaled by (2.59 − 0.035 Tg)/(2.59 − 0.035 Tg_set) (:func:`jmax_vcmax_ratio`).
+    Returns the first seven terms as :func:`fvcb_leaf_rates` reads them (Kc, Kc/Ko and Γ* per Pa of O2
+    unchanged: Rubisco kinetics do not acclimate here).
+    """
+    peaked = constants[2] > 0.5
+    vcmax_entropy, jmax_entropy = kattge_knorr_entropies(growth_temperature_c)
+    vcmax_factor = ops.where(peaked, peaked_given(1.0, terms[7], vcmax_entropy, _DEACTIVATION_ENERGY), 1.0)
+    jmax_factor = ops.where(peaked, peaked_given(1.0, terms[7], jmax_entropy, _DEACTIVATION_ENERGY), 1.0)
+    jmax_scale = ops.where(constants[3] > 0.5,
+                           jmax_vcmax_ratio(growth_temperature_c) / jmax_vcmax_ratio(constants[4]), 1.0)
+    jmax = ops.where(terms[4] >= UNLIMITED_RATE, terms[4], terms[4] * (jmax_scale * jmax_factor))
+    tpu = ops.where(terms[5] >= UNLIMITED_RATE, terms[5], terms[5] * vcmax_factor)
+    return (terms[0], terms[1], terms[2], terms[3] * vcmax_factor, jmax, tpu, terms[6])
 
 
 @equation
@@ -249,7 +324,8 @@ def fvcb_leaf_rates(terms, constants, absorbed_par, co2_pa, o2_pa, capacity_scal
     return LeafRates(rates.net, rates.gross, rates.photorespiration, rates.limitation, ops.nan, ops.nan)
 
 
-def c3_assimilation(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0) -> C3Rates:
+def c3_assimilation(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity_scale=1.0,
+                    growth_temperature_c=None) -> C3Rates:
     """C3 leaf rates at leaf temperature with the capacities of a resolved C3 parameter mapping.
 
     Parameters
@@ -259,9 +335,12 @@ def c3_assimilation(temperature_c, absorbed_par, co2_pa, o2_pa, params, capacity
     co2_pa, o2_pa : intercellular CO2 and O2 partial pressures [Pa]
     params : mapping from ``resolve_params("C3", ...)``
     capacity_scale : factor on Vcmax (non-stomatal water stress) [-]
+    growth_temperature_c : Tg [°C] of the acclimation (module docstring); None = the set's own
     """
-    rates = fvcb_leaf_rates(fvcb_temperature_terms(temperature_c, params), fvcb_constants(params), absorbed_par,
-                            co2_pa, o2_pa, capacity_scale)
+    constants = fvcb_constants(params)
+    growth = params["growth_temperature_c"] if growth_temperature_c is None else growth_temperature_c
+    terms = fvcb_acclimated_terms(fvcb_temperature_terms(temperature_c, params), constants, growth)
+    rates = fvcb_leaf_rates(terms, constants, absorbed_par, co2_pa, o2_pa, capacity_scale)
     return C3Rates(rates.net, rates.gross, rates.photorespiration, rates.limitation)
 
 
@@ -277,6 +356,6 @@ def fvcb_quantum_yield(temperature_c, co2_pa, o2_pa, params):
 
 FVCB = register_leaf_model(LeafModel(
     name="fvcb", pathway="C3", temperature_terms=fvcb_temperature_terms, constants=fvcb_constants,
-    rates=fvcb_leaf_rates, quantum_yield=fvcb_quantum_yield,
+    rates=fvcb_leaf_rates, quantum_yield=fvcb_quantum_yield, acclimated_terms=fvcb_acclimated_terms,
     limitation_codes={0: "invalid input", 1: "Rubisco", 2: "electron transport", 3: "triose-phosphate use"},
 ))

@@ -244,6 +244,7 @@ class _Day:
     max_water_supply_mm: Any
     energy_limit_mm: Any
     params: Any
+    growth_temperature_c: Any = None
 
 
 def _leaf(day: _Day, temperature_c, absorbed_par):
@@ -253,7 +254,8 @@ def _leaf(day: _Day, temperature_c, absorbed_par):
         vpd = vapour_pressure_deficit(temperature_c, day.actual_vapour_pressure_kpa)
     leaf = leaf_assimilation(day.pathway, temperature_c, absorbed_par, day.co2_ppm,
                              o2_percent=day.o2_percent, pressure_kpa=day.pressure_kpa, vpd_kpa=vpd,
-                             water_availability=day.water_availability, params=day.params)
+                             water_availability=day.water_availability, params=day.params,
+                             growth_temperature_c=day.growth_temperature_c)
     return leaf, leaf_transpiration(leaf.net, day.co2_ppm, leaf.intercellular_co2, vpd, day.pressure_kpa)
 
 
@@ -278,7 +280,7 @@ def _dark_canopy_net(day: _Day, solar_hour):
 
 def _prepare(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year, co2_ppm, elevation_m,
              vpd_kpa, actual_vapour_pressure_kpa, water_availability, lai, o2_percent, max_water_supply_mm,
-             params):
+             params, growth_temperature_c=None):
     """Validate the inputs elementwise and compute the quantities that are fixed for the day.
 
     ``params`` is already resolved (:func:`_run`); the leaf model accepts the resolved mapping as it is.
@@ -305,7 +307,8 @@ def _prepare(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year
         day_length_h=day_length(latitude_deg, day_of_year), co2_ppm=co2_ppm, pressure_kpa=pressure,
         vpd_kpa=vpd_kpa, actual_vapour_pressure_kpa=actual_vapour_pressure_kpa,
         water_availability=water_availability, lai=lai, o2_percent=o2_percent,
-        max_water_supply_mm=max_water_supply_mm, energy_limit_mm=energy_limit, params=params)
+        max_water_supply_mm=max_water_supply_mm, energy_limit_mm=energy_limit, params=params,
+        growth_temperature_c=growth_temperature_c)
     return day, valid
 
 
@@ -398,7 +401,8 @@ def daily_canopy_assimilation(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude
                               co2_ppm, elevation_m=0.0, vpd_kpa=None, actual_vapour_pressure_kpa=None,
                               water_availability=1.0, lai=3.0, o2_percent=20.95, params=None,
                               day_gauss_points=DAY_GAUSS_POINTS,
-                              max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY) -> CanopyAssimilation:
+                              max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY,
+                              growth_temperature_c=None) -> CanopyAssimilation:
     """Daily canopy assimilation of a C3 or C4 canopy, by Gaussian integration over the day.
 
     A_day = Σ_i w_i (N/2) A_canopy(t_i) + Σ_j v_j ((24 − N)/2) A_dark(s_j),  in µmol m-2 per hour·3600
@@ -427,6 +431,8 @@ def daily_canopy_assimilation(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude
         accurate (see the module docstring).
     max_water_supply_mm : Emax, the soil's daily water supply at field capacity [mm d-1]
         (default 5, Sitch et al. 2003; :mod:`.water`).
+    growth_temperature_c : growth temperature Tg [°C] the leaves are acclimated to (C3: Kattge & Knorr
+        2007, :mod:`.c3`), constant over the day; None = the parameter set's ``growth_temperature_c``.
 
     Returns
     -------
@@ -439,7 +445,7 @@ def daily_canopy_assimilation(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude
                   day_of_year=day_of_year, co2_ppm=co2_ppm, elevation_m=elevation_m, vpd_kpa=vpd_kpa,
                   actual_vapour_pressure_kpa=actual_vapour_pressure_kpa,
                   water_availability=water_availability, lai=lai, o2_percent=o2_percent,
-                  max_water_supply_mm=max_water_supply_mm)
+                  max_water_supply_mm=max_water_supply_mm, growth_temperature_c=growth_temperature_c)
     return _run(_gauss_integral, pathway, params, day_gauss_points, inputs)
 
 
@@ -447,7 +453,8 @@ def daily_canopy_assimilation_reference(pathway, *, tmin_c, tmax_c, shortwave_mj
                                         day_of_year, co2_ppm, elevation_m=0.0, vpd_kpa=None,
                                         actual_vapour_pressure_kpa=None, water_availability=1.0, lai=3.0,
                                         o2_percent=20.95, params=None, steps=96,
-                                        max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY) -> CanopyAssimilation:
+                                        max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY,
+                                        growth_temperature_c=None) -> CanopyAssimilation:
     """The same daily canopy assimilation by the midpoint rule over ``steps`` equal steps of 24 h.
 
     A_day = Σ_k (24 h / steps) A_canopy(t_k),  t_k = (k + ½) 24 / steps
@@ -460,5 +467,5 @@ def daily_canopy_assimilation_reference(pathway, *, tmin_c, tmax_c, shortwave_mj
                   day_of_year=day_of_year, co2_ppm=co2_ppm, elevation_m=elevation_m, vpd_kpa=vpd_kpa,
                   actual_vapour_pressure_kpa=actual_vapour_pressure_kpa,
                   water_availability=water_availability, lai=lai, o2_percent=o2_percent,
-                  max_water_supply_mm=max_water_supply_mm)
+                  max_water_supply_mm=max_water_supply_mm, growth_temperature_c=growth_temperature_c)
     return _run(_midpoint_integral, pathway, params, steps, inputs)

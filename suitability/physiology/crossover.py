@@ -153,7 +153,7 @@ def _crossover_kernel(co2_ppm, o2_percent, pressure_kpa, vpd_kpa=np.nan, *, c3_p
     return np.where(found, 0.5 * (low + high), np.nan)
 
 
-def crossover_temperature(co2_ppm, *, o2_percent=20.95, pressure_kpa=101.325, params=None,
+def quantum_yield_crossover(co2_ppm, *, o2_percent=20.95, pressure_kpa=101.325, params=None,
                           vpd_kpa=CANOPY_VPD_KPA):
     """The leaf quantum-yield crossover: the leaf temperature [°C] at which the C3 and C4 light-limited
     quantum yields are equal, at the canopy's Ci/Ca (module docstring). Not the canopy crossover (the tie of
@@ -189,4 +189,4 @@ def crossover_temperature(co2_ppm, *, o2_percent=20.95, pressure_kpa=101.325, pa
     return result[()] if result.ndim == 0 else result
 
 
-__all__ = ["CANOPY_VPD_KPA", "c3_quantum_yield", "c4_quantum_yield", "crossover_temperature"]
+__all__ = ["CANOPY_VPD_KPA", "c3_quantum_yield", "c4_quantum_yield", "quantum_yield_crossover"]

@@ -94,7 +94,8 @@ def _finish(value, valid, fill):
 
 
 def leaf_assimilation(pathway, temperature_c, absorbed_par, co2_ppm, *, o2_percent=20.95, pressure_kpa=101.325,
-                      vpd_kpa=1.0, water_availability=1.0, params=None) -> LeafAssimilation:
+                      vpd_kpa=1.0, water_availability=1.0, params=None,
+                      growth_temperature_c=None) -> LeafAssimilation:
     """Net and gross leaf assimilation of a C3 or C4 leaf.
 
     Parameters
@@ -109,6 +110,8 @@ def leaf_assimilation(pathway, temperature_c, absorbed_par, co2_ppm, *, o2_perce
     water_availability : W [-], 0..1: only with ``water_stress_on_vcmax`` does it act on a single leaf (it
         scales the capacities); the soil's water supply limits the canopy's day (``water``, ``canopy``)
     params : None | set name | mapping (see ``resolve_params``)
+    growth_temperature_c : growth temperature Tg [°C] of models that acclimate (C3 FvCB: Kattge & Knorr
+        2007, ``c3``); None = the parameter set's ``growth_temperature_c``; NaN gives NaN
 
     Equations: ``c3`` (FvCB), ``c4`` (Collatz 1992 or von Caemmerer 2000), ``stomata`` (Medlyn 2011).
     """
@@ -137,7 +140,10 @@ def leaf_assimilation(pathway, temperature_c, absorbed_par, co2_ppm, *, o2_perce
         o2_pa = o2_partial_pressure_pa(o2, pressure)
         scale = capacity_scale(water, p)
         model = leaf_model(p["model"], pathway)
-        rates = model.rates(model.temperature_terms(temperature, p), model.constants(p), par, co2_pa, o2_pa, scale)
+        constants = model.constants(p)
+        growth = p.get("growth_temperature_c", np.nan) if growth_temperature_c is None else growth_temperature_c
+        terms = model.acclimate(model.temperature_terms(temperature, p), constants, growth)
+        rates = model.rates(terms, constants, par, co2_pa, o2_pa, scale)
         broadcast = 0.0 * rates.net  # models without bundle-sheath terms return scalar NaN
         bundle_sheath = broadcast + rates.bundle_sheath_co2_pa / (pressure * 1e-3)
         leakiness = broadcast + rates.leakiness

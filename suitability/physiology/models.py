@@ -8,8 +8,14 @@ A leaf model is split where the compiled engine needs the split:
 - ``constants(params)``: the numbers of the resolved parameter mapping the rates need, a tuple of floats.
 - ``rates(terms, constants, absorbed_par, co2_pa, o2_pa, capacity_scale)``: an *equation*
   (:mod:`.elementwise`) giving :class:`LeafRates`; it runs on arrays and, compiled, inside the kernel.
+- ``acclimated_terms(terms, constants, growth_temperature_c)`` (optional): an *equation* completing the
+  temperature terms for the growth temperature Tg [°C] of the cell and month (acclimation, e.g. Kattge &
+  Knorr 2007 in :mod:`.c3`); both engines call it between ``temperature_terms`` and ``rates``. Tg is
+  constant over a day, the leaf temperature is not: so the tables stay one-dimensional (leaf temperature)
+  and a model keeps the Tg-dependent arithmetic here. ``None``: the terms are used as they are
+  (:func:`unchanged_terms`).
 - ``quantum_yield(temperature_c, co2_pa, o2_pa, params)``: the light-limited quantum yield used by the
-  crossover temperature (:mod:`.crossover`), mol CO2 (mol absorbed photons)-1.
+  leaf quantum-yield crossover (:mod:`.crossover`), mol CO2 (mol absorbed photons)-1.
 
 Adding a model is one :func:`register_leaf_model` call next to its equations, a parameter set that
 names it (:mod:`.params`), and its tests (DEVELOPERS.md, "Adding a leaf model").
@@ -20,7 +26,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Any, Callable, NamedTuple
 
-from .elementwise import is_equation
+from .elementwise import equation, is_equation
 
 #: Most temperature terms or constants a model may have (the compiled engine's fixed tuple width).
 MAX_TERMS = 12
@@ -38,6 +44,12 @@ class LeafRates(NamedTuple):
     leakiness: Any
 
 
+@equation
+def unchanged_terms(terms, constants, growth_temperature_c):
+    """The temperature terms as they are: the ``acclimated_terms`` of a model without acclimation."""
+    return terms
+
+
 @dataclass(frozen=True, eq=False)
 class LeafModel:
     """One entry of :data:`LEAF_MODELS` (module docstring)."""
@@ -50,6 +62,12 @@ class LeafModel:
     quantum_yield: Callable[..., Any]
     limitation_codes: dict
     compiled: bool = True
+    acclimated_terms: Callable[..., tuple] | None = None
+
+    @property
+    def acclimate(self) -> Callable[..., tuple]:
+        """``acclimated_terms``, or :func:`unchanged_terms` for a model without acclimation."""
+        return self.acclimated_terms or unchanged_terms
 
 
 LEAF_MODELS: dict[str, LeafModel] = {}
@@ -64,6 +82,9 @@ def register_leaf_model(model: LeafModel) -> LeafModel:
         raise ValueError(f"leaf model {model.name!r} is already registered")
     if model.compiled and not is_equation(model.rates):
         raise ValueError(f"leaf model {model.name!r}: rates must be an @equation to run in the compiled engine")
+    if model.compiled and not is_equation(model.acclimate):
+        raise ValueError(f"leaf model {model.name!r}: acclimated_terms must be an @equation to run in the compiled "
+                         "engine")
     LEAF_MODELS[model.name] = model
     return model
 

@@ -29,10 +29,11 @@ Plant-type sets and the default pair
 and ``c4_cereal`` (maize: von Caemmerer 2000 with the Massad et al. 2007 temperature responses). The
 default pair (:data:`DEFAULT_SETS`) is the grass pair. Calibration check (tests/physiology/
 test_calibration.py), daily net canopy tie on a sunny mid-latitude summer day (22 MJ m-2, LAI 3, 10 °C
-range, 40° N, day 196): at 280/350/420/560/700 ppm 16.4/20.2/23.6/30.5/>46 °C with C3 acclimated to the
-daily mean (Kattge & Knorr 2007), 14.2/16.7/22.1/31.3/36.4 °C with Tg fixed at 25 °C; Collatz, Berry &
-Clark (1998) put the boundary near 22 °C (20-24) at ~350 ppm. No value was tuned to reach that band.
-The older ``bernacchi2001``/``collatz1992`` pair ties at 11.3/11.9/12.5/13.3/14.0 °C (Tg 25 °C).
+range, 40° N, day 196): at 280/350/420/560/700 ppm 16.4/20.2/23.1/25.6/29.9 °C with C3 acclimated to the
+daily mean (Kattge & Knorr 2007; the model's default, the month's mean air temperature per cell),
+14.2/16.7/22.1/25.7/29.8 °C with Tg fixed at 25 °C; Collatz, Berry & Clark (1998) put the boundary near
+22 °C (20-24) at ~350 ppm. No value was tuned to reach that band.
+The older ``bernacchi2001``/``collatz1992`` pair ties at 11.3/11.9/12.5/13.3/14.0 °C (Tg 25 °C; not re-measured).
 
 Keys common to both pathways
 ----------------------------
@@ -49,8 +50,10 @@ C3 keys (FvCB, ``c3.py``)
 Knorr 2007), rd25 = 0.015 vcmax25 (Collatz et al. 1991; widely used), tpu25 = no TPU limit (inf)],
 ``vcmax_temperature_response`` ("peaked" Kattge & Knorr 2007 with growth temperature; "arrhenius"
 Bernacchi et al. 2001 for Vcmax (Ea 65.33 kJ mol-1) and Bernacchi et al. 2003 for J (43.5); "collatz1991"
-Q10 2.4 with a high-temperature term), ``growth_temperature_c`` [°C] (Tg of Kattge & Knorr; 25 °C [CP]),
-``theta`` [-] (curvature of J, 0.7, von Caemmerer 2000 eq. 2.14 [M default]), ``spectral_correction``
+Q10 2.4 with a high-temperature term), ``growth_temperature_c`` [°C] (Tg of Kattge & Knorr where no
+per-cell growth temperature is given, i.e. with ``physiology.growth_temperature: parameter_set``; 25 °C [CP]),
+``jmax_ratio_factor`` [-] (a factor on the derived Jmax25/Vcmax25 ratio, 1 in every set; the parameter draws
+vary it, so that a drawn Jmax still follows each cell's growth temperature), ``theta`` [-] (curvature of J, 0.7, von Caemmerer 2000 eq. 2.14 [M default]), ``spectral_correction``
 [-] (f above).
 
 C4 keys
@@ -100,6 +103,7 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "tpu25": None,
             "vcmax_temperature_response": "peaked",
             "growth_temperature_c": 25.0,
+            "jmax_ratio_factor": 1.0,  # factor on the derived Jmax25/Vcmax25 (parameter draws vary it)
             "theta": 0.7,
             "spectral_correction": 0.32,
             "stomatal_model": "medlyn",
@@ -121,6 +125,7 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "tpu25": 80.0 / 6.0,
             "vcmax_temperature_response": "collatz1991",
             "growth_temperature_c": 25.0,
+            "jmax_ratio_factor": 1.0,  # factor on the derived Jmax25/Vcmax25 (parameter draws vary it)
             "theta": 0.7,
             "spectral_correction": 0.36,
             "stomatal_model": "medlyn",
@@ -144,6 +149,7 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "tpu25": None,  # no TPU limit [CP]: not limiting at the CO2 of the maps (Sharkey 1985, from memory)
             "vcmax_temperature_response": "peaked",  # Kattge & Knorr (2007) [P]
             "growth_temperature_c": 25.0,  # Tg [CP]; the model may set it from each cell's climate
+            "jmax_ratio_factor": 1.0,  # factor on the derived Jmax25/Vcmax25 (parameter draws vary it)
             "theta": 0.7,  # von Caemmerer (2000) eq. 2.14 default [M]
             "spectral_correction": 0.32,  # [C] C3-grass yield 0.053 at 30 °C (Ehleringer & Pearcy 1983), see above
             "stomatal_model": "medlyn",
@@ -167,6 +173,7 @@ PARAMETER_SETS: dict[str, dict[str, dict]] = {
             "tpu25": None,  # no TPU limit [CP]
             "vcmax_temperature_response": "peaked",  # Kattge & Knorr (2007) [P]
             "growth_temperature_c": 25.0,  # Tg [CP]
+            "jmax_ratio_factor": 1.0,  # factor on the derived Jmax25/Vcmax25 (parameter draws vary it)
             "theta": 0.7,  # von Caemmerer (2000) eq. 2.14 default [M]
             "spectral_correction": 0.32,  # [C] as for the C3 grass (Ehleringer & Pearcy 1983 C3 yield 0.053)
             "stomatal_model": "medlyn",
@@ -364,11 +371,24 @@ def _check_value(pathway: str, key: str, value, default):
     return value
 
 
+def _derived_jmax25(params) -> float:
+    from .c3 import jmax_vcmax_ratio  # c3 registers its model on import; params needs only this equation
+
+    return float(jmax_vcmax_ratio(params["growth_temperature_c"])) * params["vcmax25"] * params["jmax_ratio_factor"]
+
+
+def jmax25_is_derived(params) -> bool:
+    """Whether a resolved C3 mapping's Jmax25 is the Kattge & Knorr (2007) value derived from Vcmax25 and
+    Tg (its set has ``jmax25: None`` and no other value was given), so that it follows the growth
+    temperature under acclimation (:func:`suitability.physiology.c3.fvcb_acclimated_terms`)."""
+    base = PARAMETER_SETS["C3"].get(params.get("parameter_set"), {})
+    return base.get("jmax25", 0.0) is None and params["jmax25"] == _derived_jmax25(params)
+
+
 def _derive(pathway: str, merged: dict) -> dict:
     if pathway == "C3":
         if merged["jmax25"] is None:
-            ratio = 2.59 - 0.035 * merged["growth_temperature_c"]
-            merged["jmax25"] = ratio * merged["vcmax25"]
+            merged["jmax25"] = _derived_jmax25(merged)
         if merged["rd25"] is None:
             merged["rd25"] = 0.015 * merged["vcmax25"]
         if merged["tpu25"] is None:

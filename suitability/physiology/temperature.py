@@ -17,8 +17,10 @@ from __future__ import annotations
 
 import numpy as np
 
+from . import array_ops as ops
 from .array_ops import is_xarray as _is_xarray  # noqa: F401  (re-exported)
 from .array_ops import weak_scalar, where  # noqa: F401  (re-exported)
+from .elementwise import equation
 
 R_GAS = 8.314
 """Universal gas constant [J mol-1 K-1], the value used by Bernacchi et al. (2001) and Medlyn et al. (2002)."""
@@ -44,12 +46,45 @@ def arrhenius(temperature_c, activation_energy):
     return np.exp(activation_energy * (tk - REFERENCE_TEMPERATURE_K) / (REFERENCE_TEMPERATURE_K * R_GAS * tk))
 
 
+@equation
+def reference_deactivation(entropy, deactivation_energy):
+    """The deactivation term of the peaked response at 25 °C, exp((298.15 ΔS − Hd)/(298.15 R)) [-].
+
+    It depends on the entropy ΔS [J mol-1 K-1] (which acclimates to the growth temperature, Kattge &
+    Knorr 2007) and Hd [J mol-1], not on the leaf temperature.
+    """
+    return ops.exp((REFERENCE_TEMPERATURE_K * entropy - deactivation_energy) / (REFERENCE_TEMPERATURE_K * R_GAS))
+
+
+@equation
+def peaked_given(arrhenius_factor, deactivation_factor, entropy, deactivation_energy):
+    """Normalised peaked factor from its leaf-temperature parts, 1 at 25 °C [-].
+
+    f = fArr(T; Ha) · (1 + k25) / (1 + k25 · fArr(T; Hd)),  k25 = exp((298.15 ΔS − Hd)/(298.15 R))
+
+    which is Medlyn et al. (2002) eq. 17 rearranged: exp((Tk ΔS − Hd)/(R Tk)) = k25 · fArr(T; Hd), with
+    fArr the normalised Arrhenius factor (:func:`arrhenius`). The leaf temperature enters only through
+    the two Arrhenius factors (tabulated by the compiled engine), the entropy ΔS only through k25, so ΔS
+    may differ from cell to cell (growth temperature, Kattge & Knorr 2007).
+
+    Parameters
+    ----------
+    arrhenius_factor : fArr(T; Ha) [-]
+    deactivation_factor : fArr(T; Hd) [-]
+    entropy : ΔS [J mol-1 K-1]
+    deactivation_energy : Hd [J mol-1]
+    """
+    # A numpy float64 scalar (from a scalar ΔS) would upcast float32 arrays (NEP 50): kept weak.
+    at_reference = ops.weak_scalar(reference_deactivation(entropy, deactivation_energy))
+    return arrhenius_factor * (1.0 + at_reference) / (1.0 + at_reference * deactivation_factor)
+
+
 def peaked_arrhenius(temperature_c, activation_energy, deactivation_energy, entropy):
     """Normalised peaked Arrhenius factor, 1 at 25 °C.
 
     f(T) = fArr(T) · [1 + exp((298.15 ΔS − Hd)/(298.15 R))] / [1 + exp((Tk ΔS − Hd)/(R Tk))]
 
-    (Johnson et al. 1942; Medlyn et al. 2002, eq. 17.)
+    (Johnson et al. 1942; Medlyn et al. 2002, eq. 17), computed as :func:`peaked_given` of its parts.
 
     Parameters
     ----------
@@ -58,12 +93,8 @@ def peaked_arrhenius(temperature_c, activation_energy, deactivation_energy, entr
     deactivation_energy : Hd [J mol-1]
     entropy : ΔS [J mol-1 K-1]
     """
-    tk = temperature_c + KELVIN_OFFSET
-    at_reference = weak_scalar(1.0 + np.exp(
-        (REFERENCE_TEMPERATURE_K * entropy - deactivation_energy) / (REFERENCE_TEMPERATURE_K * R_GAS)
-    ))
-    at_temperature = 1.0 + np.exp((tk * entropy - deactivation_energy) / (R_GAS * tk))
-    return arrhenius(temperature_c, activation_energy) * at_reference / at_temperature
+    return peaked_given(arrhenius(temperature_c, activation_energy), arrhenius(temperature_c, deactivation_energy),
+                        weak_scalar(entropy), deactivation_energy)
 
 
 def peaked_arrhenius_optimum_c(activation_energy, deactivation_energy, entropy):

@@ -5,8 +5,8 @@ from suitability.reports.brief import (
     ScenarioInfo,
     brief_context_from_config,
     build_brief,
-    summary_sentences,
 )
+from suitability.reports.summary import headline, region_table, transition_matrix
 from suitability.reports.zones import (
     read_zones,
     write_table_csv,
@@ -19,8 +19,10 @@ __all__ = [
     "ScenarioInfo",
     "brief_context_from_config",
     "build_brief",
+    "headline",
     "read_zones",
-    "summary_sentences",
+    "region_table",
+    "transition_matrix",
     "write_table_csv",
     "write_table_geopackage",
     "zonal_statistics",

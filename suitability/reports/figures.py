@@ -13,18 +13,22 @@ from __future__ import annotations
 
 import io
 import math
+import textwrap
 import os
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Protocol
 
 import geopandas as gpd
+import matplotlib
 import numpy as np
 import pandas as pd
 import pyproj
 import rasterio
+import rasterio.windows
 from matplotlib import colors as mcolors
 from matplotlib import patheffects
+from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.patches import Patch, Rectangle
 from rasterio.enums import Resampling
@@ -107,9 +111,12 @@ def _format_length(metres: float) -> str:
 # --- raster reading --------------------------------------------------------------------------------------
 
 class _MapRaster:
-    """A raster read for display: values (float, NaN nodata), extent, CRS; decimated to fit the figure."""
+    """A raster read for display: values (float, NaN nodata), extent, CRS; decimated to fit the figure.
 
-    def __init__(self, path: str | os.PathLike, max_pixels: int = _MAX_MAP_PIXELS):
+    bounds: (left, bottom, right, top) in the raster's CRS to read only that part (a zoomed map), else all.
+    """
+
+    def __init__(self, path: str | os.PathLike, max_pixels: int = _MAX_MAP_PIXELS, bounds=None):
         self.path = Path(path)
         try:
             dataset = rasterio.open(self.path)
@@ -118,22 +125,39 @@ class _MapRaster:
         with dataset:
             if dataset.crs is None:
                 raise InputDataError(f"{self.path}: the raster has no CRS; expected the output grid's CRS")
-            scale = max(1.0, max(dataset.width, dataset.height) / max_pixels)
-            shape = (max(1, round(dataset.height / scale)), max(1, round(dataset.width / scale)))
-            data = dataset.read(1, out_shape=shape, masked=True, resampling=Resampling.nearest)
+            window = None
+            if bounds is not None:
+                loose = rasterio.windows.from_bounds(*bounds, transform=dataset.transform)
+                col0, row0 = math.floor(loose.col_off), math.floor(loose.row_off)
+                window = rasterio.windows.Window(col0, row0, math.ceil(loose.col_off + loose.width) - col0,
+                                                 math.ceil(loose.row_off + loose.height) - row0).intersection(
+                    rasterio.windows.Window(0, 0, dataset.width, dataset.height))
+            height = int(window.height) if window is not None else dataset.height
+            width = int(window.width) if window is not None else dataset.width
+            scale = max(1.0, max(width, height) / max_pixels)
+            shape = (max(1, round(height / scale)), max(1, round(width / scale)))
+            data = dataset.read(1, out_shape=shape, masked=True, resampling=Resampling.nearest, window=window)
             self.values = data.astype("float64").filled(np.nan)
             self.crs = pyproj.CRS.from_user_input(dataset.crs.to_wkt())
-            left, bottom, right, top = dataset.bounds
+            left, bottom, right, top = (rasterio.windows.bounds(window, dataset.transform) if window is not None
+                                        else dataset.bounds)
             self.extent = (left, right, bottom, top)
+            full = dataset.bounds
+            self.full_extent = (full.left, full.right, full.bottom, full.top)
 
     @property
     def mid_latitude(self) -> float:
         """Latitude of the map centre [deg]."""
+        return self.centre_lonlat[1]
+
+    @property
+    def centre_lonlat(self) -> tuple[float, float]:
+        """Longitude and latitude of the map centre [deg]."""
         left, right, bottom, top = self.extent
         if self.crs.is_geographic:
-            return (bottom + top) / 2
+            return (left + right) / 2, (bottom + top) / 2
         to_geographic = pyproj.Transformer.from_crs(self.crs, self.crs.geodetic_crs, always_xy=True)
-        return to_geographic.transform((left + right) / 2, (bottom + top) / 2)[1]
+        return to_geographic.transform((left + right) / 2, (bottom + top) / 2)
 
     def metres_per_x_unit(self) -> float:
         """Ground length of one x unit at the map centre [m] (geographic: along the central parallel)."""
@@ -146,6 +170,17 @@ class _MapRaster:
             )
         return self.crs.axis_info[0].unit_conversion_factor
 
+    def grid_north_degrees(self) -> float:
+        """Angle of true north from the map's up direction at the centre, clockwise [deg] (0 on lon/lat
+        grids; the meridian convergence on projected ones, from pyproj by moving 0.01 deg north)."""
+        if self.crs.is_geographic:
+            return 0.0
+        lon, lat = self.centre_lonlat
+        to_map = pyproj.Transformer.from_crs(self.crs.geodetic_crs, self.crs, always_xy=True)
+        x0, y0 = to_map.transform(lon, lat)
+        x1, y1 = to_map.transform(lon, min(lat + 0.01, 89.99))
+        return math.degrees(math.atan2(x1 - x0, y1 - y0))
+
 
 # --- drawing helpers -------------------------------------------------------------------------------------
 
@@ -155,38 +190,161 @@ def _png(figure: Figure, dpi: int) -> bytes:
     return buffer.getvalue()
 
 
+def figure_bytes(figure: Figure, fmt: str, dpi: int = 150) -> bytes:
+    """The figure as ``fmt`` ("png" or "svg") bytes; SVG keeps text as text (searchable, scalable)."""
+    buffer = io.BytesIO()
+    with matplotlib.rc_context({"svg.fonttype": "none"}):
+        figure.savefig(buffer, format=fmt, dpi=dpi, facecolor="white")
+    return buffer.getvalue()
+
+
+#: Map layout in figure fractions: the map frame, and the strip below it that holds the legend, scale
+#: bar, north arrow (and a locator inset), all off the data.
+_MAP_BOX = (0.09, 0.25, 0.88, 0.68)
+_STRIP_HEIGHT = 0.17
+
+
 def _map_axes(figure: Figure, raster: _MapRaster, title: str):
-    axes = figure.add_axes((0.03, 0.19, 0.94, 0.72))
-    axes.set_xticks([])
-    axes.set_yticks([])
+    axes = figure.add_axes(_MAP_BOX)
     for spine in axes.spines.values():
-        spine.set_edgecolor("#BBBBBB")
-    axes.set_title(title, loc="left", fontsize=10, color=_INK, pad=6, parse_math=False)
+        spine.set_edgecolor("#888888")
+    if title:
+        # Wrapped by hand: matplotlib's own wrapping measures text as mathematics, which a name with "$" breaks.
+        width = max(20, int(figure.get_figwidth() * 72 / (10.5 * 0.55)))  # characters per line at 10.5 pt
+        figure.text(0.02, 0.985, textwrap.fill(title, width), ha="left", va="top", fontsize=10.5, color=_INK,
+                    parse_math=False, gid="title")
     return axes
 
 
-def _draw_districts(axes, zones: gpd.GeoDataFrame | None, raster: _MapRaster, highlight: str | None) -> None:
-    if zones is None or len(zones) == 0:
-        return
-    on_map = zones_on_grid(zones, raster.crs)
-    on_map.boundary.plot(ax=axes, color=OUTLINE_COLOUR, linewidth=0.8)
-    if highlight is not None:
-        on_map[on_map["district"] == highlight].boundary.plot(ax=axes, color="#000000", linewidth=2.6)
-    halo = [patheffects.withStroke(linewidth=3, foreground="white")]
+def _finish_frame(axes, raster: _MapRaster) -> None:
     left, right, bottom, top = raster.extent
-    labelled = on_map if len(on_map) <= MAX_MAP_LABELS else on_map[on_map["district"] == highlight]
-    for name, geometry in zip(labelled["district"], labelled.geometry):
+    axes.set_xlim(left, right)
+    axes.set_ylim(bottom, top)
+    axes.set_xlabel("")  # geopandas labels the axes with the CRS's axis names; the graticule says it
+    axes.set_ylabel("")
+
+
+def _nice_degree_step(span: float) -> float:
+    """A step of a graticule giving about 3 to 6 lines over ``span`` degrees (common practice, no source)."""
+    for step in (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1, 2, 5, 10, 15, 30):
+        if span / step <= 6:
+            return step
+    return 45.0
+
+
+def _degree_text(value: float, positive: str, negative: str, step: float) -> str:
+    digits = 0 if step >= 1 else (1 if step >= 0.1 else 2)
+    hemisphere = positive if value > 1e-12 else (negative if value < -1e-12 else "")
+    return f"{abs(value):.{digits}f}\u00b0{(' ' + hemisphere) if hemisphere else ''}"
+
+
+def _draw_graticule(axes, raster: _MapRaster) -> list[float]:
+    """Lines of longitude and latitude (thin, grey), labelled in degrees where they meet the frame's bottom
+    and left edges. Returns the longitudes drawn."""
+    left, right, bottom, top = raster.extent
+    geographic = raster.crs.is_geographic
+    if geographic:
+        to_map = None
+        lon_min, lon_max, lat_min, lat_max = left, right, bottom, top
+    else:
+        to_geo = pyproj.Transformer.from_crs(raster.crs, raster.crs.geodetic_crs, always_xy=True)
+        xs = np.concatenate([np.linspace(left, right, 25), np.full(25, right), np.linspace(right, left, 25),
+                             np.full(25, left)])
+        ys = np.concatenate([np.full(25, bottom), np.linspace(bottom, top, 25), np.full(25, top),
+                             np.linspace(top, bottom, 25)])
+        lons, lats = to_geo.transform(xs, ys)
+        lon_min, lon_max, lat_min, lat_max = np.min(lons), np.max(lons), np.min(lats), np.max(lats)
+        to_map = pyproj.Transformer.from_crs(raster.crs.geodetic_crs, raster.crs, always_xy=True)
+    step = _nice_degree_step(max(lon_max - lon_min, lat_max - lat_min))
+    lon_values = np.arange(math.ceil(lon_min / step) * step, lon_max + 1e-9, step)
+    lat_values = np.arange(math.ceil(lat_min / step) * step, lat_max + 1e-9, step)
+    x_ticks, x_labels, y_ticks, y_labels = [], [], [], []
+    style = {"color": "#9A9A9A", "linewidth": 0.5, "linestyle": (0, (4, 3)), "zorder": 3}
+    for lon in lon_values:
+        lat_line = np.linspace(lat_min, lat_max, 60)
+        x, y = (np.full_like(lat_line, lon), lat_line) if geographic else to_map.transform(np.full_like(lat_line, lon), lat_line)
+        axes.plot(x, y, **style)
+        order = np.argsort(y)
+        if y[order][0] <= bottom <= y[order][-1]:
+            crossing = float(np.interp(bottom, y[order], np.asarray(x)[order]))
+            if left <= crossing <= right:
+                x_ticks.append(crossing)
+                x_labels.append(_degree_text(lon, "E", "W", step))
+    for lat in lat_values:
+        lon_line = np.linspace(lon_min, lon_max, 60)
+        x, y = (lon_line, np.full_like(lon_line, lat)) if geographic else to_map.transform(lon_line, np.full_like(lon_line, lat))
+        axes.plot(x, y, **style)
+        order = np.argsort(x)
+        if x[order][0] <= left <= x[order][-1]:
+            crossing = float(np.interp(left, np.asarray(x)[order], np.asarray(y)[order]))
+            if bottom <= crossing <= top:
+                y_ticks.append(crossing)
+                y_labels.append(_degree_text(lat, "N", "S", step))
+    axes.set_xticks(x_ticks, x_labels, fontsize=7.5, color=_INK)
+    axes.set_yticks(y_ticks, y_labels, fontsize=7.5, color=_INK, rotation=90, va="center")
+    axes.tick_params(length=3, color="#888888", pad=2)
+    return list(lon_values)
+
+
+def _label_positions(on_map: gpd.GeoDataFrame, raster: _MapRaster) -> list[tuple[str, float, float, float]]:
+    """(district, x, y, area) of every district whose representative point lies in the frame, largest first."""
+    left, right, bottom, top = raster.extent
+    out = []
+    for name, geometry in zip(on_map["district"], on_map.geometry):
         if geometry is None or geometry.is_empty:
             continue
         point = geometry.representative_point()
         if left <= point.x <= right and bottom <= point.y <= top:
-            # parse_math=False: a name is plain text ("$5$" is not mathematics)
-            axes.annotate(str(name), (point.x, point.y), ha="center", va="center", fontsize=9, color=_INK,
-                          path_effects=halo, parse_math=False)
-    axes.set_xlim(left, right)
-    axes.set_ylim(bottom, top)
-    axes.set_xlabel("")  # geopandas labels the axes with the CRS's axis names; the frame is enough
-    axes.set_ylabel("")
+            out.append((str(name), point.x, point.y, float(geometry.area)))
+    return sorted(out, key=lambda item: -item[3])
+
+
+def _draw_labels(axes, figure: Figure, positions, numbers: dict[str, int] | None, highlight: str | None,
+                 use_names: bool) -> dict[str, bool]:
+    """Labels (names, or numbers of the key), largest district first; a label that would overlap one
+    already placed or cross the frame is left out. Returns district -> drawn."""
+    halo = [patheffects.withStroke(linewidth=2.6, foreground="white")]
+    renderer = FigureCanvasAgg(figure).get_renderer()
+    frame = axes.get_window_extent(renderer)
+    placed, drawn = [], {}
+    if highlight is not None:  # the highlighted district is labelled first, so it is never left out
+        positions = sorted(positions, key=lambda item: item[0] != highlight)
+    for name, x, y, _ in positions:
+        text = name if use_names or numbers is None else str(numbers.get(name, ""))
+        if not text:
+            continue
+        label = axes.annotate(text, (x, y), ha="center", va="center", fontsize=8.5 if use_names else 7.5,
+                              color=_INK, path_effects=halo, parse_math=False, zorder=7,
+                              fontweight="bold" if name == highlight else "normal")
+        box = label.get_window_extent(renderer).expanded(1.08, 1.15)
+        inside = frame.x0 <= box.x0 and box.x1 <= frame.x1 and frame.y0 <= box.y0 and box.y1 <= frame.y1
+        if not inside or any(box.overlaps(other) for other in placed):
+            label.remove()
+            drawn[name] = False
+            continue
+        placed.append(box)
+        drawn[name] = True
+    return drawn
+
+
+def _draw_districts(axes, figure, zones: gpd.GeoDataFrame | None, raster: _MapRaster, highlight: str | None,
+                    numbers: dict[str, int] | None = None) -> dict[str, bool]:
+    if zones is None or len(zones) == 0:
+        _finish_frame(axes, raster)
+        return {}
+    on_map = zones_on_grid(zones, raster.crs)
+    many = len(on_map) > 60
+    on_map.boundary.plot(ax=axes, color=OUTLINE_COLOUR, linewidth=0.35 if many else 0.7, zorder=4)
+    if highlight is not None:
+        on_map[on_map["district"] == highlight].boundary.plot(ax=axes, color="#000000", linewidth=2.4, zorder=5)
+    _finish_frame(axes, raster)
+    _set_ground_aspect(axes, raster)
+    axes.apply_aspect()
+    positions = _label_positions(on_map, raster)
+    if numbers is None and len(on_map) > MAX_MAP_LABELS:  # names of many districts would cover the map
+        positions = [p for p in positions if p[0] == highlight]
+    use_names = numbers is None or len(on_map) <= MAX_NAME_LABELS
+    return _draw_labels(axes, figure, positions, numbers, highlight, use_names)
 
 
 def _set_ground_aspect(axes, raster: _MapRaster) -> None:
@@ -197,22 +355,75 @@ def _set_ground_aspect(axes, raster: _MapRaster) -> None:
         axes.set_aspect("equal")
 
 
-def _draw_scale_bar(axes, raster: _MapRaster) -> float:
-    """Scale bar in the lower left corner, about a quarter of the map wide; returns its length [m]."""
-    left, right, bottom, top = raster.extent
+def _strip_axes(figure: Figure, left: float, width: float):
+    strip = figure.add_axes((left, 0.02, width, _STRIP_HEIGHT - 0.02))
+    strip.set_axis_off()
+    strip.set_xlim(0, 1)
+    strip.set_ylim(0, 1)
+    return strip
+
+
+def _draw_scale_bar(figure: Figure, axes, raster: _MapRaster) -> float:
+    """Scale bar below the map frame (off the data), about a quarter of the map wide; returns its length [m].
+
+    Drawn in its own axes whose x axis has the map's ground scale, so the bar's length in that axes' data
+    units is its length in map units."""
+    axes.apply_aspect()
+    box = axes.get_position()
+    left, right, _, _ = raster.extent
     metres_per_unit = raster.metres_per_x_unit()
     length_m = nice_scale_length(0.25 * (right - left) * metres_per_unit)
     length_units = length_m / metres_per_unit
-    x0 = left + 0.04 * (right - left)
-    y0 = bottom + 0.05 * (top - bottom)
-    height = 0.012 * (top - bottom)
-    axes.add_patch(Rectangle((x0, y0), length_units / 2, height, facecolor=_INK, edgecolor=_INK, zorder=5))
-    axes.add_patch(Rectangle((x0 + length_units / 2, y0), length_units / 2, height, facecolor="white",
-                             edgecolor=_INK, zorder=5))
-    halo = [patheffects.withStroke(linewidth=3, foreground="white")]
-    axes.annotate(_format_length(length_m), (x0 + length_units / 2, y0 + 2.2 * height), ha="center",
-                  va="bottom", fontsize=8, color=_INK, path_effects=halo, zorder=6)
+    bar_axes = figure.add_axes((box.x0, 0.115, box.width, 0.05))
+    bar_axes.set_axis_off()
+    bar_axes.set_xlim(left, right)
+    bar_axes.set_ylim(0, 1)
+    bar_axes.set_gid("scale_bar")
+    x0 = left
+    for i, colour in enumerate((_INK, "white")):
+        bar_axes.add_patch(Rectangle((x0 + i * length_units / 2, 0.15), length_units / 2, 0.22, facecolor=colour,
+                                     edgecolor=_INK, linewidth=0.8, zorder=5))
+    bar_axes.text(x0, 0.55, "0", ha="center", va="bottom", fontsize=7.5, color=_INK)
+    bar_axes.text(x0 + length_units, 0.55, _format_length(length_m), ha="center", va="bottom", fontsize=7.5,
+                  color=_INK)
     return length_m
+
+
+def _draw_north_arrow(figure: Figure, raster: _MapRaster) -> float:
+    """North arrow below the map, at the right, turned by the meridian convergence; returns that angle [deg]."""
+    angle = raster.grid_north_degrees()
+    arrow_axes = figure.add_axes((0.86, 0.03, 0.10, 0.13))
+    arrow_axes.set_axis_off()
+    arrow_axes.set_xlim(-1, 1)
+    arrow_axes.set_ylim(-1, 1)
+    arrow_axes.set_aspect("equal")
+    arrow_axes.set_gid("north_arrow")
+    dx, dy = math.sin(math.radians(angle)), math.cos(math.radians(angle))
+    arrow_axes.annotate("", xy=(0.55 * dx, 0.55 * dy), xytext=(-0.55 * dx, -0.55 * dy),
+                        arrowprops={"arrowstyle": "-|>", "color": _INK, "linewidth": 1.4, "mutation_scale": 14})
+    arrow_axes.text(0.85 * dx, 0.85 * dy, "N", ha="center", va="center", fontsize=9, fontweight="bold", color=_INK)
+    return angle
+
+
+def _draw_locator(figure: Figure, zones: gpd.GeoDataFrame, raster: _MapRaster, highlight: str | None) -> None:
+    """A small map of the whole region with the zoomed frame, in the strip (for district maps)."""
+    inset = figure.add_axes((0.68, 0.02, 0.16, _STRIP_HEIGHT - 0.01))
+    inset.set_gid("locator")
+    inset.set_xticks([])
+    inset.set_yticks([])
+    on_map = zones_on_grid(zones, raster.crs)
+    on_map.plot(ax=inset, color="#E4E4E4", edgecolor="#9A9A9A", linewidth=0.3)
+    if highlight is not None:
+        on_map[on_map["district"] == highlight].plot(ax=inset, color="#B0301C", linewidth=0)
+    left, right, bottom, top = raster.extent
+    inset.add_patch(Rectangle((left, bottom), right - left, top - bottom, fill=False, edgecolor=_INK, linewidth=0.9))
+    fl, fr, fb, ft = raster.full_extent
+    xmin, ymin, xmax, ymax = on_map.total_bounds
+    inset.set_xlim(min(fl, xmin), max(fr, xmax))
+    inset.set_ylim(min(fb, ymin), max(ft, ymax))
+    inset.set_xlabel("")
+    inset.set_ylabel("")
+    _set_ground_aspect(inset, raster)
 
 
 def _class_rgba(classes: np.ndarray) -> np.ndarray:
@@ -222,30 +433,73 @@ def _class_rgba(classes: np.ndarray) -> np.ndarray:
     return rgba  # nodata stays transparent over the white figure
 
 
+def zoom_bounds(zones: gpd.GeoDataFrame, district: str, raster_path, margin: float = 0.15):
+    """(left, bottom, right, top) in the raster's CRS around ``district``, widened by ``margin`` of its size
+    on each side and made at least 8 cells wide."""
+    with rasterio.open(raster_path) as dataset:
+        crs = pyproj.CRS.from_user_input(dataset.crs.to_wkt())
+        cell = abs(dataset.transform.a)
+    on_map = zones_on_grid(zones[zones["district"] == district], crs)
+    xmin, ymin, xmax, ymax = on_map.total_bounds
+    half = max(xmax - xmin, ymax - ymin, 8 * cell) * (0.5 + margin)
+    cx, cy = (xmin + xmax) / 2, (ymin + ymax) / 2
+    return cx - half, cy - half, cx + half, cy + half
+
+
 # --- public figures --------------------------------------------------------------------------------------
 
-MAP_SIZE_IN = (4.8, 4.6)
+#: Maps are drawn at the size they are printed (full text width of an A4 page), so a font size is a size
+#: on paper.
+MAP_SIZE_IN = (7.0, 6.6)
+#: Most districts named on a map; with more, districts carry the numbers of the brief's district key.
+MAX_NAME_LABELS = 12
+
+
+def _map_figure(path, zones, title, highlight, numbers, zoom, size_in, draw) -> Figure:
+    bounds = zoom_bounds(zones, highlight, path) if zoom and zones is not None and highlight is not None else None
+    if bounds is not None:
+        with rasterio.open(path) as dataset:
+            full = dataset.bounds
+        if bounds[0] >= full.right or bounds[2] <= full.left or bounds[1] >= full.top or bounds[3] <= full.bottom:
+            bounds = None  # a district off the grid: the whole map, with the district's outline if it shows
+    raster = _MapRaster(path, bounds=bounds)
+    figure = Figure(figsize=size_in)
+    axes = _map_axes(figure, raster, title)
+    legend_handles = draw(axes, raster)
+    _draw_graticule(axes, raster)
+    drawn = _draw_districts(axes, figure, zones, raster, highlight, numbers)
+    _set_ground_aspect(axes, raster)
+    _draw_scale_bar(figure, axes, raster)
+    _draw_north_arrow(figure, raster)
+    if bounds is not None:
+        _draw_locator(figure, zones, raster, highlight)
+    if legend_handles is not None:
+        legend_handles(figure)
+    figure.labels_drawn = drawn  # which district labels fitted (the brief's key says where numbers are)
+    return figure
 
 
 def class_map_figure(class_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
-                     highlight: str | None = None, size_in: tuple[float, float] = MAP_SIZE_IN) -> Figure:
-    """The favoured-pathway map of one scenario: classes, legend, scale bar, district outlines and names.
+                     highlight: str | None = None, size_in: tuple[float, float] = MAP_SIZE_IN,
+                     numbers: dict[str, int] | None = None, zoom: bool = False) -> Figure:
+    """The favoured-pathway map of one scenario: classes, legend, scale bar and north arrow below the frame,
+    graticule, district outlines with names (few districts) or key numbers (``numbers``).
 
     class_path: a ``pathway_class.tif``. zones: districts with a ``district`` column (any CRS), or None.
-    highlight: a district drawn with a heavy outline. size_in: figure (width, height) [inch].
+    highlight: a district drawn with a heavy outline; with ``zoom`` the map shows only its surroundings and
+    a locator map shows where it lies. size_in: figure (width, height) [inch].
     """
-    raster = _MapRaster(class_path)
-    figure = Figure(figsize=size_in)
-    axes = _map_axes(figure, raster, title)
-    axes.imshow(_class_rgba(raster.values), extent=raster.extent, interpolation="nearest", origin="upper")
-    _draw_districts(axes, zones, raster, highlight)
-    _draw_scale_bar(axes, raster)
-    _set_ground_aspect(axes, raster)
-    handles = [Patch(facecolor=CLASS_COLOURS[c], edgecolor="#999999", label=CLASS_LABELS[c]) for c in CLASS_COLOURS]
-    handles.append(Patch(facecolor=NODATA_COLOUR, edgecolor="#999999", label="no data"))
-    figure.legend(handles=handles, loc="lower center", ncol=2, frameon=False, fontsize=8,
-                  bbox_to_anchor=(0.5, 0.0), handlelength=1.4, columnspacing=1.2)
-    return figure
+    def draw(axes, raster):
+        axes.imshow(_class_rgba(raster.values), extent=raster.extent, interpolation="nearest", origin="upper")
+
+        def legend(figure):
+            handles = [Patch(facecolor=CLASS_COLOURS[c], edgecolor="#999999", label=CLASS_LABELS[c]) for c in CLASS_COLOURS]
+            handles.append(Patch(facecolor=NODATA_COLOUR, edgecolor="#999999", label="no results (outside or no data)"))
+            figure.legend(handles=handles, loc="lower left", ncol=1, frameon=False, fontsize=8,
+                          bbox_to_anchor=(0.02, 0.0), handlelength=1.4)
+        return legend
+
+    return _map_figure(class_path, zones, title, highlight, numbers, zoom, size_in, draw)
 
 
 def class_map_png(class_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
@@ -255,24 +509,26 @@ def class_map_png(class_path, zones: gpd.GeoDataFrame | None = None, *, title: s
 
 
 def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
-                      highlight: str | None = None, size_in: tuple[float, float] = MAP_SIZE_IN) -> Figure:
-    """Map of ``advantage_change.tif`` (scenario minus baseline) on a diverging scale centred on 0."""
-    raster = _MapRaster(change_path)
-    figure = Figure(figsize=size_in)
-    axes = _map_axes(figure, raster, title)
-    finite = raster.values[np.isfinite(raster.values)]
-    largest = float(np.max(np.abs(finite))) if finite.size else 0.0
-    limit = max(0.05, math.ceil(largest * 20) / 20)  # round up to 0.05, never a zero-width scale
-    image = axes.imshow(raster.values, extent=raster.extent, interpolation="nearest", origin="upper",
-                        cmap=CHANGE_COLORMAP, norm=mcolors.TwoSlopeNorm(0.0, -limit, limit))
-    _draw_districts(axes, zones, raster, highlight)
-    _draw_scale_bar(axes, raster)
-    _set_ground_aspect(axes, raster)
-    bar_axes = figure.add_axes((0.15, 0.10, 0.7, 0.03))
-    bar = figure.colorbar(image, cax=bar_axes, orientation="horizontal")
-    bar.set_label("\u2190 towards C3      change of the advantage      towards C4 \u2192", fontsize=8, color=_INK)
-    bar.ax.tick_params(labelsize=7.5)
-    return figure
+                      highlight: str | None = None, size_in: tuple[float, float] = MAP_SIZE_IN,
+                      numbers: dict[str, int] | None = None, zoom: bool = False) -> Figure:
+    """Map of ``advantage_change.tif`` (scenario minus baseline) on a diverging scale centred on 0, laid
+    out as :func:`class_map_figure`."""
+    def draw(axes, raster):
+        finite = raster.values[np.isfinite(raster.values)]
+        largest = float(np.max(np.abs(finite))) if finite.size else 0.0
+        limit = max(0.05, math.ceil(largest * 20) / 20)  # round up to 0.05, never a zero-width scale
+        image = axes.imshow(raster.values, extent=raster.extent, interpolation="nearest", origin="upper",
+                            cmap=CHANGE_COLORMAP, norm=mcolors.TwoSlopeNorm(0.0, -limit, limit))
+
+        def legend(figure):
+            bar_axes = figure.add_axes((0.05, 0.05, 0.34, 0.025))
+            bar = figure.colorbar(image, cax=bar_axes, orientation="horizontal")
+            bar.set_label("\u2190 towards C3        towards C4 \u2192\nchange of the advantage", fontsize=7.5,
+                          color=_INK)
+            bar.ax.tick_params(labelsize=7)
+        return legend
+
+    return _map_figure(change_path, zones, title, highlight, numbers, zoom, size_in, draw)
 
 
 def change_map_png(change_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
@@ -339,13 +595,13 @@ def class_share_png(table: pd.DataFrame, scenarios: Sequence[str] | None = None,
 
 
 def physiology_crossover() -> Callable:
-    """:func:`suitability.physiology.crossover_temperature` (from its module if the package does not
-    re-export it). Imported late: figures must import without the science stack loaded."""
+    """:func:`suitability.physiology.quantum_yield_crossover`, the leaf quantum-yield crossover (from its
+    module if the package does not re-export it). Imported late: figures must import without the science stack loaded."""
     try:
-        from suitability.physiology import crossover_temperature
+        from suitability.physiology import quantum_yield_crossover
     except ImportError:
-        from suitability.physiology.crossover import crossover_temperature
-    return crossover_temperature
+        from suitability.physiology.crossover import quantum_yield_crossover
+    return quantum_yield_crossover
 
 
 def crossover_figure(
@@ -359,7 +615,7 @@ def crossover_figure(
     """Crossover temperature against CO2, with the region's warm-season mean temperature marked.
 
     The curve is ``crossover(co2_ppm, o2_percent=...)`` [deg C] (default:
-    :func:`suitability.physiology.crossover_temperature`) for CO2 in ``co2_range_ppm`` [ppm]. Above the
+    :func:`suitability.physiology.quantum_yield_crossover`) for CO2 in ``co2_range_ppm`` [ppm]. Above the
     curve C4 plants make better use of light; below it, C3 plants (Collatz et al. 1998). Each scenario is
     drawn as a point at its CO2 and the warm-season temperature plus its warming [deg C].
     """
@@ -409,6 +665,66 @@ def crossover_png(
     """PNG bytes of :func:`crossover_figure`."""
     return _png(crossover_figure(warm_season_temperature_c, scenarios, o2_percent=o2_percent,
                                  crossover=crossover), dpi)
+
+
+#: Marker and colour of each scenario in the district crossover chart, in order (colour-blind-safe
+#: Okabe & Ito 2008 hues; shapes differ too, so the chart also reads in grey).
+_SCENARIO_STYLES = (("o", "#0072B2"), ("s", "#D55E00"), ("^", "#CC79A7"), ("D", "#56B4E9"), ("v", "#009E73"),
+                    ("P", "#E69F00"), ("X", "#000000"))
+
+
+def district_crossover_figure(points: pd.DataFrame, highlight: str | None = None,
+                              size_in: tuple[float, float] = (7.0, 3.8)) -> Figure:
+    """Each district's warm-month temperature against the crossover temperature of its cells.
+
+    points: one row per district and scenario with ``district``, ``scenario`` (label), ``warm_c`` (the
+    district's mean temperature over its three warmest months [deg C]) and ``q05``, ``q50``, ``q95`` (the
+    5th, 50th and 95th area-weighted percentiles of the crossover temperature of its cells over those
+    months [deg C]). A district below the diagonal is warmer than the crossover on most of its land: C4
+    favoured there; above it, C3. The bar spans the 5-95 % range of its cells. ``highlight``: one district
+    drawn larger and named.
+    """
+    data = points.dropna(subset=["warm_c", "q50"])
+    figure = Figure(figsize=size_in)
+    axes = figure.add_axes((0.12, 0.11, 0.84, 0.72))
+    x_low, x_high = float(data["warm_c"].min()) - 1.0, float(data["warm_c"].max()) + 1.0
+    y_low, y_high = float(data["q05"].min()) - 1.5, float(data["q95"].max()) + 1.5
+    low, high = min(x_low, y_low), max(x_high, y_high)
+    line = np.array([low, high])
+    axes.fill_between(line, low, line, color=CLASS_COLOURS[CLASS_C4], alpha=0.13, linewidth=0)
+    axes.fill_between(line, line, high, color=CLASS_COLOURS[CLASS_C3], alpha=0.11, linewidth=0)
+    axes.plot(line, line, color=_INK, linewidth=1.0, gid="tie")
+    axes.text(0.97, 0.04, "warm months warmer than the crossover:\nC4 crops have the advantage", ha="right",
+              va="bottom", transform=axes.transAxes, fontsize=8.5, color=_INK)
+    axes.text(0.03, 0.96, "warm months cooler than the crossover:\nC3 crops have the advantage", ha="left",
+              va="top", transform=axes.transAxes, fontsize=8.5, color=_INK)
+    many = data["district"].nunique() > 60
+    for i, (label, rows) in enumerate(data.groupby("scenario", sort=False)):
+        marker, colour = _SCENARIO_STYLES[i % len(_SCENARIO_STYLES)]
+        faded = highlight is not None
+        axes.errorbar(rows["warm_c"], rows["q50"], yerr=[rows["q50"] - rows["q05"], rows["q95"] - rows["q50"]],
+                      fmt=marker, color=colour, markersize=3 if many else 4.5, elinewidth=0.5 if many else 0.8,
+                      alpha=0.35 if faded else (0.6 if many else 0.85), label=str(label), gid=f"scenario:{label}",
+                      markeredgewidth=0)
+        if highlight is not None:
+            own = rows[rows["district"] == highlight]
+            axes.errorbar(own["warm_c"], own["q50"], yerr=[own["q50"] - own["q05"], own["q95"] - own["q50"]],
+                          fmt=marker, color=colour, markersize=8, elinewidth=1.6, markeredgecolor=_INK,
+                          markeredgewidth=0.8, zorder=6)
+            for _, r in own.iterrows():
+                axes.annotate(str(highlight), (r["warm_c"], r["q50"]), xytext=(7, -3), textcoords="offset points",
+                              fontsize=8, color=_INK, parse_math=False)
+    axes.set_xlim(x_low, x_high)
+    axes.set_ylim(y_low, y_high)
+    axes.set_xlabel("mean air temperature of the district's three warmest months (\u00b0C)", fontsize=9, color=_INK)
+    axes.set_ylabel("crossover temperature of its land (\u00b0C)\nmedian and 5\u201395 % of its cells", fontsize=9,
+                    color=_INK)
+    axes.tick_params(labelsize=8)
+    for side in ("top", "right"):
+        axes.spines[side].set_visible(False)
+    axes.legend(loc="lower left", bbox_to_anchor=(0.0, 1.0), frameon=False, fontsize=8, title_fontsize=8,
+                ncol=min(3, data["scenario"].nunique()), title="one mark per district", alignment="left")
+    return figure
 
 
 def save_png(data: bytes, path: str | os.PathLike) -> Path:

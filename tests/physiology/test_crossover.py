@@ -11,7 +11,7 @@ import xarray as xr
 
 from suitability.physiology import leaf_assimilation, resolve_params
 from suitability.physiology.c3 import c3_assimilation
-from suitability.physiology.crossover import c3_quantum_yield, c4_quantum_yield, crossover_temperature
+from suitability.physiology.crossover import c3_quantum_yield, c4_quantum_yield, quantum_yield_crossover
 from suitability.physiology.rubisco import co2_partial_pressure_pa, o2_partial_pressure_pa
 
 PUBLISHED = Path(__file__).parents[1] / "data" / "published"
@@ -79,14 +79,14 @@ def test_crossover_near_22c_at_350ppm_with_grass_yields():
     # Evaluated at Ci = Ca (vpd_kpa=None), the low-light limit of a single leaf; which Ci Collatz et al.
     # (1998) used is not verified here. At the canopy's Ci/Ca (Medlyn, 1 kPa) the same yields cross at
     # 19.2 °C (measured at the time of writing), below the band: see the next test.
-    crossover = crossover_temperature(350.0, params={"C4": {"parameter_set": "collatz1992", "alpha": GRASS_C4_YIELD}},
+    crossover = quantum_yield_crossover(350.0, params={"C4": {"parameter_set": "collatz1992", "alpha": GRASS_C4_YIELD}},
                                       vpd_kpa=None)
     assert 20.0 <= crossover <= 24.0
     # The subtypes bracket it: a higher C4 yield (NADP-ME) crosses at a lower temperature.
-    nadp = crossover_temperature(350.0, params={"C4": {"parameter_set": "collatz1992",
+    nadp = quantum_yield_crossover(350.0, params={"C4": {"parameter_set": "collatz1992",
                                                        "alpha": YIELDS[(EP, "NADP-ME C4 grasses", "21")]}},
                                  vpd_kpa=None)
-    nad = crossover_temperature(350.0, params={"C4": {"parameter_set": "collatz1992",
+    nad = quantum_yield_crossover(350.0, params={"C4": {"parameter_set": "collatz1992",
                                                       "alpha": YIELDS[(EP, "NAD-ME C4 grasses", "21")]}},
                                 vpd_kpa=None)
     assert nadp < crossover < nad
@@ -97,9 +97,9 @@ def test_canopy_ci_lowers_the_leaf_crossover():
     # C4 yield α does not depend on CO2, so the leaf quantum-yield crossover is cooler than at Ci = Ca; drier
     # air (larger D, smaller Ci/Ca = g1/(g1 + √D), Medlyn et al. 2011) lowers it further.
     params = {"C4": {"parameter_set": "collatz1992", "alpha": GRASS_C4_YIELD}}
-    at_ambient = crossover_temperature(350.0, params=params, vpd_kpa=None)
-    humid, dry = (crossover_temperature(350.0, params=params, vpd_kpa=d) for d in (0.5, 2.5))
-    default = crossover_temperature(350.0, params=params)  # D = 1 kPa
+    at_ambient = quantum_yield_crossover(350.0, params=params, vpd_kpa=None)
+    humid, dry = (quantum_yield_crossover(350.0, params=params, vpd_kpa=d) for d in (0.5, 2.5))
+    default = quantum_yield_crossover(350.0, params=params)  # D = 1 kPa
     assert dry < default < humid < at_ambient
 
 
@@ -110,10 +110,10 @@ def test_crossover_is_where_yields_are_equal():
     ca = np.array([300.0, 500.0])
     for params in ({"C4": "collatz1992"}, {"C4": "vc2000"}):
         c3_g1, c4_g1 = resolve_params("C3")["g1"], resolve_params("C4", params["C4"])["g1"]
-        tx = crossover_temperature(ca, params=params)
+        tx = quantum_yield_crossover(ca, params=params)
         np.testing.assert_allclose(c3_quantum_yield(tx, ca * c3_g1 / (c3_g1 + 1.0)),
                                    c4_quantum_yield(tx, ca * c4_g1 / (c4_g1 + 1.0), params=params["C4"]), rtol=1e-7)
-        tx = crossover_temperature(ca, params=params, vpd_kpa=None)
+        tx = quantum_yield_crossover(ca, params=params, vpd_kpa=None)
         np.testing.assert_allclose(c3_quantum_yield(tx, ca), c4_quantum_yield(tx, ca, params=params["C4"]), rtol=1e-7)
 
 
@@ -126,46 +126,46 @@ def test_crossover_rises_monotonically_with_co2():
         # vc2000's Jmax declines above ~31 °C (Massad et al. 2007), so its yield falls in the heat and at
         # 700 ppm the yields do not cross below 50 °C (NaN): checked up to 560 ppm there.
         selected = co2[:-1] if params["C4"] == "vc2000" else co2
-        crossover = crossover_temperature(selected, params=params)
+        crossover = quantum_yield_crossover(selected, params=params)
         assert np.all(np.diff(crossover) > 0), params
 
 
 def test_crossover_rises_at_lower_o2():
     # Ehleringer & Björkman (1977): less O2 means less C3 photorespiration, so C3 out-yields C4 up to higher
     # temperatures and the crossover moves up.
-    assert crossover_temperature(350.0, o2_percent=15.0) > crossover_temperature(350.0)
+    assert quantum_yield_crossover(350.0, o2_percent=15.0) > quantum_yield_crossover(350.0)
 
 
 def test_no_crossover_warns_and_gives_nan():
     # Contract: NaN plus a warning where the yields do not cross in 0-50 °C (e.g. at 3000 ppm C3 wins
     # throughout), and NaN without a crossover warning for invalid input.
     with pytest.warns(RuntimeWarning, match="no C3/C4 quantum-yield crossover"):
-        result = crossover_temperature(np.array([350.0, 3000.0]))
+        result = quantum_yield_crossover(np.array([350.0, 3000.0]))
     assert np.isfinite(result[0]) and np.isnan(result[1])
     with warnings.catch_warnings():
         warnings.simplefilter("error")
-        assert np.isnan(crossover_temperature(-5.0))
+        assert np.isnan(quantum_yield_crossover(-5.0))
 
 
 def test_crossover_kinds_and_laziness():
     co2 = np.array([[280.0, 350.0], [420.0, 700.0]])
-    lazy = crossover_temperature(xr.DataArray(da.from_array(co2, chunks=1), dims=("y", "x")))
+    lazy = quantum_yield_crossover(xr.DataArray(da.from_array(co2, chunks=1), dims=("y", "x")))
     assert isinstance(lazy.data, da.Array)
-    eager = crossover_temperature(co2)
+    eager = quantum_yield_crossover(co2)
     np.testing.assert_array_equal(lazy.values, eager)
-    assert crossover_temperature(350.0) == eager[0, 1]
-    np.testing.assert_array_equal(crossover_temperature(da.from_array(co2, chunks=1)).compute(), eager)
+    assert quantum_yield_crossover(350.0) == eager[0, 1]
+    np.testing.assert_array_equal(quantum_yield_crossover(da.from_array(co2, chunks=1)).compute(), eager)
 
 
 def test_bad_crossover_params():
     with pytest.raises(ValueError, match="C3, C4"):
-        crossover_temperature(350.0, params={"C5": None})
+        quantum_yield_crossover(350.0, params={"C5": None})
 
 
 def test_c3_light_limited_leaf_yield_falls_below_c4_when_warm():
     # Consistency of the leaf models with the crossover (derived here): at low light (light-limited),
     # C4 out-assimilates C3 well above the default crossover and C3 wins well below it.
-    tx = crossover_temperature(400.0)
+    tx = quantum_yield_crossover(400.0)
     for offset, c4_wins in ((-8.0, False), (8.0, True)):
         c3 = leaf_assimilation("C3", tx + offset, 100.0, 400.0, vpd_kpa=0.3).gross
         c4 = leaf_assimilation("C4", tx + offset, 100.0, 400.0, vpd_kpa=0.3).gross

@@ -77,3 +77,47 @@ def test_bright_day_energy_limit_example():
     ea = saturation_vapour_pressure(15.0)
     assert net_radiation(15.0, 25.0, ea, 22.0, ra, 0.0) == pytest.approx(13.5, abs=0.3)
     assert energy_limited_transpiration_mm(15.0, 25.0, ea, 22.0, ra, 0.0, 101.3) == pytest.approx(4.7, abs=0.15)
+
+
+def test_penman_monteith_reproduces_fao56_example_17():
+    # Allen et al. (1998) FAO-56, Example 17 (monthly data, Bangkok, April; 13°44' N, 2 m): Tmax 34.8, Tmin
+    # 25.6 °C, ea 2.85 kPa, u2 2 m s-1, Ra 38.06 and Rs 22.65 MJ m-2 d-1, G = 0.14 (30.2 − 29.2) = 0.14
+    # MJ m-2 d-1 (eq. 44): Rn 14.33 MJ m-2 d-1 and ET0 = 5.72 mm d-1 (the example rounds its intermediate
+    # values, hence 0.02 mm d-1).
+    from suitability.physiology.energy import penman_monteith_et0
+
+    assert net_radiation(25.6, 34.8, 2.85, 22.65, 38.06, 2.0) == pytest.approx(14.33, abs=0.02)
+    pressure = air_pressure_from_elevation(2.0)  # 101.3 kPa in the example
+    et0 = penman_monteith_et0(25.6, 34.8, 2.85, 22.65, 38.06, 2.0, pressure, 2.0, 0.14)
+    assert et0 == pytest.approx(5.72, abs=0.02)
+
+
+def test_penman_monteith_matches_pyet():
+    # pyet.pm_fao56 (FAO-56 eq. 6) as the independent reference, given the same net radiation, soil heat
+    # flux, pressure and ea; pyet takes es from Tmax and Tmin (eq. 12) as we do.
+    from suitability.physiology.energy import penman_monteith_et0
+
+    tmin, tmax, _, _, ra, shortwave, elevation, ea = _days(seed=11)
+    rng = np.random.default_rng(12)
+    wind = rng.uniform(0.5, 6.0, tmin.size)
+    heat = rng.uniform(-0.5, 0.5, tmin.size)
+    pressure = air_pressure_from_elevation(elevation)
+    rn = net_radiation(tmin, tmax, ea, shortwave, ra, elevation)
+    expected = pyet.pm_fao56(pd.Series((tmin + tmax) / 2), pd.Series(wind), rn=pd.Series(rn), g=pd.Series(heat),
+                             tmax=pd.Series(tmax), tmin=pd.Series(tmin), pressure=pd.Series(pressure),
+                             ea=pd.Series(ea), clip_zero=True)
+    got = penman_monteith_et0(tmin, tmax, ea, shortwave, ra, elevation, pressure, wind, heat)
+    np.testing.assert_allclose(got, np.asarray(expected), rtol=1e-3, atol=1e-6)
+
+
+def test_wind_at_2m_and_monthly_soil_heat_flux():
+    # FAO-56 eq. 47 and Example 14: the factor from 10 m to 2 m is 0.748, so 3.2 m s-1 at 10 m is 2.4 m s-1
+    # at 2 m (the 3.2 / 2.4 pair from memory; 0.748 confirmed); at 2 m unchanged (4.87/ln(130.18) = 1.0002,
+    # derived here). Eq. 43 with the months of FAO-56 Example 13 (March 14.1 °C, May 18.8 °C; from memory):
+    # G for April = 0.07 (18.8 − 14.1) = 0.33 MJ m-2 d-1 (derived here from eq. 43).
+    from suitability.physiology.energy import monthly_soil_heat_flux, wind_speed_at_2m
+
+    assert wind_speed_at_2m(1.0, 10.0) == pytest.approx(0.748, abs=0.0005)
+    assert wind_speed_at_2m(3.2, 10.0) == pytest.approx(2.4, abs=0.01)
+    assert wind_speed_at_2m(3.0, 2.0) == pytest.approx(3.0, rel=1e-3)
+    assert monthly_soil_heat_flux(14.1, 18.8) == pytest.approx(0.33, abs=0.005)

@@ -257,7 +257,7 @@ def test_per_district_briefs_with_colliding_and_scenario_like_names(tmp_path, fi
     assert result.exit_code == 0, result.output
     brief = tmp_path / "out" / "brief"
     html = sorted(p.name for p in brief.glob("*.html"))
-    assert len(html) == 1 + 8  # one per scenario compared, one per district: nothing overwritten
+    assert len(html) == 1 + 1 + 8  # one per scenario compared, today's, one per district: nothing overwritten
     assert all(len(name) <= 40 + 1 + MAX_STEM + 3 + 5 for name in html)
     # "North/East" and "North East" give one stem, and the district "co2_only" the scenario's: numbered.
     assert {p.name for p in brief.glob("*_north_east*.html")} == {html_name for html_name in html if "north_east" in html_name}

@@ -157,11 +157,11 @@ FUNCTIONS = {
     "daily_canopy_assimilation C4": (lambda **a: physiology.daily_canopy_assimilation("C4", **a),
                                      ["tmin_c", "tmax_c", "shortwave_mj", "latitude_deg", "day_of_year", "co2_ppm",
                                       "elevation_m", "vpd_kpa", "water_availability", "lai", "o2_percent"]),
-    "crossover_temperature": (physiology.crossover_temperature, ["co2_ppm", "o2_percent", "pressure_kpa"]),
+    "quantum_yield_crossover": (physiology.quantum_yield_crossover, ["co2_ppm", "o2_percent", "pressure_kpa"]),
     "c3_quantum_yield": (physiology.c3_quantum_yield, ["temperature_c", "co2_ppm", "o2_percent", "pressure_kpa"]),
     "c4_quantum_yield": (physiology.c4_quantum_yield, ["temperature_c", "co2_ppm", "o2_percent", "pressure_kpa"]),
 }
-FLOAT_FUNCTIONS = {"leaf_assimilation", "daily_canopy_assimilation", "crossover_temperature", "c3_quantum_yield",
+FLOAT_FUNCTIONS = {"leaf_assimilation", "daily_canopy_assimilation", "quantum_yield_crossover", "c3_quantum_yield",
                    "c4_quantum_yield"}
 
 

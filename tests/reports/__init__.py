@@ -13,7 +13,7 @@ import rasterio
 
 from suitability.variables import CLASS_NODATA
 
-CLASS_LAYERS = ("pathway_class", "class_transition")
+CLASS_LAYERS = ("pathway_class", "class_transition", "change_agreement")
 
 
 def write_raster(path: Path, values: np.ndarray, crs: str, transform) -> Path:

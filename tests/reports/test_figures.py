@@ -71,8 +71,13 @@ def test_nice_scale_length(longest, expected):
     assert figures.nice_scale_length(longest) == pytest.approx(expected)
 
 
+def _scale_bar(figure):
+    """The axes holding the scale bar: below the map frame, off the data, with the map's ground scale."""
+    return next(a for a in figure.axes if a.get_gid() == "scale_bar")
+
+
 def _scale_bar_width(figure) -> float:
-    axes = figure.axes[0]
+    axes = _scale_bar(figure)
     return sum(p.get_width() for p in axes.patches if isinstance(p, Rectangle) and p.get_zorder() == 5)
 
 
@@ -86,8 +91,13 @@ def test_class_map_projected_scale_bar_colours_and_labels(tmp_path):
                              crs="EPSG:32740").to_crs("EPSG:4326")  # another CRS: the map reprojects them
     figure = figures.class_map_figure(path, zones, title="baseline")
     texts = [t.get_text() for t in figure.axes[0].texts]
-    assert "10 km" in texts
+    assert "10 km" in [t.get_text() for t in _scale_bar(figure).texts]
     assert _scale_bar_width(figure) == pytest.approx(10_000, rel=1e-9)
+    # Off the data: the bar's axes lies wholly below the map frame, and spans the frame's ground scale.
+    FigureCanvasAgg(figure).draw()
+    frame, bar = figure.axes[0].get_position(), _scale_bar(figure).get_position()
+    assert bar.y1 <= frame.y0 and bar.width == pytest.approx(frame.width)
+    assert _scale_bar(figure).get_xlim() == figure.axes[0].get_xlim()
     assert "Orvanne" in texts and "Telmira" in texts
     image = _rgb(figure)
     # Derived from the synthetic layout: the three class colours are all drawn, C3 left of contested left
@@ -107,10 +117,73 @@ def test_class_map_geographic_scale_bar_from_latitude(tmp_path):
                         from_origin(56.0, -24.3, 0.01, 0.01))
     figure = figures.class_map_figure(path, None)
     degree_m = GEOD.inv(56.0, -24.5, 56.001, -24.5)[2] * 1000
-    assert "20 km" in [t.get_text() for t in figure.axes[0].texts]
+    assert "20 km" in [t.get_text() for t in _scale_bar(figure).texts]
     assert _scale_bar_width(figure) == pytest.approx(20_000 / degree_m, rel=1e-6)
     # Equal ground distances on both axes: the aspect is 1 / cos(latitude) (hand derivation, sphere)
     assert figure.axes[0].get_aspect() == pytest.approx(1 / math.cos(math.radians(24.5)), rel=1e-9)
+
+
+def test_north_arrow_follows_the_meridian_convergence(tmp_path):
+    # UTM zone 40S, map centre 300-360 km east: grid north differs from true north by the meridian
+    # convergence, which pyproj's projection factors give independently (Snyder 1987, UTM).
+    path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    figure = figures.class_map_figure(path, None)
+    raster = figures._MapRaster(path)
+    lon, lat = raster.centre_lonlat
+    convergence = pyproj.Proj("EPSG:32740").get_factors(lon, lat).meridian_convergence
+    assert raster.grid_north_degrees() == pytest.approx(-convergence, abs=0.01)
+    assert any(a.get_gid() == "north_arrow" for a in figure.axes)
+
+
+def test_graticule_labels_are_degrees_at_the_frame(tmp_path):
+    path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    figure = figures.class_map_figure(path, None)
+    axes = figure.axes[0]
+    labels = [t.get_text() for t in axes.get_xticklabels()]
+    assert labels and all(label.endswith("\u00b0 E") for label in labels)
+    # Each labelled longitude crosses the bottom edge where pyproj puts it (independent transform).
+    to_geo = pyproj.Transformer.from_crs("EPSG:32740", "EPSG:4326", always_xy=True)
+    bottom = axes.get_ylim()[0]
+    for x, label in zip(axes.get_xticks(), labels):
+        lon, _ = to_geo.transform(x, bottom)
+        assert lon == pytest.approx(float(label.split("\u00b0")[0]), abs=1e-6)
+    assert all(label.endswith("\u00b0 S") for label in (t.get_text() for t in axes.get_yticklabels()))
+
+
+def test_numbered_labels_never_overlap(tmp_path):
+    path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    # 400 districts of 1.5 km: a number at 7.5 pt is wider than a district at this map's scale.
+    boxes = [box(300000 + 1500 * (i % 20), 7365000 + 1500 * (i // 20), 300000 + 1500 * (i % 20 + 1),
+                 7365000 + 1500 * (i // 20 + 1)) for i in range(400)]
+    zones = gpd.GeoDataFrame({"district": [f"D{i}" for i in range(400)]}, geometry=boxes, crs="EPSG:32740")
+    numbers = {f"D{i}": i + 1 for i in range(400)}
+    figure = figures.class_map_figure(path, zones, numbers=numbers)
+    renderer = FigureCanvasAgg(figure).get_renderer()
+    frame = figure.axes[0].get_window_extent(renderer)
+    drawn = [t.get_window_extent(renderer) for t in figure.axes[0].texts]
+    assert 0 < len(drawn) < 400  # some numbers would collide at this size: left out, and the brief says so
+    assert sum(not ok for ok in figure.labels_drawn.values()) == 400 - len(drawn)
+    for i, a in enumerate(drawn):
+        assert frame.x0 <= a.x0 and a.x1 <= frame.x1 and frame.y0 <= a.y0 and a.y1 <= frame.y1
+        for b in drawn[i + 1:]:
+            assert not a.overlaps(b)
+
+
+def test_district_crossover_chart_draws_the_points():
+    points = pd.DataFrame({"district": ["Orvanne", "Telmira"] * 2, "scenario": ["Today"] * 2 + ["Warmer"] * 2,
+                           "warm_c": [20.0, 25.0, 23.0, 28.0], "q05": [21.0, 21.5, 21.0, 21.5],
+                           "q50": [22.0, 22.5, 22.0, 22.5], "q95": [23.0, 23.5, 23.0, 23.5]})
+    figure = figures.district_crossover_figure(points)
+    axes = figure.axes[0]
+    tie = next(line for line in axes.lines if line.get_gid() == "tie")
+    assert list(tie.get_xdata()) == list(tie.get_ydata())  # the diagonal: warm months at the crossover
+    marks = {c.get_label(): c for c in axes.containers}
+    assert set(marks) == {"Today", "Warmer"}
+    today = marks["Today"].lines[0]
+    assert list(today.get_xdata()) == [20.0, 25.0] and list(today.get_ydata()) == [22.0, 22.5]
 
 
 def test_change_map_is_diverging_and_centred(tmp_path):

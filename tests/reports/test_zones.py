@@ -29,6 +29,10 @@ from shapely.geometry import Polygon, box
 from suitability.errors import InputDataError
 from suitability.reports.zones import (
     COLUMNS,
+    district_distribution,
+    district_monthly_means,
+    output_grid,
+    warmest_months,
     OutputGrid,
     ellipsoidal_zone_area_m2,
     read_zones,
@@ -372,3 +376,24 @@ def test_csv_and_geopackage_writers_round_trip(tmp_path):
     pd.testing.assert_frame_equal(layer[NUMERIC], expected[NUMERIC], rtol=1e-12)
     assert layer.crs == pyproj.CRS(UTM)
     assert sorted(p.name for p in out.iterdir()) == ["districts.csv", "districts.gpkg"]  # no temporaries left
+
+
+def test_district_distribution_reads_a_monthly_layer_at_the_districts_own_months(tmp_path):
+    # A 12-band crossover layer (one band per month, as a per-cell, per-month tie temperature would be):
+    # band m holds 20 + m in every cell, except column 0 which holds 30 + m. A district's cells take the
+    # mean of its own months' bands. Hand derivation: months (1, 2, 12) -> 20 + 5 = 25 in columns 1-4 and
+    # 35 in column 0; a district of columns 0-3 (1/4 of its cells in column 0): 5 % and 50 % -> 25, 95 % -> 35.
+    import rasterio
+
+    path = tmp_path / "crossover_temperature.tif"
+    values = np.stack([np.where(np.arange(5)[None, :] == 0, 30.0 + m, 20.0 + m) * np.ones((4, 1)) for m in range(1, 13)])
+    with rasterio.open(path, "w", driver="GTiff", width=5, height=4, count=12, dtype="float32", crs=UTM,
+                       transform=from_origin(300000, 7400000, 1000, 1000), nodata=np.nan) as dst:
+        dst.write(values.astype("float32"))
+    zones = _zones(tmp_path, {"Orvanne": box(300000, 7396000, 304000, 7400000)}, UTM)
+    quantiles = district_distribution(zones, "district", path, {"Orvanne": [1, 2, 12]})
+    assert quantiles.loc["Orvanne"].tolist() == pytest.approx([25.0, 25.0, 35.0])
+    monthly = district_monthly_means(zones, "district", output_grid(path), values)
+    # Hand: area-weighted mean of band m over columns 0-3 = (30 + m + 3 * (20 + m)) / 4 = 22.5 + m
+    assert monthly.loc["Orvanne"].tolist() == pytest.approx([22.5 + m for m in range(1, 13)])
+    assert warmest_months(monthly.loc["Orvanne"]) == [12, 11, 10]

@@ -1,0 +1,158 @@
+"""An ensemble run against the same members run as single scenarios (issue 12's closing note).
+
+On an invented square region (a fictional patch, not a real place) with a 12-month baseline and, per
+member, a 30-year monthly noleap series of Tmin/Tmax (2041-2070, each member warmer by its own amount):
+
+- ``ensemble``: baseline + one scenario with ``members: [m1, m2, m3]`` (a ``{member}`` pattern), which writes
+  the scenario's layers plus the ensemble layers (median advantage, C4-favoured share, change agreement);
+- ``ensemble+members``: the same with ``output.member_outputs: true`` (each member's layers written too);
+- ``singles``: baseline + three scenarios, one per member file, each written like any scenario.
+
+Each kind runs ``--repeat`` times, interleaved with the others; the fastest run of each kind is reported
+(every wall time is kept in the JSON).
+
+Each run is its own process (``suitability.run``); reported: wall time, peak resident memory of that process
+(os.wait4 ru_maxrss) and the manifest's timings (opening the inputs, each scenario). Nothing here asserts
+a timing; numbers are measurements of this machine at this moment (other work on it shows up in them).
+
+Usage: python benchmarks/ensemble.py [--size 256] [--members 3]
+Results: benchmarks/results/ensemble.json and ensemble.md.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import shutil
+import subprocess
+import sys
+import time
+from pathlib import Path
+
+import numpy as np
+
+REPO = Path(__file__).resolve().parents[1]
+RESULTS = REPO / "benchmarks" / "results"
+SCRATCH = RESULTS / "tmp" / "ensemble"
+RESOLUTION = 0.01  # degrees
+
+
+def write_inputs(folder: Path, size: int, members: list[str]) -> None:
+    import xarray as xr
+
+    lat = -20.0 - RESOLUTION * (np.arange(size) + 0.5)  # descending, as many model grids are
+    lon = 55.0 + RESOLUTION * (np.arange(size) + 0.5)
+    coords = {"lat": ("lat", lat, {"units": "degrees_north", "standard_name": "latitude"}),
+              "lon": ("lon", lon, {"units": "degrees_east", "standard_name": "longitude"})}
+    field = np.linspace(-6.0, 6.0, size)[None, None, :] + np.zeros((1, size, 1))  # a west-east gradient
+    months = np.arange(1, 13)
+    season = 4.0 * np.cos(2 * np.pi * (months - 1) / 12.0)[:, None, None]
+    tmean = 293.15 + season + field
+    time = xr.date_range("2000-01-01", periods=12, freq="MS", calendar="noleap", use_cftime=True)
+    base = xr.Dataset({"tmin": (("time", "lat", "lon"), (tmean - 5).astype("f4"), {"units": "K"}),
+                       "tmax": (("time", "lat", "lon"), (tmean + 5).astype("f4"), {"units": "K"}),
+                       "rsds": (("time", "lat", "lon"), np.full((12, size, size), 220.0, "f4"), {"units": "W m-2"}),
+                       "wa": (("time", "lat", "lon"), np.full((12, size, size), 0.9, "f4"), {"units": "1"})},
+                      coords={"time": time, **coords})
+    base.to_netcdf(folder / "baseline.nc")
+    series = xr.date_range("2041-01-01", periods=12 * 30, freq="MS", calendar="noleap", use_cftime=True)
+    step_month = np.array([t.month for t in series])
+    step_year = np.array([t.year for t in series])
+    for i, member in enumerate(members):
+        warming = 1.0 + 1.5 * i
+        trend = (warming * (step_year - 2041) / 29.0)[:, None, None]
+        tm = 293.15 + 4.0 * np.cos(2 * np.pi * (step_month - 1) / 12.0)[:, None, None] + trend + field
+        ds = xr.Dataset({"tasmin": (("time", "lat", "lon"), (tm - 5).astype("f4"), {"units": "K"}),
+                         "tasmax": (("time", "lat", "lon"), (tm + 5).astype("f4"), {"units": "K"})},
+                        coords={"time": series, **coords})
+        ds.to_netcdf(folder / f"tas_{member}.nc",
+                     encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
+
+
+def write_config(folder: Path, name: str, size: int, members: list[str], mode: str) -> Path:
+    import yaml
+
+    climate = {"tmin": {"path": "baseline.nc", "variable": "tmin"}, "tmax": {"path": "baseline.nc", "variable": "tmax"},
+               "shortwave": {"path": "baseline.nc", "variable": "rsds"},
+               "water_availability": {"path": "baseline.nc", "variable": "wa"}}
+
+    def own(path):
+        return {"tmin": {"path": path, "variable": "tasmin"}, "tmax": {"path": path, "variable": "tasmax"}}
+
+    scenarios = [{"name": "baseline", "co2_ppm": 420}]
+    if mode == "singles":
+        scenarios += [{"name": f"future_{m}", "co2_ppm": 560, "period": [2041, 2070], "climate": own(f"tas_{m}.nc")}
+                      for m in members]
+    else:
+        scenarios += [{"name": "future", "co2_ppm": 560, "period": [2041, 2070], "members": members,
+                       "climate": own("tas_{member}.nc")}]
+    cfg = {"region": {"name": "Invented benchmark patch (fictional)",
+                      "grid": {"crs": "EPSG:4326", "resolution": RESOLUTION,
+                               "bounds": [55.0, -20.0 - RESOLUTION * size, 55.0 + RESOLUTION * size, -20.0]}},
+           "climate": climate, "scenarios": scenarios,
+           "output": {"folder": f"out_{name}", "member_outputs": mode == "ensemble+members", "overwrite": True},
+           "compute": {"scheduler": "threads"}}
+    path = folder / f"{name}.yaml"
+    path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+    return path
+
+
+def run_apart(config: Path) -> dict:
+    """``suitability.run(config)`` in its own process: wall time, peak RSS and the manifest's timings."""
+    code = "import sys, suitability; print(suitability.run(sys.argv[1]).manifest_path)"
+    started = time.perf_counter()
+    process = subprocess.Popen([sys.executable, "-c", code, str(config)], cwd=REPO, stdout=subprocess.PIPE,
+                               stderr=subprocess.DEVNULL, env={**os.environ, "PYTHONPATH": str(REPO)})
+    _, status, usage = os.wait4(process.pid, 0)
+    wall = time.perf_counter() - started
+    out = process.stdout.read().decode().strip().splitlines()
+    if status != 0 or not out:
+        raise RuntimeError(f"run of {config} failed (status {status})")
+    manifest = json.loads(Path(out[-1]).read_text())
+    return {"wall_s": round(wall, 2), "peak_rss_mib": round(usage.ru_maxrss / 1024, 1), "timings": manifest["timings"]}
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--size", type=int, default=256, help="cells per side of the square region")
+    parser.add_argument("--members", type=int, default=3)
+    parser.add_argument("--repeat", type=int, default=2, help="runs of each kind, interleaved; the fastest is kept")
+    args = parser.parse_args()
+    members = [f"m{i + 1}" for i in range(args.members)]
+    shutil.rmtree(SCRATCH, ignore_errors=True)
+    SCRATCH.mkdir(parents=True)
+    write_inputs(SCRATCH, args.size, members)
+    runs, every = {}, {}
+    for _ in range(args.repeat):  # interleaved, so that other load on the machine falls on every kind alike
+        for mode in ("singles", "ensemble", "ensemble+members"):
+            result = run_apart(write_config(SCRATCH, mode.replace("+", "_"), args.size, members, mode))
+            every.setdefault(mode, []).append(result["wall_s"])
+            if mode not in runs or result["wall_s"] < runs[mode]["wall_s"]:
+                runs[mode] = result
+            print(mode, json.dumps(result), flush=True)
+    singles = runs["singles"]["timings"]
+    future_singles = sum(v for k, v in singles.items() if k.startswith("scenario_future_"))
+    report = {
+        "size": args.size, "cells": args.size ** 2, "members": args.members, "runs": runs,
+        "wall_s_of_every_run": every,
+        "future_scenarios_s": {"singles (sum of the members' scenarios)": round(future_singles, 2),
+                               "ensemble": runs["ensemble"]["timings"]["scenario_future_s"],
+                               "ensemble+members": runs["ensemble+members"]["timings"]["scenario_future_s"]},
+    }
+    RESULTS.mkdir(exist_ok=True)
+    (RESULTS / "ensemble.json").write_text(json.dumps(report, indent=2))
+    lines = [f"# Ensemble against single runs ({args.size} x {args.size} cells, {args.members} members, "
+             f"fastest of {args.repeat})", "",
+             "| run | wall [s] | open inputs [s] | future scenario(s) [s] | peak RSS [MiB] |", "|---|---|---|---|---|"]
+    for mode, result in runs.items():
+        timing = result["timings"]
+        future = sum(v for k, v in timing.items() if k.startswith("scenario_future"))
+        lines.append(f"| {mode} | {result['wall_s']} | {timing['open_inputs_s']} | {future:.2f} | {result['peak_rss_mib']} |")
+    (RESULTS / "ensemble.md").write_text("\n".join(lines) + "\n")
+    print("\n".join(lines))
+    shutil.rmtree(SCRATCH, ignore_errors=True)
+
+
+if __name__ == "__main__":
+    main()
