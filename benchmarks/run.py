@@ -18,6 +18,7 @@ Timings are measurements of this machine at this moment (other work on it shows 
 are measured side by side in one run. Nothing here asserts a timing.
 
 Usage: python benchmarks/run.py [--sizes 500 1000 2000 4000] [--kernel-cells 131072] [--draws 16] [--quick]
+                                [--no-simd-check]
        python benchmarks/run.py --draws-only      # only part 3
 """
 
@@ -86,6 +87,52 @@ def simd_width() -> str:
         if features.get(name):
             return f"{width}, LLVM CPU {binding.get_host_cpu_name()}"
     return f"no x86 SIMD found, LLVM CPU {binding.get_host_cpu_name()}"
+
+
+_KERNEL_ASM_CHILD = r"""
+import collections, json, re, sys
+import numpy as np
+from suitability import kernel
+from suitability.kernel import compiled_entry, pathway_tables
+from suitability.model import REPRESENTATIVE_DAY
+cells = np.full((64, 12), 20.0, np.float32)
+kernel.monthly_canopy_assimilation(tmin_c=cells - 5, tmax_c=cells + 5, shortwave_mj=cells, water_availability=cells / 40,
+                                   latitude_deg=cells[:, 0] - 45, day_of_year=REPRESENTATIVE_DAY, co2_ppm=420.0)
+entry = compiled_entry(pathway_tables("C3", None).model, pathway_tables("C4", None).model)
+asm = entry.inspect_asm(entry.signatures[0])
+widths = collections.Counter()
+for line in asm.splitlines():
+    parts = line.split()
+    if parts and re.fullmatch(r"v\w+pd", parts[0]):  # packed-double arithmetic (not moves)
+        if parts[0].startswith(("vmov", "vbroadcast", "vgather", "vperm", "vshuf", "vunpck", "vblend")):
+            continue
+        register = "zmm" if "zmm" in line else "ymm" if "ymm" in line else "xmm"
+        widths[register] += 1
+print(json.dumps(widths))
+"""
+
+
+def kernel_simd(timeout_s: float = 900.0) -> dict:
+    """The vector width the compiled kernel actually got: its default entry point compiled afresh (numba's
+    cache bypassed, so its assembly can be read; about a minute) in a child process, and its packed-double
+    arithmetic instructions counted by register: zmm = 8 doubles (AVX-512), ymm = 4 (AVX2), xmm = 2."""
+    import tempfile
+
+    with tempfile.TemporaryDirectory() as cache:
+        environment = dict(os.environ, NUMBA_CACHE_DIR=cache, PYTHONPATH=str(REPO))
+        try:
+            result = subprocess.run([sys.executable, "-c", _KERNEL_ASM_CHILD], env=environment, capture_output=True,
+                                    text=True, timeout=timeout_s, check=False)
+        except subprocess.TimeoutExpired:
+            return {"error": f"no answer within {timeout_s:.0f} s"}
+    if result.returncode != 0:
+        return {"error": result.stderr[-500:]}
+    counts = json.loads(result.stdout.strip().splitlines()[-1])
+    total = sum(counts.values()) or 1
+    widest = next((name for name in ("zmm", "ymm", "xmm") if counts.get(name)), None)
+    lanes = {"zmm": 8, "ymm": 4, "xmm": 2}
+    return {"packed_double_instructions": counts, "widest_register": widest,
+            "doubles_per_instruction": lanes.get(widest), "share_on_widest": counts.get(widest, 0) / total}
 
 
 def best_time(function, repeats: int) -> float:
@@ -247,8 +294,11 @@ def end_to_end(size: int, engine: str = "compiled", scenarios: int = SCENARIOS, 
     shutil.rmtree(folder, ignore_errors=True)
     config = write_region(folder, size, scenarios=scenarios, engine=engine, workers=os.cpu_count())
     command = [str(Path(sys.executable).parent / "suitability"), "run", str(config), "--no-progress"]
+    # This tree's package, not whichever one the environment's console script was installed from (an
+    # editable install of another checkout would otherwise be measured, and compile its kernel there).
+    environment = dict(os.environ, PYTHONPATH=os.pathsep.join(filter(None, [str(REPO), os.environ.get("PYTHONPATH")])))
     start = time.perf_counter()
-    process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE)
+    process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=environment)
     _, status, usage = os.wait4(process.pid, 0)
     wall = time.perf_counter() - start
     stdout, stderr = process.stdout.read(), process.stderr.read()
@@ -272,6 +322,16 @@ def end_to_end(size: int, engine: str = "compiled", scenarios: int = SCENARIOS, 
     return row
 
 
+def _simd_line(simd: dict | None) -> str:
+    if not simd:
+        return "the kernel's vector width was not checked (--no-simd-check)"
+    if "error" in simd:
+        return f"the kernel's vector width could not be read ({simd['error'][:200]})"
+    counts = ", ".join(f"{n} {r}" for r, n in simd["packed_double_instructions"].items())
+    return (f"the compiled kernel's packed-double arithmetic is {simd['share_on_widest']:.0%} on {simd['widest_register']} "
+            f"({simd['doubles_per_instruction']} doubles per instruction; {counts})")
+
+
 def markdown(results: dict) -> str:
     if "kernel" not in results:  # --draws-only
         return "\n".join([f"# Benchmark run {results['created']}", ""] + draws_markdown(results["draws"]))
@@ -281,7 +341,7 @@ def markdown(results: dict) -> str:
         "",
         f"Machine: {results['machine']['cpu']}, {results['machine']['cores']} cores, "
         f"{results['machine']['memory_gib']} GiB; load average at start {results['machine']['load_average_at_start']}; "
-        f"SIMD: {results['machine'].get('simd')}.",
+        f"SIMD: {results['machine'].get('simd')}; {_simd_line(results['machine'].get('kernel_simd'))}.",
         "Invented inputs (benchmarks/synthetic.py). One cell-step = one cell x one month, both pathways, "
         f"the full daily canopy model ({LEAF_EVALUATIONS_PER_CELL_STEP} leaf evaluations per pathway).",
         "",
@@ -329,6 +389,8 @@ def main() -> None:
     parser.add_argument("--kernel-cells", type=int, default=131072)
     parser.add_argument("--quick", action="store_true", help="small sizes, for a smoke test")
     parser.add_argument("--out", type=Path, default=RESULTS)
+    parser.add_argument("--no-simd-check", action="store_true",
+                        help="skip compiling the kernel afresh to read the vector width it got (about a minute)")
     parser.add_argument("--draws", type=int, default=16, help="parameter draws for the cost of one draw")
     parser.add_argument("--draw-cells", type=int, default=16384, help="cells of the block for the draws' cost")
     parser.add_argument("--draws-only", action="store_true", help="only the cost of parameter draws")
@@ -345,6 +407,9 @@ def main() -> None:
         (args.out / "draws.md").write_text(markdown(results))
         print(markdown(results))
         return
+    if not args.no_simd_check:
+        print("kernel vector width (fresh compile) ...", flush=True)
+        results["machine"]["kernel_simd"] = kernel_simd()
     print("kernel ...", flush=True)
     results["kernel"] = kernel_benchmark(args.kernel_cells, max(2048, args.kernel_cells // 8),
                                          max(1024, args.kernel_cells // 32), repeats=3)

@@ -12,8 +12,9 @@ definition, :mod:`suitability.physiology.elementwise`); this module only arrange
   (:mod:`.tables`);
 * the functions marked ``@template`` name the leaf models' rates as the globals ``C3_RATES`` and
   ``C4_RATES``, and their acclimation to the growth temperature (``LeafModel.acclimate``, once per
-  moment on the tabulated terms) as ``C3_ACCLIMATE`` and ``C4_ACCLIMATE``; :func:`suitability.physiology.elementwise.specialise` binds them to the registered
-  models of a run and compiles one entry point per pair of models.
+  moment on the tabulated terms) as ``C3_ACCLIMATE`` and ``C4_ACCLIMATE``;
+  :func:`suitability.physiology.elementwise.specialise` binds them to the registered models of a run
+  and compiles one entry point per pair of models.
 
 Each cell is computed independently, in a fixed order, with no reduction across cells: results are
 bitwise identical whatever the block (chunk) size, the number of workers or the scheduler.
@@ -41,18 +42,19 @@ from ..physiology.canopy import (
     daily_temperature,
     daylight_moment,
     night_moment,
+    symmetric_moments,
     valid_day_inputs,
 )
 from ..physiology.elementwise import template
 from ..physiology.energy import energy_limited_transpiration_mm
 from ..physiology.light import (
     daily_clearness,
+    daily_course_amplitude,
     day_length,
     daylight_integral_of_sin_elevation,
     diffuse_absorption,
     diffuse_fraction_daily,
     extraterrestrial_radiation,
-    sin_solar_elevation_from_terms,
     solar_declination,
     solar_elevation_terms,
 )
@@ -66,10 +68,9 @@ BATCH = 64
 HUMIDITY_FROM_TMIN, HUMIDITY_VPD, HUMIDITY_VAPOUR_PRESSURE = 0, 1, 2
 
 # setup[field, lane]: the day of one cell and month
-(_S_A, _S_B, _S_SHORTWAVE, _S_DIFFUSE, _S_INTEGRAL_GLOBAL, _S_INTEGRAL_DIFFUSE, _S_TMIN, _S_TMAX, _S_DAY_LENGTH,
- _S_LAI, _S_E_KD, _S_HUMIDITY, _S_WATER, _S_CO2, _S_PRESSURE, _S_O2, _S_ENERGY, _S_C3_GROWTH,
- _S_C4_GROWTH) = range(19)
-_N_SETUP = 19
+(_S_A, _S_B, _S_GLOBAL_AMPLITUDE, _S_DIFFUSE_AMPLITUDE, _S_TMIN, _S_TMAX, _S_DAY_LENGTH, _S_LAI, _S_E_KD,
+ _S_HUMIDITY, _S_WATER, _S_CO2, _S_PRESSURE, _S_O2, _S_ENERGY, _S_C3_GROWTH, _S_C4_GROWTH) = range(17)
+_N_SETUP = 17
 # cells[field, lane]: what does not change with the month
 _C_VALID, _C_LATITUDE, _C_LAI, _C_E_KD, _C_PRESSURE, _C_O2, _C_ELEVATION = range(7)
 _N_CELL = 7
@@ -118,15 +119,16 @@ _moment_array = _stack_array(_N_MOMENT)
 
 
 @numba.njit(**_JIT)
-def _lerp(table, row, fraction, column):
-    low = table[row, column]
-    return low + fraction * (table[row + 1, column] - low)
+def _lerp(table, row, fraction, term):
+    low = table[term, row]
+    return low + fraction * (table[term, row + 1] - low)
 
 
 @numba.njit(**_JIT)
 def _terms(table, row, fraction):
-    """Every column of a pathway table at one temperature (a tuple of MAX_TERMS = 12 floats; the
-    columns a model does not use are dead code after inlining)."""
+    """Every term of a pathway table (tables.PathwayTables.columns: one term per table row) at one
+    temperature (a tuple of MAX_TERMS = 12 floats; the terms a model does not use are dead code after
+    inlining)."""
     return (_lerp(table, row, fraction, 0), _lerp(table, row, fraction, 1), _lerp(table, row, fraction, 2),
             _lerp(table, row, fraction, 3), _lerp(table, row, fraction, 4), _lerp(table, row, fraction, 5),
             _lerp(table, row, fraction, 6), _lerp(table, row, fraction, 7), _lerp(table, row, fraction, 8),
@@ -183,19 +185,17 @@ def _light_of_pair(setup, moment, node, weight):
     """Sunlit and shaded absorbed PAR per leaf and leaf areas at t = 12 ± (N/2) x (the same sun
     elevation), and the temperatures of both moments, for every lane (canopy._canopy_rates)."""
     for lane in range(BATCH):
-        day_length_h = setup[_S_DAY_LENGTH, lane]
-        afternoon, _ = daylight_moment(day_length_h, node, weight)
-        morning, _ = daylight_moment(day_length_h, -node, weight)
-        sin_b = sin_solar_elevation_from_terms(setup[_S_A, lane], setup[_S_B, lane], afternoon)
-        light = canopy_light(setup[_S_SHORTWAVE, lane], setup[_S_DIFFUSE, lane], sin_b,
-                             setup[_S_INTEGRAL_GLOBAL, lane], setup[_S_INTEGRAL_DIFFUSE, lane], setup[_S_LAI, lane],
-                             setup[_S_E_KD, lane])
+        afternoon, _ = daylight_moment(setup[_S_DAY_LENGTH, lane], node, weight)
+        sin_b, temperature_after, temperature_before = symmetric_moments(
+            setup[_S_A, lane], setup[_S_B, lane], setup[_S_TMIN, lane], setup[_S_TMAX, lane], afternoon)
+        light = canopy_light(setup[_S_GLOBAL_AMPLITUDE, lane], setup[_S_DIFFUSE_AMPLITUDE, lane], sin_b,
+                             setup[_S_LAI, lane], setup[_S_E_KD, lane])
         moment[_M_SUNLIT_PAR, lane] = light.sunlit_absorbed_per_leaf
         moment[_M_SHADED_PAR, lane] = light.shaded_absorbed_per_leaf
         moment[_M_SUNLIT_LAI, lane] = light.sunlit_lai
         moment[_M_SHADED_LAI, lane] = light.shaded_lai
-        moment[_M_TEMPERATURE_AFTER, lane] = daily_temperature(setup[_S_TMIN, lane], setup[_S_TMAX, lane], afternoon)
-        moment[_M_TEMPERATURE_BEFORE, lane] = daily_temperature(setup[_S_TMIN, lane], setup[_S_TMAX, lane], morning)
+        moment[_M_TEMPERATURE_AFTER, lane] = temperature_after
+        moment[_M_TEMPERATURE_BEFORE, lane] = temperature_before
 
 
 @template
@@ -217,7 +217,7 @@ def _integrate_batch(setup, moment, acc, humidity_kind, c3_stomatal, c3_constant
                      night_nodes, night_weights):
     """Add every Gauss moment of the day and the night to acc (canopy._gauss_integral). ``day_nodes``
     are symmetric about 0 (numpy's leggauss); an odd middle node (x = 0) is counted once."""
-    last_row = c3_table.shape[0] - 2
+    last_row = c3_table.shape[1] - 2
     n_day = day_nodes.shape[0]
     n_pairs = (n_day + 1) // 2
     n_day_moments = 2 * n_pairs
@@ -278,8 +278,8 @@ def _fill_harmless(setup, lane):
     for field in range(_N_SETUP):
         setup[field, lane] = 1.0
     setup[_S_A, lane] = 0.0
-    setup[_S_SHORTWAVE, lane] = 0.0
-    setup[_S_DIFFUSE, lane] = 0.0
+    setup[_S_GLOBAL_AMPLITUDE, lane] = 0.0
+    setup[_S_DIFFUSE_AMPLITUDE, lane] = 0.0
     setup[_S_TMIN, lane] = 20.0
     setup[_S_TMAX, lane] = 20.0
     setup[_S_DAY_LENGTH, lane] = 12.0
@@ -347,10 +347,11 @@ def _setup_lane(setup, cells, lane, cell, month, tmin, tmax, shortwave, water, h
     clearness = daily_clearness(daily_shortwave, extraterrestrial)
     setup[_S_ENERGY, lane] = energy_limited_transpiration_mm(t_low, t_high, vapour, daily_shortwave, extraterrestrial,
                                                             cells[_C_ELEVATION, lane], cells[_C_PRESSURE, lane])
-    setup[_S_SHORTWAVE, lane] = daily_shortwave
-    setup[_S_DIFFUSE, lane] = diffuse_fraction_daily(clearness) * daily_shortwave
-    setup[_S_INTEGRAL_GLOBAL, lane] = daylight_integral_of_sin_elevation(latitude_deg, declination)
-    setup[_S_INTEGRAL_DIFFUSE, lane] = daylight_integral_of_sin_elevation(latitude_deg, declination, 0.0)
+    setup[_S_GLOBAL_AMPLITUDE, lane] = daily_course_amplitude(
+        daily_shortwave, daylight_integral_of_sin_elevation(latitude_deg, declination))
+    setup[_S_DIFFUSE_AMPLITUDE, lane] = daily_course_amplitude(
+        diffuse_fraction_daily(clearness) * daily_shortwave,
+        daylight_integral_of_sin_elevation(latitude_deg, declination, 0.0))
     setup[_S_TMIN, lane] = t_low
     setup[_S_TMAX, lane] = t_high
     setup[_S_DAY_LENGTH, lane] = day_length(latitude_deg, day_of_year)

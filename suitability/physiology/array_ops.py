@@ -37,6 +37,12 @@ def one_minus_exp_neg(x):
     return -np.expm1(-x)
 
 
+def reciprocals(x, y, z):
+    """(1/x, 1/y, 1/z). For positive finite arguments whose product is a normal number (the compiled
+    form shares one division among the three, :mod:`.scalar_ops`); equations pass guarded denominators."""
+    return 1.0 / x, 1.0 / y, 1.0 / z
+
+
 def is_xarray(value) -> bool:
     # Checked by module name so that numpy-only callers never pay for importing xarray.
     return type(value).__module__.split(".")[0] == "xarray"

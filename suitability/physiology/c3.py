@@ -52,7 +52,7 @@ import numpy as np
 from . import array_ops as ops
 from .elementwise import equation
 from .models import LeafModel, LeafRates, register_leaf_model
-from .rubisco import effective_michaelis_constant, rubisco_constants
+from .rubisco import effective_michaelis_constant, effective_michaelis_constant_given_ratio, rubisco_constants
 from .temperature import KELVIN_OFFSET, R_GAS, arrhenius, peaked_arrhenius, peaked_given, q10_response
 
 #: A capacity that never limits (an unlimited Jmax or Tp) [µmol m-2 s-1]. A large finite number rather
@@ -224,23 +224,32 @@ def fvcb(co2_pa, o2_pa, absorbed_par, vcmax, jmax, tpu, rd, kc, ko, gamma_star, 
     standard form (gross = 3 Tp, module docstring), 3 Tp/(C − Γ*); the smallest ρ limits, gross =
     ρ (C − Γ*) and photorespiration = ρ Γ*, which stays finite at C = 0. TPU can limit only where C > Γ*.
     """
+    return fvcb_given_km(co2_pa, absorbed_par, vcmax, jmax, tpu, rd, effective_michaelis_constant(kc, ko, o2_pa),
+                         gamma_star, theta, spectral_correction)
+
+
+@equation
+def fvcb_given_km(co2_pa, absorbed_par, vcmax, jmax, tpu, rd, km, gamma_star, theta, spectral_correction):
+    """:func:`fvcb` with the effective Michaelis constant Km = Kc (1 + O/Ko) [Pa] given (O2 enters only
+    through it and Γ*); other arguments as there. Returns :class:`C3Rates`."""
     electron_transport = electron_transport_rate(absorbed_par, jmax, theta, spectral_correction)
-    rate_rubisco = vcmax / (co2_pa + effective_michaelis_constant(kc, ko, o2_pa))
     light_denominator = 4.0 * co2_pa + 8.0 * gamma_star
+    excess_co2 = co2_pa - gamma_star
     # Divisions are guarded rather than left to produce inf/NaN: under dask, np.errstate does not reach
     # the computation and the warnings would surface. C = Γ* = 0 (no CO2, no O2) leaves Rubisco limiting.
     # The inverses depend on CO2 and temperature only: a caller evaluating several leaves at one moment
-    # (sunlit, shaded) computes them once after inlining.
+    # (sunlit, shaded) computes them once after inlining, and the compiled form shares one division.
     positive = light_denominator > 0
-    inverse_light_denominator = 1.0 / ops.where(positive, light_denominator, 1.0)
+    inverse_michaelis, inverse_light_denominator, inverse_excess = ops.reciprocals(
+        co2_pa + km, ops.where(positive, light_denominator, 1.0), ops.where(excess_co2 > 0, excess_co2, 1.0))
+    rate_rubisco = vcmax * inverse_michaelis
     rate_light = ops.where(positive, electron_transport * inverse_light_denominator, ops.inf)
     light_limited = rate_light < rate_rubisco
     rate = ops.minimum(rate_rubisco, rate_light)
     # TPU (gross = 3 Tp, Sharkey 1985) limits where 3 Tp < ρ (C − Γ*), i.e. where 3 Tp/(C − Γ*) < ρ, which
     # needs C > Γ*; written without dividing by a C − Γ* that may be 0 or negative.
-    excess_co2 = co2_pa - gamma_star
     tpu_limited = (tpu < UNLIMITED_RATE) & (excess_co2 > 0) & (3.0 * tpu < rate * excess_co2)
-    rate = ops.where(tpu_limited, 3.0 * tpu * (1.0 / ops.where(excess_co2 > 0, excess_co2, 1.0)), rate)
+    rate = ops.where(tpu_limited, 3.0 * tpu * inverse_excess, rate)
     limitation = ops.where(tpu_limited, 3, ops.where(light_limited, 2, 1))
     gross = rate * excess_co2
     return C3Rates(gross - rd, gross, rate * gamma_star, limitation)
@@ -249,8 +258,9 @@ def fvcb(co2_pa, o2_pa, absorbed_par, vcmax, jmax, tpu, rd, kc, ko, gamma_star, 
 def fvcb_temperature_terms(temperature_c, params) -> tuple:
     """Leaf-temperature terms of the FvCB model for the compiled engine's tables and the numpy engine.
 
-    Returns (Kc [Pa], Ko [Pa], Γ* per Pa of O2 [-], Vcmax, Jmax, Tp [µmol m-2 s-1] before acclimation,
+    Returns (Kc [Pa], Kc/Ko [-], Γ* per Pa of O2 [-], Vcmax, Jmax, Tp [µmol m-2 s-1] before acclimation,
     Rd [µmol m-2 s-1], fArr(T; Hd) [-]) at leaf temperature ``temperature_c`` [°C] for a resolved C3 mapping.
+    Kc/Ko rather than Ko: Km = Kc + O · Kc/Ko then needs no division per leaf.
     "Before acclimation": for the "peaked" response Vcmax25 · fArr(T; Ha) and Jmax25 · fArr(T; Ha) with the
     set's own Jmax25, to be completed by :func:`fvcb_acclimated_terms` for a growth temperature; for the other
     responses the full values (and fArr(T; Hd) = 0). An unlimited Jmax or Tp is :data:`UNLIMITED_RATE`.
@@ -268,7 +278,7 @@ def fvcb_temperature_terms(temperature_c, params) -> tuple:
         deactivation = 0.0 * temperature_c
     jmax = UNLIMITED_RATE if math.isinf(params["jmax25"]) else params["jmax25"] * jmax_factor
     tpu = UNLIMITED_RATE if math.isinf(params["tpu25"]) else params["tpu25"] * vcmax_factor  # Tp follows Vcmax
-    return (kc, ko, gamma_per_o2, params["vcmax25"] * vcmax_factor, jmax, tpu, params["rd25"] * rd_factor,
+    return (kc, kc / ko, gamma_per_o2, params["vcmax25"] * vcmax_factor, jmax, tpu, params["rd25"] * rd_factor,
             deactivation)
 
 
@@ -289,7 +299,8 @@ def fvcb_acclimated_terms(terms, constants, growth_temperature_c):
     "peaked": Vcmax = terms[3] · peaked_given(1, fArr(T; Hd), ΔSv(Tg), Hd), Jmax alike with ΔSj(Tg), Tp
     follows Vcmax (:func:`~.temperature.peaked_given`, :func:`kattge_knorr_entropies`); where Jmax25 is
     derived, it is scaled by (2.59 − 0.035 Tg)/(2.59 − 0.035 Tg_set) (:func:`jmax_vcmax_ratio`).
-    Returns the first seven terms as :func:`fvcb_leaf_rates` reads them.
+    Returns the first seven terms as :func:`fvcb_leaf_rates` reads them (Kc, Kc/Ko and Γ* per Pa of O2
+    unchanged: Rubisco kinetics do not acclimate here).
     """
     peaked = constants[2] > 0.5
     vcmax_entropy, jmax_entropy = kattge_knorr_entropies(growth_temperature_c)
@@ -307,8 +318,9 @@ def fvcb_leaf_rates(terms, constants, absorbed_par, co2_pa, o2_pa, capacity_scal
     """The FvCB leaf from its temperature terms (:func:`fvcb_temperature_terms`) and constants
     (:func:`fvcb_constants`): absorbed PAR [µmol m-2 s-1], CO2 and O2 at Rubisco [Pa], ``capacity_scale``
     [-] on Vcmax. Returns :class:`~suitability.physiology.models.LeafRates`."""
-    rates = fvcb(co2_pa, o2_pa, absorbed_par, terms[3] * capacity_scale, terms[4], terms[5], terms[6],
-                 terms[0], terms[1], terms[2] * o2_pa, constants[0], constants[1])
+    rates = fvcb_given_km(co2_pa, absorbed_par, terms[3] * capacity_scale, terms[4], terms[5], terms[6],
+                          effective_michaelis_constant_given_ratio(terms[0], terms[1], o2_pa), terms[2] * o2_pa,
+                          constants[0], constants[1])
     return LeafRates(rates.net, rates.gross, rates.photorespiration, rates.limitation, ops.nan, ops.nan)
 
 

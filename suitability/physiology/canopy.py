@@ -68,14 +68,17 @@ from .energy import energy_limited_transpiration_mm
 from .leaf import leaf_assimilation
 from .light import (
     daily_clearness,
+    daily_course_amplitude,
     day_length,
     daylight_integral_of_sin_elevation,
     diffuse_absorption,
     diffuse_fraction_daily,
     extraterrestrial_radiation,
+    hour_angle,
     par_from_shortwave,
-    shortwave_daily_course,
+    shortwave_course_given_amplitude,
     sin_solar_elevation,
+    sin_solar_elevation_given_hour_angle,
     solar_declination,
     sun_shade_absorbed_par_given,
 )
@@ -134,8 +137,43 @@ def daily_temperature(tmin_c, tmax_c, solar_hour):
 
     Reference: common practice, no source (the form of Goudriaan & van Laar 1994, from memory).
     """
-    phase = 2.0 * ops.pi * (solar_hour - HOUR_OF_MAXIMUM_TEMPERATURE) / 24.0
-    return 0.5 * (tmax_c + tmin_c) + 0.5 * (tmax_c - tmin_c) * ops.cos(phase)
+    phase = hour_angle(solar_hour) - hour_angle(HOUR_OF_MAXIMUM_TEMPERATURE)  # 2π (t − 14) / 24
+    return daily_temperature_given_phase(tmin_c, tmax_c, ops.cos(phase))
+
+
+@equation
+def daily_temperature_given_phase(tmin_c, tmax_c, cos_phase):
+    """T = (Tmax + Tmin)/2 + (Tmax − Tmin)/2 · cos φ [°C] with cos φ = cos(2π (t − 14) / 24) given
+    (:func:`daily_temperature`); Tmin, Tmax [°C], cos φ [-]."""
+    return 0.5 * (tmax_c + tmin_c) + 0.5 * (tmax_c - tmin_c) * cos_phase
+
+
+@equation
+def symmetric_moments(a, b, tmin_c, tmax_c, solar_hour):
+    """sin β at t and the air temperatures at t and at 24 − t [°C], for a pair of moments symmetric
+    about solar noon (hour angles ±ω; sin β is even in ω).
+
+    One sine and one cosine of ω serve all three, by angle addition:
+    cos(±ω − ω₁₄) = cos ω cos ω₁₄ ± sin ω sin ω₁₄, ω₁₄ the hour angle of 14:00 (the temperature peak).
+
+    Parameters
+    ----------
+    a, b : sin φ sin δ and cos φ cos δ (:func:`~.light.solar_elevation_terms`) [-].
+    tmin_c, tmax_c : daily minimum and maximum temperature [°C].
+    solar_hour : t [h], the afternoon moment of the pair.
+
+    Returns (sin β [-], T(t) [°C], T(24 − t) [°C]); as :func:`~.light.sin_solar_elevation_from_terms`
+    and :func:`daily_temperature` at each moment, to rounding.
+    """
+    omega = hour_angle(solar_hour)
+    sin_omega = ops.sin(omega)
+    cos_omega = ops.cos(omega)
+    peak = hour_angle(HOUR_OF_MAXIMUM_TEMPERATURE)
+    cos_part = cos_omega * ops.cos(peak)
+    sin_part = sin_omega * ops.sin(peak)
+    return (sin_solar_elevation_given_hour_angle(a, b, cos_omega),
+            daily_temperature_given_phase(tmin_c, tmax_c, cos_part + sin_part),
+            daily_temperature_given_phase(tmin_c, tmax_c, cos_part - sin_part))
 
 
 @equation
@@ -165,20 +203,19 @@ def night_moment(day_length_h, node, weight):
 
 
 @equation
-def canopy_light(shortwave_mj, diffuse_shortwave_mj, sin_elevation, daylight_integral_s, daylight_integral_sin_s,
-                 lai, diffuse_absorbed_share):
+def canopy_light(global_amplitude_w, diffuse_amplitude_w, sin_elevation, lai, diffuse_absorbed_share):
     """Sun/shade absorbed PAR of the canopy at one moment (:class:`~.light.SunShadeLight`).
 
-    The daily global radiation [MJ m-2 d-1] is spread over the day as sin β (1 + 0.4 sin β) and the daily
-    diffuse radiation [MJ m-2 d-1] as sin β (its daylight integral ``daylight_integral_sin_s`` [s]), the
-    diffuse flux capped at the global one (module docstring); both become PAR
+    The daily global radiation is spread over the day as sin β (1 + 0.4 sin β) and the daily diffuse
+    radiation as sin β, the diffuse flux capped at the global one (module docstring), each through its
+    day's amplitude (:func:`~.light.daily_course_amplitude` of the daily total [MJ m-2 d-1] and the
+    daylight integral with c = 0.4, resp. c = 0) [W m-2]; both become PAR
     (:func:`~.light.par_from_shortwave`), split into beam and diffuse, and are absorbed by the sunlit and
-    shaded leaves (de Pury & Farquhar 1997). ``sin_elevation`` [-]; ``daylight_integral_s`` [s];
-    ``lai`` [m2 m-2]; ``diffuse_absorbed_share`` from :func:`~.light.diffuse_absorption` of ``lai`` [-].
+    shaded leaves (de Pury & Farquhar 1997). ``sin_elevation`` [-]; ``lai`` [m2 m-2];
+    ``diffuse_absorbed_share`` from :func:`~.light.diffuse_absorption` of ``lai`` [-].
     """
-    shortwave_w = shortwave_daily_course(shortwave_mj, sin_elevation, daylight_integral_s)
-    diffuse_w = ops.minimum(shortwave_daily_course(diffuse_shortwave_mj, sin_elevation, daylight_integral_sin_s, 0.0),
-                            shortwave_w)
+    shortwave_w = shortwave_course_given_amplitude(global_amplitude_w, sin_elevation)
+    diffuse_w = ops.minimum(shortwave_course_given_amplitude(diffuse_amplitude_w, sin_elevation, 0.0), shortwave_w)
     par = par_from_shortwave(shortwave_w)
     diffuse_par = par_from_shortwave(diffuse_w)
     return sun_shade_absorbed_par_given(par - diffuse_par, diffuse_par, lai, sin_elevation, diffuse_absorbed_share)
@@ -194,9 +231,8 @@ class _Day:
     shortwave_mj: Any
     latitude_deg: Any
     declination: Any
-    daylight_integral_s: Any
-    diffuse_shortwave_mj: Any
-    daylight_integral_sin_s: Any
+    global_amplitude_w: Any
+    diffuse_amplitude_w: Any
     day_length_h: Any
     co2_ppm: Any
     pressure_kpa: Any
@@ -227,8 +263,7 @@ def _canopy_rates(day: _Day, solar_hour):
     """Net, gross and photorespiration of the canopy at one moment [µmol m-2 ground s-1], and its
     transpiration with stomata at their optimum [mol H2O m-2 ground s-1]."""
     sin_b = sin_solar_elevation(day.latitude_deg, day.declination, solar_hour)
-    light = canopy_light(day.shortwave_mj, day.diffuse_shortwave_mj, sin_b, day.daylight_integral_s,
-                         day.daylight_integral_sin_s, day.lai, diffuse_absorption(day.lai))
+    light = canopy_light(day.global_amplitude_w, day.diffuse_amplitude_w, sin_b, day.lai, diffuse_absorption(day.lai))
     temperature = daily_temperature(day.tmin_c, day.tmax_c, solar_hour)
     sun, sun_water = _leaf(day, temperature, light.sunlit_absorbed_per_leaf)
     shade, shade_water = _leaf(day, temperature, light.shaded_absorbed_per_leaf)
@@ -264,10 +299,11 @@ def _prepare(pathway, *, tmin_c, tmax_c, shortwave_mj, latitude_deg, day_of_year
     day = _Day(
         pathway=pathway, tmin_c=tmin_c, tmax_c=tmax_c, shortwave_mj=shortwave_mj,
         latitude_deg=latitude_deg, declination=declination,
-        daylight_integral_s=daylight_integral_of_sin_elevation(latitude_deg, declination),
-        diffuse_shortwave_mj=diffuse_fraction_daily(clearness) * shortwave_mj,
-        daylight_integral_sin_s=daylight_integral_of_sin_elevation(latitude_deg, declination,
-                                                                   atmospheric_factor=0.0),
+        global_amplitude_w=daily_course_amplitude(
+            shortwave_mj, daylight_integral_of_sin_elevation(latitude_deg, declination)),
+        diffuse_amplitude_w=daily_course_amplitude(
+            diffuse_fraction_daily(clearness) * shortwave_mj,
+            daylight_integral_of_sin_elevation(latitude_deg, declination, atmospheric_factor=0.0)),
         day_length_h=day_length(latitude_deg, day_of_year), co2_ppm=co2_ppm, pressure_kpa=pressure,
         vpd_kpa=vpd_kpa, actual_vapour_pressure_kpa=actual_vapour_pressure_kpa,
         water_availability=water_availability, lai=lai, o2_percent=o2_percent,

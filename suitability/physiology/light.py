@@ -126,9 +126,13 @@ def sunset_hour_angle(latitude_deg, declination_rad):
     Reference: Allen et al. (1998) FAO-56, eq. 25.
     """
     valid = ops.in_range(latitude_deg, -90.0, 90.0)
-    phi = ops.deg2rad(ops.where_valid(valid, latitude_deg, 0.0))
+    # tan φ tan δ = (sin φ sin δ)/(cos φ cos δ) = a/b of solar_elevation_terms, which callers compute anyway
+    # (no tangent to evaluate). cos φ cos δ >= 0 for |φ| <= 90°; rounding can leave it 0 or a hair below 0 at
+    # a pole, where the floor keeps the sign of tan φ tan δ (polar day or night, as the tangents give).
+    a, b = solar_elevation_terms(latitude_deg, declination_rad)  # invalid φ: NaN below anyway
+    tangents = a / ops.maximum(b, 1e-300)
     # ops.minimum/ops.maximum rather than ops.clip: they are ufuncs, which xarray and dask keep lazy.
-    omega = ops.arccos(ops.minimum(ops.maximum(-ops.tan(phi) * ops.tan(declination_rad), -1.0), 1.0))
+    omega = ops.arccos(ops.minimum(ops.maximum(-tangents, -1.0), 1.0))
     return ops.where_valid(valid, omega)
 
 
@@ -219,7 +223,27 @@ def sin_solar_elevation_from_terms(a, b, solar_hour):
     a, b : sin φ sin δ and cos φ cos δ [-].
     solar_hour : t, local apparent solar time [h].
     """
-    return a + b * ops.cos(ops.pi * (solar_hour - 12.0) / 12.0)
+    return sin_solar_elevation_given_hour_angle(a, b, ops.cos(hour_angle(solar_hour)))
+
+
+@equation
+def hour_angle(solar_hour):
+    """Solar hour angle ω = π (t − 12) / 12 [rad] (FAO-56 eq. 31, in solar time), 0 at solar noon.
+
+    Parameters
+    ----------
+    solar_hour : t, local apparent solar time [h].
+    """
+    return (ops.pi / 12.0) * (solar_hour - 12.0)
+
+
+@equation
+def sin_solar_elevation_given_hour_angle(a, b, cos_hour_angle):
+    """sin β = a + b cos ω [-] from a, b of :func:`solar_elevation_terms` and cos ω of :func:`hour_angle`.
+
+    sin β is even in ω: the moments t and 24 − t (ω and −ω) see the same sun.
+    """
+    return a + b * cos_hour_angle
 
 
 @equation
@@ -272,11 +296,42 @@ def shortwave_daily_course(daily_shortwave_mj, sin_elevation, daylight_integral_
 
     Reference: Goudriaan & van Laar (1994); Spitters et al. (1986) (form from memory).
     """
-    sun_up = (sin_elevation > 0) & (daylight_integral_s > 0)
-    safe_integral = ops.where_valid(sun_up, daylight_integral_s, 1.0)
-    sin_b = ops.maximum(sin_elevation, 0.0)
-    course = 1e6 * daily_shortwave_mj * sin_b * (1.0 + atmospheric_factor * sin_b) / safe_integral
-    return ops.where_valid(daily_shortwave_mj >= 0, ops.where_valid(sun_up, course, 0.0))
+    return shortwave_course_given_amplitude(daily_course_amplitude(daily_shortwave_mj, daylight_integral_s),
+                                            sin_elevation, atmospheric_factor)
+
+
+@equation
+def daily_course_amplitude(daily_shortwave_mj, daylight_integral_s):
+    """A = 10⁶ Sg,day / ∫ sin β (1 + c sin β) dt [W m-2], so that Sg(t) = A sin β (1 + c sin β)
+    (:func:`shortwave_daily_course`); 0 where the integral is 0 (polar night); NaN where Sg,day < 0.
+
+    It is fixed for the day, so a caller evaluating many moments computes it (and its division) once.
+
+    Parameters
+    ----------
+    daily_shortwave_mj : daily global (or diffuse) radiation [MJ m-2 d-1].
+    daylight_integral_s : :func:`daylight_integral_of_sin_elevation` for the day, with the same c [s].
+    """
+    has_daylight = daylight_integral_s > 0
+    amplitude = 1e6 * daily_shortwave_mj / ops.where(has_daylight, daylight_integral_s, 1.0)
+    return ops.where_valid(daily_shortwave_mj >= 0, ops.where(has_daylight, amplitude, 0.0))
+
+
+@equation
+def shortwave_course_given_amplitude(amplitude_w, sin_elevation, atmospheric_factor=DAILY_COURSE_ATMOSPHERIC_FACTOR):
+    """Sg(t) = A sin β (1 + c sin β) [W m-2], 0 while the sun is down (sin β <= 0).
+
+    Parameters
+    ----------
+    amplitude_w : A of :func:`daily_course_amplitude` [W m-2] (NaN stays NaN, also at night).
+    sin_elevation : sin β [-].
+    atmospheric_factor : c [-], the one of the daylight integral behind ``amplitude_w``.
+
+    Reference: Goudriaan & van Laar (1994); Spitters et al. (1986) (form from memory).
+    """
+    sun_up = sin_elevation > 0
+    sin_b = ops.where(sun_up, sin_elevation, 0.0)
+    return ops.where(sun_up, amplitude_w * sin_b * (1.0 + atmospheric_factor * sin_b), 0.0 * amplitude_w)
 
 
 @equation
@@ -520,7 +575,9 @@ def sun_shade_absorbed_par_given(beam_par, diffuse_par, lai, sin_elevation, diff
     e_kbs = ops.one_minus_exp_neg(kb_s * lai)
     e_2kb = e_kb * (2.0 - e_kb)
     diffuse_to_sunlit = kd_s / (kd_s + kb) * (e_kd + e_kb - e_kd * e_kb)
-    scattered_to_sunlit = kb_s / (kb_s + kb) * (e_kbs + e_kb - e_kbs * e_kb)
+    # kb'/(kb' + kb) with kb' = kb √(1 − σ) is √(1 − σ)/(√(1 − σ) + 1): the same for every kb
+    root = scattered_extinction_coefficient(1.0, scattering)
+    scattered_to_sunlit = root / (root + 1.0) * (e_kbs + e_kb - e_kbs * e_kb)
     canopy = absorbed_beam * e_kbs + absorbed_diffuse * e_kd
     sunlit = (direct * e_kb + absorbed_diffuse * diffuse_to_sunlit
               + absorbed_beam * scattered_to_sunlit - direct * e_2kb / 2.0)

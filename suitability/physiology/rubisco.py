@@ -102,7 +102,18 @@ def effective_michaelis_constant(kc, ko, o2):
 
     Farquhar, von Caemmerer & Berry (1980) Planta 149:78. ``o2`` in the units of ``ko``.
     """
-    return kc * (1.0 + o2 / ko)
+    return effective_michaelis_constant_given_ratio(kc, kc / ko, o2)
+
+
+@equation
+def effective_michaelis_constant_given_ratio(kc, kc_over_ko, o2):
+    """Km = Kc + O · Kc/Ko (= Kc (1 + O/Ko), :func:`effective_michaelis_constant`) [units of kc], from Kc
+    and the ratio Kc/Ko [-]; both depend on temperature only, so a compiled caller tabulates them and
+    needs no division here. ``o2`` in the units of Ko.
+
+    Farquhar, von Caemmerer & Berry (1980) Planta 149:78.
+    """
+    return kc + o2 * kc_over_ko
 
 
 def rubisco_constants(kinetics: str, temperature_c, o2_pa) -> RubiscoConstants:

@@ -84,6 +84,15 @@ def in_range(value, low, high):
 
 
 @numba.njit(**_JIT)
+def reciprocals(x, y, z):
+    # One division for three reciprocals: r = 1/(xyz), then 1/x = r·yz and so on (a few ulp; the
+    # divider, not the multipliers, limits the kernel's vectorised loops).
+    yz = y * z
+    r = 1.0 / (x * yz)
+    return r * yz, r * (x * z), r * (x * y)
+
+
+@numba.njit(**_JIT)
 def weak_scalar(value):
     return value
 

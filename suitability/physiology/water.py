@@ -39,8 +39,32 @@ VAPOUR_TO_CO2_DIFFUSIVITY = 1.6
 
 
 @equation
+def transpiration_per_assimilation(co2_ppm, intercellular_co2_ppm, vpd_kpa, pressure_kpa):
+    """Water transpired per CO2 assimilated through open stomata, E/A = 1.6 D / ((Ca − Ci) P)
+    [mol H2O (µmol CO2)-1]; 0 where Ca <= Ci (no drawdown: stomata closed).
+
+    It depends on the air and the stomatal ratio Ci/Ca only, not on the leaf's light: the sunlit and the
+    shaded leaf of one moment share it (one division per moment instead of one per leaf).
+
+    Parameters
+    ----------
+    co2_ppm, intercellular_co2_ppm : Ca and Ci [µmol mol-1].
+    vpd_kpa : leaf-to-air vapour pressure deficit D [kPa].
+    pressure_kpa : air pressure P [kPa].
+
+    Reference: Medlyn et al. (2011) (gs = 1.6 A / (Ca − Ci) with g0 = 0); Fick's law (E = gs D / P).
+    """
+    drawdown = co2_ppm - intercellular_co2_ppm
+    positive = drawdown > 0
+    return ops.where(positive, VAPOUR_TO_CO2_DIFFUSIVITY * vpd_kpa
+                     / (ops.where(positive, drawdown, 1.0) * pressure_kpa), 0.0)
+
+
+@equation
 def leaf_transpiration(net_assimilation, co2_ppm, intercellular_co2_ppm, vpd_kpa, pressure_kpa):
     """Leaf transpiration E = gs D / P with gs = 1.6 A / (Ca − Ci) [mol H2O m-2 s-1]; 0 where A <= 0.
+
+    Written E = A · (E/A) with :func:`transpiration_per_assimilation`.
 
     Parameters
     ----------
@@ -51,10 +75,8 @@ def leaf_transpiration(net_assimilation, co2_ppm, intercellular_co2_ppm, vpd_kpa
 
     Reference: Medlyn et al. (2011) (gs from A, Ca and Ci with g0 = 0); Fick's law.
     """
-    drawdown = co2_ppm - intercellular_co2_ppm
-    open_stomata = (net_assimilation > 0) & (drawdown > 0)
-    conductance = VAPOUR_TO_CO2_DIFFUSIVITY * net_assimilation / ops.where(open_stomata, drawdown, 1.0)
-    return ops.where(open_stomata, conductance * vpd_kpa / pressure_kpa, 0.0)
+    ratio = transpiration_per_assimilation(co2_ppm, intercellular_co2_ppm, vpd_kpa, pressure_kpa)
+    return ops.where(net_assimilation > 0, net_assimilation * ratio, 0.0)
 
 
 @equation
