@@ -371,6 +371,15 @@ def test_a_key_given_twice_is_an_error_with_both_lines(tmp_path):
     assert "'tmin' is given twice" in message and f"first on line {first}" in message
 
 
+def test_a_list_as_a_key_is_a_config_error_with_its_line(tmp_path):
+    # Source: YAML 1.2 spec, 6.9.1 / example 2.11: "? [a, b]" is a legal complex mapping key; a config's keys
+    # are names, so it is refused as a config error naming the line (found by the hypothesis test of
+    # tests/reliability/test_robustness_properties.py, which raised TypeError before).
+    text = "region:\n  name: x\n  ? [a, b]\n  : 1\n"
+    message = error_of(tmp_path, text)
+    assert "a key must be a name, not a list" in message and "line 3" in message, message
+
+
 @pytest.mark.parametrize("text, expected", [("", "empty"), ("- a\n- b\n", "expected a mapping"), ("just text", "expected a mapping")])
 def test_empty_or_non_mapping_files_are_refused(tmp_path, text, expected):
     assert expected in error_of(tmp_path, text)

@@ -12,6 +12,8 @@ for billions of values); aliases that contain themselves are refused.
 
 from __future__ import annotations
 
+from collections.abc import Hashable
+
 import os
 import stat
 import types
@@ -33,6 +35,10 @@ def _no_duplicate_keys(loader: _UniqueKeyLoader, node: yaml.MappingNode, deep: b
     seen: dict[Any, int] = {}
     for key_node, _ in node.value:
         key = loader.construct_object(key_node, deep=deep)
+        if not isinstance(key, Hashable):  # YAML allows a list or mapping as a key ("? [a, b]"); no config does
+            raise yaml.constructor.ConstructorError(
+                None, None, f"a key must be a name, not a {type(key).__name__}", key_node.start_mark
+            )
         if key in seen:
             raise yaml.constructor.ConstructorError(
                 None, None, f"key {key!r} is given twice (first on line {seen[key]})", key_node.start_mark
