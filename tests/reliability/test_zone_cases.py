@@ -103,6 +103,6 @@ def test_polygons_outside_the_grid_get_flagged_rows(tmp_path, finished_run):
     for name, geometry in zip(districts["district"], districts.geometry):
         expected = geometry.intersection(grid_box).area / geometry.area
         rows = table[table["district"] == name]
-        # The district CSV rounds shares to 4 decimals (reports.zones), so within half of that step.
+        # The district CSV rounds shares to 4 decimals (reports.brief), so within half of that step.
         assert rows["coverage_share"].sub(expected).abs().max() <= 5e-5 + 1e-12, name
         assert rows["flag"].fillna("").str.contains("partly outside").all() == (expected < 0.999), name
