@@ -326,19 +326,18 @@ class _Figures:
 
     def class_map(self, scenario: ScenarioInfo, district: str | None = None) -> str:
         title = f"{_title_words(scenario, self._context)}: where each kind of crop has the advantage"
-        return self._get(("class", scenario.name, district), f"{district or ''}_{scenario.name}_class_map",
-                         lambda: figures.class_map_figure(
-                             Path(scenario.output_folder) / "pathway_class.tif", self._zones, title=title,
-                             highlight=district, numbers=self.numbers, zoom=district is not None,
-                             size_in=HALF_PAGE_MAP_IN))
+        return self._map("class", figures.class_map_figure, "pathway_class.tif", title, scenario, district)
 
     def change_map(self, scenario: ScenarioInfo, district: str | None = None) -> str:
         title = f"Change of the advantage: {_title_words(scenario, self._context)} against today"
-        return self._get(("change", scenario.name, district), f"{district or ''}_{scenario.name}_change_map",
-                         lambda: figures.change_map_figure(
-                             Path(scenario.output_folder) / "advantage_change.tif", self._zones, title=title,
-                             highlight=district, numbers=self.numbers, zoom=district is not None,
-                             size_in=HALF_PAGE_MAP_IN))
+        return self._map("change", figures.change_map_figure, "advantage_change.tif", title, scenario, district)
+
+    def _map(self, kind, draw, layer_file, title, scenario: ScenarioInfo, district: str | None) -> str:
+        """A map of one of the scenario's layers (zoomed to ``district`` if given), drawn once per brief run."""
+        return self._get((kind, scenario.name, district), f"{district or ''}_{scenario.name}_{kind}_map",
+                         lambda: draw(Path(scenario.output_folder) / layer_file, self._zones, title=title,
+                                      highlight=district, numbers=self.numbers, zoom=district is not None,
+                                      size_in=HALF_PAGE_MAP_IN))
 
     def crossover_points(self, scenarios: Sequence[ScenarioInfo]) -> pd.DataFrame | None:
         """Per district and scenario: warm-month temperature and the crossover quantiles of its cells."""
