@@ -37,7 +37,9 @@ Layers (:func:`write_layers`)
     writes make GDAL rewrite compressed tiles (files up to 60 % larger for the same pixels).
 
 Datacube (:func:`write_datacube`): NetCDF4 with CF attributes, the CRS as a CF grid mapping (rioxarray),
-    zlib compression, written chunk by chunk, under a temporary name and renamed.
+    zlib compression, written chunk by chunk, under a temporary name and renamed. Given to
+    :func:`write_layers` (``datacube=``), it is written in the same dask pass as the layers, so the model
+    blocks both read are computed once.
 Manifest (:func:`write_manifest`): JSON (strict: NaN/inf become null), written atomically.
 Every file goes through :func:`suitability.atomic.atomic_write` (temporary name, then ``os.replace``).
 """
@@ -174,8 +176,13 @@ def check_output_folder(folder, names: Iterable[str] = (), overwrite: bool = Fal
 
 
 def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[str, Any] | None = None,
-                 cog_options: Any = None, lock=None) -> dict[str, Path]:
+                 cog_options: Any = None, lock=None, datacube: xr.Dataset | None = None,
+                 datacube_path=None) -> dict[str, Path]:
     """Compute all ``layers`` in one dask pass and write each as a validated COG ``<folder>/<name>.tif``.
+
+    datacube, datacube_path: a Dataset written as :func:`write_datacube` writes it, in the SAME dask pass
+    (the model blocks the layers and the datacube share are computed once), renamed onto ``datacube_path``
+    after the layers; the returned mapping then also has ``"datacube"``.
 
     layers: name (a key of OUTPUT_VARIABLES) -> (y, x) DataArray, dask-backed or not, with a CRS written by
         rioxarray, all on one grid. Class layers: integer codes (or floats with NaN as nodata).
@@ -206,8 +213,12 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
             sources.append(source)
             targets.append(BlockWriter(staged[name], _lock_for(name, lock, staged[name])))
         stored = da.store(sources, targets, lock=False, compute=False)
+        stored = list(stored) if isinstance(stored, (tuple, list)) else [stored]
+        if datacube is not None:
+            staged_cube = staging / f".{Path(datacube_path).name}.tmp-{os.getpid()}"
+            stored.append(_datacube_writer(datacube, Path(datacube_path), staged_cube))
         try:
-            compute(*(stored if isinstance(stored, (tuple, list)) else (stored,)))
+            compute(*stored)
         except OutputError:
             raise
         except Exception as error:
@@ -225,6 +236,9 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
             if name in sidecars:
                 os.replace(sidecars[name], pam_sidecar_path(written[name]))
             os.replace(path, written[name])
+        if datacube is not None:
+            written["datacube"] = Path(datacube_path)
+            os.replace(staged_cube, written["datacube"])
         return written
     except OutputError:
         raise
@@ -314,6 +328,15 @@ def write_datacube(ds: xr.Dataset, path) -> Path:
     """
     path = Path(path)
     check_output_folder(path.parent, overwrite=True)
+
+    def write(temporary: Path) -> None:
+        compute(_datacube_writer(ds, path, temporary))
+
+    return atomic_write(path, write, what="the datacube")
+
+
+def _datacube_writer(ds: xr.Dataset, path: Path, temporary: Path):
+    """The delayed NetCDF write of :func:`write_datacube` into ``temporary`` (``path`` names it in errors)."""
     crs = ds.rio.crs
     if crs is None:
         raise OutputError(f"{path}: the datacube has no CRS; write one with .rio.write_crs() first")
@@ -348,10 +371,7 @@ def write_datacube(ds: xr.Dataset, path) -> Path:
     encoding.update({name: {"_FillValue": None} for name, coord in ds.coords.items()
                      if coord.dtype.kind == "f" and name in ds.dims})
 
-    def write(temporary: Path) -> None:
-        compute(ds.to_netcdf(temporary, engine="netcdf4", format="NETCDF4", encoding=encoding, compute=False))
-
-    return atomic_write(path, write, what="the datacube")
+    return ds.to_netcdf(temporary, engine="netcdf4", format="NETCDF4", encoding=encoding, compute=False)
 
 
 def write_manifest(manifest: Mapping[str, Any], path) -> Path:

@@ -30,7 +30,7 @@ from .inputs import load_climate, load_mask
 from .inputs.readers import member_labels
 from .model import evaluate
 from .outputs import (check_output_folder, dictionary_path, remove_leftovers, with_sidecars, write_csv,
-                      write_data_dictionary, write_datacube, write_layers, write_manifest)
+                      write_data_dictionary, write_layers, write_manifest)
 from .provenance import (MANIFEST_NAME, SUMMARY_COLUMNS, build_manifest, class_summary, input_checksums, input_files,
                          scenario_tags)
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
@@ -532,16 +532,15 @@ def _write_scenario(cfg, grid, runtime, scenario, result, written, tags, names) 
         layers.update(_change_layers(written[cfg.baseline], result, names, cfg.compute.chunk_size))
     layers = {name: _georeferenced(layers[name], grid) for name in names}
     scenario_folder = Path(cfg.output.folder) / scenario.name
+    cube = None
+    if cfg.output.datacube:  # written in the same dask pass as the layers: the model runs once
+        cube = result[list(layer_names(DATACUBE)) + [n for n in layer_names(DERIVED) if n in result]]
+        cube.attrs.update(tags)
+        cube = _georeferenced(cube, grid)
     with _input_errors_named(cfg, scenario):
         with runtime.progress(f"{scenario.name}: computing and writing"):
-            paths = with_sidecars(write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog,
-                                               lock=None))
-        if cfg.output.datacube:
-            cube = result[list(layer_names(DATACUBE)) + [n for n in layer_names(DERIVED) if n in result]]
-            cube.attrs.update(tags)
-            with runtime.progress(f"{scenario.name}: monthly datacube"):
-                paths["datacube"] = write_datacube(_georeferenced(cube, grid), scenario_folder / DATACUBE_NAME)
-    return paths
+            return with_sidecars(write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog,
+                                              lock=None, datacube=cube, datacube_path=scenario_folder / DATACUBE_NAME))
 
 
 @contextmanager
