@@ -412,6 +412,28 @@ def test_one_compiled_signature_and_the_disk_cache_serves_a_fresh_process():
     assert (hits, misses) == (1, 0)
 
 
+def test_threads_arriving_together_share_one_compiled_entry():
+    # dask hands a run's first blocks to several threads at once; each must get the same dispatcher,
+    # or each compiles the kernel again (functools.lru_cache alone may call the function twice when two
+    # threads miss together: Python documentation, functools.lru_cache).
+    import threading
+
+    kernel._compiled_entry.cache_clear()  # the dispatcher is built again (its compiled code comes from disk)
+    barrier = threading.Barrier(4)
+    found = []
+
+    def ask():
+        barrier.wait()
+        found.append(kernel.compiled_entry(kernel.pathway_tables("C3").model, kernel.pathway_tables("C4").model))
+
+    threads = [threading.Thread(target=ask) for _ in range(4)]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    assert len(found) == 4 and len({id(entry) for entry in found}) == 1
+
+
 def test_both_engines_match_the_independent_oracle():
     # tests/oracle_canopy.py: the daily canopy model written a second time by hand, straight from the
     # papers (FAO-56, Spitters et al. 1986, de Pury & Farquhar 1997, Bernacchi et al. 2001, Kattge &
