@@ -38,7 +38,8 @@ _TIME_NAMES = ("month", "time")
 
 def evaluate(dataset: xr.Dataset, scenario: Any = None, *, physiology: Any = None, season: Any = None,
              classes: Any = None, scenario_layers: xr.Dataset | None = None, engine: str | None = None,
-             crs: Any = None, uncertainty: Any = None, baseline: Any = None) -> xr.Dataset:
+             crs: Any = None, uncertainty: Any = None, baseline: Any = None,
+             monthly_crossover: bool = True) -> xr.Dataset:
     """Both pathways' potential assimilation and every per-scenario indicator for a monthly climate dataset.
 
     dataset: monthly ``tmin`` and ``tmax`` (or ``tmean``), ``shortwave`` (or ``par``), ``water_availability``,
@@ -53,6 +54,9 @@ def evaluate(dataset: xr.Dataset, scenario: Any = None, *, physiology: Any = Non
     uncertainty: a mapping ``{"draws": n, "seed": s}`` (as the config's ``uncertainty``) adds the layers of
         the parameter draws (probability of C4 advantage, quantiles, confidence class); ``baseline``
         (a scenario mapping, on the same dataset) adds the paired change layers against it.
+    monthly_crossover: False solves the canopy crossover for each cell's warmest season month only (the
+        seasonal ``crossover_temperature``, about a twelfth of the search) and leaves out
+        ``monthly_crossover_temperature``.
 
     Returns a Dataset: seasonal layers on the horizontal dims, monthly layers with a ``month`` dim, each with
     ``units`` and ``long_name``; attributes name the scenario, the caution and the assumptions.
@@ -64,7 +68,8 @@ def evaluate(dataset: xr.Dataset, scenario: Any = None, *, physiology: Any = Non
     climate, spatial = _normalise(dataset, crs, what="dataset")
     own = _normalise(scenario_layers, crs, what="scenario_layers", need_latitude=False)[0] if scenario_layers is not None else None
     result = model.evaluate(climate, scenario, physiology=physiology, season=season, classes=classes,
-                            scenario_layers=own, engine=engine, uncertainty=uncertainty, baseline=baseline)
+                            scenario_layers=own, engine=engine, uncertainty=uncertainty, baseline=baseline,
+                            monthly_crossover=monthly_crossover)
     for name, layer in result.data_vars.items():
         entry = OUTPUT_LAYERS.get(name)
         if entry is not None:

@@ -80,17 +80,27 @@ def c4_favoured_months(monthly_c3, monthly_c4, in_season, margin: float = 0.05):
     return _where(missing, np.float32(np.nan), count)
 
 
+def warmest_season_month(monthly_mean_c, in_season):
+    """Index (0-11) of the warmest season month of each cell (the first of equally warm ones), and whether
+    the cell has one (False where it has no season month or its temperatures are NaN).
+
+    monthly_mean_c [°C], in_season: (..., 12), month last.
+    """
+    warmth = np.where(in_season & np.isfinite(monthly_mean_c), monthly_mean_c, -np.inf)
+    warmest = np.argmax(warmth, axis=-1)
+    has = np.isfinite(np.take_along_axis(warmth, warmest[..., None], axis=-1)[..., 0])
+    return warmest, has
+
+
 def warmest_month_value(monthly_values, monthly_mean_c, in_season):
-    """The value of the warmest season month of each cell (the first of equally warm ones); NaN where a
+    """The value of the warmest season month of each cell (:func:`warmest_season_month`); NaN where a
     cell has no season month or its temperatures are NaN.
 
     monthly_values, monthly_mean_c [°C], in_season: (..., 12), month last. Used for the seasonal canopy
     crossover: that month is C4-favoured exactly when its mean temperature is above the value.
     """
-    warmth = np.where(in_season & np.isfinite(monthly_mean_c), monthly_mean_c, -np.inf)
-    warmest = np.argmax(warmth, axis=-1)[..., None]
-    value = np.take_along_axis(np.asarray(monthly_values, np.float64), warmest, axis=-1)[..., 0]
-    has = np.isfinite(np.take_along_axis(warmth, warmest, axis=-1)[..., 0])
+    warmest, has = warmest_season_month(monthly_mean_c, in_season)
+    value = np.take_along_axis(np.asarray(monthly_values, np.float64), warmest[..., None], axis=-1)[..., 0]
     return np.where(has, value, np.nan)
 
 

@@ -82,6 +82,9 @@ class ModelSettings:
         Kattge & Knorr 2007) or "parameter_set" (the C3 set's own ``growth_temperature_c`` everywhere).
     crossover: solve the canopy crossover per cell and month (:func:`canopy_crossover`); False leaves the
         crossover layers NaN.
+    monthly_crossover: solve it for every season month (the datacube's ``monthly_crossover_temperature``);
+        False: only for each cell's warmest season month, all that ``crossover_temperature`` needs (the
+        search then costs about a twelfth), and the result has no ``monthly_crossover_temperature``.
     """
 
     scenario: ScenarioSettings
@@ -98,6 +101,7 @@ class ModelSettings:
     baseline: ScenarioSettings | None = None
     growth_temperature: str = "month_mean"
     crossover: bool = True
+    monthly_crossover: bool = True
 
     def draw_params(self):
         """The draws as (C3 parameters, C4 parameters) dicts."""
@@ -135,6 +139,7 @@ def evaluate(
     uncertainty: Any = None,
     baseline: Any = None,
     baseline_layers: xr.Dataset | None = None,
+    monthly_crossover: bool = True,
 ) -> xr.Dataset:
     """Evaluate both pathways on a climate dataset and return every per-scenario output layer.
 
@@ -155,12 +160,14 @@ def evaluate(
         parameter draw on the same inputs (:mod:`suitability.physiology.uncertainty`).
     baseline, baseline_layers: the baseline scenario (and its own layers) to pair the draws with, for the
         paired layers (``towards_c4_probability``, ``class_change_probability``); only with ``uncertainty``.
+    monthly_crossover: also solve the canopy crossover of every season month (``ModelSettings``); False
+        (the pipeline without a datacube) leaves ``monthly_crossover_temperature`` out of the result.
 
     Returns a Dataset with the layers of ``SEASONAL_LAYERS`` (y, x) and ``MONTHLY_LAYERS`` (month, y, x),
     assimilation in g C m-2 per season or month; ``pathway_class`` is uint8 with 255 as nodata.
     """
     settings = model_settings(scenario, physiology=physiology, season=season, classes=classes, engine=engine,
-                              uncertainty=uncertainty, baseline=baseline)
+                              uncertainty=uncertainty, baseline=baseline, monthly_crossover=monthly_crossover)
     names, arrays, climate = _model_arrays(dataset, settings.scenario, scenario_layers, physiology)
     derived = "derived_water_availability" in climate
     spatial_dims = climate["latitude"].dims
@@ -177,6 +184,8 @@ def evaluate(
     result = _unstack(stacked, settings)
     if derived:  # the registry's "derived" layer: written to the datacube
         result["derived_water_availability"] = climate["derived_water_availability"]
+    if not settings.monthly_crossover:
+        result = result.drop_vars("monthly_crossover_temperature")
     return result
 
 
@@ -261,7 +270,8 @@ def _evaluate_embedded(inputs: _BlockInputs, names: Sequence[str], settings: Mod
 
 
 def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None,
-                   engine: str | None = None, uncertainty: Any = None, baseline: Any = None) -> ModelSettings:
+                   engine: str | None = None, uncertainty: Any = None, baseline: Any = None,
+                   monthly_crossover: bool = True) -> ModelSettings:
     """Collect the model's settings from config sections or plain mappings (see :func:`evaluate`).
 
     The parameter draws are made here, once, from the parameter sets and the seed alone, so every block
@@ -302,6 +312,7 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         baseline=ScenarioSettings.from_any(baseline) if baseline is not None else None,
         growth_temperature=str(_get(physiology, "growth_temperature", "month_mean")),
         crossover=bool(_get(physiology, "crossover_temperature", True)),
+        monthly_crossover=bool(monthly_crossover),
     )
 
 
@@ -328,11 +339,12 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
         settings.contested_margin,
     )
     share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
+    month_mean = month_mean_temperature(data)
     if settings.crossover:
-        monthly_crossover = canopy_crossover(block, settings, in_season & valid[..., None], monthly)
+        monthly_crossover = canopy_crossover(block, settings, _crossover_months(block, settings, month_mean), monthly)
     else:
         monthly_crossover = np.full(in_season.shape, np.nan)
-    crossover = indicators.warmest_month_value(monthly_crossover, month_mean_temperature(data), in_season)
+    crossover = indicators.warmest_month_value(monthly_crossover, month_mean, in_season)
     seasonal = {"c3_assimilation": season_c3, "c4_assimilation": season_c4, "pathway_advantage": advantage,
                 "pathway_class": classes, "c4_favoured_months": months_favoured,
                 "growing_season_months": indicators.growing_season_months(np.moveaxis(in_season, -1, 0), valid),
@@ -443,6 +455,16 @@ def _uncertainty_layers(block: _Block, base_block: _Block | None, settings: Mode
 
 
 
+def _crossover_months(block: _Block, settings: ModelSettings, month_mean: np.ndarray) -> np.ndarray:
+    """The months (bool (..., 12)) whose canopy crossover is solved: every season month of the valid cells,
+    or with ``settings.monthly_crossover`` False only the warmest one (the seasonal layer's month)."""
+    months = block.in_season & block.valid[..., None]
+    if settings.monthly_crossover:
+        return months
+    warmest, has = indicators.warmest_season_month(month_mean, block.in_season)
+    return months & (np.arange(12) == warmest[..., None]) & has[..., None]
+
+
 def month_mean_temperature(data) -> np.ndarray:
     """The monthly mean air temperature (Tmin + Tmax)/2 [°C], (..., 12) float64, as the season rule uses it."""
     return 0.5 * (np.asarray(data["tmin"], np.float64) + np.asarray(data["tmax"], np.float64))
@@ -507,16 +529,22 @@ def _crossover_of_cells(flat, settings: ModelSettings, scenario: ScenarioSetting
     upper = np.minimum(np.maximum(CROSSOVER_SEARCH_C[1], mean) - mean, _SHIFT_TMAX_C - flat["tmax"])
 
     def excess(offsets, active):
-        rows = active.any(axis=-1)
-        sub = {name: values[rows] for name, values in flat.items()}
-        shift = offsets[rows].astype(np.float32)
-        sub["tmin"] = sub["tmin"] + shift
-        sub["tmax"] = sub["tmax"] + shift
-        with np.errstate(all="ignore"):
-            nets, _, _ = _months(_Block.months_last(sub, settings, active[rows], scenario), settings)
+        # Month by month, on the cells searched in that month only: both engines compute a month for a
+        # whole batch of cells once any of them needs it, so cells needing different months would make
+        # every month computed for every cell (12 times the work when one month per cell is searched).
         g = np.full((n, 12), np.nan)
-        g[rows] = indicators.advantage_index(nets["C3"], nets["C4"]) - margin
-        return np.where(active, g, np.nan)
+        for month in np.flatnonzero(active.any(axis=0)):
+            cells = np.flatnonzero(active[:, month])
+            sub = {name: values[cells] for name, values in flat.items()}
+            shift = offsets[cells, month].astype(np.float32)[:, None]
+            sub["tmin"] = sub["tmin"] + shift
+            sub["tmax"] = sub["tmax"] + shift
+            only = np.zeros((cells.size, 12), bool)
+            only[:, month] = True
+            with np.errstate(all="ignore"):
+                nets, _, _ = _months(_Block.months_last(sub, settings, only, scenario), settings)
+            g[cells, month] = indicators.advantage_index(nets["C3"][:, month], nets["C4"][:, month]) - margin
+        return g
 
     offset = tie_solver.nearest_tie(excess, start, np.minimum(lower, 0.0), np.maximum(upper, 0.0))
     return side_consistent(mean + offset, mean, start > 0)

@@ -65,6 +65,7 @@ def one_at_a_time(cfg: RunConfig, scenario: str | None = None) -> pd.DataFrame:
 
     def shares_with(c3: dict, c4: dict) -> dict[str, float]:
         physiology = cfg.physiology.model_copy(update={
+            "crossover_temperature": False,  # only the classes and the advantage are read
             "c3": cfg.physiology.c3.model_copy(update={"overrides": {k: v for k, v in c3.items() if k != "parameter_set"}}),
             "c4": cfg.physiology.c4.model_copy(update={"overrides": {k: v for k, v in c4.items() if k != "parameter_set"}}),
         })

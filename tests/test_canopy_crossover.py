@@ -104,6 +104,36 @@ def test_monthly_favour_and_the_crossover_agree_in_every_cell_and_month(evaluate
                                   np.take_along_axis(crossover, warmest[None], axis=0)[0])
 
 
+def test_the_seasonal_crossover_alone_solves_the_warmest_month_only_and_is_the_same(evaluated, request):
+    # Without the monthly layer (the pipeline without a datacube) only each cell's warmest season month is
+    # solved: the seasonal layer must be bitwise the one taken from the monthly solution, the monthly layer
+    # absent, and the solver must have been asked about one month per cell (counted on the engine's calls).
+    from suitability import model
+
+    climate, result = evaluated
+    engine = request.node.callspec.params["evaluated"]
+    asked = []
+    original = model._months
+
+    def counting(block, settings, *args):
+        asked.append(int(block.in_season.sum()))
+        return original(block, settings, *args)
+
+    model._months = counting
+    try:
+        alone = suitability.evaluate(climate, {"co2_ppm": 420}, engine=engine, monthly_crossover=False)
+    finally:
+        model._months = original
+    assert "monthly_crossover_temperature" not in alone
+    np.testing.assert_array_equal(alone["crossover_temperature"].values, result["crossover_temperature"].values)
+    np.testing.assert_array_equal(alone["pathway_class"].values, result["pathway_class"].values)
+    n_cells = climate["latitude"].size
+    season_months = int(np.isfinite(result["c3_monthly_assimilation"].values).sum())
+    # the model pass asks for every season month; each solver pass for at most one month of each cell
+    assert season_months > 2 * n_cells
+    assert asked[0] == season_months and len(asked) > 2 and max(asked[1:]) <= n_cells
+
+
 def test_the_crossover_is_per_cell(evaluated):
     # Derived here: the same mean temperature (20 °C columns) with less radiation or less water gives another
     # tie; the same conditions at other temperatures the same tie within twice the solver tolerance.
