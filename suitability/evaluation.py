@@ -39,7 +39,7 @@ _TIME_NAMES = ("month", "time")
 def evaluate(dataset: xr.Dataset, scenario: Any = None, *, physiology: Any = None, season: Any = None,
              classes: Any = None, scenario_layers: xr.Dataset | None = None, engine: str | None = None,
              crs: Any = None, uncertainty: Any = None, baseline: Any = None,
-             monthly_crossover: bool = True) -> xr.Dataset:
+             monthly_layers: bool = True) -> xr.Dataset:
     """Both pathways' potential assimilation and every per-scenario indicator for a monthly climate dataset.
 
     dataset: monthly ``tmin`` and ``tmax`` (or ``tmean``), ``shortwave`` (or ``par``), ``water_availability``,
@@ -54,9 +54,8 @@ def evaluate(dataset: xr.Dataset, scenario: Any = None, *, physiology: Any = Non
     uncertainty: a mapping ``{"draws": n, "seed": s}`` (as the config's ``uncertainty``) adds the layers of
         the parameter draws (probability of C4 advantage, quantiles, confidence class); ``baseline``
         (a scenario mapping, on the same dataset) adds the paired change layers against it.
-    monthly_crossover: False solves the canopy crossover for each cell's warmest season month only (the
-        seasonal ``crossover_temperature``, about a twelfth of the search) and leaves out
-        ``monthly_crossover_temperature``.
+    monthly_layers: False leaves out the monthly layers and solves the canopy crossover for each cell's
+        warmest season month only (the seasonal ``crossover_temperature``, about a twelfth of the search).
 
     Returns a Dataset: seasonal layers on the horizontal dims, monthly layers with a ``month`` dim, each with
     ``units`` and ``long_name``; attributes name the scenario, the caution and the assumptions.
@@ -69,7 +68,7 @@ def evaluate(dataset: xr.Dataset, scenario: Any = None, *, physiology: Any = Non
     own = _normalise(scenario_layers, crs, what="scenario_layers", need_latitude=False)[0] if scenario_layers is not None else None
     result = model.evaluate(climate, scenario, physiology=physiology, season=season, classes=classes,
                             scenario_layers=own, engine=engine, uncertainty=uncertainty, baseline=baseline,
-                            monthly_crossover=monthly_crossover)
+                            monthly_layers=monthly_layers)
     for name, layer in result.data_vars.items():
         entry = OUTPUT_LAYERS.get(name)
         if entry is not None:
@@ -77,7 +76,8 @@ def evaluate(dataset: xr.Dataset, scenario: Any = None, *, physiology: Any = Non
             if entry.legend:
                 layer.attrs.update(flag_values=list(entry.legend), flag_meanings=" ".join(
                     label.replace(" ", "_") for label in entry.legend.values()), comment="255: nodata")
-    result["month"].attrs.update(long_name="calendar month", units="1")
+    if "month" in result.coords:
+        result["month"].attrs.update(long_name="calendar month", units="1")
     names = set(climate.data_vars)
     result.attrs.update(
         caution=CAUTION, tool=f"suitability {__version__}",

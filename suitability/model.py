@@ -51,7 +51,6 @@ DAYS_IN_MONTH = np.array([31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype
 # The registry (variables.OUTPUT_LAYERS) lists the layers; _evaluate_block returns them in this order.
 SEASONAL_LAYERS = layer_names(SEASONAL)
 MONTHLY_LAYERS = layer_names(DATACUBE)
-_N_STACKED = len(SEASONAL_LAYERS) + 12 * len(MONTHLY_LAYERS)
 #: Layers from the parameter draws; the paired ones (``compares`` set) need the baseline's draws too.
 UNCERTAINTY_LAYERS = layer_names(UNCERTAINTY)
 PAIRED_LAYERS = tuple(n for n in UNCERTAINTY_LAYERS if OUTPUT_LAYERS[n].compares is not None)
@@ -82,9 +81,9 @@ class ModelSettings:
         Kattge & Knorr 2007) or "parameter_set" (the C3 set's own ``growth_temperature_c`` everywhere).
     crossover: solve the canopy crossover per cell and month (:func:`canopy_crossover`); False leaves the
         crossover layers NaN.
-    monthly_crossover: solve it for every season month (the datacube's ``monthly_crossover_temperature``);
-        False: only for each cell's warmest season month, all that ``crossover_temperature`` needs (the
-        search then costs about a twelfth), and the result has no ``monthly_crossover_temperature``.
+    monthly_layers: return the monthly layers (the datacube's) and solve the crossover for every season
+        month; False: no monthly layers, and the crossover only for each cell's warmest season month, all
+        that ``crossover_temperature`` needs (the search then costs about a twelfth).
     """
 
     scenario: ScenarioSettings
@@ -101,7 +100,7 @@ class ModelSettings:
     baseline: ScenarioSettings | None = None
     growth_temperature: str = "month_mean"
     crossover: bool = True
-    monthly_crossover: bool = True
+    monthly_layers: bool = True
 
     def draw_params(self):
         """The draws as (C3 parameters, C4 parameters) dicts."""
@@ -116,8 +115,13 @@ def uncertainty_layer_names(settings: ModelSettings) -> tuple[str, ...]:
     return tuple(n for n in UNCERTAINTY_LAYERS if settings.baseline is not None or n not in PAIRED_LAYERS)
 
 
+def _n_monthly(settings: ModelSettings) -> int:
+    """Rows of the monthly layers in a block's stacked result (12 per layer, or none)."""
+    return 12 * len(MONTHLY_LAYERS) if settings.monthly_layers else 0
+
+
 def _n_stacked(settings: ModelSettings) -> int:
-    return _N_STACKED + len(uncertainty_layer_names(settings))
+    return len(SEASONAL_LAYERS) + _n_monthly(settings) + len(uncertainty_layer_names(settings))
 
 
 #: Monthly mean temperatures [°C] searched for the canopy crossover (widened to include the month's own).
@@ -139,7 +143,7 @@ def evaluate(
     uncertainty: Any = None,
     baseline: Any = None,
     baseline_layers: xr.Dataset | None = None,
-    monthly_crossover: bool = True,
+    monthly_layers: bool = True,
 ) -> xr.Dataset:
     """Evaluate both pathways on a climate dataset and return every per-scenario output layer.
 
@@ -160,14 +164,15 @@ def evaluate(
         parameter draw on the same inputs (:mod:`suitability.physiology.uncertainty`).
     baseline, baseline_layers: the baseline scenario (and its own layers) to pair the draws with, for the
         paired layers (``towards_c4_probability``, ``class_change_probability``); only with ``uncertainty``.
-    monthly_crossover: also solve the canopy crossover of every season month (``ModelSettings``); False
-        (the pipeline without a datacube) leaves ``monthly_crossover_temperature`` out of the result.
+    monthly_layers: False (the pipeline without a datacube) leaves the monthly layers out of the result
+        and solves the canopy crossover for the warmest season month only (``ModelSettings``).
 
-    Returns a Dataset with the layers of ``SEASONAL_LAYERS`` (y, x) and ``MONTHLY_LAYERS`` (month, y, x),
+    Returns a Dataset with the layers of ``SEASONAL_LAYERS`` (y, x) and ``MONTHLY_LAYERS`` (month, y, x; only
+    with ``monthly_layers``),
     assimilation in g C m-2 per season or month; ``pathway_class`` is uint8 with 255 as nodata.
     """
     settings = model_settings(scenario, physiology=physiology, season=season, classes=classes, engine=engine,
-                              uncertainty=uncertainty, baseline=baseline, monthly_crossover=monthly_crossover)
+                              uncertainty=uncertainty, baseline=baseline, monthly_layers=monthly_layers)
     names, arrays, climate = _model_arrays(dataset, settings.scenario, scenario_layers, physiology)
     derived = "derived_water_availability" in climate
     spatial_dims = climate["latitude"].dims
@@ -184,8 +189,6 @@ def evaluate(
     result = _unstack(stacked, settings)
     if derived:  # the registry's "derived" layer: written to the datacube
         result["derived_water_availability"] = climate["derived_water_availability"]
-    if not settings.monthly_crossover:
-        result = result.drop_vars("monthly_crossover_temperature")
     return result
 
 
@@ -271,7 +274,7 @@ def _evaluate_embedded(inputs: _BlockInputs, names: Sequence[str], settings: Mod
 
 def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None,
                    engine: str | None = None, uncertainty: Any = None, baseline: Any = None,
-                   monthly_crossover: bool = True) -> ModelSettings:
+                   monthly_layers: bool = True) -> ModelSettings:
     """Collect the model's settings from config sections or plain mappings (see :func:`evaluate`).
 
     The parameter draws are made here, once, from the parameter sets and the seed alone, so every block
@@ -312,7 +315,7 @@ def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any 
         baseline=ScenarioSettings.from_any(baseline) if baseline is not None else None,
         growth_temperature=str(_get(physiology, "growth_temperature", "month_mean")),
         crossover=bool(_get(physiology, "crossover_temperature", True)),
-        monthly_crossover=bool(monthly_crossover),
+        monthly_layers=bool(monthly_layers),
     )
 
 
@@ -358,13 +361,14 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     first = len(SEASONAL_LAYERS)
     by_month = {"c3_monthly_assimilation": monthly["C3"], "c4_monthly_assimilation": monthly["C4"],
                 "monthly_crossover_temperature": monthly_crossover}
-    for j, name in enumerate(MONTHLY_LAYERS):
+    for j, name in enumerate(MONTHLY_LAYERS if settings.monthly_layers else ()):
         out[first + 12 * j:first + 12 * (j + 1)] = np.moveaxis(np.where(valid[..., None], by_month[name], np.nan), -1, 0)
     if settings.draws:
         base_block = _Block.of(base, settings, settings.baseline) if settings.baseline is not None else None
         layers = _uncertainty_layers(block, base_block, settings)
+        first = len(SEASONAL_LAYERS) + _n_monthly(settings)
         for i, name in enumerate(uncertainty_layer_names(settings)):
-            out[_N_STACKED + i] = layers[name]
+            out[first + i] = layers[name]
     return out
 
 
@@ -457,9 +461,9 @@ def _uncertainty_layers(block: _Block, base_block: _Block | None, settings: Mode
 
 def _crossover_months(block: _Block, settings: ModelSettings, month_mean: np.ndarray) -> np.ndarray:
     """The months (bool (..., 12)) whose canopy crossover is solved: every season month of the valid cells,
-    or with ``settings.monthly_crossover`` False only the warmest one (the seasonal layer's month)."""
+    or with ``settings.monthly_layers`` False only the warmest one (the seasonal layer's month)."""
     months = block.in_season & block.valid[..., None]
-    if settings.monthly_crossover:
+    if settings.monthly_layers:
         return months
     warmest, has = indicators.warmest_season_month(month_mean, block.in_season)
     return months & (np.arange(12) == warmest[..., None]) & has[..., None]
@@ -677,14 +681,15 @@ def _valid_cells(data: Mapping[str, np.ndarray]) -> np.ndarray:
 def _unstack(stacked: xr.DataArray, settings: ModelSettings) -> xr.Dataset:
     layers = {}
     seasonal = list(enumerate(SEASONAL_LAYERS))
-    seasonal += [(_N_STACKED + i, name) for i, name in enumerate(uncertainty_layer_names(settings))]
+    first = len(SEASONAL_LAYERS) + _n_monthly(settings)
+    seasonal += [(first + i, name) for i, name in enumerate(uncertainty_layer_names(settings))]
     for i, name in seasonal:
         layer = stacked.isel(layer=i)
         if OUTPUT_LAYERS[name].categorical:
             layer = layer.fillna(CLASS_NODATA).astype(np.uint8)
         layers[name] = layer
     first = len(SEASONAL_LAYERS)
-    for j, name in enumerate(MONTHLY_LAYERS):
+    for j, name in enumerate(MONTHLY_LAYERS if settings.monthly_layers else ()):
         block = stacked.isel(layer=slice(first + 12 * j, first + 12 * (j + 1)))
         block = block.rename(layer="month").assign_coords(month=np.arange(1, 13))
         layers[name] = block

@@ -150,7 +150,7 @@ def run(
                     if scenario.name in ensembles:
                         members = {m: evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
                                                classes=cfg.classes, scenario_layers=layers, engine=runtime.engine,
-                                               monthly_crossover=cfg.output.datacube, **draws)
+                                               monthly_layers=cfg.output.datacube, **draws)
                                    for m, layers in own_layers[scenario.name].items()}
                         tags = {**tags, "ensemble_members": ", ".join(members)}
                         member_paths = (_write_members(cfg, grid, runtime, scenario, members, tags, layers_of(scenario))
@@ -162,7 +162,7 @@ def run(
                         member_paths = {}
                         result = evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
                                           classes=cfg.classes, scenario_layers=own_layers.get(scenario.name),
-                                          engine=runtime.engine, monthly_crossover=cfg.output.datacube, **draws)
+                                          engine=runtime.engine, monthly_layers=cfg.output.datacube, **draws)
                     written[scenario.name] = _write_scenario(cfg, grid, runtime, scenario, result, written, tags,
                                                              layers_of(scenario))
                     written[scenario.name].update(member_paths)

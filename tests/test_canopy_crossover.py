@@ -121,10 +121,10 @@ def test_the_seasonal_crossover_alone_solves_the_warmest_month_only_and_is_the_s
 
     model._months = counting
     try:
-        alone = suitability.evaluate(climate, {"co2_ppm": 420}, engine=engine, monthly_crossover=False)
+        alone = suitability.evaluate(climate, {"co2_ppm": 420}, engine=engine, monthly_layers=False)
     finally:
         model._months = original
-    assert "monthly_crossover_temperature" not in alone
+    assert not {"monthly_crossover_temperature", "c3_monthly_assimilation", "c4_monthly_assimilation"} & set(alone)
     np.testing.assert_array_equal(alone["crossover_temperature"].values, result["crossover_temperature"].values)
     np.testing.assert_array_equal(alone["pathway_class"].values, result["pathway_class"].values)
     n_cells = climate["latitude"].size
