@@ -171,25 +171,57 @@ def evaluate(
     with ``monthly_layers``),
     assimilation in g C m-2 per season or month; ``pathway_class`` is uint8 with 255 as nodata.
     """
-    settings = model_settings(scenario, physiology=physiology, season=season, classes=classes, engine=engine,
-                              uncertainty=uncertainty, baseline=baseline, monthly_layers=monthly_layers)
-    names, arrays, climate = _model_arrays(dataset, settings.scenario, scenario_layers, physiology)
-    derived = "derived_water_availability" in climate
-    spatial_dims = climate["latitude"].dims
-    if settings.baseline is not None:  # the baseline climate, for the draws paired with the baseline's
-        base_names, base_arrays, _ = _model_arrays(dataset, settings.baseline, baseline_layers, physiology)
-        names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
-        arrays = arrays + base_arrays
-    if any(isinstance(array, dask.array.Array) for array in arrays):
-        stacked = _map_blocks(arrays, names, settings, len(spatial_dims))
-    else:
-        stacked = _evaluate_block(*arrays, names=names, settings=settings)
-    coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
-    stacked = xr.DataArray(stacked, dims=("layer",) + spatial_dims, coords=coords)
-    result = _unstack(stacked, settings)
-    if derived:  # the registry's "derived" layer: written to the datacube
-        result["derived_water_availability"] = climate["derived_water_availability"]
-    return result
+    run = ModelRun(scenario, scenario_layers, uncertainty, baseline, baseline_layers)
+    return evaluate_runs(dataset, [run], physiology=physiology, season=season, classes=classes, engine=engine,
+                         monthly_layers=monthly_layers)[0]
+
+
+@dataclass(frozen=True)
+class ModelRun:
+    """One evaluation of :func:`evaluate_runs`: a scenario, its own layers and the parameter draws' arguments
+    (each as the argument of the same name of :func:`evaluate`)."""
+
+    scenario: Any = None
+    scenario_layers: xr.Dataset | None = None
+    uncertainty: Any = None
+    baseline: Any = None
+    baseline_layers: xr.Dataset | None = None
+
+
+def evaluate_runs(dataset: xr.Dataset, runs: Sequence[ModelRun], *, physiology: Any = None, season: Any = None,
+                  classes: Any = None, engine: str | None = None, monthly_layers: bool = True) -> list[xr.Dataset]:
+    """:func:`evaluate` for several runs (scenarios, ensemble members) on the same climate ``dataset``, one
+    result per run. On dask data all runs share one task per block of cells, which reads and resamples the
+    block of ``dataset`` once and of each run's own layers once, and then evaluates the runs one after the
+    other: computed together (one dask pass), the runs cost their model work and little more.
+    """
+    prepared = []
+    for run in runs:
+        settings = model_settings(run.scenario, physiology=physiology, season=season, classes=classes, engine=engine,
+                                  uncertainty=run.uncertainty, baseline=run.baseline, monthly_layers=monthly_layers)
+        names, arrays, climate = _model_arrays(dataset, settings.scenario, run.scenario_layers, physiology)
+        prepared.append((settings, names, arrays, climate))
+    spatial_dims = prepared[0][3]["latitude"].dims
+    lazy = any(isinstance(a, dask.array.Array) for _, _, arrays, _ in prepared for a in arrays)
+    if lazy:
+        stacked = _shared_blocks(dataset, runs, [settings for settings, *_ in prepared], physiology)
+    results, first = [], 0
+    for run, (settings, names, arrays, climate) in zip(runs, prepared):
+        if lazy:
+            block = stacked[first:first + _n_stacked(settings)]
+            first += _n_stacked(settings)
+        else:
+            if settings.baseline is not None:  # the baseline climate, for the draws paired with the baseline's
+                base_names, base_arrays, _ = _model_arrays(dataset, settings.baseline, run.baseline_layers, physiology)
+                names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
+                arrays = arrays + base_arrays
+            block = _evaluate_block(*arrays, names=names, settings=settings)
+        coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
+        result = _unstack(xr.DataArray(block, dims=("layer",) + spatial_dims, coords=coords), settings)
+        if "derived_water_availability" in climate and monthly_layers:  # the registry's "derived" layer
+            result["derived_water_availability"] = climate["derived_water_availability"]
+        results.append(result)
+    return results
 
 
 def _model_arrays(dataset: xr.Dataset, scenario: ScenarioSettings, scenario_layers, physiology):
@@ -224,33 +256,123 @@ def _model_arrays(dataset: xr.Dataset, scenario: ScenarioSettings, scenario_laye
     return names, tuple(arrays), climate
 
 
-def _map_blocks(arrays, names, settings: ModelSettings, n_spatial: int):
-    """:func:`_evaluate_block` block by block over dask (or numpy) inputs; (layer, *spatial) float32.
+def _shared_blocks(dataset: xr.Dataset, runs: Sequence[ModelRun], settings: Sequence[ModelSettings], physiology):
+    """The stacked results of every run, (sum of the runs' layers, *spatial) float32, one task per block.
 
-    Each output block is ONE task that computes its own input blocks (a few small tasks: read, resample,
-    scenario offsets) and then the model. Left as separate tasks, the input blocks hang off shared
-    roots (e.g. a coarse climate raster read as one chunk, needed by every block), and dask's schedulers
-    then resample the inputs of every block of the region ahead of the model and hold them all in memory
-    (measured: peak memory growing with the region, 2.6 GB for 3072² cells). Embedded, a block's inputs
-    exist only while its task runs, so memory stays bounded by the blocks in flight.
+    Each output block is ONE task that computes its own input blocks (a few small tasks: read, resample)
+    and then the model of every run (:func:`_evaluate_runs_block`). Left as separate tasks, the input
+    blocks hang off shared roots (e.g. a coarse climate raster read as one chunk, needed by every block),
+    and dask's schedulers then resample the inputs of every block of the region ahead of the model and
+    hold them all in memory (measured: peak memory growing with the region, 2.6 GB for 3072² cells).
+    Embedded, a block's inputs exist only while its task runs, so memory stays bounded by the blocks in
+    flight; and the runs of a scenario set share the block's reading and resampling.
     """
-    spatial_chunks = next(a.chunks[-n_spatial:] for a in arrays if isinstance(a, dask.array.Array))
-    arrays = [dask.array.asarray(array) for array in arrays]
-    aligned = [array.rechunk(array.chunks[:-n_spatial] + spatial_chunks) for array in arrays]
-    name = "evaluate-" + dask.base.tokenize(aligned, names, settings)
+    sources = [_with_latitude(dataset)]  # the climate, then each distinct own-layers dataset of the runs
+    own_index = []
+    for run in runs:
+        indices = []
+        for own in (run.scenario_layers, run.baseline_layers):
+            if own is None:
+                indices.append(None)
+                continue
+            found = next((i for i, known in enumerate(sources) if known is own), None)
+            if found is None:
+                sources.append(own)
+                found = len(sources) - 1
+            indices.append(found)
+        own_index.append(tuple(indices))
+    spatial_dims = sources[0]["latitude"].dims
+    layouts, arrays = zip(*(_BlockLayout.of(source, spatial_dims) for source in sources))
+    spatial_chunks = next(a.chunks[-len(spatial_dims):] for source in arrays for a in source
+                          if isinstance(a, dask.array.Array))
+    n_spatial = len(spatial_dims)
+    aligned = [[dask.array.asarray(a).rechunk(dask.array.asarray(a).chunks[:-n_spatial] + spatial_chunks)
+                for a in source] for source in arrays]
+    options = _InputOptions.of(physiology)
+    plan = tuple(zip(settings, own_index))
+    name = "evaluate-" + dask.base.tokenize(aligned, layouts, plan, options)
     graph = {}
     for index in itertools.product(*(range(len(c)) for c in spatial_chunks)):
-        blocks = tuple(array.blocks[(0,) * (array.ndim - n_spatial) + index] for array in aligned)
-        graph[(name, 0) + index] = (_evaluate_embedded, _BlockInputs(blocks), names, settings)
-    return dask.array.Array(graph, name, chunks=((_n_stacked(settings),),) + spatial_chunks, dtype=np.float32,
+        blocks = tuple(tuple(a.blocks[(0,) * (a.ndim - n_spatial) + index] for a in arrays) for arrays in aligned)
+        graph[(name, 0) + index] = (_evaluate_runs_block, _BlockInputs(blocks), tuple(layouts), plan, options)
+    n_layers = sum(_n_stacked(s) for s in settings)
+    return dask.array.Array(graph, name, chunks=((n_layers,),) + spatial_chunks, dtype=np.float32,
                             meta=np.empty((0,) * (n_spatial + 1), np.float32))
 
 
 @dataclass(frozen=True)
 class _BlockInputs:
-    """The input blocks of one output block, as small dask arrays (opaque to the outer graph)."""
+    """The input blocks of one output block, per source, as small dask arrays (opaque to the outer graph)."""
 
     arrays: tuple
+
+
+@dataclass(frozen=True)
+class _InputOptions:
+    """The physiology settings that shape the model's inputs (:func:`_model_arrays`), picklable for dask."""
+
+    diurnal_range_c: float
+    soil_water_capacity_mm: float
+    soil_water_retention: str
+
+    @classmethod
+    def of(cls, physiology) -> "_InputOptions":
+        return cls(float(_get(physiology, "diurnal_range_c", DEFAULT_DIURNAL_RANGE_C)),
+                   float(_get(physiology, "soil_water_capacity_mm", water_balance.DEFAULT_SOIL_WATER_CAPACITY_MM)),
+                   str(_get(physiology, "soil_water_retention", "exponential")))
+
+
+@dataclass(frozen=True)
+class _BlockLayout:
+    """How to rebuild one source dataset from its blocks: variable names, dims and the month labels."""
+
+    names: tuple
+    dims: tuple
+    months: tuple | None
+
+    @classmethod
+    def of(cls, source: xr.Dataset, spatial_dims) -> tuple["_BlockLayout", tuple]:
+        """The layout of ``source`` and its arrays in that order (months first, then ``spatial_dims``)."""
+        names, dims, arrays = [], [], []
+        for name, layer in source.data_vars.items():
+            order = (("month",) if "month" in layer.dims else ()) + tuple(spatial_dims)
+            names.append(name)
+            dims.append(order)
+            arrays.append(layer.transpose(*order).data)
+        months = tuple(int(m) for m in source["month"].values) if "month" in source.coords else None
+        return cls(tuple(names), tuple(dims), months), tuple(arrays)
+
+    def dataset(self, values) -> xr.Dataset:
+        coords = {"month": list(self.months)} if self.months is not None else {}
+        return xr.Dataset({n: (d, v) for n, d, v in zip(self.names, self.dims, values)}, coords=coords)
+
+
+def _evaluate_runs_block(inputs: _BlockInputs, layouts, plan, options: _InputOptions) -> np.ndarray:
+    """One block of every run: the climate's block read and resampled once, each own-layers dataset's when
+    the first run needing it comes (and released after the last), then each run's model."""
+    (climate_values,) = dask.compute(inputs.arrays[0], scheduler="sync")
+    climate = layouts[0].dataset(climate_values)
+    last_use = {}
+    for i, (_, own) in enumerate(plan):
+        for index in own:
+            if index is not None:
+                last_use[index] = i
+    owned: dict[int, xr.Dataset] = {}
+    out = []
+    for i, (settings, (own, base_own)) in enumerate(plan):
+        for index in (own, base_own):
+            if index is not None and index not in owned:
+                (values,) = dask.compute(inputs.arrays[index], scheduler="sync")
+                owned[index] = layouts[index].dataset(values)
+        names, arrays, _ = _model_arrays(climate, settings.scenario, owned.get(own), options)
+        if settings.baseline is not None:
+            base_names, base_arrays, _ = _model_arrays(climate, settings.baseline, owned.get(base_own), options)
+            names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
+            arrays = arrays + base_arrays
+        out.append(_evaluate_block(*arrays, names=names, settings=settings))
+        for index in [k for k, last in last_use.items() if last == i]:
+            owned.pop(index, None)
+    return np.concatenate(out, axis=0)
 
 
 _WARNED_NUMPY_ENGINE: set = set()
@@ -265,11 +387,6 @@ def _warn_numpy_engine(c3_params, c4_params) -> None:
         missing = ", ".join(m.name for m in models if not m.compiled)
         warnings.warn(f"leaf model {missing} is not available in the compiled engine; running the numpy engine, "
                       "about 20 times slower (compute.engine: numpy says so explicitly)", RuntimeWarning, stacklevel=3)
-
-
-def _evaluate_embedded(inputs: _BlockInputs, names: Sequence[str], settings: ModelSettings) -> np.ndarray:
-    values = dask.compute(*inputs.arrays, scheduler="sync")
-    return _evaluate_block(*values, names=names, settings=settings)
 
 
 def model_settings(scenario: Any = None, *, physiology: Any = None, season: Any = None, classes: Any = None,
