@@ -194,61 +194,117 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
     first to refuse that). Raises OutputError (naming the file or folder) on any failure, leaving no
     ``<name>.tif`` of this call (earlier files untouched) and no temporary file behind.
     """
-    import dask.array as da
+    return write_together([LayerWrite(layers, folder, tags=tags, cog_options=cog_options, lock=lock,
+                                      datacube=datacube, datacube_path=datacube_path)])[0]
 
-    if not layers:
-        raise OutputError(f"no layers given to write into {folder}")
-    options = CogOptions.from_any(cog_options)
-    folder = check_output_folder(folder, overwrite=True)
-    grid = _common_grid(layers, folder)
-    _remove_abandoned_staging(folder)
-    staging = None
+
+@dataclass
+class LayerWrite:
+    """The layers (and datacube) of one folder to write; the arguments of :func:`write_layers`."""
+
+    layers: Mapping[str, xr.DataArray]
+    folder: Any
+    tags: Mapping[str, Any] | None = None
+    cog_options: Any = None
+    lock: Any = None
+    datacube: xr.Dataset | None = None
+    datacube_path: Any = None
+
+
+def write_together(writes: list[LayerWrite]) -> list[dict[str, Path]]:
+    """:func:`write_layers` for several folders in ONE dask pass (the scenarios and members of a run share
+    their model blocks, :func:`suitability.model.evaluate_runs`); returns each write's name -> path.
+
+    Nothing of any write gets its final name before every write has been computed: a failure leaves no
+    file of this call (earlier files untouched) and no temporary file behind.
+    """
+    for write in writes:  # bad arguments are the caller's error (ConfigError, OutputError), raised as such
+        if not write.layers:
+            raise OutputError(f"no layers given to write into {write.folder}")
+        CogOptions.from_any(write.cog_options)
+    staged = []
     try:
-        staging = make_private_folder(folder, STAGING_PREFIX)
-        sources, targets, staged = [], [], {}
-        for name, layer in layers.items():
-            staged[name] = staging / f".{name}.tmp-{os.getpid()}.tif"
-            source = _as_tiled_dask(name, layer, da)
-            _create_tiled_geotiff(staged[name], name, source.dtype, grid, tags or {}, options)
-            sources.append(source)
-            targets.append(BlockWriter(staged[name], _lock_for(name, lock, staged[name])))
-        stored = da.store(sources, targets, lock=False, compute=False)
-        stored = list(stored) if isinstance(stored, (tuple, list)) else [stored]
-        if datacube is not None:
-            staged_cube = staging / f".{Path(datacube_path).name}.tmp-{os.getpid()}"
-            stored.append(_datacube_writer(datacube, Path(datacube_path), staged_cube))
+        for write in writes:
+            staged.append(_Staged.of(write))
+        stored = [store for stage in staged for store in stage.stores]
         try:
             compute(*stored)
         except OutputError:
             raise
         except Exception as error:
+            names = ", ".join(f"{Path(stage.folder).name}/{n}.tif" for stage in staged for n in stage.paths)
+            folders = ", ".join(str(stage.folder) for stage in staged)
             raise OutputError(
-                f"computing {', '.join(f'{n}.tif' for n in layers)} for {folder} failed, nothing was written: "
-                f"{type(error).__name__}: {error}{disk_full_hint(error, folder)}"
+                f"computing {names} for {folders} failed, nothing was written: "
+                f"{type(error).__name__}: {error}{disk_full_hint(error, Path(staged[0].folder))}"
             ) from error
-        finals = {name: _to_validated_cog(path, name, options) for name, path in staged.items()}
+        return [stage.finish() for stage in staged]
+    except OutputError:
+        raise
+    except Exception as error:
+        folder = staged[-1].folder if staged else writes[0].folder
+        raise OutputError(
+            f"writing layers into {folder} failed: {type(error).__name__}: {error}{disk_full_hint(error, Path(folder))}"
+        ) from error
+    finally:
+        for stage in staged:
+            shutil.rmtree(stage.staging, ignore_errors=True)
+
+
+@dataclass
+class _Staged:
+    """One write's temporary files in a private staging folder, the dask stores that fill them, and the
+    steps that give them their final names."""
+
+    folder: Path
+    staging: Path
+    paths: dict
+    options: CogOptions
+    stores: list
+    datacube_path: Path | None = None
+    staged_cube: Path | None = None
+
+    @classmethod
+    def of(cls, write: LayerWrite) -> "_Staged":
+        import dask.array as da
+
+        options = CogOptions.from_any(write.cog_options)
+        folder = check_output_folder(write.folder, overwrite=True)
+        grid = _common_grid(write.layers, folder)
+        _remove_abandoned_staging(folder)
+        staging = make_private_folder(folder, STAGING_PREFIX)
+        stage = cls(folder, staging, {}, options, [])
+        sources, targets = [], []
+        for name, layer in write.layers.items():
+            stage.paths[name] = staging / f".{name}.tmp-{os.getpid()}.tif"
+            source = _as_tiled_dask(name, layer, da)
+            _create_tiled_geotiff(stage.paths[name], name, source.dtype, grid, write.tags or {}, options)
+            sources.append(source)
+            targets.append(BlockWriter(stage.paths[name], _lock_for(name, write.lock, stage.paths[name])))
+        stored = da.store(sources, targets, lock=False, compute=False)
+        stage.stores = list(stored) if isinstance(stored, (tuple, list)) else [stored]
+        if write.datacube is not None:
+            stage.datacube_path = Path(write.datacube_path)
+            stage.staged_cube = staging / f".{stage.datacube_path.name}.tmp-{os.getpid()}"
+            stage.stores.append(_datacube_writer(write.datacube, stage.datacube_path, stage.staged_cube))
+        return stage
+
+    def finish(self) -> dict[str, Path]:
+        """Convert the computed files to validated COGs and give them (and the datacube) their final names."""
+        finals = {name: _to_validated_cog(path, name, self.options) for name, path in self.paths.items()}
         sidecars = {name: write_category_sidecar(name, path) for name, path in finals.items() if is_class_layer(name)}
         written = {}
         for name, path in finals.items():
-            written[name] = folder / f"{name}.tif"
+            written[name] = self.folder / f"{name}.tif"
             # The sidecar goes first: a run killed between the two renames leaves a sidecar without its
             # raster (the layer counts as missing), never a class raster without its names.
             if name in sidecars:
                 os.replace(sidecars[name], pam_sidecar_path(written[name]))
             os.replace(path, written[name])
-        if datacube is not None:
-            written["datacube"] = Path(datacube_path)
-            os.replace(staged_cube, written["datacube"])
+        if self.staged_cube is not None:
+            written["datacube"] = self.datacube_path
+            os.replace(self.staged_cube, written["datacube"])
         return written
-    except OutputError:
-        raise
-    except Exception as error:
-        raise OutputError(
-            f"writing layers into {folder} failed: {type(error).__name__}: {error}{disk_full_hint(error, folder)}"
-        ) from error
-    finally:
-        if staging is not None:
-            shutil.rmtree(staging, ignore_errors=True)
 
 
 #: GDAL's Persistent Auxiliary Metadata (PAM) sidecar of a raster: ``<file name>.aux.xml`` beside it.
