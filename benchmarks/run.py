@@ -38,6 +38,7 @@ from importlib import metadata
 from pathlib import Path
 
 import numpy as np
+import yaml
 
 REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
@@ -289,10 +290,16 @@ def draws_markdown(d: dict) -> list[str]:
     ]
 
 
-def end_to_end(size: int, engine: str = "compiled", scenarios: int = SCENARIOS, keep: bool = False) -> dict:
+def end_to_end(size: int, engine: str = "compiled", scenarios: int = SCENARIOS, keep: bool = False,
+               crossover: bool = True) -> dict:
     folder = SCRATCH / f"region_{size}_{engine}"
     shutil.rmtree(folder, ignore_errors=True)
     config = write_region(folder, size, scenarios=scenarios, engine=engine, workers=os.cpu_count())
+    if not crossover:  # the same run without the canopy crossover layer (physiology.crossover_temperature)
+        text = config.read_text()
+        settings = yaml.safe_load(text)
+        settings["physiology"] = {"crossover_temperature": False}
+        config.write_text(text.splitlines()[0] + "\n" + yaml.safe_dump(settings, sort_keys=False))
     command = [str(Path(sys.executable).parent / "suitability"), "run", str(config), "--no-progress"]
     # This tree's package, not whichever one the environment's console script was installed from (an
     # editable install of another checkout would otherwise be measured, and compile its kernel there).
@@ -305,7 +312,8 @@ def end_to_end(size: int, engine: str = "compiled", scenarios: int = SCENARIOS, 
     process.stdout.close()
     process.stderr.close()
     code = os.waitstatus_to_exitcode(status)
-    row = {"size": size, "cells": size * size, "engine": engine, "scenarios": scenarios, "exit_code": code,
+    row = {"size": size, "cells": size * size, "engine": engine, "scenarios": scenarios, "crossover": crossover,
+           "exit_code": code,
            "wall_s": round(wall, 2), "cpu_s": round(usage.ru_utime + usage.ru_stime, 2),
            "peak_rss_mib": round(usage.ru_maxrss / 1024, 1)}
     row["cell_steps"] = size * size * 12 * scenarios
@@ -365,17 +373,30 @@ def markdown(results: dict) -> str:
         + "; daily gross vs the 96-step reference: "
         + ", ".join(f"{p} {v * 100:.2f} %" for p, v in k["max_relative_error_of_gross_vs_96_step_reference"].items()) + ".",
         "",
-        "## End to end (`suitability run`, 12 months x 3 scenarios, all layers, COG)",
+        "## End to end (`suitability run`, 12 months x N scenarios, all layers, COG)",
         "",
-        "| cells | engine | wall s | cell-steps/s | peak RSS MiB | CPU s | outputs MiB |",
-        "|---|---|---|---|---|---|---|",
+        "Share of kernel: the run's cell-steps/s over the kernel's own 2-thread rate above (same run).",
+        "",
+        "| cells | engine | scenarios | crossover layer | wall s | cell-steps/s | share of kernel | peak RSS MiB | CPU s | outputs MiB |",
+        "|---|---|---|---|---|---|---|---|---|---|",
     ]
+    kernel_rate = k["kernel_2_threads_cell_steps_per_s"]
     for row in results.get("end_to_end", []):
+        head = f"| {row['size']}² | {row['engine']} | {row['scenarios']} | {'yes' if row.get('crossover', True) else 'no'} |"
         if row.get("exit_code") != 0:
-            lines.append(f"| {row['size']}² | {row['engine']} | failed | | | | |")
+            lines.append(f"{head} failed | | | | | |")
             continue
-        lines.append(f"| {row['size']}² | {row['engine']} | {row['wall_s']:.1f} | {row['cell_steps_per_s'] / 1e6:.2f} M | "
+        lines.append(f"{head} {row['wall_s']:.1f} | {row['cell_steps_per_s'] / 1e6:.2f} M | "
+                     f"{row['cell_steps_per_s'] / kernel_rate:.0%} | "
                      f"{row['peak_rss_mib']:.0f} | {row['cpu_s']:.0f} | {row.get('output_mib', '')} |")
+    if "marginal_scenario" in results:
+        m = results["marginal_scenario"]
+        lines += ["", "## Cost of one more scenario", "",
+                  f"At {m['size']}²: ({m['wall_3_s']:.1f} s for 3 scenarios − {m['wall_1_s']:.1f} s for 1) / 2 = "
+                  f"{m['per_scenario_s']:.1f} s per additional scenario, against {m['kernel_s']:.1f} s of the kernel "
+                  f"alone (2 threads) for its {m['size']}² x 12 cell-steps: **{m['ratio']:.2f}x** the kernel time "
+                  "of its own work (the scenario's model pass, canopy crossover of its warmest month, indicators "
+                  "and COG writing included)."]
     if "draws" in results:
         lines += [""] + draws_markdown(results["draws"])
     return "\n".join(lines) + "\n"
@@ -394,9 +415,11 @@ def main() -> None:
     parser.add_argument("--draws", type=int, default=16, help="parameter draws for the cost of one draw")
     parser.add_argument("--draw-cells", type=int, default=16384, help="cells of the block for the draws' cost")
     parser.add_argument("--draws-only", action="store_true", help="only the cost of parameter draws")
+    parser.add_argument("--marginal-size", type=int, default=2000,
+                        help="size of the runs with 1 and 3 scenarios for the cost of one more scenario (0 = skip)")
     args = parser.parse_args()
     if args.quick:
-        args.sizes, args.kernel_cells, args.numpy_engine_size = [256, 512], 16384, 0
+        args.sizes, args.kernel_cells, args.numpy_engine_size, args.marginal_size = [256, 512], 16384, 0, 512
     SCRATCH.mkdir(parents=True, exist_ok=True)
     results = {"created": datetime.now(timezone.utc).isoformat(timespec="seconds"), "machine": machine()}
     if args.draws_only:
@@ -421,6 +444,17 @@ def main() -> None:
         print(f"end to end {size}² ...", flush=True)
         rows.append(end_to_end(size))
         print(f"  {rows[-1].get('wall_s')} s, peak {rows[-1].get('peak_rss_mib')} MiB", flush=True)
+    if args.marginal_size:
+        size = args.marginal_size
+        three = next((r for r in rows if r["size"] == size and r["engine"] == "compiled"), None) or end_to_end(size)
+        print(f"end to end {size}², 1 scenario, and 3 without the crossover layer ...", flush=True)
+        one = end_to_end(size, scenarios=1)
+        rows += [one, end_to_end(size, crossover=False)] + ([three] if three not in rows else [])
+        kernel_s = size * size * 12 / results["kernel"]["kernel_2_threads_cell_steps_per_s"]
+        per_scenario = (three["wall_s"] - one["wall_s"]) / (SCENARIOS - 1)
+        results["marginal_scenario"] = {"size": size, "wall_3_s": three["wall_s"], "wall_1_s": one["wall_s"],
+                                        "per_scenario_s": per_scenario, "kernel_s": kernel_s,
+                                        "ratio": per_scenario / kernel_s}
     results["end_to_end"] = rows
     print("parameter draws ...", flush=True)
     results["draws"] = draw_cost_benchmark(args.draw_cells if not args.quick else 4096, args.draws, repeats=3)

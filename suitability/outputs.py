@@ -273,21 +273,25 @@ class _Staged:
         grid = _common_grid(write.layers, folder)
         _remove_abandoned_staging(folder)
         staging = make_private_folder(folder, STAGING_PREFIX)
-        stage = cls(folder, staging, {}, options, [])
-        sources, targets = [], []
-        for name, layer in write.layers.items():
-            stage.paths[name] = staging / f".{name}.tmp-{os.getpid()}.tif"
-            source = _as_tiled_dask(name, layer, da)
-            _create_tiled_geotiff(stage.paths[name], name, source.dtype, grid, write.tags or {}, options)
-            sources.append(source)
-            targets.append(BlockWriter(stage.paths[name], _lock_for(name, write.lock, stage.paths[name])))
-        stored = da.store(sources, targets, lock=False, compute=False)
-        stage.stores = list(stored) if isinstance(stored, (tuple, list)) else [stored]
-        if write.datacube is not None:
-            stage.datacube_path = Path(write.datacube_path)
-            stage.staged_cube = staging / f".{stage.datacube_path.name}.tmp-{os.getpid()}"
-            stage.stores.append(_datacube_writer(write.datacube, stage.datacube_path, stage.staged_cube))
-        return stage
+        try:  # until the caller holds the stage, the staging folder is ours to remove (an interrupt, say)
+            stage = cls(folder, staging, {}, options, [])
+            sources, targets = [], []
+            for name, layer in write.layers.items():
+                stage.paths[name] = staging / f".{name}.tmp-{os.getpid()}.tif"
+                source = _as_tiled_dask(name, layer, da)
+                _create_tiled_geotiff(stage.paths[name], name, source.dtype, grid, write.tags or {}, options)
+                sources.append(source)
+                targets.append(BlockWriter(stage.paths[name], _lock_for(name, write.lock, stage.paths[name])))
+            stored = da.store(sources, targets, lock=False, compute=False)
+            stage.stores = list(stored) if isinstance(stored, (tuple, list)) else [stored]
+            if write.datacube is not None:
+                stage.datacube_path = Path(write.datacube_path)
+                stage.staged_cube = staging / f".{stage.datacube_path.name}.tmp-{os.getpid()}"
+                stage.stores.append(_datacube_writer(write.datacube, stage.datacube_path, stage.staged_cube))
+            return stage
+        except BaseException:
+            shutil.rmtree(staging, ignore_errors=True)
+            raise
 
     def finish(self) -> dict[str, Path]:
         """Convert the computed files to validated COGs and give them (and the datacube) their final names."""

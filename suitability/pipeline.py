@@ -28,9 +28,9 @@ from .errors import ConfigError, InputDataError, OutputError
 from .grid import TargetGrid
 from .inputs import load_climate, load_mask
 from .inputs.readers import member_labels
-from .model import evaluate
-from .outputs import (check_output_folder, dictionary_path, remove_leftovers, with_sidecars, write_csv,
-                      write_data_dictionary, write_layers, write_manifest)
+from .model import ModelRun, evaluate_runs
+from .outputs import (LayerWrite, check_output_folder, dictionary_path, remove_leftovers, with_sidecars, write_csv,
+                      write_data_dictionary, write_manifest, write_together)
 from .provenance import (MANIFEST_NAME, SUMMARY_COLUMNS, build_manifest, class_summary, input_checksums, input_files,
                          scenario_tags)
 from .resume import PROGRESS_NAME, record_paths, scenario_hash, scenario_record, verified_records, write_progress
@@ -101,8 +101,9 @@ def run(
 
     Order: every input (baseline climate, mask, each scenario's own layers, the brief's districts) is
     opened and checked before anything is written; then the output folder is locked for this run
-    (:class:`~suitability.runlock.RunLock`), existing outputs are checked, and each scenario is computed
-    and written. A progress record (hidden file) is kept after each scenario so that an interrupted run
+    (:class:`~suitability.runlock.RunLock`), existing outputs are checked, and the scenarios are computed
+    and written, several in one dask pass (:func:`scenario_passes`: they share the reading and resampling
+    of the climate). A progress record (hidden file) is kept after each pass so that an interrupted run
     can be resumed; ``manifest.json`` and ``class_summary.csv`` (with its ``.columns.csv``) of an earlier
     run are removed before the first write and written anew at the end, so they are present only after a
     complete run.
@@ -142,33 +143,18 @@ def run(
             write_progress(folder, records)
             written = {name: record_paths(folder, name, record) for name, record in records.items()}
             config_hash = cfg.config_hash()
-            for scenario in to_compute:
-                with clock(f"scenario_{scenario.name}_s"):
-                    tags = scenario_tags(scenario, config_hash, hashes[scenario.name],
-                                         invented_region=cfg.region.name if cfg.region.invented else None)
-                    draws = _draw_arguments(cfg, scenario, own_layers)
-                    if scenario.name in ensembles:
-                        members = {m: evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
-                                               classes=cfg.classes, scenario_layers=layers, engine=runtime.engine,
-                                               monthly_layers=cfg.output.datacube, **draws)
-                                   for m, layers in own_layers[scenario.name].items()}
-                        tags = {**tags, "ensemble_members": ", ".join(members)}
-                        member_paths = (_write_members(cfg, grid, runtime, scenario, members, tags, layers_of(scenario))
-                                        if cfg.output.member_outputs else {})
-                        if member_paths and not cfg.output.datacube:  # the members' layers are written: not twice
-                            members = _written_members(member_paths, members, cfg.compute.chunk_size)
-                        result = ensemble_result(members, cfg.classes.contested_margin)
-                    else:
-                        member_paths = {}
-                        result = evaluate(climate, scenario, physiology=cfg.physiology, season=cfg.season,
-                                          classes=cfg.classes, scenario_layers=own_layers.get(scenario.name),
-                                          engine=runtime.engine, monthly_layers=cfg.output.datacube, **draws)
-                    written[scenario.name] = _write_scenario(cfg, grid, runtime, scenario, result, written, tags,
-                                                             layers_of(scenario))
-                    written[scenario.name].update(member_paths)
-                _refuse_empty_map(cfg, scenario, written[scenario.name])
-                records[scenario.name] = scenario_record(hashes[scenario.name], written[scenario.name])
-                write_progress(folder, records)
+            if to_compute:
+                tags = {s.name: scenario_tags(s, config_hash, hashes[s.name],
+                                              invented_region=cfg.region.name if cfg.region.invented else None)
+                        for s in to_compute}
+                for group in scenario_passes(to_compute, ensembles, cfg.compute.runs_per_pass):
+                    with clock("scenarios_s"):
+                        written.update(_compute_scenarios(cfg, grid, runtime, climate, group, own_layers, ensembles,
+                                                          written, tags, layers_of))
+                    for scenario in group:
+                        _refuse_empty_map(cfg, scenario, written[scenario.name])
+                        records[scenario.name] = scenario_record(hashes[scenario.name], written[scenario.name])
+                    write_progress(folder, records)
             summary = class_summary({s.name: written[s.name]["pathway_class"] for s in scenarios})
             briefs: dict[str, Path] = {}
             if cfg.brief is not None:
@@ -525,11 +511,82 @@ def _prepare_folder(cfg: RunConfig, folder: Path, to_compute, layers_of, *, repl
         (folder / stale).unlink(missing_ok=True)
 
 
-def _write_scenario(cfg, grid, runtime, scenario, result, written, tags, names) -> dict[str, Path]:
-    """Write one scenario's layers (change layers against the written baseline) and its datacube."""
+def scenario_passes(scenarios, ensembles: dict[str, list[str]], runs_per_pass: int) -> list[list]:
+    """``scenarios`` (baseline first) in consecutive groups computed one dask pass each: as many whole
+    scenarios as fit in ``runs_per_pass`` model runs (config ``compute.runs_per_pass``; a scenario is one
+    run, an ensemble one per member, and a larger ensemble gets a pass of its own). The runs of a pass share
+    the reading and resampling of the climate, but a block's task holds all their layers at once, and an
+    interrupted pass is redone whole by ``--resume``."""
+    passes: list[list] = []
+    runs = 0
+    for scenario in scenarios:
+        size = len(ensembles.get(scenario.name, ())) or 1
+        if not passes or runs + size > runs_per_pass:
+            passes.append([])
+            runs = 0
+        passes[-1].append(scenario)
+        runs += size
+    return passes
+
+
+def _compute_scenarios(cfg, grid, runtime, climate, scenarios, own_layers, ensembles, written, tags,
+                       layers_of) -> dict[str, dict[str, Path]]:
+    """Evaluate every scenario of ``scenarios`` (each member of an ensemble) and write its layers, member
+    layers and datacube, all in ONE dask pass: the model's blocks read and resample the climate once for
+    all of them (:func:`suitability.model.evaluate_runs`). Returns scenario name -> written paths."""
+    runs, owners = [], []
+    for scenario in scenarios:
+        draws = _draw_arguments(cfg, scenario, own_layers)
+        members = own_layers[scenario.name].items() if scenario.name in ensembles else [(None, own_layers.get(scenario.name))]
+        for member, layers in members:
+            runs.append(ModelRun(scenario, layers, draws.get("uncertainty"), draws.get("baseline"),
+                                 draws.get("baseline_layers")))
+            owners.append((scenario.name, member))
+    results = evaluate_runs(climate, runs, physiology=cfg.physiology, season=cfg.season, classes=cfg.classes,
+                            engine=runtime.engine, monthly_layers=cfg.output.datacube)
+    writes, kinds = [], []
+    computed: dict[str, xr.Dataset] = {}
+    for scenario in scenarios:
+        names = layers_of(scenario)
+        if scenario.name in ensembles:
+            members = {m: r for (owner, m), r in zip(owners, results) if owner == scenario.name}
+            tags[scenario.name] = {**tags[scenario.name], "ensemble_members": ", ".join(members)}
+            if cfg.output.member_outputs:
+                for member, result in members.items():
+                    folder = Path(cfg.output.folder) / scenario.name / MEMBERS_FOLDER / member
+                    writes.append(LayerWrite({n: _georeferenced(result[n], grid) for n in member_layers(names)}, folder,
+                                             tags={**tags[scenario.name], "ensemble_member": member},
+                                             cog_options=cfg.output.cog))
+                    kinds.append((scenario.name, member))
+            result = ensemble_result(members, cfg.classes.contested_margin)
+        else:
+            result = next(r for (owner, _), r in zip(owners, results) if owner == scenario.name)
+        computed[scenario.name] = result
+        baseline = computed.get(cfg.baseline)
+        writes.append(_scenario_write(cfg, grid, scenario, result, written, baseline, tags[scenario.name], names))
+        kinds.append((scenario.name, None))
+    label = scenarios[0].name if len(scenarios) == 1 else f"{len(scenarios)} scenarios"
+    with _input_errors_named(cfg, scenarios):
+        with runtime.progress(f"{label}: computing and writing"):
+            paths = write_together(writes)
+    found: dict[str, dict[str, Path]] = {s.name: {} for s in scenarios}
+    for (name, member), written_paths in zip(kinds, paths):
+        written_paths = with_sidecars(written_paths)
+        if member is None:
+            found[name].update(written_paths)
+        else:
+            found[name].update({f"{MEMBERS_FOLDER}/{member}/{n}": p for n, p in written_paths.items()})
+    return found
+
+
+def _scenario_write(cfg, grid, scenario, result, written, baseline: xr.Dataset | None, tags, names) -> LayerWrite:
+    """One scenario's layers (change layers against the baseline) and its datacube, to be written.
+
+    baseline: the baseline's result when it is computed in the same pass; else the change layers compare
+    with the baseline's written layers (a resumed baseline)."""
     layers = {name: result[name] for name in names if name in result}
     if scenario.name != cfg.baseline:
-        layers.update(_change_layers(written[cfg.baseline], result, names, cfg.compute.chunk_size))
+        layers.update(_change_layers(written.get(cfg.baseline, {}), baseline, result, names, cfg.compute.chunk_size))
     layers = {name: _georeferenced(layers[name], grid) for name in names}
     scenario_folder = Path(cfg.output.folder) / scenario.name
     cube = None
@@ -537,45 +594,48 @@ def _write_scenario(cfg, grid, runtime, scenario, result, written, tags, names) 
         cube = result[list(layer_names(DATACUBE)) + [n for n in layer_names(DERIVED) if n in result]]
         cube.attrs.update(tags)
         cube = _georeferenced(cube, grid)
-    with _input_errors_named(cfg, scenario):
-        with runtime.progress(f"{scenario.name}: computing and writing"):
-            return with_sidecars(write_layers(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog,
-                                              lock=None, datacube=cube, datacube_path=scenario_folder / DATACUBE_NAME))
+    return LayerWrite(layers, scenario_folder, tags=tags, cog_options=cfg.output.cog, datacube=cube,
+                      datacube_path=scenario_folder / DATACUBE_NAME)
 
 
 @contextmanager
-def _input_errors_named(cfg: RunConfig, scenario):
+def _input_errors_named(cfg: RunConfig, scenarios):
     """Turn a failure while computing that comes from reading an input (a damaged tile outside the
     sampled windows, say) into an InputDataError (exit 3) naming the input file and its layer."""
     from .inputs.readers import layer_files
 
+    named = ", ".join(repr(s.name) for s in scenarios)
+    computing = f"while computing scenario{'s' if len(scenarios) > 1 else ''} {named}"
     try:
         yield
     except OutputError as error:
         text, seen = "", error
         while seen is not None:
             if isinstance(seen, InputDataError):  # a reader named the file and layer (GuardedRead)
-                raise InputDataError(f"{seen} (while computing scenario {scenario.name!r})") from error
+                raise InputDataError(f"{seen} ({computing})") from error
             text += f" {seen}"
             seen = seen.__cause__ or seen.__context__
         specs = [(name, spec) for name, spec in cfg.climate.items()]
-        for member in (scenario.members or [None]):
-            own = scenario.member_climate(member) if member else (scenario.climate or {})
-            specs += [(name, spec) for name, spec in own.items()]
+        for scenario in scenarios:
+            for member in (scenario.members or [None]):
+                own = scenario.member_climate(member) if member else (scenario.climate or {})
+                specs += [(name, spec) for name, spec in own.items()]
         candidates = [(name, path) for name, spec in specs for path in layer_files(spec, cfg.config_dir)]
         candidates += [("mask", Path(cfg.region.mask))] if cfg.region.mask is not None else []
         for name, path in candidates:
             if str(path) in text:
                 raise InputDataError(
-                    f"{path}: layer {name!r}: cannot read the values while computing scenario {scenario.name!r}; "
+                    f"{path}: layer {name!r}: cannot read the values {computing}; "
                     f"the file may be damaged in a part the checks did not sample ({error.__cause__ or error})"
                 ) from error
         raise
 
 
-def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, chunk: int) -> dict[str, xr.DataArray]:
-    """Each change layer of the registry among ``names``: its indicator applied to the baseline's written
-    layer and the scenario's layer that it ``compares``."""
+def _change_layers(baseline_paths: dict[str, Path], baseline: xr.Dataset | None, result: xr.Dataset, names,
+                   chunk: int) -> dict[str, xr.DataArray]:
+    """Each change layer of the registry among ``names``: its indicator applied to the baseline's layer and
+    the scenario's layer that it ``compares``; the baseline's layer from its result computed in the same
+    pass (``baseline``), else as written (``baseline_paths``: a baseline kept by ``resume``)."""
     import rioxarray
 
     changes = {}
@@ -584,9 +644,12 @@ def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, c
         layer = OUTPUT_LAYERS[name]
         # an ensemble layer compares every member's layer (member_<compares>) with the baseline's
         scenario_values = result[layer.compares] if layer.kind == CHANGE else result["member_advantage"]
-        written = rioxarray.open_rasterio(baseline_paths[layer.compares], chunks={"x": chunk, "y": chunk},
-                                          lock=False, masked=False).squeeze("band", drop=True)
-        baseline_values = written.assign_coords(x=scenario_values.x, y=scenario_values.y)
+        if baseline is not None:
+            baseline_values = baseline[layer.compares]
+        else:
+            written = rioxarray.open_rasterio(baseline_paths[layer.compares], chunks={"x": chunk, "y": chunk},
+                                              lock=False, masked=False).squeeze("band", drop=True)
+            baseline_values = written.assign_coords(x=scenario_values.x, y=scenario_values.y)
         change = getattr(indicators, layer.indicator)(baseline_values, scenario_values)
         changes[name] = change if layer.categorical else change.astype(np.float32)
     return changes
@@ -595,39 +658,6 @@ def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, c
 def member_layers(names) -> list[str]:
     """The layers written per member (``output.member_outputs``): the seasonal ones among ``names``."""
     return [n for n in names if OUTPUT_LAYERS[n].kind == SEASONAL]
-
-
-def _write_members(cfg, grid, runtime, scenario, members: dict[str, xr.Dataset], tags, names) -> dict[str, Path]:
-    """Each member's seasonal layers in ``<scenario>/members/<member>/`` (``output.member_outputs``);
-    returns ``"members/<member>/<layer>"`` -> path, recorded with the scenario's outputs (manifest, resume)."""
-    paths = {}
-    for member, result in members.items():
-        layers = {n: _georeferenced(result[n], grid) for n in member_layers(names)}
-        folder = Path(cfg.output.folder) / scenario.name / MEMBERS_FOLDER / member
-        with runtime.progress(f"{scenario.name}/{member}: computing and writing"):
-            written = with_sidecars(write_layers(layers, folder, tags={**tags, "ensemble_member": member},
-                                                 cog_options=cfg.output.cog, lock=None))
-        paths.update({f"{MEMBERS_FOLDER}/{member}/{n}": p for n, p in written.items()})
-    return paths
-
-
-def _written_members(paths: dict[str, Path], computed: dict[str, xr.Dataset], chunk: int) -> dict[str, xr.Dataset]:
-    """Each member's continuous layers as written by :func:`_write_members` (opened lazily), so that the
-    ensemble layers are taken from them instead of evaluating every member a second time."""
-    import rioxarray
-
-    members = {}
-    for member, result in computed.items():
-        layers = {}
-        for key, path in paths.items():
-            _, owner, name = key.split("/")
-            # rasters only: the class layers' category sidecars (<layer>.aux.xml) are recorded here too
-            if owner == member and path.suffix == ".tif" and not OUTPUT_LAYERS[name].categorical:
-                written = rioxarray.open_rasterio(path, chunks={"x": chunk, "y": chunk}, lock=False, masked=True)
-                layers[name] = written.squeeze("band", drop=True).assign_coords(x=result.x, y=result.y).drop_vars(
-                    "spatial_ref", errors="ignore").astype(np.float32)
-        members[member] = xr.Dataset(layers)
-    return members
 
 
 def _georeferenced(layer, grid: TargetGrid):
@@ -659,7 +689,7 @@ class _Clock:
     def __call__(self, name: str):
         started = time.perf_counter()
         yield
-        self._timings[name] = time.perf_counter() - started
+        self._timings[name] = self._timings.get(name, 0.0) + time.perf_counter() - started
 
 
 __all__ = ["run", "RunResult", "CAUTION", "class_summary", "scenario_hash", "briefs_of_finished_run", "InputDataError"]

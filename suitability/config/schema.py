@@ -627,6 +627,10 @@ class ComputeConfig(_Section):
     threads_per_worker: Annotated[int, Field(ge=1)] | None = None
     memory_limit: str | None = None
     engine: Literal[ENGINES] = "compiled"
+    #: Most model runs (a scenario is one, an ensemble one per member) computed in one dask pass: the runs
+    #: of a pass share the reading and resampling of the climate; an interrupted pass is redone whole by
+    #: --resume (1: one scenario per pass, every finished scenario kept).
+    runs_per_pass: Annotated[int, Field(ge=1)] = 8
 
     @field_validator("chunk_size")
     @classmethod

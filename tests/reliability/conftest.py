@@ -33,8 +33,9 @@ CAUTION_WORDS = "not yield forecasts"
 _runner = CliRunner(env={"COLUMNS": "240"})
 
 
-def demo_config(*, months=(1,), scenarios=2, brief=False, datacube=False) -> dict:
-    """The demo config as a dict with absolute input paths, a short season and few scenarios."""
+def demo_config(*, months=(1,), scenarios=2, brief=False, datacube=False, runs_per_pass=None) -> dict:
+    """The demo config as a dict with absolute input paths, a short season and few scenarios
+    (``runs_per_pass``: compute.runs_per_pass, 1 to compute and keep one scenario at a time)."""
     config = yaml.safe_load(DEMO.read_text(encoding="utf-8"))
     for layer in config["climate"].values():
         layer["path"] = str((DEMO.parent / layer["path"]).resolve())
@@ -46,6 +47,8 @@ def demo_config(*, months=(1,), scenarios=2, brief=False, datacube=False) -> dic
     config["output"]["datacube"] = datacube
     config["output"]["folder"] = "out"  # relative: next to the config file
     config["compute"]["workers"] = 2
+    if runs_per_pass is not None:
+        config["compute"]["runs_per_pass"] = runs_per_pass
     return config
 
 

@@ -28,9 +28,11 @@ from .conftest import SUITABILITY, cli, demo_config, write_config
 pytestmark = pytest.mark.slow  # real runs in a new process, interrupted, then resumed
 
 
-def _long_config(tmp_path) -> Path:
-    # Three scenarios over six months: several seconds per scenario on two cores.
-    return write_config(tmp_path, demo_config(months=range(1, 7), scenarios=3))
+def _long_config(tmp_path, runs_per_pass=1) -> Path:
+    # Three scenarios over six months: several seconds per scenario on two cores. One scenario per pass
+    # (compute.runs_per_pass) so that the baseline is finished, and kept, before the second is written;
+    # with the default all three share one pass and an interruption keeps none of them.
+    return write_config(tmp_path, demo_config(months=range(1, 7), scenarios=3, runs_per_pass=runs_per_pass))
 
 
 def _start(config: Path) -> subprocess.Popen:
@@ -59,7 +61,7 @@ def _visible(folder: Path) -> list[Path]:
             and not any(part.startswith(".") for part in p.relative_to(folder).parts)]
 
 
-def _assert_nothing_half_finished(folder: Path) -> None:
+def _assert_nothing_half_finished(folder: Path, baseline_kept: bool = True) -> None:
     names = {str(p.relative_to(folder)) for p in _visible(folder)}
     assert "manifest.json" not in names and "class_summary.csv" not in names, names
     visible = _visible(folder)
@@ -75,13 +77,13 @@ def _assert_nothing_half_finished(folder: Path) -> None:
         assert valid, (path, errors)
         if OUTPUT_LAYERS[path.stem].categorical:
             assert pam_sidecar_path(path) in visible, path
-    assert any(n.startswith("baseline/") for n in names)  # the finished baseline is kept
+    assert any(n.startswith("baseline/") for n in names) == baseline_kept  # a finished baseline is kept
 
 
-def _rerun_completes(config: Path, folder: Path) -> None:
+def _rerun_completes(config: Path, folder: Path, baseline_kept: bool = True) -> None:
     result = cli("run", config, "--no-progress", "--resume")
     assert result.exit_code == 0, result.output
-    assert "Kept from the earlier run (outputs up to date): baseline" in result.output
+    assert ("Kept from the earlier run (outputs up to date): baseline" in result.output) == baseline_kept
     assert (folder / "manifest.json").exists()
     leftovers = [p for p in folder.rglob(".*")]
     assert leftovers == [], leftovers  # no lock, staging, progress record or temporary file remains
@@ -115,3 +117,18 @@ def test_sigkill_leaves_only_hidden_temporaries_and_a_rerun_completes(tmp_path):
     _assert_nothing_half_finished(folder)
     assert (folder / LOCK_NAME).exists()  # a killed run cannot clean up: its lock is left, with its dead PID
     _rerun_completes(config, folder)
+
+
+def test_an_interrupted_shared_pass_keeps_nothing_half_done_and_a_rerun_redoes_it(tmp_path):
+    # The default compute.runs_per_pass puts the three scenarios in one pass (they share reading and
+    # resampling the climate): SIGINT while it writes leaves no finished-looking file of any of them, and
+    # --resume computes the whole pass again.
+    config = _long_config(tmp_path, runs_per_pass=None)
+    folder = tmp_path / "out"
+    process = _start(config)
+    _wait_for(_writing_second_scenario(folder), process)
+    process.send_signal(signal.SIGINT)
+    _, stderr = process.communicate(timeout=120)
+    assert process.returncode == 130, stderr
+    _assert_nothing_half_finished(folder, baseline_kept=False)
+    _rerun_completes(config, folder, baseline_kept=False)

@@ -33,8 +33,8 @@ from .conftest import (
 )
 
 
-def _config(tmp_path, folder) -> Path:
-    config = demo_config()
+def _config(tmp_path, folder, runs_per_pass=None) -> Path:
+    config = demo_config(runs_per_pass=runs_per_pass)
     config["output"]["folder"] = str(folder)
     return write_config(tmp_path, config)
 
@@ -92,8 +92,10 @@ def _visible_files(folder: Path) -> list[Path]:
     return [p for p in folder.rglob("*") if p.is_file() and not any(part.startswith(".") for part in p.relative_to(folder).parts)]
 
 
-def test_disk_full_while_writing_a_scenario_simulated(tmp_path, monkeypatch):
+@pytest.mark.parametrize("runs_per_pass", [1, None])
+def test_disk_full_while_writing_a_scenario_simulated(tmp_path, monkeypatch, runs_per_pass):
     # The OS error a full disk gives (ENOSPC, POSIX) raised by every block write of the second scenario.
+    # One scenario per pass keeps the finished baseline; by default both share a pass, and neither is kept.
     original = BlockWriter.__setitem__
 
     def full_disk(self, index, block):
@@ -103,18 +105,20 @@ def test_disk_full_while_writing_a_scenario_simulated(tmp_path, monkeypatch):
 
     monkeypatch.setattr(BlockWriter, "__setitem__", full_disk)
     folder = tmp_path / "out"
-    config = _config(tmp_path, folder)
+    config = _config(tmp_path, folder, runs_per_pass)
     assert_clean_error(cli("run", config, "--no-progress"), EXIT_OUTPUT, "co2_only", "the disk is full",
                        "--resume")
     names = {str(p.relative_to(folder)) for p in _visible_files(folder)}
     assert not any(n.startswith("co2_only") for n in names)  # nothing of the failed scenario
+    assert any(n.startswith("baseline/") for n in names) == (runs_per_pass == 1)  # nor of its pass
     assert "manifest.json" not in names and "class_summary.csv" not in names  # the run is not finished
     assert {p.name for p in (folder / "co2_only").iterdir()} == set()  # its staging folder was removed
     monkeypatch.setattr(BlockWriter, "__setitem__", original)  # space freed
     resumed = cli("run", config, "--no-progress", "--resume")
     assert resumed.exit_code == 0, resumed.output
-    assert "Kept from the earlier run (outputs up to date): baseline" in resumed.output
-    assert json.loads((folder / "manifest.json").read_text())["resumed_scenarios"] == ["baseline"]
+    kept = ["baseline"] if runs_per_pass == 1 else []
+    assert ("Kept from the earlier run (outputs up to date): baseline" in resumed.output) == bool(kept)
+    assert json.loads((folder / "manifest.json").read_text())["resumed_scenarios"] == kept
 
 
 _IN_SMALL_DISK = r"""

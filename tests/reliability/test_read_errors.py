@@ -112,8 +112,8 @@ def test_an_output_error_that_wraps_an_input_error_is_reported_as_input(tmp_path
     cfg = pipeline.load_config(write_config(tmp_path, demo_config(scenarios=1)))
     cause = InputDataError("/data/t.nc: layer 'tmin': cannot read the values (HDF error)")
     with pytest.raises(InputDataError, match=r"/data/t.nc: layer 'tmin'.*while computing scenario 'baseline'"):
-        with pipeline._input_errors_named(cfg, cfg.baseline_scenario):
+        with pipeline._input_errors_named(cfg, [cfg.baseline_scenario]):
             raise OutputError("computing c3_assimilation.tif for out/baseline failed") from cause
     with pytest.raises(OutputError, match="disk is full"):  # a real output problem stays one
-        with pipeline._input_errors_named(cfg, cfg.baseline_scenario):
+        with pipeline._input_errors_named(cfg, [cfg.baseline_scenario]):
             raise OutputError("writing failed; the disk is full")
