@@ -34,19 +34,18 @@ import xarray as xr
 
 from . import indicators, kernel, tie_solver
 from .config.schema import GROWING_SEASON_MIN_MEAN_TEMPERATURE_C, GROWING_SEASON_MIN_MEAN_TMIN_C
-from .physiology import atmosphere, energy, light
+from .model_inputs import DAYS_IN_MONTH, REPRESENTATIVE_DAY, InputOptions, model_arrays, with_latitude
+from .model_inputs import get_setting as _get
+from .model_inputs import water_from_rainfall  # noqa: F401  (part of this module's interface)
+from .physiology import atmosphere, light
 from .physiology import daily_canopy_assimilation
 from .physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
 from .runtime import ENGINES
-from .physiology import water_balance
-from .scenarios import DEFAULT_DIURNAL_RANGE_C, ScenarioSettings, apply_scenario, scale_water_availability
+from .scenarios import ScenarioSettings
 from .physiology import uncertainty as parameter_uncertainty
 from .variables import (CLASS_NODATA, DATACUBE, HARGREAVES_SAMANI, OUTPUT_LAYERS, PENMAN_MONTEITH, SEASONAL, UNCERTAINTY,  # noqa: F401
-                        layer_names, pet_method)
+                        layer_names, pet_method)  # noqa: F401
 
-#: Day of year of the 15th of each month in a non-leap year; the representative day of the month.
-REPRESENTATIVE_DAY = np.array([15, 46, 74, 105, 135, 166, 196, 227, 258, 288, 319, 349])
-DAYS_IN_MONTH = np.array([31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31], dtype=np.float64)
 
 # The registry (variables.OUTPUT_LAYERS) lists the layers; _evaluate_block returns them in this order.
 SEASONAL_LAYERS = layer_names(SEASONAL)
@@ -55,8 +54,6 @@ MONTHLY_LAYERS = layer_names(DATACUBE)
 UNCERTAINTY_LAYERS = layer_names(UNCERTAINTY)
 PAIRED_LAYERS = tuple(n for n in UNCERTAINTY_LAYERS if OUTPUT_LAYERS[n].compares is not None)
 _BASELINE_PREFIX = "baseline:"
-_MONTHLY_INPUTS = ("tmin", "tmax", "shortwave", "par", "water_availability", "vpd", "humidity")
-_STATIC_INPUTS = ("elevation", "lai", "latitude")
 DEFAULT_LAI = 3.0
 
 
@@ -199,7 +196,7 @@ def evaluate_runs(dataset: xr.Dataset, runs: Sequence[ModelRun], *, physiology: 
     for run in runs:
         settings = model_settings(run.scenario, physiology=physiology, season=season, classes=classes, engine=engine,
                                   uncertainty=run.uncertainty, baseline=run.baseline, monthly_layers=monthly_layers)
-        names, arrays, climate = _model_arrays(dataset, settings.scenario, run.scenario_layers, physiology)
+        names, arrays, climate = model_arrays(dataset, settings.scenario, run.scenario_layers, physiology)
         prepared.append((settings, names, arrays, climate))
     spatial_dims = prepared[0][3]["latitude"].dims
     lazy = any(isinstance(a, dask.array.Array) for _, _, arrays, _ in prepared for a in arrays)
@@ -212,7 +209,7 @@ def evaluate_runs(dataset: xr.Dataset, runs: Sequence[ModelRun], *, physiology: 
             first += _n_stacked(settings)
         else:
             if settings.baseline is not None:  # the baseline climate, for the draws paired with the baseline's
-                base_names, base_arrays, _ = _model_arrays(dataset, settings.baseline, run.baseline_layers, physiology)
+                base_names, base_arrays, _ = model_arrays(dataset, settings.baseline, run.baseline_layers, physiology)
                 names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
                 arrays = arrays + base_arrays
             block = _evaluate_block(*arrays, names=names, settings=settings)
@@ -222,38 +219,6 @@ def evaluate_runs(dataset: xr.Dataset, runs: Sequence[ModelRun], *, physiology: 
             result["derived_water_availability"] = climate["derived_water_availability"]
         results.append(result)
     return results
-
-
-def _model_arrays(dataset: xr.Dataset, scenario: ScenarioSettings, scenario_layers, physiology):
-    """(names, float32 arrays (month, *spatial) or (*spatial), climate) of the model's inputs under ``scenario``;
-    ``climate`` holds ``derived_water_availability`` when water availability was derived from rainfall."""
-    diurnal_range = _get(physiology, "diurnal_range_c", DEFAULT_DIURNAL_RANGE_C)
-    climate = apply_scenario(dataset, scenario, scenario_layers, diurnal_range_c=diurnal_range)
-    climate = _with_latitude(climate)
-    derived = "precipitation" in climate and "water_availability" not in climate
-    if derived:
-        climate = water_from_rainfall(climate, _get(physiology, "soil_water_capacity_mm",
-                                                    water_balance.DEFAULT_SOIL_WATER_CAPACITY_MM),
-                                      _get(physiology, "soil_water_retention", "exponential"))
-        climate = scale_water_availability(climate, scenario)
-    names = tuple(n for n in _MONTHLY_INPUTS + _STATIC_INPUTS if n in climate)
-    _check_inputs(names)
-    spatial_dims = climate["latitude"].dims
-    arrays = []
-    for name in names:
-        layer = climate[name]
-        if "month" in layer.dims:
-            layer = layer.sel(month=list(range(1, 13))).transpose("month", *spatial_dims)
-            if layer.chunks is not None:
-                layer = layer.chunk({"month": -1})
-        else:
-            layer = layer.transpose(*spatial_dims)
-        arrays.append(layer.astype(np.float32).data)
-    if derived:
-        derived_layer = climate["water_availability"].transpose("month", *spatial_dims).copy()
-        derived_layer.attrs = {}  # the registry's long name and units are written, not the rainfall's
-        climate = climate.assign(derived_water_availability=derived_layer)
-    return names, tuple(arrays), climate
 
 
 def _shared_blocks(dataset: xr.Dataset, runs: Sequence[ModelRun], settings: Sequence[ModelSettings], physiology):
@@ -267,7 +232,7 @@ def _shared_blocks(dataset: xr.Dataset, runs: Sequence[ModelRun], settings: Sequ
     Embedded, a block's inputs exist only while its task runs, so memory stays bounded by the blocks in
     flight; and the runs of a scenario set share the block's reading and resampling.
     """
-    sources = [_with_latitude(dataset)]  # the climate, then each distinct own-layers dataset of the runs
+    sources = [with_latitude(dataset)]  # the climate, then each distinct own-layers dataset of the runs
     own_index = []
     for run in runs:
         indices = []
@@ -288,7 +253,7 @@ def _shared_blocks(dataset: xr.Dataset, runs: Sequence[ModelRun], settings: Sequ
     n_spatial = len(spatial_dims)
     aligned = [[dask.array.asarray(a).rechunk(dask.array.asarray(a).chunks[:-n_spatial] + spatial_chunks)
                 for a in source] for source in arrays]
-    options = _InputOptions.of(physiology)
+    options = InputOptions.of(physiology)
     plan = tuple(zip(settings, own_index))
     name = "evaluate-" + dask.base.tokenize(aligned, layouts, plan, options)
     graph = {}
@@ -305,21 +270,6 @@ class _BlockInputs:
     """The input blocks of one output block, per source, as small dask arrays (opaque to the outer graph)."""
 
     arrays: tuple
-
-
-@dataclass(frozen=True)
-class _InputOptions:
-    """The physiology settings that shape the model's inputs (:func:`_model_arrays`), picklable for dask."""
-
-    diurnal_range_c: float
-    soil_water_capacity_mm: float
-    soil_water_retention: str
-
-    @classmethod
-    def of(cls, physiology) -> "_InputOptions":
-        return cls(float(_get(physiology, "diurnal_range_c", DEFAULT_DIURNAL_RANGE_C)),
-                   float(_get(physiology, "soil_water_capacity_mm", water_balance.DEFAULT_SOIL_WATER_CAPACITY_MM)),
-                   str(_get(physiology, "soil_water_retention", "exponential")))
 
 
 @dataclass(frozen=True)
@@ -347,7 +297,7 @@ class _BlockLayout:
         return xr.Dataset({n: (d, v) for n, d, v in zip(self.names, self.dims, values)}, coords=coords)
 
 
-def _evaluate_runs_block(inputs: _BlockInputs, layouts, plan, options: _InputOptions) -> np.ndarray:
+def _evaluate_runs_block(inputs: _BlockInputs, layouts, plan, options: InputOptions) -> np.ndarray:
     """One block of every run: the climate's block read and resampled once, each own-layers dataset's when
     the first run needing it comes (and released after the last), then each run's model."""
     (climate_values,) = dask.compute(inputs.arrays[0], scheduler="sync")
@@ -364,9 +314,9 @@ def _evaluate_runs_block(inputs: _BlockInputs, layouts, plan, options: _InputOpt
             if index is not None and index not in owned:
                 (values,) = dask.compute(inputs.arrays[index], scheduler="sync")
                 owned[index] = layouts[index].dataset(values)
-        names, arrays, _ = _model_arrays(climate, settings.scenario, owned.get(own), options)
+        names, arrays, _ = model_arrays(climate, settings.scenario, owned.get(own), options)
         if settings.baseline is not None:
-            base_names, base_arrays, _ = _model_arrays(climate, settings.baseline, owned.get(base_own), options)
+            base_names, base_arrays, _ = model_arrays(climate, settings.baseline, owned.get(base_own), options)
             names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
             arrays = arrays + base_arrays
         out.append(_evaluate_block(*arrays, names=names, settings=settings))
@@ -446,8 +396,7 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     base = {n[len(_BASELINE_PREFIX):]: v for n, v in data.items() if n.startswith(_BASELINE_PREFIX)}
     data = {n: v for n, v in data.items() if not n.startswith(_BASELINE_PREFIX)}
     block = _Block.of(data, settings)
-    data, shape, in_season, elevation, lai, valid = (block.data, block.shape, block.in_season, block.elevation,
-                                                     block.lai, block.valid)
+    data, shape, in_season, valid = block.data, block.shape, block.in_season, block.valid
     monthly, c3_gross, c3_photorespiration = _months(block, settings)
     season_c3, season_c4, nodata = _season_totals(block, monthly)
     has_season = block.has_season
@@ -573,7 +522,6 @@ def _uncertainty_layers(block: _Block, base_block: _Block | None, settings: Mode
         layers["towards_c4_probability"] = indicators.towards_c4_probability(base_draws, draws)
         layers["class_change_probability"] = indicators.class_change_probability(base_draws, draws, margin)
     return layers
-
 
 
 def _crossover_months(block: _Block, settings: ModelSettings, month_mean: np.ndarray) -> np.ndarray:
@@ -819,79 +767,6 @@ def _unstack(stacked: xr.DataArray, settings: ModelSettings) -> xr.Dataset:
     return result
 
 
-def water_from_rainfall(climate: xr.Dataset, capacity_mm: float = water_balance.DEFAULT_SOIL_WATER_CAPACITY_MM,
-                        retention: str = "exponential") -> xr.Dataset:
-    """``climate`` with ``water_availability`` (AET/PET of the monthly soil-water balance) and ``pet``.
-
-    climate: ``precipitation`` [mm d-1] (month, y, x); ``pet`` [mm d-1] if given, else the reference
-    evapotranspiration of :func:`pet_method`: FAO-56 Penman-Monteith where ``wind_speed``, ``shortwave`` and
-    ``humidity`` or ``vpd`` are given, else Hargreaves-Samani from ``tmin``/``tmax`` [°C], both with the
-    extraterrestrial radiation of the representative day of each month at the cell's ``latitude``; ``soil_water_capacity`` [mm] (y, x) if
-    given, else ``capacity_mm``. Monthly totals are the daily rates times the days of the month (the same
-    non-leap year as the assimilation totals). Lazy on dask data (whole months per block).
-    """
-    if "pet" in climate:
-        pet = climate["pet"]
-    else:
-        doy = xr.DataArray(REPRESENTATIVE_DAY, dims="month", coords={"month": np.arange(1, 13)})
-        ra = xr.apply_ufunc(light.extraterrestrial_radiation, climate["latitude"], doy, dask="allowed")
-        if pet_method(climate) == PENMAN_MONTEITH:
-            pet = _penman_monteith(climate, ra)
-        else:
-            pet = xr.apply_ufunc(water_balance.hargreaves_samani_et0, climate["tmin"], climate["tmax"], ra,
-                                 dask="parallelized", output_dtypes=[np.float64])
-    capacity = climate["soil_water_capacity"] if "soil_water_capacity" in climate else capacity_mm
-    pet = pet.transpose("month", ...)
-    rain = climate["precipitation"].transpose(*pet.dims)
-
-    def availability(rain_mm_d, pet_mm_d, capacity_mm_):
-        # apply_ufunc moves the core dim "month" last; the balance takes months first.
-        rain_m = np.moveaxis(rain_mm_d, -1, 0) * DAYS_IN_MONTH.reshape((12,) + (1,) * (rain_mm_d.ndim - 1))
-        pet_m = np.moveaxis(pet_mm_d, -1, 0) * DAYS_IN_MONTH.reshape((12,) + (1,) * (pet_mm_d.ndim - 1))
-        _, aet = water_balance.monthly_soil_water_balance(rain_m, pet_m, capacity_mm_, retention)
-        return np.moveaxis(water_balance.water_availability_from_balance(aet, pet_m), 0, -1).astype(np.float32)
-
-    if pet.chunks is not None:
-        pet = pet.chunk({"month": -1})
-        rain = rain.chunk({"month": -1})
-    water = xr.apply_ufunc(availability, rain, pet, capacity, input_core_dims=[["month"], ["month"], []],
-                           output_core_dims=[["month"]], dask="parallelized", output_dtypes=[np.float32])
-    return climate.assign(water_availability=water.transpose(*climate["precipitation"].dims), pet=pet.astype(np.float32))
-
-
-def _penman_monteith(climate: xr.Dataset, extraterrestrial) -> xr.DataArray:
-    """FAO-56 Penman-Monteith ET0 [mm d-1] (month, ...) of a monthly climatology: ea from ``humidity``
-    (eq. 19) or ``vpd`` (ea = es − D), P from ``elevation`` (eq. 7; sea level without it), G of each month
-    from the mean temperatures of the months before and after it, the year taken round (eq. 43)."""
-    tmin, tmax = climate["tmin"], climate["tmax"]
-    if "humidity" in climate:
-        ea = atmosphere.actual_vapour_pressure_from_relative_humidity(100.0 * climate["humidity"], tmin, tmax)
-    else:
-        ea = atmosphere.actual_vapour_pressure_from_deficit(tmin, tmax, climate["vpd"])
-    elevation = climate["elevation"] if "elevation" in climate else xr.zeros_like(climate["latitude"], dtype=np.float32)
-    mean = 0.5 * (tmin + tmax)
-    heat = energy.monthly_soil_heat_flux(mean.roll(month=1, roll_coords=False), mean.roll(month=-1, roll_coords=False))
-    return energy.penman_monteith_et0(tmin, tmax, ea, climate["shortwave"], extraterrestrial, elevation,
-                                      atmosphere.air_pressure_from_elevation(elevation), climate["wind_speed"], heat)
-
-
-def _with_latitude(climate: xr.Dataset) -> xr.Dataset:
-    if "latitude" in climate.data_vars:
-        return climate
-    if "latitude" in climate.coords:
-        latitude = climate.coords["latitude"]
-        return climate.drop_vars("latitude").assign(latitude=latitude)
-    raise ValueError("the dataset needs a 'latitude' layer (degrees north of each cell), as data variable or coordinate")
-
-
-def _check_inputs(names: Sequence[str]) -> None:
-    missing = [n for n in ("tmin", "tmax", "water_availability") if n not in names]
-    if not any(n in names for n in ("shortwave", "par")):
-        missing.append("shortwave (or par)")
-    if missing:
-        raise ValueError(f"the climate dataset lacks {', '.join(missing)}")
-
-
 def _pathway_params(physiology: Any, key: str):
     section = _get(physiology, key, None)
     if section is None:
@@ -904,9 +779,3 @@ def _pathway_params(physiology: Any, key: str):
     return params or None
 
 
-def _get(section: Any, key: str, default: Any) -> Any:
-    if section is None:
-        return default
-    if isinstance(section, Mapping):
-        return section.get(key, default)
-    return getattr(section, key, default)
