@@ -593,12 +593,14 @@ def _change_layers(baseline_paths: dict[str, Path], result: xr.Dataset, names, c
 
 
 def member_layers(names) -> list[str]:
-    """The layers written per member (``output.member_outputs``): the seasonal ones among ``names``."""
-    return [n for n in names if OUTPUT_LAYERS[n].kind == SEASONAL]
+    """The layers written per member (``output.member_outputs``): the seasonal and the parameter-uncertainty
+    ones among ``names``. The ensemble's layers are taken from these files (:func:`_written_members`), so
+    every member layer the ensemble pools must be among them."""
+    return [n for n in names if OUTPUT_LAYERS[n].kind in (SEASONAL, UNCERTAINTY)]
 
 
 def _write_members(cfg, grid, runtime, scenario, members: dict[str, xr.Dataset], tags, names) -> dict[str, Path]:
-    """Each member's seasonal layers in ``<scenario>/members/<member>/`` (``output.member_outputs``);
+    """Each member's layers (:func:`member_layers`) in ``<scenario>/members/<member>/`` (``output.member_outputs``);
     returns ``"members/<member>/<layer>"`` -> path, recorded with the scenario's outputs (manifest, resume)."""
     paths = {}
     for member, result in members.items():
@@ -613,12 +615,14 @@ def _write_members(cfg, grid, runtime, scenario, members: dict[str, xr.Dataset],
 
 def _written_members(paths: dict[str, Path], computed: dict[str, xr.Dataset], chunk: int) -> dict[str, xr.Dataset]:
     """Each member's continuous layers as written by :func:`_write_members` (opened lazily), so that the
-    ensemble layers are taken from them instead of evaluating every member a second time."""
+    ensemble layers are taken from them instead of evaluating every member a second time; a layer not
+    written stays the member's computed one (evaluated only if the ensemble's outputs need it), so that
+    the ensemble never lacks a layer its members have."""
     import rioxarray
 
     members = {}
     for member, result in computed.items():
-        layers = {}
+        layers = dict(result.data_vars)
         for key, path in paths.items():
             _, owner, name = key.split("/")
             # rasters only: the class layers' category sidecars (<layer>.aux.xml) are recorded here too
