@@ -15,7 +15,8 @@ Three kinds of run, each ``suitability run CONFIG`` in its own process, interlea
 Reported per run: wall seconds of the ``suitability run`` process (the cluster is started before the clock
 starts; its start-up is reported apart), the manifest's per-step timings, CPU seconds of the run process
 and of the cluster's processes (os.wait4 of each, which includes the children they waited for, e.g. the
-worker a ``dask worker`` nanny starts), and a sha256 of the pixel values of every written layer. The check:
+worker a ``dask worker`` nanny starts), on a cluster the tasks each worker ran (the scheduler's task
+stream: how many model blocks, how many seconds), and a sha256 of the pixel values of every written layer. The check:
 every run of every kind wrote the same layers with identical pixels. Speed-up 1 -> 2 workers: the fastest
 ``cluster_1`` run over the fastest ``cluster_2`` run, and each repeat's pair (run back to back).
 
@@ -39,7 +40,9 @@ import statistics
 import subprocess
 import sys
 import time
+from contextlib import contextmanager
 from pathlib import Path
+from types import SimpleNamespace
 
 import numpy as np
 import rasterio
@@ -134,6 +137,34 @@ class Cluster:
                     break
 
 
+@contextmanager
+def task_stream(cluster: Cluster | None):
+    """The scheduler's record of the tasks run meanwhile (``.data``: one dict per task), or an empty one."""
+    if cluster is None:
+        yield SimpleNamespace(data=[])
+        return
+    from distributed import Client, get_task_stream
+
+    with Client(cluster.address, timeout=10, set_as_default=False) as client, get_task_stream(client=client) as tasks:
+        yield tasks
+
+
+def per_worker(tasks: list[dict]) -> dict[str, dict]:
+    """Per worker: tasks run, seconds spent computing them, and of those the model blocks (``evaluate``
+    tasks, one per block of cells of the baseline or of a member): how evenly the work was shared."""
+    shares: dict[str, dict] = {}
+    for task in tasks:
+        key = task["key"][0] if isinstance(task["key"], tuple) else task["key"]
+        busy = sum(s["stop"] - s["start"] for s in task["startstops"] if s["action"] == "compute")
+        share = shares.setdefault(task["worker"], {"tasks": 0, "compute_s": 0.0, "model_blocks": 0, "model_blocks_s": 0.0})
+        share["tasks"] += 1
+        share["compute_s"] += busy
+        if str(key).startswith("evaluate-"):
+            share["model_blocks"] += 1
+            share["model_blocks_s"] += busy
+    return {worker: {k: round(v, 2) for k, v in share.items()} for worker, share in sorted(shares.items())}
+
+
 def run_once(config: Path, kind: str, output: Path) -> dict:
     """One ``suitability run`` of ``kind`` writing to ``output``: wall and CPU seconds, timings, pixel hashes."""
     settings = yaml.safe_load(config.read_text())
@@ -151,12 +182,12 @@ def run_once(config: Path, kind: str, output: Path) -> dict:
         else:
             scheduler = ["--scheduler", "threads", "--workers", "2"]
         command = [str(BIN / "suitability"), "run", str(run_config), "--no-progress", *scheduler]
-        started = time.perf_counter()
         errors = output.with_suffix(".stderr")
-        with errors.open("w") as stderr:
+        with errors.open("w") as stderr, task_stream(cluster) as tasks:
+            started = time.perf_counter()
             process = subprocess.Popen(command, cwd=SCRATCH, env=ENV, stdout=subprocess.DEVNULL, stderr=stderr)
             _, status, usage = os.wait4(process.pid, 0)
-        record["wall_s"] = round(time.perf_counter() - started, 2)
+            record["wall_s"] = round(time.perf_counter() - started, 2)
         record["run_process_cpu_s"] = round(usage.ru_utime + usage.ru_stime, 2)
         record["run_process_peak_rss_mib"] = round(usage.ru_maxrss / 1024, 1)
         if status != 0:
@@ -165,6 +196,8 @@ def run_once(config: Path, kind: str, output: Path) -> dict:
         if cluster is not None:
             cluster.__exit__()
             record["cluster_processes_cpu_s"] = round(cluster.cpu_s, 2)
+    if cluster is not None:
+        record["per_worker"] = per_worker(tasks.data)
     record["timings"] = json.loads((output / "manifest.json").read_text())["timings"]
     record["pixel_hashes"] = pixel_hashes(output)
     shutil.rmtree(output)
@@ -246,6 +279,11 @@ def main() -> None:
         lines.append(f"| {names[kind]} | {', '.join(str(w) for w in walls[kind])} | {fastest[kind]} | "
                      f"{cpu(kind, 'run_process_cpu_s'):.1f} | {cpu(kind, 'cluster_processes_cpu_s'):.1f} | "
                      f"{', '.join(str(s) for s in starts) or '-'} |")
+    lines += ["", "Model blocks (the baseline's and each member's blocks of cells) per worker process, and the seconds "
+              "spent computing them, each cluster run: " + "; ".join(
+                  f"{r['kind']} repeat {r['repeat']}: " + ", ".join(
+                      f"{w['model_blocks']} blocks {w['model_blocks_s']:.0f} s" for w in r["per_worker"].values())
+                  for r in runs if "per_worker" in r) + "."]
     lines += ["", f"Speed-up 1 -> 2 worker processes: {report['speed_up_1_to_2_workers']['fastest']} (fastest runs); "
               f"per repeat {', '.join(str(p) for p in paired)}.",
               f"2-worker cluster against 2 threads (fastest runs): {report['cluster_2_over_threads_fastest']} x the wall time.",
