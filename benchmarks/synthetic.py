@@ -10,6 +10,7 @@ climate and the cost per cell can be compared across sizes. A small invented lak
 Two uses:
 
 * :func:`write_region` writes the inputs and a ready-to-run config (YAML) into a folder;
+* :func:`write_members` adds an invented ensemble scenario (members made by warming the region's climate);
 * :func:`cell_inputs` returns in-memory arrays of ``n`` cells x 12 months for kernel benchmarks.
 
 Usage: ``python benchmarks/synthetic.py --size 2000 --out /tmp/region`` (prints the config path).
@@ -136,6 +137,37 @@ def write_region(folder: Path | str, size: int, *, rows: int | None = None, seed
     header = f"# {NOTE}\n"
     path.write_text(header + yaml.safe_dump(config, sort_keys=False))
     return path
+
+
+def write_members(config: Path | str, members: list[str], *, scenario: str = "warmer_ensemble", co2_ppm: float = 560.0,
+                  seed: int = SEED) -> Path:
+    """Add an INVENTED ensemble scenario to the config written by :func:`write_region`; return the config path.
+
+    Each member's Tmin and Tmax are the region's own (``data/tmin.tif``, ``data/tmax.tif``, on whatever grid
+    they were written) warmed by ``1 + i`` degC for the i-th member plus a seeded smooth pattern of about
+    +-0.7 degC of the member's own, written to ``data/tmin_<member>.tif`` / ``data/tmax_<member>.tif``; the
+    scenario reads them through a ``{member}`` pattern. Made-up warming, not any model's projection.
+    """
+    config = Path(config)
+    data = config.parent / "data"
+    settings = yaml.safe_load(config.read_text())
+    for i, member in enumerate(members):
+        for layer in ("tmin", "tmax"):
+            with rasterio.open(data / f"{layer}.tif") as src:
+                bands, transform = src.read(), src.transform
+            xx, yy = np.meshgrid(transform.c + transform.a * (np.arange(bands.shape[2]) + 0.5),
+                                 transform.f + transform.e * (np.arange(bands.shape[1]) + 0.5))
+            warming = 1.0 + i + 0.7 * _waves(xx, yy, seed + 100 + i)
+            warmed = np.where(bands == NODATA, NODATA, bands + warming[None])
+            _write(data / f"{layer}_{member}.tif", warmed, transform,
+                   f"{layer} of invented ensemble member {member} [degC]: the region's warmed by a made-up amount")
+    settings["scenarios"].append({
+        "name": scenario, "description": "invented ensemble: the region's climate warmed by made-up amounts",
+        "co2_ppm": co2_ppm, "members": list(members),
+        "climate": {layer: {"path": f"data/{layer}_{{member}}.tif", "units": "degC"} for layer in ("tmin", "tmax")},
+    })
+    config.write_text(f"# {NOTE}\n" + yaml.safe_dump(settings, sort_keys=False))
+    return config
 
 
 def cell_inputs(n_cells: int, seed: int = SEED) -> dict[str, np.ndarray]:

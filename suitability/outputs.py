@@ -622,6 +622,16 @@ def _create_tiled_geotiff(path: Path, name: str, dtype, grid: _Grid, tags: Mappi
         dst.update_tags(1, **band_tags)
 
 
+def overview_levels(width: int, height: int) -> int:
+    """How many overviews (each halving) a COG of ``width`` x ``height`` cells gets: rasterio's default
+    (halve while the shorter side stays above one tile), but at least one when either side is longer
+    than a tile, as the COG validator requires (a 1024 x 256 strip has no overview by the default alone
+    and is refused)."""
+    from rasterio.rio.overview import get_maximum_overview_level
+
+    return max(get_maximum_overview_level(width, height, minsize=TILE_SIZE), int(max(width, height) > TILE_SIZE))
+
+
 def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
     import rasterio
     from rasterio.shutil import copy
@@ -631,13 +641,13 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
     categorical = variable.categorical
     cog = tiled.with_name(tiled.name.replace(".tmp-", ".cog-"))
     with rasterio.open(tiled) as src:
-        dtype = src.dtypes[0]
+        dtype, width, height = src.dtypes[0], src.width, src.height
     profile = options.creation_options(dtype)
     try:
         cog_translate(
             tiled, cog, profile,
             nodata=CLASS_NODATA if categorical or variable.integer else np.nan,
-            overview_level=None if options.overviews else 0,
+            overview_level=overview_levels(width, height) if options.overviews else 0,
             overview_resampling=variable.resampling,
             forward_band_tags=True,
             colormap=variable.colours if categorical else None,

@@ -656,8 +656,9 @@ def _change_layers(baseline_paths: dict[str, Path], baseline: xr.Dataset | None,
 
 
 def member_layers(names) -> list[str]:
-    """The layers written per member (``output.member_outputs``): the seasonal ones among ``names``."""
-    return [n for n in names if OUTPUT_LAYERS[n].kind == SEASONAL]
+    """The layers written per member (``output.member_outputs``): the seasonal and the parameter-uncertainty
+    ones among ``names``."""
+    return [n for n in names if OUTPUT_LAYERS[n].kind in (SEASONAL, UNCERTAINTY)]
 
 
 def _georeferenced(layer, grid: TargetGrid):

@@ -5,6 +5,10 @@ A `dask scheduler` and two `dask worker` processes are started on 127.0.0.1 (fre
 and the CLI is pointed at them with ``--scheduler tcp://127.0.0.1:PORT``. The region is the invented
 synthetic grid of benchmarks/synthetic.py, 1100 x 520 cells: three 512-cell chunks across and two down
 (more than 1024 cells wide, so 512 and 1024 chunks differ), one season month to keep it quick.
+
+The ensemble check runs a narrow strip of the same invented grid (600 x 60 cells: two 512-cell chunks across)
+with an invented three-member scenario (benchmarks.synthetic.write_members: the region's climate warmed by
+made-up amounts), each member's layers written and four parameter draws.
 """
 
 from __future__ import annotations
@@ -26,7 +30,7 @@ from suitability.variables import layer_names
 
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
-from benchmarks.synthetic import write_region  # noqa: E402  (the repository root holds benchmarks/)
+from benchmarks.synthetic import write_members, write_region  # noqa: E402  (the repository root holds benchmarks/)
 
 BIN = Path(sys.executable).parent
 
@@ -152,3 +156,32 @@ def test_chunk_size_does_not_change_any_pixel(region_on_target_grid):
         hashes[chunk] = pixel_hashes(output)
     assert len(hashes[512]) == len(layer_names("seasonal"))
     assert hashes[1024] == hashes[512]
+
+
+MEMBERS = ["m1", "m2", "m3"]  # invented members (benchmarks.synthetic.write_members)
+
+
+@pytest.fixture(scope="module")
+def ensemble_region(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("ensemble_region")
+    config = write_members(write_region(folder, 600, rows=60, scenarios=1, months=[1]), MEMBERS)
+    settings = yaml.safe_load(config.read_text())
+    settings["uncertainty"] = {"draws": 4, "seed": 1}
+    settings["output"]["member_outputs"] = True
+    config.write_text(yaml.safe_dump(settings, sort_keys=False))
+    return config
+
+
+def test_two_worker_cluster_gives_the_threaded_pixels_of_an_ensemble(ensemble_region, cluster):
+    # Derived here: the members, their draws and the ensemble's pooling are computed cell by cell, so the
+    # scheduler that runs them cannot change a pixel of any layer (the scenario's, the ensemble's or a member's).
+    threaded = ensemble_region.parent / "ensemble_threads"
+    run_cli(ensemble_region, threaded, "--scheduler", "threads", "--workers", "2")
+    on_cluster = ensemble_region.parent / "ensemble_cluster"
+    run_cli(ensemble_region, on_cluster, "--scheduler", cluster)
+    hashes = pixel_hashes(threaded)
+    member_layers = layer_names("seasonal") + layer_names("uncertainty")
+    for member in MEMBERS:  # every member's seasonal and draw layers were written (output.member_outputs)
+        assert {f"warmer_ensemble/members/{member}/{name}.tif" for name in member_layers} <= set(hashes)
+    assert {f"warmer_ensemble/{name}.tif" for name in layer_names("ensemble", "uncertainty")} <= set(hashes)
+    assert pixel_hashes(on_cluster) == hashes

@@ -349,6 +349,21 @@ def test_small_rasters_without_overviews_are_valid(tmp_path):
     np.testing.assert_array_equal(read_band(paths["c3_assimilation"]), data.compute())
 
 
+def test_a_strip_longer_than_a_tile_one_way_only_gets_an_overview_and_is_a_valid_cog(tmp_path):
+    # rio-cogeo's validator (a port of GDAL's validate_cloud_optimized_geotiff.py) refuses a raster with a
+    # side over 512 cells and no overview; rasterio's default overview count (halve while the shorter side
+    # exceeds the tile) gives none for 1100 x 300 cells, so the write failed with default options.
+    rows = 300
+    data = da.random.default_rng(6).random((rows, WIDTH), chunks=512).astype(np.float32)
+    layer = on_grid(random_field(3)).isel(y=slice(0, rows)).copy(data=data)
+    paths = write_layers({"c3_assimilation": layer}, tmp_path, tags=TAGS, cog_options=None)
+    valid, errors, warnings = cog_validate(paths["c3_assimilation"], strict=True, quiet=True)
+    assert valid, (errors, warnings)
+    with rasterio.open(paths["c3_assimilation"]) as src:
+        assert src.overviews(1) == [2]
+    np.testing.assert_array_equal(read_band(paths["c3_assimilation"]), data.compute())
+
+
 def test_failure_mid_compute_leaves_no_output_and_no_temporaries(tmp_path):
     # an earlier, finished output must survive a failed rewrite untouched (atomic replace)
     earlier = write_layers({"pathway_advantage": example_layers()["pathway_advantage"]}, tmp_path, tags=TAGS,

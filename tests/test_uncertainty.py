@@ -319,6 +319,42 @@ def test_draws_and_ensemble_members_are_orthogonal(tmp_path):
     assert set(np.unique(read("late", "confidence_class"))) <= {1, 2, 3, 4, 5, 255}
 
 
+def test_member_outputs_with_draws_write_each_members_draw_layers_and_keep_the_ensemble_layers(tmp_path):
+    # Derived here: writing the members' layers (output.member_outputs) must not change the ensemble's layers
+    # in any pixel, and each member's draw layers must be those of the member run alone. (An earlier version
+    # re-read the ensemble's layers from the members' files and stopped with KeyError
+    # 'c4_advantage_probability': only the members' seasonal layers were written.)
+    import rasterio
+    import yaml
+
+    import suitability
+    from test_ensembles import MEMBERS, _single, config, write_inputs
+
+    write_inputs(tmp_path)
+    path = config(tmp_path, [_single(m, [2031, 2040], 480) for m in MEMBERS])
+    cfg = yaml.safe_load(path.read_text())
+    cfg["uncertainty"] = {"draws": 3, "seed": 4}
+    cfg["scenarios"] = [s for s in cfg["scenarios"] if s["name"] != "late"]  # the member-dimension file: not needed
+    layers = {}
+    for member_outputs in (False, True):
+        cfg["output"].update(member_outputs=member_outputs, folder=f"out_{member_outputs}")
+        path.write_text(yaml.safe_dump(cfg, sort_keys=False))
+        layers[member_outputs] = suitability.run(path).layers
+
+    def read(path):
+        with rasterio.open(path) as src:
+            return src.read(1)
+
+    assert set(layers[True]["mid"]) > set(layers[False]["mid"])  # plus members/<member>/<layer>
+    for name, written in layers[False]["mid"].items():
+        if str(written).endswith(".tif"):
+            np.testing.assert_array_equal(read(layers[True]["mid"][name]), read(written), err_msg=name)
+    for member in MEMBERS:
+        for name in ("c4_advantage_probability", "advantage_p50", "towards_c4_probability", "confidence_class"):
+            np.testing.assert_array_equal(read(layers[True]["mid"][f"members/{member}/{name}"]),
+                                          read(layers[True][f"mid_{member}"][name]), err_msg=f"{member} {name}")
+
+
 def test_sensitivity_lists_each_varied_parameter_with_both_ends(tmp_path):
     from typer.testing import CliRunner
 
