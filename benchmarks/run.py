@@ -154,10 +154,11 @@ def fresh_build_child(time_cells: int, repeats: int) -> None:
     print(json.dumps(report))
 
 
-def kernel_build(target: dict | None = None, time_cells: int = 0, repeats: int = 3, timeout_s: float = 900.0) -> dict:
+def kernel_build(target: dict | None = None, time_cells: int = 0, repeats: int = 3, timeout_s: float = 1800.0) -> dict:
     """The kernel compiled afresh in a child process, for this CPU (``target`` None) or with the numba
     settings in ``target`` (e.g. :data:`AVX2_TARGET`), in a throw-away numba cache (the production cache is
-    neither used nor written, and its assembly can be read; about a minute): its packed-double arithmetic
+    neither used nor written, and its assembly can be read; about a minute on a quiet 2-core machine, up to
+    13 minutes measured on a busy one): its packed-double arithmetic
     instructions counted by register (zmm = 8 doubles, ymm = 4, xmm = 2) and, with ``time_cells``, its
     one-thread throughput beside the numpy engine's in the same child."""
     import tempfile
@@ -175,7 +176,7 @@ def kernel_build(target: dict | None = None, time_cells: int = 0, repeats: int =
     return json.loads(result.stdout.strip().splitlines()[-1])
 
 
-def kernel_simd(time_cells: int = 0, timeout_s: float = 900.0) -> dict:
+def kernel_simd(time_cells: int = 0, timeout_s: float = 1800.0) -> dict:
     """The vector width the compiled kernel actually got on this CPU (:func:`kernel_build`; timed beside
     the numpy engine with ``time_cells``, as the AVX2 build is)."""
     return kernel_build(None, time_cells=time_cells, timeout_s=timeout_s)
@@ -432,6 +433,9 @@ def avx2_markdown(results: dict) -> list[str]:
         kernel_rate, numpy_rate = row["kernel_1_thread_cell_steps_per_s"], row["package_numpy_engine_1_thread_cell_steps_per_s"]
         lines.append(f"| {name} | {_width_cell(row)} | {row.get('gathers', '')} | {kernel_rate / 1e6:.2f} M | "
                      f"{numpy_rate / 1e6:.3f} M | {kernel_rate / numpy_rate:.1f} | {kernel_rate / numpy_main:.1f} |")
+    if build["packed_double_instructions"].get("zmm"):
+        lines += ["", "**The AVX2 build has zmm instructions: the target settings did not take, so its row is not "
+                  "an AVX2 build's.**"]
     lines += [
         "",
         f"AVX2 build compile time {build['compile_s']} s. Its accuracy: against the oracle (relative to gross) "
