@@ -28,6 +28,7 @@ import argparse
 import json
 import os
 import platform
+import re
 import shutil
 import subprocess
 import sys
@@ -90,50 +91,96 @@ def simd_width() -> str:
     return f"no x86 SIMD found, LLVM CPU {binding.get_host_cpu_name()}"
 
 
-_KERNEL_ASM_CHILD = r"""
-import collections, json, re, sys
-import numpy as np
-from suitability import kernel
-from suitability.kernel import compiled_entry, pathway_tables
-from suitability.model import REPRESENTATIVE_DAY
-cells = np.full((64, 12), 20.0, np.float32)
-kernel.monthly_canopy_assimilation(tmin_c=cells - 5, tmax_c=cells + 5, shortwave_mj=cells, water_availability=cells / 40,
-                                   latitude_deg=cells[:, 0] - 45, day_of_year=REPRESENTATIVE_DAY, co2_ppm=420.0)
-entry = compiled_entry(pathway_tables("C3", None).model, pathway_tables("C4", None).model)
-asm = entry.inspect_asm(entry.signatures[0])
-widths = collections.Counter()
-for line in asm.splitlines():
-    parts = line.split()
-    if parts and re.fullmatch(r"v\w+pd", parts[0]):  # packed-double arithmetic (not moves)
-        if parts[0].startswith(("vmov", "vbroadcast", "vgather", "vperm", "vshuf", "vunpck", "vblend")):
-            continue
-        register = "zmm" if "zmm" in line else "ymm" if "ymm" in line else "xmm"
-        widths[register] += 1
-print(json.dumps(widths))
-"""
+#: An AVX2-only x86 target (Haswell: AVX2 and FMA, no AVX-512) for numba's code generation. The CPU name
+#: alone is not enough: numba then still passes the host's feature flags (+avx512f ... on this machine) to
+#: LLVM (numba/core/codegen.py, ``_get_host_cpu_features``), so the features are given explicitly.
+AVX2_TARGET = {
+    "NUMBA_CPU_NAME": "haswell",
+    "NUMBA_CPU_FEATURES": "+64bit,+avx,+avx2,+bmi,+bmi2,+cmov,+cx16,+cx8,+f16c,+fma,+fsgsbase,+fxsr,+invpcid,"
+                          "+lzcnt,+mmx,+movbe,+pclmul,+popcnt,+rdrnd,+sahf,+sse,+sse2,+sse3,+sse4.1,+sse4.2,"
+                          "+ssse3,+xsave,+xsaveopt,-avx512f,-avx512bw,-avx512cd,-avx512dq,-avx512vl",
+}
+_LANES = {"zmm": 8, "ymm": 4, "xmm": 2}
 
 
-def kernel_simd(timeout_s: float = 900.0) -> dict:
-    """The vector width the compiled kernel actually got: its default entry point compiled afresh (numba's
-    cache bypassed, so its assembly can be read; about a minute) in a child process, and its packed-double
-    arithmetic instructions counted by register: zmm = 8 doubles (AVX-512), ymm = 4 (AVX2), xmm = 2."""
+def packed_arithmetic_by_register(asm: str, suffix: str = "pd") -> dict:
+    """Packed arithmetic instructions (``v...pd`` for doubles, ``v...ps`` for singles; not moves, gathers,
+    shuffles or blends) of an assembly listing, counted by register: zmm, ymm or xmm."""
+    widths = {"zmm": 0, "ymm": 0, "xmm": 0}
+    for line in asm.splitlines():
+        parts = line.split()
+        if parts and re.fullmatch(rf"v\w+{suffix}", parts[0]):
+            if parts[0].startswith(("vmov", "vbroadcast", "vgather", "vperm", "vshuf", "vunpck", "vblend")):
+                continue
+            widths["zmm" if "zmm" in line else "ymm" if "ymm" in line else "xmm"] += 1
+    return widths
+
+
+def width_summary(counts: dict) -> dict:
+    total = sum(counts.values()) or 1
+    widest = next((name for name in ("zmm", "ymm", "xmm") if counts.get(name)), None)
+    return {"packed_double_instructions": counts, "widest_register": widest,
+            "doubles_per_instruction": _LANES.get(widest), "share_on_widest": counts.get(widest, 0) / total}
+
+
+def fresh_build_child(time_cells: int, repeats: int) -> None:
+    """Run in a child process (``kernel_build``): compile the kernel's default entry point afresh under this
+    process's numba settings, print its packed-double instructions by register and, if ``time_cells``, its
+    one-thread throughput and that of the numpy engine measured alternately in this process (JSON)."""
+    from llvmlite import binding
+
+    from suitability.kernel import compiled_entry, pathway_tables
+
+    cells = cell_inputs(max(time_cells, 64))
+    start = time.perf_counter()
+    _run_kernel({k: v[:64] for k, v in cells.items()})
+    report = {"compile_s": round(time.perf_counter() - start, 1)}
+    entry = compiled_entry(pathway_tables("C3", None).model, pathway_tables("C4", None).model)
+    codegen = entry.targetctx.codegen()
+    report["llvm_cpu"] = codegen._get_host_cpu_name()
+    report["host_cpu"] = binding.get_host_cpu_name()
+    asm = entry.inspect_asm(entry.signatures[0])
+    report.update(width_summary(packed_arithmetic_by_register(asm)))
+    # Table lookups vectorise as gathers where LLVM's cost model for the target finds them worth it.
+    report["gathers"] = sum(1 for line in asm.splitlines() if line.split()[:1] and line.split()[0].startswith("vgather"))
+    if time_cells:
+        package_cells = {k: v[:max(1024, time_cells // 32)] for k, v in cells.items()}
+        kernel_s = package_s = float("inf")
+        for _ in range(repeats):  # alternately, so that both see the same load
+            kernel_s = min(kernel_s, best_time(lambda: _run_kernel(cells), 1))
+            package_s = min(package_s, best_time(lambda: _package_numpy(package_cells), 1))
+        report["kernel_1_thread_cell_steps_per_s"] = time_cells * 12 / kernel_s
+        report["package_numpy_engine_1_thread_cell_steps_per_s"] = len(package_cells["latitude"]) * 12 / package_s
+        report["accuracy"] = kernel_accuracy(_run_kernel, {k: v[:2048] for k, v in cells.items()})
+    print(json.dumps(report))
+
+
+def kernel_build(target: dict | None = None, time_cells: int = 0, repeats: int = 3, timeout_s: float = 1800.0) -> dict:
+    """The kernel compiled afresh in a child process, for this CPU (``target`` None) or with the numba
+    settings in ``target`` (e.g. :data:`AVX2_TARGET`), in a throw-away numba cache (the production cache is
+    neither used nor written, and its assembly can be read; about a minute on a quiet 2-core machine, up to
+    13 minutes measured on a busy one): its packed-double arithmetic
+    instructions counted by register (zmm = 8 doubles, ymm = 4, xmm = 2) and, with ``time_cells``, its
+    one-thread throughput beside the numpy engine's in the same child."""
     import tempfile
 
     with tempfile.TemporaryDirectory() as cache:
-        environment = dict(os.environ, NUMBA_CACHE_DIR=cache, PYTHONPATH=str(REPO))
+        environment = dict(os.environ, NUMBA_CACHE_DIR=cache, PYTHONPATH=str(REPO), **(target or {}))
+        code = f"from benchmarks.run import fresh_build_child; fresh_build_child({int(time_cells)}, {int(repeats)})"
         try:
-            result = subprocess.run([sys.executable, "-c", _KERNEL_ASM_CHILD], env=environment, capture_output=True,
-                                    text=True, timeout=timeout_s, check=False)
+            result = subprocess.run([sys.executable, "-c", code], env=environment, capture_output=True,
+                                    text=True, timeout=timeout_s, check=False, cwd=str(REPO))
         except subprocess.TimeoutExpired:
             return {"error": f"no answer within {timeout_s:.0f} s"}
     if result.returncode != 0:
         return {"error": result.stderr[-500:]}
-    counts = json.loads(result.stdout.strip().splitlines()[-1])
-    total = sum(counts.values()) or 1
-    widest = next((name for name in ("zmm", "ymm", "xmm") if counts.get(name)), None)
-    lanes = {"zmm": 8, "ymm": 4, "xmm": 2}
-    return {"packed_double_instructions": counts, "widest_register": widest,
-            "doubles_per_instruction": lanes.get(widest), "share_on_widest": counts.get(widest, 0) / total}
+    return json.loads(result.stdout.strip().splitlines()[-1])
+
+
+def kernel_simd(time_cells: int = 0, timeout_s: float = 1800.0) -> dict:
+    """The vector width the compiled kernel actually got on this CPU (:func:`kernel_build`; timed beside
+    the numpy engine with ``time_cells``, as the AVX2 build is)."""
+    return kernel_build(None, time_cells=time_cells, timeout_s=timeout_s)
 
 
 def best_time(function, repeats: int) -> float:
@@ -145,51 +192,42 @@ def best_time(function, repeats: int) -> float:
     return best
 
 
-def kernel_benchmark(n_cells: int, n_baseline: int, n_package: int, repeats: int) -> dict:
+def _run_kernel(part: dict, **options):
+    """The compiled kernel on in-memory cells (benchmarks/synthetic.py cell_inputs), both pathways."""
     from suitability import kernel, model
+
+    return kernel.monthly_canopy_assimilation(
+        tmin_c=part["tmin"], tmax_c=part["tmax"], shortwave_mj=part["shortwave"],
+        water_availability=part["water_availability"], latitude_deg=part["latitude"],
+        elevation_m=part["elevation"], day_of_year=model.REPRESENTATIVE_DAY, co2_ppm=420.0, **options)
+
+
+def _package_numpy(part: dict) -> None:
+    """The numpy engine (the yardstick) on the same cells: the physiology's equations, vectorised."""
+    from suitability import model
     from suitability.physiology import canopy
 
     days = model.REPRESENTATIVE_DAY
-    cells = cell_inputs(n_cells)
+    with np.errstate(all="ignore"):
+        for month in range(12):
+            for pathway in ("C3", "C4"):
+                canopy.daily_canopy_assimilation(
+                    pathway, tmin_c=part["tmin"][:, month], tmax_c=part["tmax"][:, month],
+                    shortwave_mj=part["shortwave"][:, month], latitude_deg=part["latitude"],
+                    day_of_year=int(days[month]), co2_ppm=420.0, elevation_m=part["elevation"],
+                    water_availability=part["water_availability"][:, month], lai=3.0)
 
-    def run_kernel(part):
-        return kernel.monthly_canopy_assimilation(
-            tmin_c=part["tmin"], tmax_c=part["tmax"], shortwave_mj=part["shortwave"],
-            water_availability=part["water_availability"], latitude_deg=part["latitude"],
-            elevation_m=part["elevation"], day_of_year=days, co2_ppm=420.0)
 
-    start = time.perf_counter()
-    run_kernel({k: v[:64] for k, v in cells.items()})  # compile, or load from numba's cache
-    first_call_s = time.perf_counter() - start
-    one_thread_s = best_time(lambda: run_kernel(cells), repeats)
-    halves = [{k: v[: n_cells // 2] for k, v in cells.items()}, {k: v[n_cells // 2:] for k, v in cells.items()}]
+def kernel_accuracy(run_kernel, cells: dict, reference_cells: int = 2000) -> dict:
+    """``run_kernel(cells)`` against the independent numpy oracle (tests/oracle_canopy.py; largest difference
+    relative to gross assimilation, 1e-4 target) and its daily gross against the 96-step reference
+    integration of the same model on the first ``reference_cells`` cells and 4 months (0.5 % target)."""
+    from suitability import model
+    from suitability.physiology import canopy
 
-    def two_threads():
-        with ThreadPoolExecutor(2) as pool:
-            list(pool.map(run_kernel, halves))
-
-    two_threads_s = best_time(two_threads, repeats)
-
-    base_cells = {k: v[:n_baseline] for k, v in cells.items()}
-    oracle_s = best_time(lambda: monthly_canopy(base_cells, days, 420.0), max(1, repeats - 1))
-
-    package_cells = {k: v[:n_package] for k, v in cells.items()}
-
-    def package_numpy():
-        with np.errstate(all="ignore"):
-            for month in range(12):
-                for pathway in ("C3", "C4"):
-                    canopy.daily_canopy_assimilation(
-                        pathway, tmin_c=package_cells["tmin"][:, month], tmax_c=package_cells["tmax"][:, month],
-                        shortwave_mj=package_cells["shortwave"][:, month], latitude_deg=package_cells["latitude"],
-                        day_of_year=int(days[month]), co2_ppm=420.0, elevation_m=package_cells["elevation"],
-                        water_availability=package_cells["water_availability"][:, month], lai=3.0)
-
-    package_s = best_time(package_numpy, max(1, repeats - 1))
-
-    # Accuracy, on the oracle's cells: kernel vs the independent oracle, and vs the 96-step reference.
-    result = run_kernel(base_cells)
-    baseline = monthly_canopy(base_cells, days, 420.0)
+    days = model.REPRESENTATIVE_DAY
+    result = run_kernel(cells)
+    baseline = monthly_canopy(cells, days, 420.0)
     fields = ("c3_net", "c3_gross", "c3_photorespiration", "c4_net", "c4_gross")
     differences = {}
     for i, field in enumerate(fields):
@@ -198,7 +236,7 @@ def kernel_benchmark(n_cells: int, n_baseline: int, n_package: int, repeats: int
         differences[field] = float(np.nanmax(np.abs(got - baseline[i]) / np.maximum(np.abs(gross), 1e-12)))
         differences[field + "_nan_pattern_equal"] = bool(np.array_equal(np.isnan(got), np.isnan(baseline[i])))
     reference_errors = {}
-    sample = {k: v[:2000] for k, v in base_cells.items()}
+    sample = {k: v[:reference_cells] for k, v in cells.items()}
     sample_result = run_kernel(sample)
     with np.errstate(all="ignore"):
         for pathway in ("C3", "C4"):
@@ -212,6 +250,33 @@ def kernel_benchmark(n_cells: int, n_baseline: int, n_package: int, repeats: int
                 got = getattr(sample_result, f"{pathway.lower()}_gross")[:, month]
                 worst = max(worst, float(np.nanmax(np.abs(got - reference.gross) / np.abs(reference.gross))))
             reference_errors[pathway] = worst
+    return {"max_difference_kernel_vs_oracle_relative_to_gross": differences,
+            "max_relative_error_of_gross_vs_96_step_reference": reference_errors}
+
+
+def kernel_benchmark(n_cells: int, n_baseline: int, n_package: int, repeats: int) -> dict:
+    from suitability import model
+
+    days = model.REPRESENTATIVE_DAY
+    cells = cell_inputs(n_cells)
+
+    start = time.perf_counter()
+    _run_kernel({k: v[:64] for k, v in cells.items()})  # compile, or load from numba's cache
+    first_call_s = time.perf_counter() - start
+    one_thread_s = best_time(lambda: _run_kernel(cells), repeats)
+    halves = [{k: v[: n_cells // 2] for k, v in cells.items()}, {k: v[n_cells // 2:] for k, v in cells.items()}]
+
+    def two_threads():
+        with ThreadPoolExecutor(2) as pool:
+            list(pool.map(_run_kernel, halves))
+
+    two_threads_s = best_time(two_threads, repeats)
+
+    base_cells = {k: v[:n_baseline] for k, v in cells.items()}
+    oracle_s = best_time(lambda: monthly_canopy(base_cells, days, 420.0), max(1, repeats - 1))
+
+    package_cells = {k: v[:n_package] for k, v in cells.items()}
+    package_s = best_time(lambda: _package_numpy(package_cells), max(1, repeats - 1))
 
     steps = lambda n: n * 12  # noqa: E731
     kernel_rate = steps(n_cells) / one_thread_s
@@ -227,8 +292,8 @@ def kernel_benchmark(n_cells: int, n_baseline: int, n_package: int, repeats: int
         "kernel_over_package_numpy_per_core": kernel_rate / package_rate,
         "kernel_over_oracle_numpy_per_core": kernel_rate / oracle_rate,
         "leaf_evaluations_both_pathways_per_s_2_threads": steps(n_cells) / two_threads_s * LEAF_EVALUATIONS_PER_CELL_STEP,
-        "max_difference_kernel_vs_oracle_relative_to_gross": differences,
-        "max_relative_error_of_gross_vs_96_step_reference": reference_errors,
+        # Accuracy, on the oracle's cells: kernel vs the independent oracle, and vs the 96-step reference.
+        **kernel_accuracy(_run_kernel, base_cells),
     }
 
 
@@ -340,6 +405,58 @@ def _simd_line(simd: dict | None) -> str:
             f"({simd['doubles_per_instruction']} doubles per instruction; {counts})")
 
 
+def _width_cell(build: dict | None) -> str:
+    if not build or "error" in build:
+        return "not read"
+    return f"{build['widest_register']} ({build['share_on_widest']:.0%} of {sum(build['packed_double_instructions'].values())})"
+
+
+def avx2_markdown(results: dict) -> list[str]:
+    """The "AVX2 build" section: the kernel built for an AVX2-only CPU beside the build for this CPU."""
+    build = results.get("avx2_build")
+    if not build:
+        return []
+    k = results["kernel"]
+    lines = ["## AVX2 build (the kernel compiled for an AVX2-only CPU, side by side with this CPU's build)", ""]
+    if "error" in build:
+        return lines + [f"The AVX2 build failed: {build['error'][:300]}", ""]
+    numpy_main = k["package_numpy_engine_1_thread_cell_steps_per_s"]
+    host = results["machine"].get("kernel_simd")
+    target = ", ".join(f"{name}={value if len(value) < 40 else value[:37] + '...'}" for name, value in AVX2_TARGET.items())
+    lines += [
+        f"The AVX2 build is compiled in a child process with {target} (full list in benchmarks/run.py "
+        f"AVX2_TARGET; LLVM CPU {build['llvm_cpu']}) and a throw-away numba cache, and timed there on the same "
+        f"{k['cells']} cells, alternately with the numpy engine; so is this CPU's build (the fresh compile that "
+        "reads its vector width). Packed-double arithmetic instructions of the entry point by register: zmm = 8 "
+        "doubles, ymm = 4; gathers: vectorised table lookups.",
+        "",
+        "| build | widest register (share of packed-double arithmetic) | gathers | kernel, 1 thread, cell-steps/s | "
+        "numpy engine, same process | ratio (per core) | ratio to the numpy engine of the main process |",
+        "|---|---|---|---|---|---|---|",
+    ]
+    for name, row in ((f"this CPU ({host.get('llvm_cpu', '')})" if host else "this CPU", host), (f"AVX2 only ({build['llvm_cpu']})", build)):
+        if not row or "error" in row or "kernel_1_thread_cell_steps_per_s" not in row:
+            lines.append(f"| {name} | {_width_cell(row)} | | not timed | | | |")
+            continue
+        kernel_rate, numpy_rate = row["kernel_1_thread_cell_steps_per_s"], row["package_numpy_engine_1_thread_cell_steps_per_s"]
+        lines.append(f"| {name} | {_width_cell(row)} | {row.get('gathers', '')} | {kernel_rate / 1e6:.2f} M | "
+                     f"{numpy_rate / 1e6:.3f} M | {kernel_rate / numpy_rate:.1f} | {kernel_rate / numpy_main:.1f} |")
+    if build["packed_double_instructions"].get("zmm"):
+        lines += ["", "**The AVX2 build has zmm instructions: the target settings did not take, so its row is not "
+                  "an AVX2 build's.**"]
+    lines += [
+        "",
+        f"AVX2 build compile time {build['compile_s']} s. Its accuracy: against the oracle (relative to gross) "
+        + ", ".join(f"{f} {v:.1e}" for f, v in build["accuracy"]["max_difference_kernel_vs_oracle_relative_to_gross"].items()
+                    if not f.endswith("equal"))
+        + "; daily gross vs the 96-step reference "
+        + ", ".join(f"{p} {v * 100:.2f} %" for p, v in build["accuracy"]["max_relative_error_of_gross_vs_96_step_reference"].items())
+        + ".",
+        "",
+    ]
+    return lines
+
+
 def markdown(results: dict) -> str:
     if "kernel" not in results:  # --draws-only
         return "\n".join([f"# Benchmark run {results['created']}", ""] + draws_markdown(results["draws"]))
@@ -373,6 +490,9 @@ def markdown(results: dict) -> str:
         + "; daily gross vs the 96-step reference: "
         + ", ".join(f"{p} {v * 100:.2f} %" for p, v in k["max_relative_error_of_gross_vs_96_step_reference"].items()) + ".",
         "",
+    ]
+    lines += avx2_markdown(results)
+    lines += [
         "## End to end (`suitability run`, 12 months x N scenarios, all layers, COG)",
         "",
         "Share of kernel: the run's cell-steps/s over the kernel's own 2-thread rate above (same run).",
@@ -412,6 +532,8 @@ def main() -> None:
     parser.add_argument("--out", type=Path, default=RESULTS)
     parser.add_argument("--no-simd-check", action="store_true",
                         help="skip compiling the kernel afresh to read the vector width it got (about a minute)")
+    parser.add_argument("--no-avx2-build", action="store_true",
+                        help="skip compiling and timing the kernel for an AVX2-only CPU (about a minute)")
     parser.add_argument("--draws", type=int, default=16, help="parameter draws for the cost of one draw")
     parser.add_argument("--draw-cells", type=int, default=16384, help="cells of the block for the draws' cost")
     parser.add_argument("--draws-only", action="store_true", help="only the cost of parameter draws")
@@ -432,7 +554,10 @@ def main() -> None:
         return
     if not args.no_simd_check:
         print("kernel vector width (fresh compile) ...", flush=True)
-        results["machine"]["kernel_simd"] = kernel_simd()
+        results["machine"]["kernel_simd"] = kernel_simd(0 if args.no_avx2_build else args.kernel_cells)
+    if not args.no_avx2_build:
+        print("kernel built for an AVX2-only CPU (fresh compile, timed) ...", flush=True)
+        results["avx2_build"] = kernel_build(AVX2_TARGET, time_cells=args.kernel_cells)
     print("kernel ...", flush=True)
     results["kernel"] = kernel_benchmark(args.kernel_cells, max(2048, args.kernel_cells // 8),
                                          max(1024, args.kernel_cells // 32), repeats=3)

@@ -85,13 +85,15 @@ _T_LOW, _T_HIGH = TEMPERATURE_RANGE_C
 _JIT = dict(inline="always", nogil=True, error_model="numpy", fastmath={"contract"}, _nrt=False)
 
 
-def _stack_array(rows: int):
-    """A compiled-only helper returning a (rows, BATCH) float64 array on the stack of the caller.
+def _stack_array(rows: int, dtype=numba.types.float64):
+    """A compiled-only helper returning a (rows, BATCH) array of ``dtype`` (float64 in production; the
+    float32 measurement, benchmarks/float32.py, binds float32 ones) on the stack of the caller.
 
     Stack memory cannot alias the tables or the outputs, so LLVM needs no run-time alias checks to
     vectorise the lane loops (with heap arrays it gives up: the table reads have no known bounds).
     """
-    array_type = numba.types.Array(numba.types.float64, 2, "C")
+    array_type = numba.types.Array(dtype, 2, "C")
+    itemsize = np.dtype(str(dtype)).itemsize
 
     @numba.extending.intrinsic
     def stack_array(typingctx):
@@ -99,12 +101,12 @@ def _stack_array(rows: int):
             from numba.core import cgutils
             from numba.np.arrayobj import make_array, populate_array
 
-            data = cgutils.alloca_once(builder, context.get_value_type(numba.types.float64), size=rows * BATCH)
+            data = cgutils.alloca_once(builder, context.get_value_type(dtype), size=rows * BATCH)
             array = make_array(array_type)(context, builder)
             intp = context.get_value_type(numba.types.intp)
             populate_array(array, data=data, shape=cgutils.pack_array(builder, [intp(rows), intp(BATCH)]),
-                           strides=cgutils.pack_array(builder, [intp(8 * BATCH), intp(8)]), itemsize=intp(8),
-                           meminfo=None)
+                           strides=cgutils.pack_array(builder, [intp(itemsize * BATCH), intp(itemsize)]),
+                           itemsize=intp(itemsize), meminfo=None)
             return array._getvalue()
 
         return array_type(), codegen
@@ -122,6 +124,15 @@ _moment_array = _stack_array(_N_MOMENT)
 def _lerp(table, row, fraction, term):
     low = table[term, row]
     return low + fraction * (table[term, row + 1] - low)
+
+
+@numba.njit(**_JIT)
+def _table_row(position, last_row):
+    """The table row at or below ``position`` (in rows from the first), clamped to the last pair of rows,
+    and the fraction of a step beyond it. (A separate function so that benchmarks/float32.py can bind one
+    that keeps the fraction float32: float32 minus an integer is float64 in numba.)"""
+    row = min(max(int(math.floor(position)), 0), last_row)
+    return row, position - row
 
 
 @numba.njit(**_JIT)
@@ -144,9 +155,7 @@ def _moment_rates(setup, lane, temperature, sunlit_par, shaded_par, sunlit_lai, 
     0.0, and the C3 and C4 canopy transpiration [mol H2O m-2 ground s-1]."""
     valid = temperature >= _T_LOW and temperature <= _T_HIGH
     t = temperature if valid else 25.0
-    position = (t - table_start) * table_inverse_step
-    row = min(max(int(math.floor(position)), 0), last_row)
-    fraction = position - row
+    row, fraction = _table_row((t - table_start) * table_inverse_step, last_row)
     humidity = setup[_S_HUMIDITY, lane]
     vpd = humidity if humidity_kind == HUMIDITY_VPD else saturation_deficit(
         saturation[row] + fraction * (saturation[row + 1] - saturation[row]), humidity)
