@@ -86,7 +86,8 @@ def run_apart(config: Path) -> dict:
     folder = Path(yaml.safe_load(config.read_text())["output"]["folder"])
     manifest = folder / "manifest.json"
     if process.returncode != 0 or not manifest.exists():
-        raise RuntimeError(f"run of {config} failed (exit code {process.returncode}):\n{(stderr + stdout).decode(errors='replace')[-3000:]}")
+        output = (stderr + stdout).decode(errors="replace")[-3000:]
+        raise RuntimeError(f"run of {config} failed (exit code {process.returncode}):\n{output}")
     timings = json.loads(manifest.read_text())["timings"]
     briefs = sorted((folder / "brief").glob("*"))
     return {

@@ -392,8 +392,8 @@ def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = 
     with RunLock(folder) as lock:
         _clear_after_takeover(lock, folder, [s.name for s in cfg.scenarios])
         today = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
-        return make_briefs(cfg.model_copy(update={"scenarios": chosen}), {s.name: folder / s.name for s in chosen}, today,
-                           progress=progress)
+        return make_briefs(cfg.model_copy(update={"scenarios": chosen}), {s.name: folder / s.name for s in chosen},
+                           today, progress=progress)
 
 
 # --- the steps -----------------------------------------------------------------------------------------------

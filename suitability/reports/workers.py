@@ -9,10 +9,11 @@ the briefs: it draws the region briefs' figures itself, writes every HTML page i
   have drawn itself;
 - ``pdf``: render a brief's HTML file, already written, as its PDF (:func:`write_pdf`, as here).
 
-The workers are plain ``python -m suitability.reports.workers`` processes fed one job per line on stdin
-(fields separated by TAB) that answer one line per job on stdout (``ok`` TAB JSON, or ``error`` TAB
-message); the warnings a job raised travel with its answer and are raised again in the main process. They are not multiprocessing children: those would re-run the caller's main script (spawn) or
-copy a process whose other threads (dask's, GDAL's) may hold locks (fork). Where no worker can be started,
+The workers are plain Python processes running :func:`serve`, fed one job per line on stdin (fields
+separated by TAB), answering one line per job on stdout (``ok`` TAB JSON, or ``error`` TAB message); the
+warnings a job raised travel with its answer and are raised again in the main process. They are not
+multiprocessing children: those would re-run the caller's main script (spawn) or copy a process whose
+other threads (dask's, GDAL's) may hold locks (fork). Where no worker can be started,
 everything is done in the main process, one brief after the other.
 """
 
@@ -58,9 +59,10 @@ class _Worker:
     def __init__(self):
         package_root = str(Path(__file__).resolve().parents[2])  # this tree's package, not another install
         path = os.pathsep.join(filter(None, [package_root, os.environ.get("PYTHONPATH")]))
-        self.process = subprocess.Popen([sys.executable, "-m", "suitability.reports.workers"],
-                                        stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True, encoding="utf-8",
-                                        env={**os.environ, "PYTHONPATH": path})
+        # -c, not -m: the package imports this module first, and runpy would warn about running it again
+        command = [sys.executable, "-c", "from suitability.reports.workers import serve; serve()"]
+        self.process = subprocess.Popen(command, stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True,
+                                        encoding="utf-8", env={**os.environ, "PYTHONPATH": path})
         self.queued: deque[tuple[int, str, Callable[[dict], None] | None]] = deque()
 
     def send(self, sequence: int, fields: list[str], on_reply: Callable[[dict], None] | None) -> None:
@@ -170,7 +172,7 @@ def write_setup(path: Path, **state) -> Path:
     return path
 
 
-def _serve() -> None:
+def serve() -> None:
     """The worker's loop: do each job of stdin, answer on stdout."""
     answers = os.fdopen(os.dup(1), "w", encoding="utf-8")
     os.dup2(2, 1)  # anything else printed (a library's message) goes to stderr, not into the answers
@@ -208,4 +210,4 @@ def _do(kind: str, fields: list[str], state: dict) -> dict:
 
 
 if __name__ == "__main__":
-    _serve()
+    serve()
