@@ -103,6 +103,28 @@ def run_apart(config: Path) -> dict:
     }
 
 
+def write_report(report: dict, name: str = "briefs") -> str:
+    """results/<name>.json and .md; returns the Markdown. ``report["earlier"]`` (optional): runs of an
+    earlier commit, {label: {"commit", "load_average_at_start", "runs"}}, tabled beside this one's."""
+    RESULTS.mkdir(exist_ok=True)
+    (RESULTS / f"{name}.json").write_text(json.dumps(report, indent=2) + "\n")
+    lines = [f"# Brief phase of a run ({report['date']})", "",
+             f"Invented region (benchmarks/synthetic.py): {report['size']}² cells, 12 months x 3 scenarios, all "
+             f"layers, COG outputs; {report['districts']} invented square districts; {report['cpus']} cores. "
+             "Fastest run of each kind. `briefs_s` and `total_s` are the manifest's timings; wall is the process.", "",
+             "| commit | run | load at start | briefs (HTML + PDF) | figures | wall [s] | total_s [s] | briefs_s [s] "
+             "| briefs / total |", "|---|---|---|---|---|---|---|---|---|"]
+    sets = [*report.get("earlier", {}).values(), report]
+    for entry in sets:
+        for kind, r in entry["runs"].items():
+            lines.append(f"| {entry['commit']} | {kind} | {entry['load_average_at_start'][0]:.1f} | "
+                         f"{r['html_files']} + {r['pdf_files']} | {r['figure_files']} | {r['wall_s']} | "
+                         f"{r['total_s']} | {r['briefs_s']} | {100 * r['briefs_share_of_total']:.1f} % |")
+    text = "\n".join(lines) + "\n"
+    (RESULTS / f"{name}.md").write_text(text)
+    return text
+
+
 def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--size", type=int, default=1000, help="cells per side of the target grid")
@@ -132,20 +154,7 @@ def main() -> None:
               "size": args.size, "cells": args.size ** 2, "districts": args.grid ** 2, "scenarios": 3,
               "cpus": os.cpu_count(), "load_average_at_start": load, "repeat": args.repeat, "runs": runs,
               "every_run": every, "note": NOTE}
-    RESULTS.mkdir(exist_ok=True)
-    (RESULTS / f"{args.name}.json").write_text(json.dumps(report, indent=2) + "\n")
-    lines = [f"# Brief phase of a run ({report['date']}, commit {commit})", "",
-             f"Invented region (benchmarks/synthetic.py): {args.size}² cells, 12 months x 3 scenarios, all layers, "
-             f"COG outputs; {args.grid ** 2} invented square districts. {os.cpu_count()} cores, load average at "
-             f"start {load[0]:.2f}. Fastest of {args.repeat} run(s) of each kind.", "",
-             "| run | briefs (HTML + PDF) | figures | wall [s] | total_s [s] | briefs_s [s] | briefs / total | "
-             "briefs / wall |", "|---|---|---|---|---|---|---|---|"]
-    for kind, r in runs.items():
-        lines.append(f"| {kind} | {r['html_files']} + {r['pdf_files']} | {r['figure_files']} | {r['wall_s']} | "
-                     f"{r['total_s']} | {r['briefs_s']} | {100 * r['briefs_share_of_total']:.1f} % | "
-                     f"{100 * r['briefs_share_of_wall']:.1f} % |")
-    (RESULTS / f"{args.name}.md").write_text("\n".join(lines) + "\n")
-    print("\n".join(lines))
+    print(write_report(report, args.name))
     if not args.keep:
         shutil.rmtree(SCRATCH, ignore_errors=True)
 
