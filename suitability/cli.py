@@ -359,19 +359,20 @@ def brief(
     scenario: Optional[List[str]] = typer.Option(
         None, "--scenario", help="Brief only this scenario (compared with the baseline); repeat for several. Default: all."),
     overwrite: bool = typer.Option(False, "--overwrite", help="Replace briefs and district tables that exist."),
+    progress: bool = typer.Option(True, "--progress/--no-progress", help="Show a progress bar."),
     debug: bool = DebugOption,
 ):
     """Write the district statistics and HTML/PDF briefs from the outputs of a finished run."""
-    _brief(config, scenario, overwrite, debug=debug)
+    _brief(config, scenario, overwrite, progress, debug=debug)
 
 
 @_handle_errors
-def _brief(config, scenario, overwrite):
+def _brief(config, scenario, overwrite, progress):
     from . import pipeline
     from .config import load_config
 
     cfg = load_config(config)
-    paths = pipeline.briefs_of_finished_run(cfg, scenarios=scenario or None, overwrite=overwrite)
+    paths = pipeline.briefs_of_finished_run(cfg, scenarios=scenario or None, overwrite=overwrite, progress=progress)
     for line in _brief_lines(paths):
         console.line(line)
     _print_caution()

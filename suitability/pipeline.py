@@ -160,7 +160,7 @@ def run(
             if cfg.brief is not None:
                 with clock("briefs_s"):
                     briefs = make_briefs(cfg, {s.name: folder / s.name for s in scenarios}, today,
-                                         members=ensembles, assumptions=run_assumptions(cfg))
+                                         members=ensembles, assumptions=run_assumptions(cfg), progress=progress)
             timings["total_s"] = time.perf_counter() - started
             manifest = build_manifest(cfg, config_hash, written, summary, timings, briefs, checksums=checksums,
                                       records=records, resumed=resumed,
@@ -314,12 +314,13 @@ def ensemble_result(members: dict[str, xr.Dataset], margin: float) -> xr.Dataset
 
 
 def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dataset, *, members=None,
-                assumptions=()) -> dict[str, Path]:
+                assumptions=(), progress: bool = False) -> dict[str, Path]:
     """Zonal statistics, figures and HTML/PDF briefs for the scenarios already written.
 
     today: the baseline climate on the grid (unmasked): the region's warm-season temperature and each
     district's monthly mean temperature (for the crossover chart) are taken from it, the latter computed
     district window by district window. members: scenario -> its climate-model members.
+    progress: show a progress bar of the briefs on stderr.
     """
     from .reports import brief_context_from_config, build_brief
     from .reports.zones import district_monthly_means, output_grid
@@ -335,15 +336,17 @@ def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dat
                                         caution=CAUTION, tool_version=__version__, district_climate=district_climate,
                                         time_info=today.attrs.get("time_info", {}), members=members,
                                         assumptions=assumptions or run_assumptions(cfg))
-    return build_brief(context, Path(cfg.output.folder))
+    return build_brief(context, Path(cfg.output.folder), progress=progress)
 
 
-def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = False) -> dict[str, Path]:
+def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = False,
+                           progress: bool = False) -> dict[str, Path]:
     """:func:`make_briefs` for the outputs of an earlier run, holding the output folder's lock meanwhile.
 
     scenarios: names of the scenarios to brief (None: all); the baseline is always included, as every
         brief compares with it. overwrite: replace briefs and district tables that exist already (without
         it, existing ones are an :class:`~suitability.errors.OutputError` listing them, and nothing is written).
+    progress: show a progress bar of the briefs on stderr.
     """
     from .errors import OutputError
     from .reports.brief import expected_files
@@ -375,7 +378,8 @@ def briefs_of_finished_run(cfg: RunConfig, *, scenarios=None, overwrite: bool = 
     with RunLock(folder) as lock:
         _clear_after_takeover(lock, folder, [s.name for s in cfg.scenarios])
         today = load_climate(cfg.climate, grid, cfg.config_dir, cfg.compute.chunk_size)
-        return make_briefs(cfg.model_copy(update={"scenarios": chosen}), {s.name: folder / s.name for s in chosen}, today)
+        return make_briefs(cfg.model_copy(update={"scenarios": chosen}), {s.name: folder / s.name for s in chosen},
+                           today, progress=progress)
 
 
 # --- the steps -----------------------------------------------------------------------------------------------

@@ -75,9 +75,10 @@ class Runtime:
         """A lock shared by every writer of the named output, valid on this runtime's workers."""
         return write_lock(name, client=self.client)
 
-    def progress(self, description: str, enabled: bool | None = None):
-        """A progress bar around the computes inside the ``with`` block (see :func:`progress`)."""
-        return progress(description, enabled=self.show_progress if enabled is None else enabled)
+    def progress(self, description: str, enabled: bool | None = None, *, steps: int | None = None):
+        """A progress bar around the computes inside the ``with`` block, or of ``steps`` steps the caller
+        advances (see :func:`progress`)."""
+        return progress(description, enabled=self.show_progress if enabled is None else enabled, steps=steps)
 
     def compute(self, *collections):
         """Compute dask collections here, driving the active progress bar (see :func:`compute`)."""
@@ -266,11 +267,14 @@ class _TaskCounter(Callback):
 
 
 @contextmanager
-def progress(description: str, enabled: bool = True, *, console=None) -> Iterator[ProgressReport | None]:
+def progress(description: str, enabled: bool = True, *, console=None,
+             steps: int | None = None) -> Iterator[ProgressReport | None]:
     """Show a ``rich`` progress bar on stderr for the dask computes inside the ``with`` block.
 
     description: text before the bar. enabled: False yields None and shows nothing (the library never
     writes to the terminal unless asked). console: a ``rich.console.Console`` to draw on (default: stderr).
+    steps: a bar of this many steps that the caller advances (:meth:`ProgressReport.advance`) instead of
+    one that counts dask tasks (work that is not a dask graph, such as the briefs' pages).
     Yields a :class:`ProgressReport`. Local schedulers are followed task by task through a dask callback;
     with a distributed client, computes made through :func:`compute` advance it block by block.
     """
@@ -287,7 +291,11 @@ def progress(description: str, enabled: bool = True, *, console=None) -> Iterato
         TimeElapsedColumn(),
         console=console if console is not None else Console(stderr=True),
     )
-    report = ProgressReport(bar, bar.add_task(description, total=None))
+    report = ProgressReport(bar, bar.add_task(description, total=steps))
+    if steps is not None:  # the caller's steps: dask computes inside neither count nor advance this bar
+        with bar:
+            yield report
+        return
     token = _ACTIVE_BAR.set(report)
     try:
         with bar:

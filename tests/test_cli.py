@@ -124,3 +124,32 @@ def test_run_says_the_region_is_invented_only_when_the_config_says_so(tmp_path, 
     assert ("Invented region" in result.output) is invented
     if invented:
         assert result.output.index(note) < result.output.index("Outputs:")
+
+
+def _small_brief_run(tmp_path: Path) -> Path:
+    """The invented demo with two scenarios, one month and a 60 x 60 cell corner, briefs on (region only)."""
+    path = _demo_copy(tmp_path, season={"months": [1]})
+    config = yaml.safe_load(path.read_text())
+    config["region"]["grid"]["bounds"] = [300000, 7300000, 360000, 7360000]
+    config["scenarios"] = config["scenarios"][:2]
+    config["output"]["datacube"] = False
+    path.write_text(yaml.safe_dump(config))
+    return path
+
+
+def test_run_shows_the_progress_of_the_briefs(tmp_path):
+    # Two scenarios: the brief of co2_only and the brief of today (brief.brief_pages); one more step for
+    # the district table.
+    result = runner.invoke(app, ["run", str(_small_brief_run(tmp_path))])
+    assert result.exit_code == 0, result.output
+    bar = next(line for line in result.output.splitlines() if line.startswith("briefs ("))
+    assert "2 pages, HTML and PDF" in bar and "3/3" in bar
+    assert (tmp_path / "out" / "brief").is_dir()
+
+
+def test_run_without_progress_prints_no_bar(tmp_path):
+    result = runner.invoke(app, ["run", str(_small_brief_run(tmp_path)), "--no-progress"])
+    assert result.exit_code == 0, result.output
+    assert "briefs (" not in result.output
+    assert "computing and writing" not in result.output  # nor the scenarios' bars
+    assert any(p.suffix == ".pdf" for p in (tmp_path / "out" / "brief").iterdir())

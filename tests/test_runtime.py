@@ -200,3 +200,15 @@ def test_runtime_progress_follows_its_default(capsys):
             rt.compute(da.ones(100, chunks=10).sum())
     assert bar is None
     assert capsys.readouterr().err == ""
+
+
+def test_progress_of_steps_counts_the_callers_steps_not_dask_tasks():
+    # A bar of known steps (the briefs' pages): dask computes inside neither add to it nor advance it.
+    console = Console(file=io.StringIO(), width=100)
+    with dask.config.set(scheduler="threads"):
+        with progress("pages", console=console, steps=3) as bar:
+            for _ in range(3):
+                compute(da.ones(100, chunks=10).sum())
+                bar.advance()
+    assert bar.total == 3 and bar.completed == 3
+    assert "pages" in console.file.getvalue() and "3/3" in console.file.getvalue()

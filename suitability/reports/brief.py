@@ -43,6 +43,7 @@ from suitability.caution import CAUTION, invented_note
 from suitability.errors import ConfigError, OutputError
 from suitability.indicators import warm_season_mean  # noqa: F401 - re-exported: the brief's warm-season rule
 from suitability.reports import figures
+from suitability.reports.workers import TEMPLATES, Workers, write_pdf, write_setup
 from suitability.reports.summary import (
     CLASS_WORDS,
     flag_sentences,
@@ -63,8 +64,8 @@ from suitability.reports.zones import (
     write_table_geopackage,
     zonal_statistics,
 )
+from suitability.runtime import progress as show_progress
 
-TEMPLATES = Path(__file__).with_name("templates")
 
 #: References a brief may cite, by a key word found in the sources of the parameter sets used; the
 #: brief lists only those its run used (plus the ones every run uses, :data:`ALWAYS_CITED`).
@@ -284,13 +285,6 @@ def _environment() -> Environment:
     return environment
 
 
-def _write_pdf(html: str, target: Path) -> Path:
-    import weasyprint  # imported late: it is slow to import and only the PDF needs it
-
-    return atomic_write(target, lambda path: weasyprint.HTML(string=html, base_url=str(TEMPLATES)).write_pdf(path),
-                        what="the brief")
-
-
 # --- figures ---------------------------------------------------------------------------------------------
 
 #: Maps printed two to a page: the size they are drawn at is the size on paper.
@@ -307,6 +301,7 @@ class _Figures:
         self._cache: dict[tuple, str] = {}
         self._crossover: dict[str, pd.DataFrame] = {}
         self.written: dict[str, Path] = {}
+        self.png_paths: dict[tuple, Path] = {}
         self.numbers = {d: i + 1 for i, d in enumerate(dict.fromkeys(table["district"]))}
         self.labels_left_out: set[str] = set()
 
@@ -321,8 +316,26 @@ class _Figures:
                 path = atomic_write(self._folder / f"{stem}.{fmt}", lambda p, d=data: p.write_bytes(d),
                                     what="the figure")
                 self.written[f"figures/{path.name}"] = path
+                if fmt == "png":
+                    self.png_paths[key] = path
             self._cache[key] = _data_uri(png)
         return self._cache[key]
+
+    def drawn_since(self, written_before: int) -> dict:
+        """The figures drawn after the first ``written_before`` files, as :meth:`adopt` takes them."""
+        written = dict(list(self.written.items())[written_before:])
+        return {"figures": [[list(key), str(path)] for key, path in self.png_paths.items()
+                            if f"figures/{path.name}" in written],
+                "written": {name: str(path) for name, path in written.items()},
+                "left_out": sorted(self.labels_left_out)}
+
+    def adopt(self, drawn: dict) -> None:
+        """Figures another process drew (:meth:`drawn_since`), as if drawn here: embedded from their PNG files."""
+        for key, png in drawn["figures"]:
+            self._cache[tuple(key)] = _data_uri(Path(png).read_bytes())
+            self.png_paths[tuple(key)] = Path(png)
+        self.written.update({name: Path(path) for name, path in drawn["written"].items()})
+        self.labels_left_out |= set(drawn["left_out"])
 
     def class_map(self, scenario: ScenarioInfo, district: str | None = None) -> str:
         title = f"{_title_words(scenario, self._context)}: where each kind of crop has the advantage"
@@ -555,11 +568,16 @@ def write_data_dictionary(path: Path) -> Path:
     return outputs.write_data_dictionary(COLUMNS, path)
 
 
-def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.DataFrame | None = None) -> dict[str, Path]:
+def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.DataFrame | None = None,
+                progress: bool = False, workers: int | None = None) -> dict[str, Path]:
     """Write the briefs, their district table and figures and return {file name: path}.
 
     context: what the brief says besides the rasters. folder: the run's output folder; files go to
     ``<folder>/brief/``. table: a precomputed :func:`zonal_statistics` table (computed here if None).
+    progress: show a progress bar on stderr, one step for the district table and one per brief.
+    workers: processes drawing the district briefs' figures and rendering the PDFs while this one writes
+    the pages in order (None: one per core, see :func:`suitability.reports.workers.default_workers`; 0:
+    everything here).
     """
     out = Path(folder) / "brief"
     if out.is_symlink():
@@ -571,7 +589,7 @@ def build_brief(context: BriefContext, folder: str | os.PathLike, *, table: pd.D
     except OSError as exc:
         raise OutputError(f"{out}: cannot create the brief folder ({exc})") from exc
     try:
-        return _build_brief(context, out, table)
+        return _build_brief(context, out, table, progress, workers)
     except BaseException:
         if created:  # a refused brief leaves no empty brief/ folder behind
             try:
@@ -592,31 +610,86 @@ def rounded_table(table: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
-def _build_brief(context: BriefContext, out: Path, table: pd.DataFrame | None) -> dict[str, Path]:
+def _build_brief(context: BriefContext, out: Path, table: pd.DataFrame | None, progress: bool,
+                 workers: int | None) -> dict[str, Path]:
     scenario_folders = {s.name: Path(s.output_folder) for s in context.scenarios}
-    if table is None:
-        table = zonal_statistics(context.zones_path, context.name_field, scenario_folders, context.baseline)
     zones = read_zones(context.zones_path, context.name_field)
     region = slug(context.region, 40)
-    written: dict[str, Path] = {}
-    for path in (
-        write_table_csv(rounded_table(table), out / f"{region}_districts.csv"),
-        write_data_dictionary(out / f"{region}_districts.columns.csv"),
-        write_table_geopackage(rounded_table(table), context.zones_path, context.name_field,
-                               out / f"{region}_districts.gpkg", scenarios=list(scenario_folders)),
-    ):
-        written[path.name] = path
-    drawn = _Figures(context, table, zones, out / "figures", region)
     districts = list(zones["district"]) if context.per_district else []
     pages = brief_pages(context.region, [s.name for s in context.scenarios], context.baseline, districts)
-    for page in pages:
-        html = render_html(context, table, page, drawn)
-        html_path = write_text_atomic(out / f"{page.stem}.html", html, what="the brief")
-        pdf_path = _write_pdf(html, out / f"{page.stem}.pdf")
-        written[html_path.name] = html_path
-        written[pdf_path.name] = pdf_path
+    written: dict[str, Path] = {}
+    with show_progress(f"briefs ({len(pages)} pages, HTML and PDF)", progress, steps=len(pages) + 1) as bar:
+        if table is None:
+            table = zonal_statistics(context.zones_path, context.name_field, scenario_folders, context.baseline)
+        for path in (
+            write_table_csv(rounded_table(table), out / f"{region}_districts.csv"),
+            write_data_dictionary(out / f"{region}_districts.columns.csv"),
+            write_table_geopackage(rounded_table(table), context.zones_path, context.name_field,
+                                   out / f"{region}_districts.gpkg", scenarios=list(scenario_folders)),
+        ):
+            written[path.name] = path
+        if bar is not None:
+            bar.advance()
+        drawn = _Figures(context, table, zones, out / "figures", region)
+        with Workers(workers if len(pages) > 1 else 0) as pool:
+            for page in _write_pages(context, table, zones, pages, drawn, pool, out, region):
+                written[f"{page.stem}.html"] = out / f"{page.stem}.html"
+                written[f"{page.stem}.pdf"] = out / f"{page.stem}.pdf"
+                if bar is not None:
+                    bar.advance()
     written.update(drawn.written)
     return written
+
+
+def _write_pages(context, table, zones, pages, drawn: _Figures, pool: Workers, out: Path, region: str):
+    """Write each page's HTML here, in order, and its PDF (yields each page once handed over).
+
+    With workers, the district pages' figures are drawn by them ahead of their turn (see
+    :mod:`suitability.reports.workers`) and the PDFs are rendered by them."""
+    district_pages = [i for i, page in enumerate(pages) if page.kind == "district"] if pool.active else []
+    drawn_elsewhere: dict[int, dict] = {}
+    submitted = 0
+    setup = None
+    if district_pages:
+        drawn.crossover_points(context.scenarios)  # read once here, handed to the workers with the rest
+        setup = write_setup(out / f".{region}_workers.pickle", context=context, table=table, zones=zones,
+                            folder=drawn._folder, region=region, crossover=drawn._crossover, pages=pages)
+        pool.broadcast(["setup", str(setup)])
+
+    def hand_out(upto: int) -> None:
+        nonlocal submitted
+        while submitted < len(district_pages) and (submitted <= upto or pool.has_room()):
+            index = district_pages[submitted]
+            pool.submit(["figures", str(index)], lambda reply, i=index: drawn_elsewhere.__setitem__(i, reply))
+            submitted += 1
+
+    try:
+        hand_out(-1)
+        for index, page in enumerate(pages):
+            if index in district_pages:
+                hand_out(district_pages.index(index))
+                pool.wait_until(lambda: index in drawn_elsewhere)
+                drawn.adopt(drawn_elsewhere.pop(index))
+            html = render_html(context, table, page, drawn)
+            html_path = write_text_atomic(out / f"{page.stem}.html", html, what="the brief")
+            if pool.active:
+                pool.submit(["pdf", str(html_path), str(out / f"{page.stem}.pdf")])
+                hand_out(-1)
+            else:
+                write_pdf(html, out / f"{page.stem}.pdf")
+            yield page
+    finally:
+        if setup is not None:
+            setup.unlink(missing_ok=True)
+
+
+def draw_page_figures(index: int, *, context, table, zones, folder, region, crossover, pages) -> dict:
+    """A worker's ``figures`` job: draw the figures of page ``index`` (written to ``folder``) and say
+    which they are, for :meth:`_Figures.adopt` in the main process."""
+    drawn = _Figures(context, table, zones, folder, region)
+    drawn._crossover.update(crossover)
+    render_html(context, table, pages[index], drawn)
+    return drawn.drawn_since(0)
 
 
 # --- from a run config -------------------------------------------------------------------------------------

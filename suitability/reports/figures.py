@@ -28,6 +28,7 @@ import rasterio
 import rasterio.windows
 from matplotlib import colors as mcolors
 from matplotlib import patheffects
+from matplotlib.backend_bases import FigureCanvasBase
 from matplotlib.backends.backend_agg import FigureCanvasAgg
 from matplotlib.figure import Figure
 from matplotlib.patches import Patch, Rectangle
@@ -305,6 +306,15 @@ def _draw_labels(axes, figure: Figure, positions, numbers: dict[str, int] | None
     already placed or cross the frame is left out. Returns district -> drawn."""
     halo = [patheffects.withStroke(linewidth=2.6, foreground="white")]
     renderer = FigureCanvasAgg(figure).get_renderer()
+    try:
+        return _place_labels(axes, renderer, positions, numbers, highlight, use_names, halo)
+    finally:
+        # Back to a canvas that draws nothing until saved: with the Agg canvas left on, every later
+        # geopandas plot on this figure (the locator map) renders the whole figure (its draw_idle).
+        FigureCanvasBase(figure)
+
+
+def _place_labels(axes, renderer, positions, numbers, highlight, use_names, halo) -> dict[str, bool]:
     frame = axes.get_window_extent(renderer)
     placed, drawn = [], {}
     if highlight is not None:  # the highlighted district is labelled first, so it is never left out

@@ -519,26 +519,38 @@ def district_monthly_means(zones_path, name_field: str, grid: TargetGrid, monthl
     """Area-weighted mean of a monthly field per district (index: district, columns: months 1..12).
 
     monthly: (12, y, x) values on ``grid`` (numpy, or a lazy dask/xarray array: only each district's window
-    is computed). Districts off the grid get NaN.
+    is computed, all districts in one pass, so that a block shared by several districts is computed once).
+    Districts off the grid get NaN.
     """
+    import dask
+
     zones = zones_on_grid(read_zones(zones_path, name_field), grid.crs)
     template = _grid_template(grid)
     grid_box = shapely.box(*grid.bounds)
     rows = {}
+    pending = {}
     for district, geometry in zip(zones["district"], zones.geometry):
-        values = [math.nan] * 12
+        rows[district] = [math.nan] * 12
         if geometry is not None and not geometry.is_empty:
             geometry = shapely.make_valid(geometry) if not geometry.is_valid else geometry
             if geometry.intersects(grid_box):
                 cells = _district_cells(geometry, grid, template, zones.crs)
                 if cells.weights_m2.sum() > 0:
                     window = cells.window
-                    block = np.asarray(monthly[:, int(window.row_off):int(window.row_off + window.height),
-                                               int(window.col_off):int(window.col_off + window.width)], dtype="float64")
-                    picked = block[:, cells.rows - int(window.row_off), cells.cols - int(window.col_off)]
-                    values = [_weighted_mean_std(picked[m], cells.weights_m2)[0] for m in range(picked.shape[0])]
-        rows[district] = values
+                    block = monthly[:, int(window.row_off):int(window.row_off + window.height),
+                                    int(window.col_off):int(window.col_off + window.width)]
+                    pending[district] = dask.delayed(_window_monthly_means)(block, cells)
+    if pending:
+        rows.update(zip(pending, dask.compute(*pending.values())))
     return pd.DataFrame.from_dict(rows, orient="index", columns=range(1, 13))
+
+
+def _window_monthly_means(block, cells: _DistrictCells) -> list[float]:
+    """The weighted mean of each month of one district's window (``block``: (12, rows, cols))."""
+    block = np.asarray(block, dtype="float64")
+    window = cells.window
+    picked = block[:, cells.rows - int(window.row_off), cells.cols - int(window.col_off)]
+    return [_weighted_mean_std(picked[m], cells.weights_m2)[0] for m in range(picked.shape[0])]
 
 
 def warmest_months(monthly_means: pd.Series, count: int = 3) -> list[int]:

@@ -335,3 +335,21 @@ def test_the_district_table_is_rounded_and_has_a_data_dictionary(run):
             assert ((values * 100 - (values * 100).round()).abs() < 1e-6).all(), column
         elif column.startswith("share_") and len(values):
             assert ((values * 1e4 - (values * 1e4).round()).abs() < 1e-6).all(), column
+
+
+def test_pages_are_the_same_whoever_draws_them(run, tmp_path):
+    # The reference is the brief written in this process alone (workers=0); with worker processes drawing
+    # the district figures and rendering the PDFs, every HTML page (figures embedded, the count of map
+    # labels left out included), every figure and every PDF's text must be the same.
+    serial = build_brief(run["context"], tmp_path / "serial", workers=0)
+    parallel = build_brief(run["context"], tmp_path / "parallel", workers=2)
+    assert list(serial) == list(parallel)
+    # the scenario's brief, today's, and one per district (per_district), which the workers draw
+    assert len([name for name in serial if name.endswith(".html")]) == 2 + len(DISTRICTS)
+    for name, path in serial.items():
+        other = parallel[name]
+        if name.endswith(".pdf"):
+            assert [p.extract_text() for p in pypdf.PdfReader(path).pages] == \
+                   [p.extract_text() for p in pypdf.PdfReader(other).pages], name
+        elif name.endswith((".html", ".png", ".csv")):
+            assert path.read_bytes() == other.read_bytes(), name
