@@ -208,11 +208,8 @@ def evaluate_runs(dataset: xr.Dataset, runs: Sequence[ModelRun], *, physiology: 
             block = stacked[first:first + _n_stacked(settings)]
             first += _n_stacked(settings)
         else:
-            if settings.baseline is not None:  # the baseline climate, for the draws paired with the baseline's
-                base_names, base_arrays, _ = model_arrays(dataset, settings.baseline, run.baseline_layers, physiology)
-                names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
-                arrays = arrays + base_arrays
-            block = _evaluate_block(*arrays, names=names, settings=settings)
+            block = _evaluate_run(dataset, settings, run.scenario_layers, run.baseline_layers, physiology,
+                                  inputs=(names, arrays))
         coords = {k: v for k, v in climate["latitude"].coords.items() if set(v.dims) <= set(spatial_dims)}
         result = _unstack(xr.DataArray(block, dims=("layer",) + spatial_dims, coords=coords), settings)
         if "derived_water_availability" in climate and monthly_layers:  # the registry's "derived" layer
@@ -297,6 +294,17 @@ class _BlockLayout:
         return xr.Dataset({n: (d, v) for n, d, v in zip(self.names, self.dims, values)}, coords=coords)
 
 
+def _evaluate_run(climate: xr.Dataset, settings: ModelSettings, own, base_own, physiology, inputs=None) -> np.ndarray:
+    """One run on in-memory ``climate``: its inputs under its scenario (``inputs``, (names, arrays), if
+    already made) and under the baseline, for the draws paired with the baseline's; then :func:`_evaluate_block`."""
+    names, arrays = inputs if inputs is not None else model_arrays(climate, settings.scenario, own, physiology)[:2]
+    if settings.baseline is not None:
+        base_names, base_arrays, _ = model_arrays(climate, settings.baseline, base_own, physiology)
+        names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
+        arrays = arrays + base_arrays
+    return _evaluate_block(*arrays, names=names, settings=settings)
+
+
 def _evaluate_runs_block(inputs: _BlockInputs, layouts, plan, options: InputOptions) -> np.ndarray:
     """One block of every run: the climate's block read and resampled once, each own-layers dataset's when
     the first run needing it comes (and released after the last), then each run's model."""
@@ -314,12 +322,7 @@ def _evaluate_runs_block(inputs: _BlockInputs, layouts, plan, options: InputOpti
             if index is not None and index not in owned:
                 (values,) = dask.compute(inputs.arrays[index], scheduler="sync")
                 owned[index] = layouts[index].dataset(values)
-        names, arrays, _ = model_arrays(climate, settings.scenario, owned.get(own), options)
-        if settings.baseline is not None:
-            base_names, base_arrays, _ = model_arrays(climate, settings.baseline, owned.get(base_own), options)
-            names = names + tuple(_BASELINE_PREFIX + n for n in base_names)
-            arrays = arrays + base_arrays
-        out.append(_evaluate_block(*arrays, names=names, settings=settings))
+        out.append(_evaluate_run(climate, settings, owned.get(own), owned.get(base_own), options))
         for index in [k for k, last in last_use.items() if last == i]:
             owned.pop(index, None)
     return np.concatenate(out, axis=0)
