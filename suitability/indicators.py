@@ -73,10 +73,14 @@ def c4_favoured_months(monthly_c3, monthly_c4, in_season, margin: float = 0.05):
     in_season: boolean array broadcastable to them, True for months that belong to the season.
     Returns float32 counts; NaN where any season month has no data.
     """
-    monthly_advantage = advantage_index(monthly_c3, monthly_c4)
+    return favoured_month_count(advantage_index(monthly_c3, monthly_c4), in_season, margin)
+
+
+def favoured_month_count(monthly_advantage, in_season, margin: float = 0.05, axis: int = 0):
+    """:func:`c4_favoured_months` from the months' advantage indices already computed (``axis`` = month)."""
     favoured = (monthly_advantage > margin) & in_season
-    count = favoured.sum(axis=0).astype(np.float32)
-    missing = (np.isnan(monthly_advantage) & in_season).any(axis=0)
+    count = favoured.sum(axis=axis).astype(np.float32)
+    missing = (np.isnan(monthly_advantage) & in_season).any(axis=axis)
     return _where(missing, np.float32(np.nan), count)
 
 

@@ -24,7 +24,7 @@ from __future__ import annotations
 import functools
 import itertools
 import warnings
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
 import dask
@@ -121,6 +121,8 @@ def _n_stacked(settings: ModelSettings) -> int:
     return len(SEASONAL_LAYERS) + _n_monthly(settings) + len(uncertainty_layer_names(settings))
 
 
+#: The calendar months (0 = January) of a block's monthly arrays, when it holds the whole year.
+ALL_MONTHS = np.arange(12)
 #: Monthly mean temperatures [°C] searched for the canopy crossover (widened to include the month's own).
 CROSSOVER_SEARCH_C = (0.0, 45.0)
 #: Largest shifted daily maximum and smallest daily minimum [°C] the crossover search uses: the leaf
@@ -406,14 +408,14 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     advantage = indicators.advantage_index(season_c3, season_c4)
     classes = indicators.with_growing_season(indicators.pathway_class(advantage, settings.contested_margin),
                                              valid, has_season)
-    months_favoured = indicators.c4_favoured_months(
-        np.moveaxis(monthly["C3"], -1, 0), np.moveaxis(monthly["C4"], -1, 0), np.moveaxis(in_season, -1, 0),
-        settings.contested_margin,
-    )
+    # Month last, as the kernel returns them: contiguous, and shared by the month count and the crossover.
+    monthly_advantage = indicators.advantage_index(monthly["C3"], monthly["C4"])
+    months_favoured = indicators.favoured_month_count(monthly_advantage, in_season, settings.contested_margin, axis=-1)
     share = indicators.photorespiration_share(c3_gross, c3_photorespiration)
     month_mean = month_mean_temperature(data)
     if settings.crossover:
-        monthly_crossover = canopy_crossover(block, settings, _crossover_months(block, settings, month_mean), monthly)
+        monthly_crossover = canopy_crossover(block, settings, _crossover_months(block, settings, month_mean),
+                                             monthly_advantage)
     else:
         monthly_crossover = np.full(in_season.shape, np.nan)
     crossover = indicators.warmest_month_value(monthly_crossover, month_mean, in_season)
@@ -458,6 +460,8 @@ class _Block:
     lai: np.ndarray
     growth: np.ndarray | None = None
     kernel_inputs: dict | None = None
+    #: The calendar months (0-11) of the monthly arrays' last axis: all 12, or some (the crossover's).
+    months: np.ndarray = field(default_factory=lambda: ALL_MONTHS)
 
     @classmethod
     def of(cls, data: dict, settings: ModelSettings, scenario: ScenarioSettings | None = None) -> "_Block":
@@ -469,13 +473,15 @@ class _Block:
 
     @classmethod
     def months_last(cls, data: dict, settings: ModelSettings, in_season: np.ndarray,
-                    scenario: ScenarioSettings | None = None) -> "_Block":
-        """The block of inputs already months last, with the months to compute given."""
+                    scenario: ScenarioSettings | None = None, months: np.ndarray = None) -> "_Block":
+        """The block of inputs already months last, with the months to compute given; ``months``: the
+        calendar months (0-11) of the last axis, if not all 12."""
         shape = data["latitude"].shape
         block = cls(data=data, shape=shape, in_season=in_season, has_season=in_season.any(axis=-1),
                     valid=_valid_cells(data), elevation=data.get("elevation", np.zeros(shape, np.float32)),
                     lai=data.get("lai", np.full(shape, settings.lai, np.float32)),
-                    scenario=scenario or settings.scenario, growth=growth_temperature(data, settings))
+                    scenario=scenario or settings.scenario, growth=growth_temperature(data, settings),
+                    months=ALL_MONTHS if months is None else np.asarray(months))
         if settings.engine == "compiled":
             block.kernel_inputs = _kernel_inputs(block, settings)
         return block
@@ -489,7 +495,7 @@ def _months(block: _Block, settings: ModelSettings, c3_params: Any = None, c4_pa
     if settings.engine == "compiled":
         return _compiled_months(block, settings, c3_params, c4_params)
     return _numpy_months(block.data, settings, block.in_season, block.elevation, block.lai,
-                         block.scenario, c3_params, c4_params, block.growth)
+                         block.scenario, c3_params, c4_params, block.growth, block.months)
 
 
 def _season_totals(block: _Block, monthly):
@@ -555,7 +561,7 @@ def growth_temperature(data, settings: ModelSettings):
     return (0.5 * (data["tmin"] + data["tmax"])).astype(np.float32)
 
 
-def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly) -> np.ndarray:
+def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly_advantage) -> np.ndarray:
     """The canopy crossover [°C] of every cell and month of ``months`` (bool (..., 12)); NaN elsewhere.
 
     The monthly mean temperature at which the month's advantage index of the two daily canopies
@@ -569,53 +575,55 @@ def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly) ->
     mean temperature is above its crossover. −inf: C4 favoured at every mean temperature down to the
     lower end of :data:`CROSSOVER_SEARCH_C` (or the month's own, if colder); +inf: not C4-favoured at any
     up to the upper end (or where the shifted day leaves the leaf models' temperature range).
-    ``monthly``: the model pass's monthly nets {"C3", "C4"} (..., 12).
+    ``monthly_advantage``: the model pass's advantage index of every month (..., 12).
     """
     data = block.data
     shape = months.shape
     n = int(np.prod(shape[:-1], dtype=np.int64))
     flat = {name: (values.reshape(n, 12) if values.ndim == len(shape) else values.reshape(n))
             for name, values in data.items()}
-    start = np.where(months, indicators.advantage_index(monthly["C3"], monthly["C4"]) - settings.contested_margin,
-                     np.nan).reshape(n, 12)
+    start = np.where(months, monthly_advantage - settings.contested_margin, np.nan).reshape(n, 12)
+    # The solver works on the searched (cell, month) pairs only: one month per cell without a datacube.
+    cells, pair_months = np.nonzero(np.isfinite(start))
     mean = month_mean_temperature(data).reshape(n, 12)
     result = np.full((n, 12), np.nan, np.float32)
-    # Cells a slice at a time: the solver keeps about a dozen arrays per cell and month.
-    for first in range(0, n, CROSSOVER_BATCH_CELLS):
-        rows = slice(first, min(first + CROSSOVER_BATCH_CELLS, n))
-        if np.isfinite(start[rows]).any():
-            result[rows] = _crossover_of_cells({name: values[rows] for name, values in flat.items()}, settings,
-                                               block.scenario, start[rows], mean[rows])
+    for first in range(0, cells.size, CROSSOVER_BATCH_PAIRS):
+        pairs = slice(first, first + CROSSOVER_BATCH_PAIRS)
+        cell, month = cells[pairs], pair_months[pairs]
+        result[cell, month] = _crossover_of_pairs(flat, settings, block.scenario, cell, month,
+                                                  start[cell, month], mean[cell, month])
     return result.reshape(shape)
 
 
-#: Cells solved together by :func:`canopy_crossover` (bounds its memory: about 12 float64 arrays of 12 months).
-CROSSOVER_BATCH_CELLS = 16384
+#: (cell, month) pairs solved together by :func:`canopy_crossover` (bounds the memory of the solver's
+#: arrays and of each model pass's inputs).
+CROSSOVER_BATCH_PAIRS = 16384
 
 
-def _crossover_of_cells(flat, settings: ModelSettings, scenario: ScenarioSettings, start, mean) -> np.ndarray:
-    """:func:`canopy_crossover` of cells (n, 12) given g at offset 0 (``start``) and the month means."""
-    n = start.shape[0]
+def _crossover_of_pairs(flat, settings: ModelSettings, scenario: ScenarioSettings, cells, months, start,
+                        mean) -> np.ndarray:
+    """:func:`canopy_crossover` of the pairs (``cells``, ``months``) given g at offset 0 (``start``) and the
+    pairs' month means."""
     margin = settings.contested_margin
-    lower = np.maximum(np.minimum(CROSSOVER_SEARCH_C[0], mean) - mean, _SHIFT_TMIN_C - flat["tmin"])
-    upper = np.minimum(np.maximum(CROSSOVER_SEARCH_C[1], mean) - mean, _SHIFT_TMAX_C - flat["tmax"])
+    lower = np.maximum(np.minimum(CROSSOVER_SEARCH_C[0], mean) - mean, _SHIFT_TMIN_C - flat["tmin"][cells, months])
+    upper = np.minimum(np.maximum(CROSSOVER_SEARCH_C[1], mean) - mean, _SHIFT_TMAX_C - flat["tmax"][cells, months])
 
     def excess(offsets, active):
-        # Month by month, on the cells searched in that month only: both engines compute a month for a
-        # whole batch of cells once any of them needs it, so cells needing different months would make
-        # every month computed for every cell (12 times the work when one month per cell is searched).
-        g = np.full((n, 12), np.nan)
-        for month in np.flatnonzero(active.any(axis=0)):
-            cells = np.flatnonzero(active[:, month])
-            sub = {name: values[cells] for name, values in flat.items()}
-            shift = offsets[cells, month].astype(np.float32)[:, None]
+        # Month by month: each model pass computes one calendar month.
+        g = np.full(cells.size, np.nan)
+        for month in np.unique(months[active]):
+            picked = np.flatnonzero(active & (months == month))
+            rows = cells[picked]
+            # That month's inputs only, (cells, 1): the engines then compute it and nothing else.
+            sub = {name: values[rows, month:month + 1] if values.ndim == 2 else values[rows]
+                   for name, values in flat.items()}
+            shift = offsets[picked].astype(np.float32)[:, None]
             sub["tmin"] = sub["tmin"] + shift
             sub["tmax"] = sub["tmax"] + shift
-            only = np.zeros((cells.size, 12), bool)
-            only[:, month] = True
+            block = _Block.months_last(sub, settings, np.ones((rows.size, 1), bool), scenario, months=[month])
             with np.errstate(all="ignore"):
-                nets, _, _ = _months(_Block.months_last(sub, settings, only, scenario), settings)
-            g[cells, month] = indicators.advantage_index(nets["C3"][:, month], nets["C4"][:, month]) - margin
+                nets, _, _ = _months(block, settings)
+            g[picked] = indicators.advantage_index(nets["C3"][:, 0], nets["C4"][:, 0]) - margin
         return g
 
     offset = tie_solver.nearest_tie(excess, start, np.minimum(lower, 0.0), np.maximum(upper, 0.0))
@@ -634,16 +642,18 @@ def side_consistent(crossover, mean, favoured) -> np.ndarray:
 
 
 def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, scenario=None, c3_params=None,
-                  c4_params=None, growth=None):
-    """Monthly net totals per pathway [g C m-2], season C3 gross and photorespiration, by the numpy physiology."""
+                  c4_params=None, growth=None, months=None):
+    """Monthly net totals per pathway [g C m-2], season C3 gross and photorespiration, by the numpy physiology
+    (``months``: the calendar months of the last axis, all 12 if None)."""
+    months = ALL_MONTHS if months is None else months
     shape = in_season.shape[:-1]
     scenario = settings.scenario if scenario is None else scenario
     c3_params = settings.c3_params if c3_params is None else c3_params
     c4_params = settings.c4_params if c4_params is None else c4_params
-    monthly = {p: np.full(shape + (12,), np.nan, np.float64) for p in ("C3", "C4")}
+    monthly = {p: np.full(shape + (len(months),), np.nan, np.float64) for p in ("C3", "C4")}
     c3_gross = np.zeros(shape, np.float64)
     c3_photorespiration = np.zeros(shape, np.float64)
-    for index in range(12):
+    for index, month in enumerate(months):
         if not in_season[..., index].any():
             continue
         month_inputs = _month_inputs(data, index)
@@ -651,7 +661,7 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, scen
             with np.errstate(all="ignore"):
                 day = daily_canopy_assimilation(
                     pathway,
-                    day_of_year=int(REPRESENTATIVE_DAY[index]),
+                    day_of_year=int(REPRESENTATIVE_DAY[month]),
                     latitude_deg=data["latitude"],
                     co2_ppm=scenario.co2_ppm,
                     o2_percent=scenario.o2_percent,
@@ -662,9 +672,9 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, scen
                     growth_temperature_c=None if growth is None else growth[..., index],
                     **month_inputs,
                 )
-            monthly[pathway][..., index] = np.asarray(day.net) * DAYS_IN_MONTH[index]
+            monthly[pathway][..., index] = np.asarray(day.net) * DAYS_IN_MONTH[month]
             if pathway == "C3":
-                season_weight = np.where(in_season[..., index], DAYS_IN_MONTH[index], 0.0)
+                season_weight = np.where(in_season[..., index], DAYS_IN_MONTH[month], 0.0)
                 c3_gross += np.asarray(day.gross) * season_weight
                 c3_photorespiration += np.asarray(day.photorespiration) * season_weight
     for pathway in monthly:
@@ -675,7 +685,8 @@ def _numpy_months(data, settings: ModelSettings, in_season, elevation, lai, scen
 def _compiled_months(block: _Block, settings: ModelSettings, c3_params: Any, c4_params: Any):
     """The same three results as :func:`_numpy_months`, by the compiled kernel (:mod:`suitability.kernel`)."""
     day = kernel.season_canopy_assimilation(**block.kernel_inputs, c3_params=c3_params, c4_params=c4_params)
-    monthly = {"C3": day.c3_net * DAYS_IN_MONTH, "C4": day.c4_net * DAYS_IN_MONTH}
+    days = DAYS_IN_MONTH[block.months]
+    monthly = {"C3": day.c3_net * days, "C4": day.c4_net * days}
     return monthly, day.c3_gross_total, day.c3_photorespiration_total
 
 
@@ -697,9 +708,9 @@ def _kernel_inputs(block: _Block, settings: ModelSettings) -> dict:
     return dict(
         tmin_c=contiguous(data["tmin"]), tmax_c=contiguous(data["tmax"]), shortwave_mj=contiguous(shortwave),
         water_availability=contiguous(data["water_availability"]), latitude_deg=contiguous(data["latitude"]),
-        day_of_year=REPRESENTATIVE_DAY, co2_ppm=block.scenario.co2_ppm, o2_percent=block.scenario.o2_percent,
+        day_of_year=REPRESENTATIVE_DAY[block.months], co2_ppm=block.scenario.co2_ppm, o2_percent=block.scenario.o2_percent,
         elevation_m=contiguous(elevation), lai=contiguous(lai), in_season=np.require(in_season, np.bool_, ["C", "A", "W"]),
-        days_in_month=DAYS_IN_MONTH, max_water_supply_mm=settings.max_water_supply_mm,
+        days_in_month=DAYS_IN_MONTH[block.months], max_water_supply_mm=settings.max_water_supply_mm,
         **{k: contiguous(v) for k, v in humidity.items()},
         growth_temperature_c=None if block.growth is None else contiguous(block.growth),
     )

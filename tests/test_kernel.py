@@ -261,6 +261,32 @@ def test_a_cell_gives_the_same_bits_wherever_it_sits():
         assert np.isfinite(values).sum() > 1000  # the comparison covers real numbers, not only NaN
 
 
+def test_some_months_alone_give_the_bits_of_those_months_in_the_whole_year():
+    # Derived here: each cell and month is computed from that month's inputs and representative day only,
+    # so a call with the inputs of some months (the canopy crossover asks for one month at a time) gives
+    # the same bits as those months of the 12-month call, and season totals over those months alone.
+    cells = random_cells(120, seed=11)
+    months = np.array([0, 6, 11])
+    common = dict(co2_ppm=450.0, latitude_deg=cells["latitude"], elevation_m=cells["elevation"], lai=cells["lai"])
+    monthly = dict(tmin_c=cells["tmin"], tmax_c=cells["tmax"], shortwave_mj=cells["shortwave"],
+                   water_availability=cells["water"], in_season=cells["season"])
+    year = kernel.season_canopy_assimilation(days_in_month=model.DAYS_IN_MONTH, day_of_year=DAYS, **common,
+                                             **monthly)
+    some = kernel.season_canopy_assimilation(days_in_month=model.DAYS_IN_MONTH[months],
+                                             day_of_year=np.asarray(DAYS)[months], **common,
+                                             **{name: values[:, months] for name, values in monthly.items()})
+    assert np.array_equal(some.c3_net, year.c3_net[:, months], equal_nan=True)
+    assert np.array_equal(some.c4_net, year.c4_net[:, months], equal_nan=True)
+    assert np.isfinite(some.c4_net).sum() > 100  # real numbers compared, not only NaN
+    by_hand = kernel.monthly_canopy_assimilation(day_of_year=DAYS, **common, **monthly)
+    expected = np.where(cells["season"][:, months], by_hand.c3_gross[:, months] * model.DAYS_IN_MONTH[months],
+                        0.0).sum(axis=-1)
+    np.testing.assert_allclose(some.c3_gross_total, expected, rtol=1e-13, atol=0.0)
+    with pytest.raises(ValueError, match="one value per day"):
+        kernel.season_canopy_assimilation(days_in_month=model.DAYS_IN_MONTH, day_of_year=np.asarray(DAYS)[months],
+                                          **common, **{name: values[:, months] for name, values in monthly.items()})
+
+
 def test_season_totals_are_the_day_weighted_sums_of_the_daily_values():
     # Derived here (model.py): season total = Σ over season months of days x daily value; NaN if a
     # season month is invalid; months outside the season do not count.

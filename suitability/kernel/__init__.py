@@ -124,7 +124,8 @@ def monthly_canopy_assimilation(
     shortwave_mj : daily global shortwave radiation [MJ m-2 d-1], (..., 12).
     water_availability : 0..1 [-], (..., 12).
     latitude_deg : latitude [degrees north], (...).
-    day_of_year : the representative day of each month [day], 12 values.
+    day_of_year : the representative day of each month [day], 12 values (or those of some months: the
+        monthly arrays' last axis then holds those months).
     co2_ppm : ambient CO2 [µmol mol-1]; o2_percent : O2 [%] (scalars).
     elevation_m : elevation [m], (...); None = sea level.
     lai : leaf area index [m2 m-2], (...); None = ``default_lai`` everywhere.
@@ -141,14 +142,15 @@ def monthly_canopy_assimilation(
     Returns :class:`MonthlyCanopyAssimilation` (float64 arrays of shape (..., 12)).
     References: as :func:`suitability.physiology.daily_canopy_assimilation`.
     """
-    daily, _, shape = _run(5, np.ones(12), tmin_c=tmin_c, tmax_c=tmax_c, shortwave_mj=shortwave_mj,
+    daily, _, shape = _run(5, np.ones(np.size(day_of_year)), tmin_c=tmin_c, tmax_c=tmax_c,
+                           shortwave_mj=shortwave_mj,
                            water_availability=water_availability, latitude_deg=latitude_deg,
                            day_of_year=day_of_year, co2_ppm=co2_ppm, elevation_m=elevation_m, lai=lai,
                            default_lai=default_lai, vpd_kpa=vpd_kpa,
                            actual_vapour_pressure_kpa=actual_vapour_pressure_kpa, in_season=in_season,
                            o2_percent=o2_percent, c3_params=c3_params, c4_params=c4_params,
                            max_water_supply_mm=max_water_supply_mm, growth_temperature_c=growth_temperature_c)
-    daily = daily.reshape((5,) + shape + (12,))
+    daily = daily.reshape((5,) + shape + (-1,))
     return MonthlyCanopyAssimilation(c3_net=daily[A_C3_NET], c3_gross=daily[A_C3_GROSS],
                                      c3_photorespiration=daily[A_C3_PHOTO], c4_net=daily[A_C4_NET],
                                      c4_gross=daily[A_C4_GROSS])
@@ -173,13 +175,15 @@ class SeasonCanopyAssimilation:
 def season_canopy_assimilation(*, days_in_month, **inputs) -> SeasonCanopyAssimilation:
     """:func:`monthly_canopy_assimilation` reduced to what :mod:`suitability.model` uses.
 
-    days_in_month : the 12 weights [day] of the season totals; every other argument as there.
+    days_in_month : the weights [day] of the season totals, one per month of ``day_of_year``; every
+        other argument as there. The months need not be all 12: the last axis of the monthly inputs holds
+        the months of ``day_of_year`` (e.g. one month, as the canopy crossover asks for).
     """
     weights = np.asarray(days_in_month, np.float64)
-    if weights.shape != (12,):
-        raise ValueError(f"days_in_month: expected 12 values, got {days_in_month!r}")
+    if weights.shape != np.shape(inputs.get("day_of_year")):
+        raise ValueError(f"days_in_month: expected one value per day of day_of_year, got {days_in_month!r}")
     daily, totals, shape = _run(2, weights, **inputs)
-    daily = daily.reshape((2,) + shape + (12,))
+    daily = daily.reshape((2,) + shape + (-1,))
     totals = totals.reshape((2,) + shape)
     return SeasonCanopyAssimilation(c3_net=daily[A_C3_NET], c4_net=daily[A_C4_NET],
                                     c3_gross_total=totals[0], c3_photorespiration_total=totals[1])
@@ -189,20 +193,25 @@ def _run(n_fields, weights, *, tmin_c, tmax_c, shortwave_mj, water_availability,
          co2_ppm, elevation_m=None, lai=None, default_lai=3.0, vpd_kpa=None, actual_vapour_pressure_kpa=None,
          in_season=None, o2_percent=20.95, c3_params=None, c4_params=None,
          max_water_supply_mm=MAX_WATER_SUPPLY_MM_PER_DAY, growth_temperature_c=None):
-    """Prepare the arrays and run the compiled kernel; returns (daily (n_fields, n, 12), totals (2, n), shape)."""
+    """Prepare the arrays and run the compiled kernel; returns (daily (n_fields, n, months), totals (2, n),
+    shape), months = the days of ``day_of_year`` (12 for a year)."""
     if vpd_kpa is not None and actual_vapour_pressure_kpa is not None:
         raise ValueError("give vpd_kpa or actual_vapour_pressure_kpa, not both")
     c3 = pathway_tables("C3", c3_params)
     c4 = pathway_tables("C4", c4_params)
     entry = compiled_entry(c3.model, c4.model)
+    days = np.asarray(day_of_year, np.float64)
+    if days.ndim != 1 or days.size == 0 or not np.all(days == days.round()):
+        raise ValueError(f"day_of_year: expected whole days, one per month (12 for a year), got {day_of_year!r}")
+    months = days.size
     monthly = np.asarray(tmin_c)
-    if monthly.ndim < 1 or monthly.shape[-1] != 12:
-        raise ValueError(f"monthly inputs need a last axis of 12 months, got shape {monthly.shape}")
+    if monthly.ndim < 1 or monthly.shape[-1] != months:
+        raise ValueError(f"monthly inputs need a last axis of {months} months, got shape {monthly.shape}")
     shape = monthly.shape[:-1]
     n = int(np.prod(shape, dtype=np.int64))
 
     def cells_by_month(values, name):
-        return _kernel_array(values, np.float32, shape + (12,), (n, 12), name)
+        return _kernel_array(values, np.float32, shape + (months,), (n, months), name)
 
     def cells(values, name, default):
         return _kernel_array(default if values is None else values, np.float32, shape, (n,), name)
@@ -213,19 +222,16 @@ def _run(n_fields, weights, *, tmin_c, tmax_c, shortwave_mj, water_availability,
         humidity_kind = HUMIDITY_VAPOUR_PRESSURE
         humidity = cells_by_month(actual_vapour_pressure_kpa, "actual_vapour_pressure_kpa")
     else:
-        humidity_kind, humidity = HUMIDITY_FROM_TMIN, np.zeros((1, 12), np.float32)
+        humidity_kind, humidity = HUMIDITY_FROM_TMIN, np.zeros((1, months), np.float32)
     if growth_temperature_c is None:
-        growth = np.zeros((0, 12), np.float32)
+        growth = np.zeros((0, months), np.float32)
     else:
         growth = cells_by_month(growth_temperature_c, "growth_temperature_c")
     growth_defaults = np.array([c3.growth_temperature_c, c4.growth_temperature_c], np.float64)
-    season = _kernel_array(True if in_season is None else in_season, np.bool_, shape + (12,), (n, 12), "in_season")
-    days = np.asarray(day_of_year, np.float64)
-    if days.shape != (12,) or not np.all(days == days.round()):
-        raise ValueError(f"day_of_year: expected 12 whole days, got {day_of_year!r}")
+    season = _kernel_array(True if in_season is None else in_season, np.bool_, shape + (months,), (n, months), "in_season")
     day_nodes, day_weights = np.polynomial.legendre.leggauss(_canopy.DAY_GAUSS_POINTS)
     night_nodes, night_weights = np.polynomial.legendre.leggauss(_canopy.NIGHT_GAUSS_POINTS)
-    daily = np.empty((n_fields, n, 12), np.float64)
+    daily = np.empty((n_fields, n, months), np.float64)
     totals = np.zeros((2, n), np.float64)
     entry(
         cells_by_month(tmin_c, "tmin_c"), cells_by_month(tmax_c, "tmax_c"),

@@ -410,7 +410,7 @@ def monthly_cells(tmin, tmax, shortwave, water, humidity, humidity_kind, latitud
                 _setup_cell(cells, lane, start + lane, latitude, elevation, lai, co2_ppm, o2_percent)
             else:
                 cells[_C_VALID, lane] = 0.0
-        for month in range(12):
+        for month in range(days.shape[0]):
             day_of_year = days[month]
             declination = solar_declination(day_of_year)
             any_valid = False
