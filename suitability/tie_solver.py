@@ -14,15 +14,24 @@ favoured. So by construction a month is C4-favoured exactly when its mean temper
 even where the advantage does not change monotonically with temperature (then the tie is the nearest of
 several). Steps:
 
-1. bracket: offsets ±2, ±4, ±8, ±14, ±20, ... °C (doubling up to steps of :data:`MAX_STEP_C`, capped
-   at the search limit), one model pass per step on the elements still unbracketed. A band of
+1. bracket: first ±2 °C; then the line through the last two points is extrapolated to its zero and the
+   next point put a little beyond it (:data:`OVERSHOOT`), where that line heads for zero, otherwise
+   the distance doubles; every step at least :data:`MIN_STEP_C` and at most :data:`MAX_STEP_C`, capped
+   at the search limit; one model pass per step on the elements still unbracketed. A band of
    temperatures narrower than 6 °C in which the outcome flips and flips back can be stepped over (then
    the next tie beyond it, or none, is reported): C4's own decline above about 36 °C (Collatz et al.
    1992 high-temperature term) makes such bands where a cool month is searched upward;
 2. refine: the Illinois variant of regula falsi (Dowell & Jarratt 1971, BIT 11:168) on every bracket at
    once, one model pass per iteration, until the bracket is narrower than :data:`TOLERANCE_C`; each new
    point at least half the tolerance inside the bracket (Dekker's minimum step), so that a root next to
-   one end closes the bracket instead of being approached from one side only.
+   one end closes the bracket instead of being approached from one side only. Two accelerations, as in
+   Brent's method (Brent 1973, ch. 4): inverse quadratic interpolation through the bracket and the last
+   point dropped where it falls inside the bracket, and a point aimed just past the estimate, away from
+   the last point, when that point is within the tolerance of the estimate (one pass then closes it).
+
+About 4 model passes per element on the synthetic benchmark region (`benchmarks/synthetic.py`, 1000²
+cells sampled every 4th, warmest month): 3.9-4.5 for its 3 scenarios, against 4.5-5.8 with plain
+doubling steps (2, 4, 8, 14, ... °C) and the Illinois steps alone.
 
 No tie within the search limits: −inf where the month stays C4-favoured down to the lower limit, +inf where
 it stays not C4-favoured (C3 favoured or contested) up to the upper limit; also where the model gives no
@@ -38,10 +47,19 @@ import numpy as np
 
 #: Width of the final bracket [°C]: the maps and briefs show 0.1 °C.
 TOLERANCE_C = 0.02
-#: First bracketing step [°C]; later steps double it, up to :data:`MAX_STEP_C`.
+#: First bracketing step [°C]; later steps are guided or doubled (module docstring), up to :data:`MAX_STEP_C`.
 FIRST_STEP_C = 2.0
 #: Largest bracketing step [°C].
 MAX_STEP_C = 6.0
+#: How far beyond the zero of the line through the last two bracketing points the next point goes, as a
+#: share of the distance to it: a little beyond, so that it brackets the tie in one pass and leaves a
+#: narrow bracket to refine.
+OVERSHOOT = 0.15
+#: Smallest bracketing step [°C] (also added to every guided step).
+MIN_STEP_C = 2 * TOLERANCE_C
+#: How far past its estimate the refinement aims, as a share of :data:`TOLERANCE_C`, when the point
+#: evaluated last lies within the tolerance of the estimate.
+AIM_PAST = 0.4
 #: Most refinement passes (the Illinois method needs about 5-8 for 16 °C brackets to 0.02 °C).
 MAX_REFINEMENTS = 24
 
@@ -64,11 +82,12 @@ def nearest_tie(excess: Callable[[np.ndarray, np.ndarray], np.ndarray], start: n
     result = np.full(start.shape, np.nan)
     none = np.where(favoured, -np.inf, np.inf)
     near, g_near = np.zeros(start.shape), start.copy()
+    previous, g_previous = np.full(start.shape, np.nan), np.full(start.shape, np.nan)
     far, g_far = np.full(start.shape, np.nan), np.full(start.shape, np.nan)
     open_ = searched.copy()
-    position = FIRST_STEP_C
+    distance = np.full(start.shape, FIRST_STEP_C)
     while open_.any():
-        distance = np.minimum(position, limit)
+        distance = np.minimum(distance, limit)
         exhausted = open_ & (np.abs(near) >= limit)
         result[exhausted] = none[exhausted]
         open_ &= ~exhausted
@@ -81,44 +100,82 @@ def nearest_tie(excess: Callable[[np.ndarray, np.ndarray], np.ndarray], start: n
         result[lost] = none[lost]
         far[flipped], g_far[flipped] = offsets[flipped], g[flipped]
         moved = open_ & ~flipped & ~lost
+        previous[moved], g_previous[moved] = near[moved], g_near[moved]
         near[moved], g_near[moved] = offsets[moved], g[moved]
         open_ &= moved
-        position += min(position, MAX_STEP_C)
+        distance = _next_distance(np.abs(near), g_near, np.abs(previous), g_previous)
     bracketed = np.isfinite(far)
-    result[bracketed] = _refine(excess, near, g_near, far, g_far, bracketed, counter)[bracketed]
+    result[bracketed] = _refine(excess, near, g_near, far, g_far, bracketed, counter, previous,
+                                g_previous)[bracketed]
     return result
 
 
-def _refine(excess, a, g_a, b, g_b, active, counter):
-    """Illinois regula falsi on the brackets [a, b] (g(a) and g(b) on opposite sides of 0) of ``active``."""
+def _next_distance(near, g_near, previous, g_previous):
+    """The next bracketing distance [°C] from 0: the line through the last two points extrapolated to its
+    zero and :data:`OVERSHOOT` beyond it, where the line heads for zero; otherwise the doubling rule.
+    Never more than :data:`MAX_STEP_C` beyond the last point, nor less than :data:`MIN_STEP_C`."""
+    doubling = near + np.minimum(near, MAX_STEP_C)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        to_zero = g_near * (near - previous) / (g_previous - g_near)  # > 0 where the line heads for zero
+        guided = near + to_zero * (1.0 + OVERSHOOT) + MIN_STEP_C
+    guided = np.where(np.isfinite(to_zero) & (to_zero > 0), guided, doubling)
+    return np.clip(guided, near + MIN_STEP_C, near + MAX_STEP_C)
+
+
+def _refine(excess, a, g_a, b, g_b, active, counter, c=None, g_c=None):
+    """Illinois regula falsi on the brackets [a, b] (g(a) and g(b) on opposite sides of 0) of ``active``,
+    b the point evaluated last, sped up by inverse quadratic interpolation through a, b and a third
+    point (c, g_c; the last one dropped from the bracket) where that falls inside the bracket, and by
+    aiming just past the estimate, away from b, when b is already within the tolerance of it."""
     a, g_a, b, g_b = a.copy(), g_a.copy(), b.copy(), g_b.copy()
+    true_g_a = g_a.copy()  # the Illinois step halves g_a; the interpolation needs the values themselves
+    c = np.full(a.shape, np.nan) if c is None else c.copy()
+    g_c = np.full(a.shape, np.nan) if g_c is None else g_c.copy()
     active = active.copy()
+    step = 0.5 * TOLERANCE_C  # Dekker's minimum step
     for _ in range(MAX_REFINEMENTS):
         active &= np.abs(b - a) > TOLERANCE_C
         if not active.any():
             break
+        low, high = np.minimum(a, b), np.maximum(a, b)
         with np.errstate(invalid="ignore", divide="ignore"):
             secant = b - g_b * (b - a) / (g_b - g_a)
-        low, high = np.minimum(a, b), np.maximum(a, b)
+            quadratic = _inverse_quadratic(a, true_g_a, b, g_b, c, g_c)
+        estimate = np.where((quadratic > low) & (quadratic < high), quadratic,
+                            np.where(np.isfinite(secant), secant, 0.5 * (a + b)))
+        # Just past the estimate, away from b, when that stays within the tolerance of b: if the estimate
+        # is that good, this one pass closes the bracket.
+        past = estimate + np.sign(estimate - b) * AIM_PAST * TOLERANCE_C
+        estimate = np.where(np.abs(past - b) <= TOLERANCE_C, past, estimate)
         # At least half the tolerance from either end (Dekker's minimum step), so that a root next to an
         # end closes the bracket in one more pass instead of creeping toward it.
-        step = 0.5 * TOLERANCE_C
-        x = np.where(np.isfinite(secant), np.clip(secant, low + step, high - step), 0.5 * (a + b))
-        x = np.where(active, x, 0.0)
+        x = np.where(active, np.clip(estimate, low + step, high - step), 0.0)
         g = _call(excess, x, active, counter)
         g = np.where(np.isfinite(g), g, np.where(g_b > 0, g_b, g_a))  # a NaN inside a bracket: move toward it
         same_as_b = (g > 0) == (g_b > 0)
         # Illinois: when the new point falls on b's side twice, halve the stale end's value.
         new_a = np.where(same_as_b, a, b)
         new_g_a = np.where(same_as_b, 0.5 * g_a, g_b)
+        new_true_g_a = np.where(same_as_b, true_g_a, g_b)
+        dropped, g_dropped = np.where(same_as_b, b, a), np.where(same_as_b, g_b, true_g_a)
+        c = np.where(active, dropped, c)
+        g_c = np.where(active, g_dropped, g_c)
         a = np.where(active, new_a, a)
         g_a = np.where(active, new_g_a, g_a)
+        true_g_a = np.where(active, new_true_g_a, true_g_a)
         b = np.where(active, x, b)
         g_b = np.where(active, g, g_b)
     with np.errstate(invalid="ignore", divide="ignore"):
         secant = b - g_b * (b - a) / (g_b - g_a)
     low, high = np.minimum(a, b), np.maximum(a, b)
     return np.where(np.isfinite(secant) & (secant >= low) & (secant <= high), secant, 0.5 * (a + b))
+
+
+def _inverse_quadratic(a, g_a, b, g_b, c, g_c):
+    """The zero of the quadratic x(g) through three points (Brent 1973, Algorithms for Minimization
+    without Derivatives, ch. 4); NaN where two values coincide or c is missing."""
+    return (a * g_b * g_c / ((g_a - g_b) * (g_a - g_c)) + b * g_a * g_c / ((g_b - g_a) * (g_b - g_c))
+            + c * g_a * g_b / ((g_c - g_a) * (g_c - g_b)))
 
 
 def _call(excess, offsets, active, counter):

@@ -57,6 +57,26 @@ def test_solver_takes_the_nearest_tie_on_the_side_of_the_start_and_codes_none_as
     assert np.isnan(_solve(lambda x: x, np.array([np.nan]))[0])  # not searched
 
 
+def test_solver_steps_at_most_its_largest_step_and_finds_a_band_that_wide():
+    # Derived here: g rises slowly (its line points to a tie 99 degC away) but is > 0 only on [7, 13.05],
+    # a band just wider than the largest bracketing step (tie_solver.MAX_STEP_C = 6 degC). The guided
+    # steps must not jump over it: no step longer than MAX_STEP_C, and the tie found is 7.
+    offsets_asked = []
+
+    def excess(offsets, active):
+        offsets_asked.append(offsets[active].copy())
+        x = offsets
+        return np.where(active, np.where((x >= 7.0) & (x <= 7.0 + tie_solver.MAX_STEP_C + 0.05), 1.0,
+                                         -1.0 + 0.01 * x), np.nan)
+
+    found = tie_solver.nearest_tie(excess, np.array([-1.0]), np.array([-40.0]), np.array([40.0]))
+    np.testing.assert_allclose(found, [7.0], atol=tie_solver.TOLERANCE_C)
+    asked = [float(o[0]) for o in offsets_asked]
+    first_in_band = next(i for i, x in enumerate(asked) if x >= 7.0)
+    steps = np.diff([0.0] + asked[:first_in_band + 1])
+    assert first_in_band >= 1 and np.all(steps > 0) and np.all(steps <= tie_solver.MAX_STEP_C + 1e-12)
+
+
 def grid_climate(mean_c, shortwave, water) -> xr.Dataset:
     """An invented 1 x n grid: per column a mean temperature, radiation and water; a mild seasonal cycle."""
     months = np.arange(1, 13)
