@@ -9,7 +9,10 @@ Layers (:func:`write_layers`)
     (a ``distributed.Lock`` with a distributed client, else a ``dask.utils.SerializableLock``: see
     :func:`suitability.runtime.write_lock`). Then each file is converted to a COG with
     ``rio_cogeo.cog_translate``, validated with ``rio_cogeo.cogeo.cog_validate(strict=True)`` and only
-    then moved to ``<name>.tif`` with ``os.replace``. Until that last step everything lives in a hidden
+    then moved to ``<name>.tif`` with ``os.replace``. The conversions of all files of one call run at once
+    in a thread pool (``conversion_threads``, the pipeline gives the run's worker count: GDAL releases the
+    GIL while it reads, compresses and writes), and the renames start only when every one of them has
+    succeeded. Until that last step everything lives in a hidden
     staging folder ``.suitability-staging-<host>-<pid>-<random>`` inside the output folder (made with
     ``tempfile.mkdtemp``: exclusive, mode 0700, unpredictable; same filesystem, so the rename is atomic;
     rio-cogeo's own scratch files land there too); any failure
@@ -52,6 +55,7 @@ import math
 import os
 import shutil
 from collections.abc import Iterable, Mapping
+from concurrent.futures import FIRST_EXCEPTION, ThreadPoolExecutor, wait
 from dataclasses import dataclass
 from datetime import date, datetime
 from pathlib import Path
@@ -177,7 +181,7 @@ def check_output_folder(folder, names: Iterable[str] = (), overwrite: bool = Fal
 
 def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[str, Any] | None = None,
                  cog_options: Any = None, lock=None, datacube: xr.Dataset | None = None,
-                 datacube_path=None) -> dict[str, Path]:
+                 datacube_path=None, conversion_threads: int | None = None) -> dict[str, Path]:
     """Compute all ``layers`` in one dask pass and write each as a validated COG ``<folder>/<name>.tif``.
 
     datacube, datacube_path: a Dataset written as :func:`write_datacube` writes it, in the SAME dask pass
@@ -190,12 +194,14 @@ def write_layers(layers: Mapping[str, xr.DataArray], folder, *, tags: Mapping[st
     cog_options: CogOptions, a mapping or the config's ``output.cog`` object.
     lock: None (a lock per file, chosen for the active scheduler), one lock shared by all files, or a
         callable ``name -> lock``.
+    conversion_threads: how many files are converted to COGs at once (None: one per core of this machine).
     Returns name -> final path. An existing ``<name>.tif`` is replaced (call :func:`check_output_folder`
     first to refuse that). Raises OutputError (naming the file or folder) on any failure, leaving no
     ``<name>.tif`` of this call (earlier files untouched) and no temporary file behind.
     """
     return write_together([LayerWrite(layers, folder, tags=tags, cog_options=cog_options, lock=lock,
-                                      datacube=datacube, datacube_path=datacube_path)])[0]
+                                      datacube=datacube, datacube_path=datacube_path)],
+                          conversion_threads=conversion_threads)[0]
 
 
 @dataclass
@@ -211,12 +217,14 @@ class LayerWrite:
     datacube_path: Any = None
 
 
-def write_together(writes: list[LayerWrite]) -> list[dict[str, Path]]:
+def write_together(writes: list[LayerWrite], *, conversion_threads: int | None = None) -> list[dict[str, Path]]:
     """:func:`write_layers` for several folders in ONE dask pass (the scenarios and members of a run share
     their model blocks, :func:`suitability.model.evaluate_runs`); returns each write's name -> path.
 
-    Nothing of any write gets its final name before every write has been computed: a failure leaves no
-    file of this call (earlier files untouched) and no temporary file behind.
+    Nothing of any write gets its final name before every file of every write has been computed and
+    converted to a validated COG: a failure leaves no file of this call (earlier files untouched) and no
+    temporary file behind. conversion_threads: COG conversions at once, over all writes (None: one per
+    core of this machine).
     """
     for write in writes:  # bad arguments are the caller's error (ConfigError, OutputError), raised as such
         if not write.layers:
@@ -238,7 +246,9 @@ def write_together(writes: list[LayerWrite]) -> list[dict[str, Path]]:
                 f"computing {names} for {folders} failed, nothing was written: "
                 f"{type(error).__name__}: {error}{disk_full_hint(error, Path(staged[0].folder))}"
             ) from error
-        return [stage.finish() for stage in staged]
+        finals = _convert_all(staged, conversion_threads or os.cpu_count() or 1)
+        sidecars = [stage.category_sidecars(cogs) for stage, cogs in zip(staged, finals)]
+        return [stage.give_final_names(cogs, names) for stage, cogs, names in zip(staged, finals, sidecars)]
     except OutputError:
         raise
     except Exception as error:
@@ -293,10 +303,12 @@ class _Staged:
             shutil.rmtree(staging, ignore_errors=True)
             raise
 
-    def finish(self) -> dict[str, Path]:
-        """Convert the computed files to validated COGs and give them (and the datacube) their final names."""
-        finals = {name: _to_validated_cog(path, name, self.options) for name, path in self.paths.items()}
-        sidecars = {name: write_category_sidecar(name, path) for name, path in finals.items() if is_class_layer(name)}
+    def category_sidecars(self, finals: Mapping[str, Path]) -> dict[str, Path]:
+        """The PAM sidecar of each converted class layer, written beside it in the staging folder."""
+        return {name: write_category_sidecar(name, path) for name, path in finals.items() if is_class_layer(name)}
+
+    def give_final_names(self, finals: Mapping[str, Path], sidecars: Mapping[str, Path]) -> dict[str, Path]:
+        """Move the validated COGs ``finals`` (and their ``sidecars``, and the datacube) onto their final names."""
         written = {}
         for name, path in finals.items():
             written[name] = self.folder / f"{name}.tif"
@@ -309,6 +321,32 @@ class _Staged:
             written["datacube"] = self.datacube_path
             os.replace(self.staged_cube, written["datacube"])
         return written
+
+
+def _convert_all(staged: list[_Staged], threads: int) -> list[dict[str, Path]]:
+    """Every computed file of every stage converted to a validated COG (:func:`_to_validated_cog`), up to
+    ``threads`` at once; per stage, name -> COG path in its staging folder.
+
+    On the first failure (or an interrupt) the conversions not yet started are cancelled and the running
+    ones are waited for before the error is raised: the caller then removes the staging folders, which no
+    thread may still be writing into. The error raised is that of the first failed file in call order.
+    """
+    jobs = [(stage, name, path) for stage in staged for name, path in stage.paths.items()]
+    if threads <= 1 or len(jobs) <= 1:  # in this thread: tracebacks and interrupts as without a pool
+        cogs = [_to_validated_cog(path, name, stage.options) for stage, name, path in jobs]
+    else:
+        pool = ThreadPoolExecutor(max_workers=min(threads, len(jobs)), thread_name_prefix="cog")
+        try:
+            futures = [pool.submit(_to_validated_cog, path, name, stage.options) for stage, name, path in jobs]
+            wait(futures, return_when=FIRST_EXCEPTION)
+        finally:
+            pool.shutdown(wait=True, cancel_futures=True)
+        failed = next((f for f in futures if not f.cancelled() and f.exception() is not None), None)
+        if failed is not None:
+            raise failed.exception()
+        cogs = [future.result() for future in futures]
+    in_order = iter(cogs)  # jobs are listed stage by stage, name by name
+    return [{name: next(in_order) for name in stage.paths} for stage in staged]
 
 
 #: GDAL's Persistent Auxiliary Metadata (PAM) sidecar of a raster: ``<file name>.aux.xml`` beside it.

@@ -8,6 +8,7 @@ provenance (manifest, checksums, tags) in :mod:`suitability.provenance`, resume 
 from __future__ import annotations
 
 import gc
+import os
 import time
 import warnings
 from contextlib import contextmanager
@@ -572,7 +573,7 @@ def _compute_scenarios(cfg, grid, runtime, climate, scenarios, own_layers, ensem
     label = scenarios[0].name if len(scenarios) == 1 else f"{len(scenarios)} scenarios"
     with _input_errors_named(cfg, scenarios):
         with runtime.progress(f"{label}: computing and writing"):
-            paths = write_together(writes)
+            paths = write_together(writes, conversion_threads=_conversion_threads(runtime))
     found: dict[str, dict[str, Path]] = {s.name: {} for s in scenarios}
     for (name, member), written_paths in zip(kinds, paths):
         written_paths = with_sidecars(written_paths)
@@ -581,6 +582,12 @@ def _compute_scenarios(cfg, grid, runtime, climate, scenarios, own_layers, ensem
         else:
             found[name].update({f"{MEMBERS_FOLDER}/{member}/{n}": p for n, p in written_paths.items()})
     return found
+
+
+def _conversion_threads(runtime) -> int:
+    """COG conversions at once in this process after a pass: the run's workers, but no more than this
+    machine's cores (a remote scheduler's workers are other machines' cores)."""
+    return max(1, min(runtime.workers, os.cpu_count() or 1))
 
 
 def _scenario_write(cfg, grid, scenario, result, written, baseline: xr.Dataset | None, tags, names) -> LayerWrite:

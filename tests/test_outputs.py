@@ -23,6 +23,7 @@ The rasters are random numbers on a made-up grid placed in the invented Kessarin
 
 from __future__ import annotations
 
+import errno
 import hashlib
 import json
 import os
@@ -45,6 +46,7 @@ from suitability.errors import ConfigError, OutputError
 from suitability.outputs import (
     CLASS_TRANSITION_COLOURS,
     PATHWAY_CLASS_COLOURS,
+    LayerWrite,
     check_output_folder,
     pam_sidecar_path,
     with_sidecars,
@@ -52,6 +54,7 @@ from suitability.outputs import (
     write_datacube,
     write_layers,
     write_manifest,
+    write_together,
 )
 from suitability.runtime import compute_context
 from suitability.variables import OUTPUT_LAYERS, OUTPUT_VARIABLES
@@ -382,6 +385,74 @@ def test_failure_mid_compute_leaves_no_output_and_no_temporaries(tmp_path):
             write_layers(layers, tmp_path, tags=TAGS, cog_options=None)
     assert our_files(tmp_path) == ["pathway_advantage.tif"]  # no c3_assimilation.tif, no hidden files
     assert file_checksum(earlier) == earlier_sum
+
+
+FOLDERS = ("baseline", "co2_only", "warmer")
+
+
+def folder_writes(root: Path, layers) -> list[LayerWrite]:
+    """One write per scenario folder of ``root``, as a run's pass gives write_together."""
+    return [LayerWrite(dict(layers), root / name, tags={**TAGS, "scenario": name}, cog_options=None) for name in FOLDERS]
+
+
+# One thread: the last file fails, after every other folder's files converted. Six threads: the first file
+# fails while all the others are converting.
+@pytest.mark.parametrize("threads, failing", [(1, ("warmer", "pathway_class")), (6, ("baseline", "pathway_advantage"))])
+def test_a_conversion_failure_in_one_folder_leaves_no_file_of_the_call_and_no_temporaries(tmp_path, monkeypatch,
+                                                                                         threads, failing):
+    import rio_cogeo.cogeo
+
+    # an earlier, finished output in the first folder must survive the failed call untouched
+    earlier = write_layers({"pathway_advantage": example_layers()["pathway_advantage"]}, tmp_path / "baseline",
+                           tags=TAGS, cog_options=None)["pathway_advantage"]
+    earlier_sum = file_checksum(earlier)
+    layers = {name: example_layers()[name] for name in ("pathway_advantage", "pathway_class")}
+    real_translate = rio_cogeo.cogeo.cog_translate
+    failed, count_lock = threading.Event(), threading.Lock()
+    running, outlived_their_folder = [], []
+
+    def full_disk_for_one_layer(source, destination, *args, **kwargs):
+        # The OS error a full disk gives (ENOSPC, POSIX), for one file only: the others convert, so only
+        # the call's atomicity keeps them from getting their final names.
+        if f"{os.sep}{failing[0]}{os.sep}" in str(source) and Path(source).name.startswith(f".{failing[1]}."):
+            failed.set()
+            raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(destination))
+        with count_lock:
+            running.append(source)
+        try:
+            if threads > 1:  # every conversion runs at once: the others are still writing when one fails
+                failed.wait(60)  # (a guard against a hang, not a timing check)
+            return real_translate(source, destination, *args, **kwargs)
+        finally:
+            with count_lock:
+                running.remove(source)
+                if not Path(source).parent.is_dir():  # the staging folder was removed under a running conversion
+                    outlived_their_folder.append(source)
+
+    monkeypatch.setattr(rio_cogeo.cogeo, "cog_translate", full_disk_for_one_layer)
+    with pytest.raises(OutputError, match=rf"{failing[0]}.{failing[1]}\.tif: COG conversion failed.*the disk is full"):
+        write_together(folder_writes(tmp_path, layers), conversion_threads=threads)
+    assert running == [] and outlived_their_folder == []  # every conversion ended before the clean-up
+    assert our_files(tmp_path / "baseline") == ["pathway_advantage.tif"]  # no hidden staging folder either
+    assert our_files(tmp_path / "co2_only") == [] and our_files(tmp_path / "warmer") == []
+    assert file_checksum(earlier) == earlier_sum
+
+
+def test_conversion_threads_give_the_same_cogs_byte_for_byte(tmp_path):
+    # The serial conversion (one thread, as before conversions ran in threads) is the reference; the
+    # pixels are checked against the source arrays, the layout by rio-cogeo's validator.
+    layers = example_layers()
+    written = {threads: [with_sidecars(paths) for paths in
+                         write_together(folder_writes(tmp_path / f"threads_{threads}", layers), conversion_threads=threads)]
+               for threads in (1, 4)}
+    for serial, threaded in zip(written[1], written[4], strict=True):
+        sidecars = {f"{name}.aux.xml" for name in layers if OUTPUT_LAYERS[name].categorical}
+        assert serial.keys() == threaded.keys() == set(layers) | sidecars
+        for name, path in serial.items():
+            assert file_checksum(path) == file_checksum(threaded[name]), name
+            if name in layers:
+                assert cog_validate(threaded[name], strict=True, quiet=True)[0]
+                np.testing.assert_array_equal(read_band(threaded[name]), layers[name].values)
 
 
 KILLED_WRITER = """
