@@ -16,7 +16,9 @@ tiles, small next to a 2 GiB worker): through ``GDAL_CACHEMAX`` in the environme
 processes, and by setting GDAL's limit directly (``rasterio.env.set_gdal_config``, i.e.
 ``GDALSetCacheMax64``, which works even after the cache is in use) in this process for the threaded
 scheduler and on the workers of an existing scheduler. A ``GDAL_CACHEMAX`` the user exported wins; the
-limit of this process is restored on exit.
+limit of this process is restored on exit. Every process that computes blocks also has glibc's malloc
+keep freed memory for reuse (:func:`reuse_freed_memory`), which saves the page faults of re-allocating
+a block's large arrays.
 
 The model engine (``compute.engine``: "compiled", the numba kernel, or "numpy") is carried by the
 :class:`Runtime` (``runtime.engine``), and the pipeline passes it to :func:`suitability.model.evaluate` as
@@ -106,6 +108,7 @@ def _open_scheduler(settings: ComputeConfig, progress: bool):
     threads_per_worker = settings.threads_per_worker or 1
     memory_limit = settings.memory_limit
     if scheduler == "threads":
+        reuse_freed_memory()
         with _gdal_cache_in_this_process(), dask.config.set(scheduler="threads", num_workers=workers):
             yield Runtime("threads", None, workers, chunk_size, progress, engine=engine)
     elif scheduler in ("processes", "local-cluster"):
@@ -119,6 +122,7 @@ def _open_scheduler(settings: ComputeConfig, progress: bool):
             dashboard_address=":0",  # any free port: several runs (or users) may share the machine
             env={} if "GDAL_CACHEMAX" in os.environ else {"GDAL_CACHEMAX": str(GDAL_CACHE_MB)},
         ) as cluster, Client(cluster, set_as_default=True) as client:
+            client.run(reuse_freed_memory)
             yield Runtime("local-cluster", client, workers, chunk_size, progress, cluster.scheduler_address, engine)
     else:  # the schema allows only a tcp:// or tls:// scheduler address besides the local schedulers
         from distributed import Client
@@ -135,6 +139,7 @@ def _open_scheduler(settings: ComputeConfig, progress: bool):
             ) from error
         try:
             client.run(_limit_gdal_cache, GDAL_CACHE_MB)
+            client.run(reuse_freed_memory)
             n_workers = len(client.scheduler_info().get("workers", {}))
             yield Runtime("distributed", client, n_workers, chunk_size, progress, scheduler, engine)
         finally:
@@ -306,6 +311,43 @@ def progress(description: str, enabled: bool = True, *, console=None,
                 yield report
     finally:
         _ACTIVE_BAR.reset(token)
+
+
+#: glibc's malloc maps a block above this size [bytes] from the system for each allocation and unmaps it
+#: when freed; smaller ones come from the heap and are reused. 32 MiB, the upper bound of glibc's own
+#: sliding threshold on 64-bit systems (mallopt(3), DEFAULT_MMAP_THRESHOLD_MAX; from memory): a block's
+#: monthly float64 array of 512 x 512 x 12 cells (24 MiB) then stays in the heap.
+MMAP_THRESHOLD_BYTES = 32 * 2**20
+#: Freed memory at the top of glibc's heap kept for reuse before it is given back to the system [bytes].
+TRIM_THRESHOLD_BYTES = 2**30
+
+
+def reuse_freed_memory() -> bool:
+    """Have glibc's malloc keep freed memory for reuse in this process (mallopt(3): M_MMAP_THRESHOLD fixed
+    at :data:`MMAP_THRESHOLD_BYTES`, M_TRIM_THRESHOLD at :data:`TRIM_THRESHOLD_BYTES`); True if set.
+
+    Why: a model block allocates and frees dozens of arrays of tens of MiB. By default glibc returns them
+    to the system and the next allocation faults every page in again: on the 2-core virtual machine of the
+    benchmarks that was 11 of 55 CPU seconds of a 1000² run (system time), 0.6 s of page faults for one
+    0.04 s array operation (`benchmarks/results/`). Not done where the C library is not glibc, nor where
+    the user set ``MALLOC_MMAP_THRESHOLD_`` or ``MALLOC_TRIM_THRESHOLD_`` (theirs win). The setting stays
+    for the life of the process: glibc has no call that reads the previous one back.
+    """
+    import platform
+
+    if platform.system() != "Linux" or platform.libc_ver()[0] != "glibc":
+        return False
+    if any(name in os.environ for name in ("MALLOC_MMAP_THRESHOLD_", "MALLOC_TRIM_THRESHOLD_")):
+        return False
+    import ctypes
+
+    try:
+        mallopt = ctypes.CDLL("libc.so.6").mallopt
+    except (OSError, AttributeError):
+        return False
+    m_trim_threshold, m_mmap_threshold = -1, -3  # <malloc.h>
+    return bool(mallopt(m_mmap_threshold, MMAP_THRESHOLD_BYTES)) and bool(mallopt(m_trim_threshold,
+                                                                                TRIM_THRESHOLD_BYTES))
 
 
 def _limit_gdal_cache(megabytes: int) -> int | None:
