@@ -10,6 +10,7 @@ Usage:
     git worktree add --detach /tmp/old <commit>
     python benchmarks/compare_trees.py --old /tmp/old [--new .] [--kernel-cells 20000] [--rounds 7]
         [--sizes 1000 2000] [--e2e-rounds 2] [--out benchmarks/results/compare.json]
+        [--new-setting physiology.crossover_temperature=false]   (a layer the old tree does not make)
 
 Kernel: one process per tree and round loads the kernel (numba's cache, compiled in a warm-up process
 first), runs it once on the cells, then times ``--repeats`` runs on one thread and reports their median
@@ -113,9 +114,10 @@ def kernel_rounds(trees: dict, n_cells: int, rounds: int, repeats: int, scratch:
             "median_cpu_ratio_new_over_old": statistics.median(cpu_ratios)}
 
 
-def end_to_end_rounds(trees: dict, size: int, rounds: int, scratch: Path) -> dict:
+def end_to_end_rounds(trees: dict, size: int, rounds: int, scratch: Path, new_settings=()) -> dict:
     configs = {name: Path(_child(tree, _REGION_CHILD, scratch / f"region_{name}_{size}", size, os.cpu_count()))
                for name, tree in trees.items()}
+    _set_config_values(configs["new"], new_settings)
     rows = {name: [] for name in trees}
     names = list(trees)
     for round_ in range(rounds):
@@ -131,6 +133,24 @@ def end_to_end_rounds(trees: dict, size: int, rounds: int, scratch: Path) -> dic
             "median_peak_rss_mib": {name: statistics.median(r["peak_rss_mib"] for r in runs)
                                     for name, runs in rows.items()},
             "paired_speedups_old_wall_over_new_wall": ratios, "median_speedup": statistics.median(ratios)}
+
+
+def _set_config_values(config: Path, settings) -> None:
+    """Set ``section.key=value`` items (values read as YAML) in the config file of one tree, e.g. to turn
+    off in the new tree a layer the old tree does not make (``physiology.crossover_temperature=false``)."""
+    if not settings:
+        return
+    import yaml
+
+    data = yaml.safe_load(config.read_text())
+    for item in settings:
+        path, _, value = item.partition("=")
+        *sections, key = path.split(".")
+        target = data
+        for section in sections:
+            target = target.setdefault(section, {})
+        target[key] = yaml.safe_load(value)
+    config.write_text(yaml.safe_dump(data, sort_keys=False))
 
 
 def _measure(tree: Path, config: Path) -> dict:
@@ -166,8 +186,11 @@ def markdown(result: dict) -> str:
                   + ", ".join(f"{r:.2f}" for r in k["paired_cpu_ratios_new_over_old"]) + f"); wall: median "
                   f"{k['median_ratio_new_over_old']:.3f}.", ""]
     if result.get("end_to_end"):
-        lines += ["## End to end (`suitability run`, 12 months x 3 scenarios, all layers, COG)", "",
-                  "| cells | tree | median wall s | median CPU s | median peak RSS MiB | runs (wall s) |", "|---|---|---|---|---|---|"]
+        lines += ["## End to end (`suitability run`, 12 months x 3 scenarios, all layers, COG)", ""]
+        if result.get("new_settings"):
+            lines += ["The new tree's runs with " + ", ".join(f"`{item}`" for item in result["new_settings"]) + ".", ""]
+        lines += ["| cells | tree | median wall s | median CPU s | median peak RSS MiB | runs (wall s) |",
+                  "|---|---|---|---|---|---|"]
         for row in result["end_to_end"]:
             for name in ("old", "new"):
                 runs = row["runs"][name]
@@ -189,6 +212,8 @@ def main() -> None:
     parser.add_argument("--repeats", type=int, default=3, help="timed kernel runs per process")
     parser.add_argument("--sizes", type=int, nargs="*", default=[1000, 2000])
     parser.add_argument("--e2e-rounds", type=int, default=2)
+    parser.add_argument("--new-setting", action="append", default=[], metavar="SECTION.KEY=VALUE",
+                        help="a config value for the new tree's end-to-end runs only (repeatable)")
     parser.add_argument("--out", type=Path, default=REPO / "benchmarks" / "results" / "compare.json")
     args = parser.parse_args()
     trees = {"old": args.old.resolve(), "new": args.new.resolve()}
@@ -197,7 +222,7 @@ def main() -> None:
     from benchmarks.run import machine
 
     result = {"created": datetime.now(timezone.utc).isoformat(timespec="seconds"), "load_average_at_start": os.getloadavg(),
-              "cpu": machine()["cpu"],
+              "cpu": machine()["cpu"], "new_settings": args.new_setting,
               "trees": {name: str(tree) for name, tree in trees.items()},
               "commits": {name: subprocess.run(["git", "-C", str(tree), "rev-parse", "--short", "HEAD"],
                                                capture_output=True, text=True).stdout.strip()
@@ -209,7 +234,7 @@ def main() -> None:
         result["end_to_end"] = []
         for size in args.sizes:
             print(f"end to end {size}² ...", flush=True)
-            result["end_to_end"].append(end_to_end_rounds(trees, size, args.e2e_rounds, scratch))
+            result["end_to_end"].append(end_to_end_rounds(trees, size, args.e2e_rounds, scratch, args.new_setting))
     finally:
         shutil.rmtree(scratch, ignore_errors=True)
     result["load_average_at_end"] = os.getloadavg()

@@ -517,6 +517,11 @@ def markdown(results: dict) -> str:
                   f"alone (2 threads) for its {m['size']}² x 12 cell-steps: **{m['ratio']:.2f}x** the kernel time "
                   "of its own work (the scenario's model pass, canopy crossover of its warmest month, indicators "
                   "and COG writing included)."]
+        off = m.get("without_crossover")
+        if off:
+            lines += ["", f"Without the crossover layer: ({off['wall_3_s']:.1f} s − {off['wall_1_s']:.1f} s) / 2 = "
+                      f"{off['per_scenario_s']:.1f} s per additional scenario, **{off['ratio']:.2f}x** the kernel time "
+                      "of its own work."]
     if "draws" in results:
         lines += [""] + draws_markdown(results["draws"])
     return "\n".join(lines) + "\n"
@@ -572,14 +577,20 @@ def main() -> None:
     if args.marginal_size:
         size = args.marginal_size
         three = next((r for r in rows if r["size"] == size and r["engine"] == "compiled"), None) or end_to_end(size)
-        print(f"end to end {size}², 1 scenario, and 3 without the crossover layer ...", flush=True)
+        print(f"end to end {size}², 1 scenario, and 3 and 1 without the crossover layer ...", flush=True)
         one = end_to_end(size, scenarios=1)
-        rows += [one, end_to_end(size, crossover=False)] + ([three] if three not in rows else [])
+        three_off, one_off = end_to_end(size, crossover=False), end_to_end(size, scenarios=1, crossover=False)
+        rows += [one, three_off, one_off] + ([three] if three not in rows else [])
         kernel_s = size * size * 12 / results["kernel"]["kernel_2_threads_cell_steps_per_s"]
         per_scenario = (three["wall_s"] - one["wall_s"]) / (SCENARIOS - 1)
+        per_scenario_off = (three_off["wall_s"] - one_off["wall_s"]) / (SCENARIOS - 1)
         results["marginal_scenario"] = {"size": size, "wall_3_s": three["wall_s"], "wall_1_s": one["wall_s"],
                                         "per_scenario_s": per_scenario, "kernel_s": kernel_s,
-                                        "ratio": per_scenario / kernel_s}
+                                        "ratio": per_scenario / kernel_s,
+                                        "without_crossover": {"wall_3_s": three_off["wall_s"],
+                                                              "wall_1_s": one_off["wall_s"],
+                                                              "per_scenario_s": per_scenario_off,
+                                                              "ratio": per_scenario_off / kernel_s}}
     results["end_to_end"] = rows
     print("parameter draws ...", flush=True)
     results["draws"] = draw_cost_benchmark(args.draw_cells if not args.quick else 4096, args.draws, repeats=3)
