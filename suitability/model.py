@@ -473,7 +473,7 @@ class _Block:
 
     @classmethod
     def months_last(cls, data: dict, settings: ModelSettings, in_season: np.ndarray,
-                    scenario: ScenarioSettings | None = None, months: np.ndarray = None) -> "_Block":
+                    scenario: ScenarioSettings | None = None, months: np.ndarray | None = None) -> "_Block":
         """The block of inputs already months last, with the months to compute given; ``months``: the
         calendar months (0-11) of the last axis, if not all 12."""
         shape = data["latitude"].shape

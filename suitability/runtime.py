@@ -319,7 +319,7 @@ def progress(description: str, enabled: bool = True, *, console=None,
 #: monthly float64 array of 512 x 512 x 12 cells (24 MiB) then stays in the heap.
 MMAP_THRESHOLD_BYTES = 32 * 2**20
 #: Freed memory at the top of glibc's heap kept for reuse before it is given back to the system [bytes].
-TRIM_THRESHOLD_BYTES = 2**30
+TRIM_THRESHOLD_BYTES = 256 * 2**20
 
 
 def reuse_freed_memory() -> bool:
@@ -328,8 +328,9 @@ def reuse_freed_memory() -> bool:
 
     Why: a model block allocates and frees dozens of arrays of tens of MiB. By default glibc returns them
     to the system and the next allocation faults every page in again: on the 2-core virtual machine of the
-    benchmarks that was 11 of 55 CPU seconds of a 1000² run (system time), 0.6 s of page faults for one
-    0.04 s array operation (`benchmarks/results/`). Not done where the C library is not glibc, nor where
+    benchmarks one 0.04 s array operation took 0.6 s of page faults, and a 1000² run spent 19-20 system
+    CPU seconds against 10-12 with this (`benchmarks/results/freed_memory.md`; its peak memory is about
+    110 MiB higher, as the heap fragments). Not done where the C library is not glibc, nor where
     the user set ``MALLOC_MMAP_THRESHOLD_`` or ``MALLOC_TRIM_THRESHOLD_`` (theirs win). The setting stays
     for the life of the process: glibc has no call that reads the previous one back.
     """
