@@ -595,9 +595,10 @@ def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly_adv
     return result.reshape(shape)
 
 
-#: (cell, month) pairs solved together by :func:`canopy_crossover` (bounds the memory of the solver's
-#: arrays and of each model pass's inputs).
-CROSSOVER_BATCH_PAIRS = 16384
+#: (cell, month) pairs solved together by :func:`canopy_crossover`: bounds the memory of the solver's
+#: arrays (about 20 float64 numbers per pair) and of each model pass's one-month inputs; large, since
+#: every pass makes one engine call per calendar month among the batch's pairs.
+CROSSOVER_BATCH_PAIRS = 12 * 16384
 
 
 def _crossover_of_pairs(flat, settings: ModelSettings, scenario: ScenarioSettings, cells, months, start,

@@ -433,8 +433,8 @@ class PhysiologyConfig(_Section):
     #: Growth temperature of the C3 acclimation (Kattge & Knorr 2007): "month_mean", each cell's mean air
     #: temperature of the month; "parameter_set", the C3 set's own growth_temperature_c everywhere.
     growth_temperature: Literal["month_mean", "parameter_set"] = "month_mean"
-    #: Solve the canopy crossover per cell and month (crossover_temperature and the datacube's
-    #: monthly_crossover_temperature; about ten model passes more); false leaves those layers NaN.
+    #: Solve the canopy crossover (crossover_temperature and the datacube's monthly_crossover_temperature;
+    #: about five model evaluations per cell and month solved); false leaves those layers NaN.
     crossover_temperature: bool = True
 
     @field_validator("c3", "c4")
