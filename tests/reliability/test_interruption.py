@@ -29,10 +29,15 @@ pytestmark = pytest.mark.slow  # real runs in a new process, interrupted, then r
 
 
 def _long_config(tmp_path, runs_per_pass=1) -> Path:
-    # Three scenarios over six months: several seconds per scenario on two cores. One scenario per pass
-    # (compute.runs_per_pass) so that the baseline is finished, and kept, before the second is written;
-    # with the default all three share one pass and an interruption keeps none of them.
-    return write_config(tmp_path, demo_config(months=range(1, 7), scenarios=3, runs_per_pass=runs_per_pass))
+    # Four scenarios over twelve months on one thread: a few seconds per scenario, so that the signal
+    # arrives while the run is still busy even when the machine's other work delays this test process
+    # (with six months on two threads a pass took under a second, and a loaded CI machine let the run
+    # finish before the signal was sent). One scenario per pass (compute.runs_per_pass) so that the
+    # baseline is finished, and kept, before the second is written; with the default all three share
+    # one pass and an interruption keeps none of them.
+    config = demo_config(months=range(1, 13), scenarios=4, runs_per_pass=runs_per_pass)
+    config["compute"]["workers"] = 1
+    return write_config(tmp_path, config)
 
 
 def _start(config: Path) -> subprocess.Popen:
