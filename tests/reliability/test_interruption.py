@@ -12,6 +12,7 @@ from __future__ import annotations
 import os
 import signal
 import subprocess
+import sys
 import time
 import xml.etree.ElementTree as ET
 from pathlib import Path
@@ -40,10 +41,25 @@ def _long_config(tmp_path, runs_per_pass=1) -> Path:
     return write_config(tmp_path, config)
 
 
+# The run starts as from a terminal: SIGINT at its default disposition and unblocked. A process inherits
+# an ignored or blocked SIGINT from its parent (a shell's background job, a test runner's worker), and
+# Python then leaves Ctrl-C ignored, as Unix programs should; that is not what these tests are about.
+# The wrapper resets both and replaces itself with the run (os.execv keeps the process id).
+_AS_FROM_A_TERMINAL = ("import os, signal, sys; signal.signal(signal.SIGINT, signal.SIG_DFL); "
+                       "signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT, signal.SIGTERM}); "
+                       "os.execv(sys.argv[1], sys.argv[1:])")
+
+
 def _start(config: Path) -> subprocess.Popen:
     env = {**os.environ, "COLUMNS": "240"}
-    return subprocess.Popen([str(SUITABILITY), "run", str(config), "--no-progress"], stdout=subprocess.PIPE,
-                            stderr=subprocess.PIPE, text=True, env=env)
+    return subprocess.Popen([sys.executable, "-c", _AS_FROM_A_TERMINAL, str(SUITABILITY), "run", str(config),
+                             "--no-progress"], stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, env=env)
+
+
+def _signal_state() -> str:
+    """This test process's SIGINT disposition and blocked signals, for the failure messages."""
+    return (f"[test process: SIGINT handler {signal.getsignal(signal.SIGINT)!r}, blocked "
+            f"{sorted(signal.pthread_sigmask(signal.SIG_BLOCK, []))}]")
 
 
 def _wait_for(predicate, process: subprocess.Popen, timeout: float = 120.0) -> None:
@@ -103,7 +119,7 @@ def test_sigint_and_sigterm_clean_up_and_a_rerun_completes(tmp_path, signum, exi
     _wait_for(_writing_second_scenario(folder), process)
     process.send_signal(signum)
     _, stderr = process.communicate(timeout=120)
-    assert process.returncode == exit_code, stderr
+    assert process.returncode == exit_code, stderr + _signal_state()
     assert word in stderr and "Traceback" not in stderr
     _assert_nothing_half_finished(folder)
     assert not (folder / LOCK_NAME).exists()  # released on the way out
@@ -134,6 +150,6 @@ def test_an_interrupted_shared_pass_keeps_nothing_half_done_and_a_rerun_redoes_i
     _wait_for(_writing_second_scenario(folder), process)
     process.send_signal(signal.SIGINT)
     _, stderr = process.communicate(timeout=120)
-    assert process.returncode == 130, stderr
+    assert process.returncode == 130, stderr + _signal_state()
     _assert_nothing_half_finished(folder, baseline_kept=False)
     _rerun_completes(config, folder, baseline_kept=False)
