@@ -319,8 +319,8 @@ def make_briefs(cfg: RunConfig, scenario_folders: dict[str, Path], today: xr.Dat
     """Zonal statistics, figures and HTML/PDF briefs for the scenarios already written.
 
     today: the baseline climate on the grid (unmasked): the region's warm-season temperature and each
-    district's monthly mean temperature (for the crossover chart) are taken from it, the latter computed
-    district window by district window. members: scenario -> its climate-model members.
+    district's monthly mean temperature (for the crossover chart) are taken from it, the latter in one
+    pass over its row chunks. members: scenario -> its climate-model members.
     progress: show a progress bar of the briefs on stderr.
     """
     from .reports import brief_context_from_config, build_brief

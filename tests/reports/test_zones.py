@@ -397,3 +397,38 @@ def test_district_distribution_reads_a_monthly_layer_at_the_districts_own_months
     # Hand: area-weighted mean of band m over columns 0-3 = (30 + m + 3 * (20 + m)) / 4 = 22.5 + m
     assert monthly.loc["Orvanne"].tolist() == pytest.approx([22.5 + m for m in range(1, 13)])
     assert warmest_months(monthly.loc["Orvanne"]) == [12, 11, 10]
+
+
+def test_district_monthly_means_of_a_lazy_field_in_row_chunks_compute_each_chunk_once(tmp_path):
+    # Hand derivation: two districts over a 6 x 5 grid of 1 km cells, the field in row chunks of 2 (three
+    # stripes). Band m holds 10 * row + m, except one NaN cell in row 1 of "Tessil", which is left out of
+    # the mean. "Tessil" covers rows 0-2, columns 0-1: (5 * 10 * mean row + m) over the five finite cells,
+    # rows 0, 0, 1, 2, 2 -> mean row 1.0 -> 10 + m. "Mavrel" covers rows 3-5, columns 2-4: rows 3, 4, 5 in
+    # equal parts -> 40 + m. Each row chunk is computed once, whatever the number of districts.
+    import dask
+    import dask.array as da
+    import rasterio
+
+    grid_path = tmp_path / "grid.tif"
+    with rasterio.open(grid_path, "w", driver="GTiff", width=5, height=6, count=1, dtype="uint8", crs=UTM,
+                       transform=from_origin(300000, 7400000, 1000, 1000)) as dst:
+        dst.write(np.zeros((1, 6, 5), dtype="uint8"))
+    rows = np.arange(6, dtype="float64")[:, None] * np.ones((1, 5))
+    values = np.stack([10.0 * rows + m for m in range(1, 13)])
+    values[:, 1, 1] = np.nan
+    zones = _zones(tmp_path, {"Tessil": box(300000, 7397000, 302000, 7400000),
+                              "Mavrel": box(302000, 7394000, 305000, 7397000)}, UTM)
+    computed = []
+
+    def counted(block):
+        computed.append(block.shape)
+        return block
+
+    lazy = da.from_array(values, chunks=(12, 2, 5)).map_blocks(counted, dtype="float64")
+    with dask.config.set(scheduler="synchronous"):
+        from_lazy = district_monthly_means(zones, "district", output_grid(grid_path), lazy)
+    from_numpy = district_monthly_means(zones, "district", output_grid(grid_path), values)
+    assert from_lazy.loc["Tessil"].tolist() == pytest.approx([10.0 + m for m in range(1, 13)])
+    assert from_lazy.loc["Mavrel"].tolist() == pytest.approx([40.0 + m for m in range(1, 13)])
+    pd.testing.assert_frame_equal(from_lazy, from_numpy)
+    assert len([shape for shape in computed if shape == (12, 2, 5)]) == 3
