@@ -304,6 +304,7 @@ class _Figures:
         self.png_paths: dict[tuple, Path] = {}
         self.numbers = {d: i + 1 for i, d in enumerate(dict.fromkeys(table["district"]))}
         self.labels_left_out: set[str] = set()
+        self._frames = figures.MapFrames()  # each map is saved as soon as drawn, as MapFrames requires
 
     def _get(self, key: tuple, name: str, draw: Callable[[], object]) -> str:
         if key not in self._cache:
@@ -350,7 +351,7 @@ class _Figures:
         return self._get((kind, scenario.name, district), f"{district or ''}_{scenario.name}_{kind}_map",
                          lambda: draw(Path(scenario.output_folder) / layer_file, self._zones, title=title,
                                       highlight=district, numbers=self.numbers, zoom=district is not None,
-                                      size_in=HALF_PAGE_MAP_IN))
+                                      size_in=HALF_PAGE_MAP_IN, frames=self._frames))
 
     def crossover_points(self, scenarios: Sequence[ScenarioInfo]) -> pd.DataFrame | None:
         """Per district and scenario: warm-month temperature and the crossover quantiles of its cells."""

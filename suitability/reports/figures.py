@@ -205,16 +205,21 @@ _MAP_BOX = (0.09, 0.25, 0.88, 0.68)
 _STRIP_HEIGHT = 0.17
 
 
-def _map_axes(figure: Figure, raster: _MapRaster, title: str):
+def _map_axes(figure: Figure):
     axes = figure.add_axes(_MAP_BOX)
     for spine in axes.spines.values():
         spine.set_edgecolor("#888888")
-    if title:
-        # Wrapped by hand: matplotlib's own wrapping measures text as mathematics, which a name with "$" breaks.
-        width = max(20, int(figure.get_figwidth() * 72 / (10.5 * 0.55)))  # characters per line at 10.5 pt
-        figure.text(0.02, 0.985, textwrap.fill(title, width), ha="left", va="top", fontsize=10.5, color=_INK,
-                    parse_math=False, gid="title")
     return axes
+
+
+def _map_title(figure: Figure, title: str):
+    """The map's title at the top left (None without a title)."""
+    if not title:
+        return None
+    # Wrapped by hand: matplotlib's own wrapping measures text as mathematics, which a name with "$" breaks.
+    width = max(20, int(figure.get_figwidth() * 72 / (10.5 * 0.55)))  # characters per line at 10.5 pt
+    return figure.text(0.02, 0.985, textwrap.fill(title, width), ha="left", va="top", fontsize=10.5, color=_INK,
+                       parse_math=False, gid="title")
 
 
 def _finish_frame(axes, raster: _MapRaster) -> None:
@@ -466,7 +471,66 @@ MAP_SIZE_IN = (7.0, 6.6)
 MAX_NAME_LABELS = 12
 
 
-def _map_figure(path, zones, title, highlight, numbers, zoom, size_in, draw) -> Figure:
+class MapFrames:
+    """Keeps the frame of the last map drawn through it, to draw the next layer of the same place into it.
+
+    A frame is all of a map but its layer: axes, graticule, district outlines and labels, scale bar, north
+    arrow, locator. The maps of one district brief (classes and changes of each scenario) share it, and
+    building it cost more than half of drawing such a map. A figure drawn through a ``MapFrames`` is only
+    valid until the next map drawn through it (which replaces its layer, title and legend): save it first.
+    One per thread; not shared between threads.
+    """
+
+    def __init__(self):
+        self._key = None
+        self._frame: _Frame | None = None
+
+    def frame(self, key, build: Callable[[], _Frame]) -> _Frame:
+        if self._frame is None or self._key != key:
+            self._key, self._frame = key, build()
+        return self._frame
+
+
+class _Frame:
+    def __init__(self, figure: Figure, axes, raster: _MapRaster, labels_drawn: dict[str, bool]):
+        self.figure, self.axes, self.raster, self.labels_drawn = figure, axes, raster, labels_drawn
+        self._layer: list = []
+
+    def show(self, raster: _MapRaster, title: str, draw) -> Figure:
+        """The frame with ``raster`` drawn by ``draw`` (and its legend) instead of the previous layer."""
+        for artist in self._layer:
+            if artist in self.figure.axes:
+                self.figure.delaxes(artist)
+            else:
+                artist.remove()
+        figure, axes = self.figure, self.axes
+        before = (list(axes.images), list(figure.legends), list(figure.axes))
+        title_text = _map_title(figure, title)
+        legend = draw(axes, raster)
+        if legend is not None:
+            legend(figure)
+        _finish_frame(axes, raster)  # the layer's imshow may reset the limits and the aspect
+        _set_ground_aspect(axes, raster)
+        self._layer = ([a for a in axes.images if a not in before[0]] + [a for a in figure.legends if a not in before[1]]
+                       + [a for a in figure.axes if a not in before[2]] + ([title_text] if title_text is not None else []))
+        figure.labels_drawn = self.labels_drawn  # which district labels fitted (the brief's key says where numbers are)
+        return figure
+
+
+def _build_frame(raster: _MapRaster, zones, highlight, numbers, zoomed: bool, size_in) -> _Frame:
+    figure = Figure(figsize=size_in)
+    axes = _map_axes(figure)
+    _draw_graticule(axes, raster)
+    drawn = _draw_districts(axes, figure, zones, raster, highlight, numbers)
+    _set_ground_aspect(axes, raster)
+    _draw_scale_bar(figure, axes, raster)
+    _draw_north_arrow(figure, raster)
+    if zoomed:
+        _draw_locator(figure, zones, raster, highlight)
+    return _Frame(figure, axes, raster, drawn)
+
+
+def _map_figure(path, zones, title, highlight, numbers, zoom, size_in, draw, frames: MapFrames | None = None) -> Figure:
     bounds = zoom_bounds(zones, highlight, path) if zoom and zones is not None and highlight is not None else None
     if bounds is not None:
         with rasterio.open(path) as dataset:
@@ -474,31 +538,28 @@ def _map_figure(path, zones, title, highlight, numbers, zoom, size_in, draw) -> 
         if bounds[0] >= full.right or bounds[2] <= full.left or bounds[1] >= full.top or bounds[3] <= full.bottom:
             bounds = None  # a district off the grid: the whole map, with the district's outline if it shows
     raster = _MapRaster(path, bounds=bounds)
-    figure = Figure(figsize=size_in)
-    axes = _map_axes(figure, raster, title)
-    legend_handles = draw(axes, raster)
-    _draw_graticule(axes, raster)
-    drawn = _draw_districts(axes, figure, zones, raster, highlight, numbers)
-    _set_ground_aspect(axes, raster)
-    _draw_scale_bar(figure, axes, raster)
-    _draw_north_arrow(figure, raster)
-    if bounds is not None:
-        _draw_locator(figure, zones, raster, highlight)
-    if legend_handles is not None:
-        legend_handles(figure)
-    figure.labels_drawn = drawn  # which district labels fitted (the brief's key says where numbers are)
-    return figure
+
+    def build() -> _Frame:
+        return _build_frame(raster, zones, highlight, numbers, bounds is not None, size_in)
+
+    if frames is None:
+        return build().show(raster, title, draw)
+    key = (id(zones), highlight, tuple(sorted((numbers or {}).items())), tuple(size_in), raster.extent,
+           raster.full_extent, raster.values.shape, raster.crs.to_wkt(), bounds is not None)
+    return frames.frame(key, build).show(raster, title, draw)
 
 
 def class_map_figure(class_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
                      highlight: str | None = None, size_in: tuple[float, float] = MAP_SIZE_IN,
-                     numbers: dict[str, int] | None = None, zoom: bool = False) -> Figure:
+                     numbers: dict[str, int] | None = None, zoom: bool = False,
+                     frames: MapFrames | None = None) -> Figure:
     """The favoured-pathway map of one scenario: classes, legend, scale bar and north arrow below the frame,
     graticule, district outlines with names (few districts) or key numbers (``numbers``).
 
     class_path: a ``pathway_class.tif``. zones: districts with a ``district`` column (any CRS), or None.
     highlight: a district drawn with a heavy outline; with ``zoom`` the map shows only its surroundings and
-    a locator map shows where it lies. size_in: figure (width, height) [inch].
+    a locator map shows where it lies. size_in: figure (width, height) [inch]. frames: re-use the frame of
+    the last map drawn through it if it shows the same place (see :class:`MapFrames`).
     """
     def draw(axes, raster):
         axes.imshow(_class_rgba(raster.values), extent=raster.extent, interpolation="nearest", origin="upper")
@@ -510,7 +571,7 @@ def class_map_figure(class_path, zones: gpd.GeoDataFrame | None = None, *, title
                           bbox_to_anchor=(0.02, 0.0), handlelength=1.4)
         return legend
 
-    return _map_figure(class_path, zones, title, highlight, numbers, zoom, size_in, draw)
+    return _map_figure(class_path, zones, title, highlight, numbers, zoom, size_in, draw, frames)
 
 
 def class_map_png(class_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
@@ -521,7 +582,8 @@ def class_map_png(class_path, zones: gpd.GeoDataFrame | None = None, *, title: s
 
 def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",
                       highlight: str | None = None, size_in: tuple[float, float] = MAP_SIZE_IN,
-                      numbers: dict[str, int] | None = None, zoom: bool = False) -> Figure:
+                      numbers: dict[str, int] | None = None, zoom: bool = False,
+                      frames: MapFrames | None = None) -> Figure:
     """Map of ``advantage_change.tif`` (scenario minus baseline) on a diverging scale centred on 0, laid
     out as :func:`class_map_figure`."""
     def draw(axes, raster):
@@ -539,7 +601,7 @@ def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, tit
             bar.ax.tick_params(labelsize=7)
         return legend
 
-    return _map_figure(change_path, zones, title, highlight, numbers, zoom, size_in, draw)
+    return _map_figure(change_path, zones, title, highlight, numbers, zoom, size_in, draw, frames)
 
 
 def change_map_png(change_path, zones: gpd.GeoDataFrame | None = None, *, title: str = "",

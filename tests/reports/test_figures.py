@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import io
 import math
+import re
 from types import SimpleNamespace
 
 import colorspacious
@@ -300,3 +301,33 @@ def test_highlighted_district_has_a_heavy_outline(tmp_path):
     heavy = marked.axes[0].collections[int(np.argmax(widths))]
     vertices = np.concatenate([p.vertices for p in heavy.get_paths()])
     assert vertices[:, 0].min() == pytest.approx(330000) and vertices[:, 0].max() == pytest.approx(358000)
+
+
+def test_maps_drawn_through_one_frame_are_the_maps_drawn_alone(tmp_path):
+    # Derived here: a map drawn into the kept frame of the previous map (MapFrames) must be the map drawn on
+    # its own, pixel for pixel and in its SVG, whatever layer (classes, change with its colour bar) came
+    # before; a map of another district gets a frame of its own.
+    transform = from_origin(300000, 7400000, 1000, 1000)
+    classes = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740", transform)
+    change = write_raster(tmp_path / "advantage_change.tif",
+                          np.linspace(-0.3, 0.2, 40 * 60, dtype="float32").reshape(40, 60), "EPSG:32740", transform)
+    zones = gpd.GeoDataFrame({"district": ["Orvanne", "Telmira"]},
+                             geometry=[box(302000, 7362000, 330000, 7398000), box(330000, 7362000, 358000, 7398000)],
+                             crs="EPSG:32740")
+    frames = figures.MapFrames()
+    sequence = [(figures.class_map_figure, classes, "Telmira"), (figures.change_map_figure, change, "Telmira"),
+                (figures.class_map_figure, classes, "Telmira"), (figures.change_map_figure, change, "Orvanne"),
+                (figures.class_map_figure, classes, "Orvanne")]
+    built = []
+    for draw, path, district in sequence:
+        options = dict(title=f"{path.stem} of {district}", highlight=district, zoom=True, size_in=(7.0, 4.35))
+        kept = draw(path, zones, frames=frames, **options)
+        built.append(kept)
+        kept_png, kept_svg = figures.figure_bytes(kept, "png"), figures.figure_bytes(kept, "svg")
+        alone = draw(path, zones, **options)
+        assert np.array_equal(np.asarray(Image.open(io.BytesIO(kept_png))),
+                              np.asarray(Image.open(io.BytesIO(figures.figure_bytes(alone, "png")))))
+        # ids are random and the date is the moment of saving
+        strip_ids = lambda svg: re.sub(rb'(id|href|clip-path)="[^"]*"|<dc:date>[^<]*</dc:date>', b"", svg)  # noqa: E731
+        assert strip_ids(kept_svg) == strip_ids(figures.figure_bytes(alone, "svg"))
+    assert built[0] is built[1] is built[2] and built[3] is built[4] and built[2] is not built[3]
