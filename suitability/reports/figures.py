@@ -23,6 +23,7 @@ import geopandas as gpd
 import matplotlib
 import numpy as np
 import pandas as pd
+import PIL.Image
 import pyproj
 import rasterio
 import rasterio.windows
@@ -186,13 +187,28 @@ class _MapRaster:
 # --- drawing helpers -------------------------------------------------------------------------------------
 
 def _png(figure: Figure, dpi: int) -> bytes:
+    """The figure drawn on white as an RGB PNG. Without the alpha channel (all opaque on white anyway) the
+    file is smaller and faster to write, and the PDF renderer need not split a mask off each image."""
+    previous_dpi, previous_face = figure.dpi, figure.get_facecolor()
+    canvas = FigureCanvasAgg(figure)
+    try:
+        figure.set_dpi(dpi)
+        figure.set_facecolor("white")
+        canvas.draw()
+        pixels = np.asarray(canvas.buffer_rgba())[..., :3]
+    finally:
+        figure.set_dpi(previous_dpi)
+        figure.set_facecolor(previous_face)
+        FigureCanvasBase(figure)  # as savefig leaves it: no canvas that redraws the figure on every change
     buffer = io.BytesIO()
-    figure.savefig(buffer, format="png", dpi=dpi, facecolor="white")
+    PIL.Image.fromarray(pixels).save(buffer, format="png", dpi=(dpi, dpi))
     return buffer.getvalue()
 
 
 def figure_bytes(figure: Figure, fmt: str, dpi: int = 150) -> bytes:
-    """The figure as ``fmt`` ("png" or "svg") bytes; SVG keeps text as text (searchable, scalable)."""
+    """The figure as ``fmt`` ("png": RGB, or "svg") bytes; SVG keeps text as text (searchable, scalable)."""
+    if fmt == "png":
+        return _png(figure, dpi)
     buffer = io.BytesIO()
     with matplotlib.rc_context({"svg.fonttype": "none"}):
         figure.savefig(buffer, format=fmt, dpi=dpi, facecolor="white")

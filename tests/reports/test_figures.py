@@ -331,3 +331,20 @@ def test_maps_drawn_through_one_frame_are_the_maps_drawn_alone(tmp_path):
         strip_ids = lambda svg: re.sub(rb'(id|href|clip-path)="[^"]*"|<dc:date>[^<]*</dc:date>', b"", svg)  # noqa: E731
         assert strip_ids(kept_svg) == strip_ids(figures.figure_bytes(alone, "svg"))
     assert built[0] is built[1] is built[2] and built[3] is built[4] and built[2] is not built[3]
+
+
+def test_png_is_rgb_and_the_same_pixels_as_matplotlib_draws(tmp_path):
+    # Reference: matplotlib's own PNG writer (savefig, RGBA on a white face). The brief's PNG drops the alpha
+    # channel, which is all opaque there, and keeps every pixel and the resolution.
+    path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    figure = figures.class_map_figure(path, None, title="baseline")
+    dpi_before = figure.dpi
+    ours = Image.open(io.BytesIO(figures.figure_bytes(figure, "png", dpi=120)))
+    assert figure.dpi == dpi_before != 120  # left as it was
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format="png", dpi=120, facecolor="white")
+    reference = np.asarray(Image.open(buffer))
+    assert ours.mode == "RGB" and ours.info["dpi"] == pytest.approx((120, 120), abs=0.05)
+    assert reference.shape[-1] == 4 and reference[..., 3].min() == 255
+    assert np.array_equal(np.asarray(ours), reference[..., :3])
