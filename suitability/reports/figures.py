@@ -616,6 +616,8 @@ def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, tit
             bar = figure.colorbar(image, cax=bar_axes, orientation="horizontal")
             bar.set_label("\u2190 towards C3        towards C4 \u2192\nchange of the advantage", fontsize=7.5,
                           color=_INK)
+            # Above the bar: below it, the two lines fell off the bottom of a half-page map.
+            bar.ax.xaxis.set_label_position("top")
             bar.ax.tick_params(labelsize=7)
         return legend
 

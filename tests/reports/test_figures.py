@@ -348,3 +348,25 @@ def test_png_is_rgb_and_the_same_pixels_as_matplotlib_draws(tmp_path):
     assert ours.mode == "RGB" and ours.info["dpi"] == pytest.approx((120, 120), abs=0.05)
     assert reference.shape[-1] == 4 and reference[..., 3].min() == 255
     assert np.array_equal(np.asarray(ours), reference[..., :3])
+
+
+@pytest.mark.parametrize("size_in", [(7.0, 4.35), figures.MAP_SIZE_IN])
+def test_change_map_scale_label_is_inside_the_figure(tmp_path, size_in):
+    # Derived here: the words saying which way is towards C3 and towards C4 must be on the figure (they were
+    # drawn below the colour bar, off the bottom of the half-page map), clear of the map frame and the scale bar.
+    path = write_raster(tmp_path / "advantage_change.tif",
+                        np.linspace(-0.3, 0.2, 40 * 60, dtype="float32").reshape(40, 60), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    figure = figures.change_map_figure(path, None, title="warmer", size_in=size_in)
+    canvas = FigureCanvasAgg(figure)
+    canvas.draw()  # places the axis label
+    renderer = canvas.get_renderer()
+    bar_axes = figure.axes[-1]
+    label = bar_axes.xaxis.label
+    assert "towards C4" in label.get_text()
+    box, whole = label.get_window_extent(renderer), figure.bbox
+    assert whole.x0 <= box.x0 and box.x1 <= whole.x1 and whole.y0 <= box.y0 and box.y1 <= whole.y1
+    assert not box.overlaps(figure.axes[0].get_window_extent(renderer))
+    scale_bar = _scale_bar(figure)
+    for part in [*scale_bar.patches, *scale_bar.texts]:
+        assert not box.overlaps(part.get_window_extent(renderer))
