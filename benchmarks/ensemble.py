@@ -17,6 +17,14 @@ a timing; numbers are measurements of this machine at this moment (other work on
 
 Usage: python benchmarks/ensemble.py [--size 256] [--members 3]
 Results: benchmarks/results/ensemble.json and ensemble.md.
+
+``--marginal-size N`` instead measures the cost of one more member (issue 15's target: at most 1.2x the
+kernel time of its own work): the ensemble scenario with 2 and with 4 members at N x N cells, with and without
+the canopy crossover layer, each kind ``--repeat`` times interleaved; one more member costs (wall of 4 -
+wall of 2) / 2 of the fastest runs, compared with N² x 12 cell-steps at the kernel's rate measured in this
+process before the runs (on 2 threads, and twice the 1-thread rate; ``run.kernel_benchmark``). A member's
+own work includes reading and averaging its 30-year series, which the kernel time does not.
+Results: benchmarks/results/ensemble_marginal.json and ensemble_marginal.md.
 """
 
 from __future__ import annotations
@@ -70,7 +78,7 @@ def write_inputs(folder: Path, size: int, members: list[str]) -> None:
                      encoding={"time": {"units": "days since 2000-01-01", "calendar": "noleap"}})
 
 
-def write_config(folder: Path, name: str, size: int, members: list[str], mode: str) -> Path:
+def write_config(folder: Path, name: str, size: int, members: list[str], mode: str, crossover: bool = True) -> Path:
     import yaml
 
     climate = {"tmin": {"path": "baseline.nc", "variable": "tmin"}, "tmax": {"path": "baseline.nc", "variable": "tmax"},
@@ -93,6 +101,8 @@ def write_config(folder: Path, name: str, size: int, members: list[str], mode: s
            "climate": climate, "scenarios": scenarios,
            "output": {"folder": f"out_{name}", "member_outputs": mode == "ensemble+members", "overwrite": True},
            "compute": {"scheduler": "threads"}}
+    if not crossover:
+        cfg["physiology"] = {"crossover_temperature": False}
     path = folder / f"{name}.yaml"
     path.write_text(yaml.safe_dump(cfg, sort_keys=False))
     return path
@@ -118,7 +128,12 @@ def main() -> None:
     parser.add_argument("--size", type=int, default=256, help="cells per side of the square region")
     parser.add_argument("--members", type=int, default=3)
     parser.add_argument("--repeat", type=int, default=2, help="runs of each kind, interleaved; the fastest is kept")
+    parser.add_argument("--marginal-size", type=int, default=0,
+                        help="measure one more member at this size instead (module docstring)")
     args = parser.parse_args()
+    if args.marginal_size:
+        marginal_member(args.marginal_size, args.repeat)
+        return
     members = [f"m{i + 1}" for i in range(args.members)]
     shutil.rmtree(SCRATCH, ignore_errors=True)
     SCRATCH.mkdir(parents=True)
@@ -147,6 +162,57 @@ def main() -> None:
         lines.append(f"| {mode} | {result['wall_s']} | {timing['open_inputs_s']} | {timing['scenarios_s']:.2f} | "
                      f"{result['peak_rss_mib']} |")
     (RESULTS / "ensemble.md").write_text("\n".join(lines) + "\n")
+    print("\n".join(lines))
+    shutil.rmtree(SCRATCH, ignore_errors=True)
+
+
+def marginal_member(size: int, repeat: int) -> None:
+    """One more member's cost against the kernel time of its own work (module docstring)."""
+    sys.path.insert(0, str(Path(__file__).resolve().parent))
+    from run import kernel_benchmark
+
+    members = [f"m{i + 1}" for i in range(4)]
+    shutil.rmtree(SCRATCH, ignore_errors=True)
+    SCRATCH.mkdir(parents=True)
+    print("kernel ...", flush=True)
+    kernel = kernel_benchmark(131072, 16384, 4096, repeats=3)
+    write_inputs(SCRATCH, size, members)
+    kinds = {(count, crossover): write_config(SCRATCH, f"members{count}_{'with' if crossover else 'without'}", size,
+                                              members[:count], "ensemble", crossover)
+             for crossover in (True, False) for count in (2, 4)}
+    fastest, every = {}, {}
+    for _ in range(repeat):  # interleaved, so that other load on the machine falls on every kind alike
+        for key, config in kinds.items():
+            result = run_apart(config)
+            every.setdefault(str(key), []).append(result["wall_s"])
+            if key not in fastest or result["wall_s"] < fastest[key]["wall_s"]:
+                fastest[key] = result
+            print(key, json.dumps(result), flush=True)
+    kernel_s = {"2 threads": size * size * 12 / kernel["kernel_2_threads_cell_steps_per_s"],
+                "twice 1 thread": size * size * 12 / (2 * kernel["kernel_1_thread_cell_steps_per_s"])}
+    rows = {}
+    for crossover in (True, False):
+        per_member = (fastest[(4, crossover)]["wall_s"] - fastest[(2, crossover)]["wall_s"]) / 2
+        rows["with crossover" if crossover else "without crossover"] = {
+            "wall_2_members_s": fastest[(2, crossover)]["wall_s"], "wall_4_members_s": fastest[(4, crossover)]["wall_s"],
+            "per_member_s": per_member, **{f"ratio_to_kernel_{k.replace(' ', '_')}": per_member / v
+                                            for k, v in kernel_s.items()}}
+    report = {"size": size, "cells": size * size, "repeat": repeat, "kernel": kernel, "kernel_s_per_member": kernel_s,
+              "one_more_member": rows, "fastest": {str(k): v for k, v in fastest.items()}, "every_run": every,
+              "load_average_at_end": os.getloadavg()}
+    RESULTS.mkdir(exist_ok=True)
+    (RESULTS / "ensemble_marginal.json").write_text(json.dumps(report, indent=2) + "\n")
+    lines = [f"# One more ensemble member ({size} x {size} cells, 12 months, fastest of {repeat})", "",
+             "Invented square region (see benchmarks/ensemble.py; not a real place). One more member = (wall with 4 "
+             "members - wall with 2) / 2, against the kernel time of its own model work "
+             f"({size}² x 12 cell-steps): {kernel_s['2 threads']:.2f} s at the 2-thread kernel rate, "
+             f"{kernel_s['twice 1 thread']:.2f} s at twice the 1-thread rate.", "",
+             "| layers | wall, 2 members [s] | wall, 4 members [s] | one more member [s] | / kernel (2 threads) "
+             "| / kernel (twice 1 thread) |", "|---|---|---|---|---|---|"]
+    for name, row in rows.items():
+        lines.append(f"| {name} | {row['wall_2_members_s']} | {row['wall_4_members_s']} | {row['per_member_s']:.2f} | "
+                     f"{row['ratio_to_kernel_2_threads']:.2f}x | {row['ratio_to_kernel_twice_1_thread']:.2f}x |")
+    (RESULTS / "ensemble_marginal.md").write_text("\n".join(lines) + "\n")
     print("\n".join(lines))
     shutil.rmtree(SCRATCH, ignore_errors=True)
 
