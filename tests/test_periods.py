@@ -189,3 +189,24 @@ def test_wind_at_10_m_is_brought_to_2_m_and_km_per_hour_declared_as_m_per_s_is_r
         from suitability.config import ClimateLayers
 
         ClimateLayers.model_validate({"tmin": {"path": "t.nc", "height_m": 10}})
+
+
+def test_monthly_means_skip_missing_values_as_xarray_groupby_does():
+    # Reference: xarray's groupby("time.month").mean() (NaN skipped), on a lazy series in 7-step chunks so
+    # that chunks hold parts of months; every value of month 3 at one cell is missing -> NaN there.
+    import dask.array as da
+
+    from suitability.inputs.periods import _monthly_means
+
+    times = xr.date_range("2001-01-01", periods=36, freq="MS", calendar="noleap", use_cftime=True)
+    rng = np.random.default_rng(7)
+    values = rng.normal(285.0, 5.0, (36, 3, 4)).astype("float32")
+    values[5, 1, 2] = np.nan
+    values[[2, 14, 26], 0, 0] = np.nan
+    series = xr.DataArray(da.from_array(values, chunks=(7, -1, -1)), dims=("time", "y", "x"),
+                          coords={"time": times}, name="tmin")
+    months = np.array([t.month for t in times])
+    ours = _monthly_means(series, months).values
+    reference = xr.DataArray(values, dims=("time", "y", "x"), coords={"time": times}).groupby("time.month").mean().values
+    np.testing.assert_allclose(ours, reference, rtol=1e-6, equal_nan=True)
+    assert np.isnan(ours[2, 0, 0]) and np.isfinite(ours[5, 1, 2])
