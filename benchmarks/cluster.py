@@ -50,6 +50,7 @@ import yaml
 
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
+from benchmarks.child_usage import MeasuredChild  # noqa: E402
 from benchmarks.synthetic import NOTE, write_members, write_region  # noqa: E402
 
 RESULTS = REPO / "benchmarks" / "results"
@@ -185,13 +186,12 @@ def run_once(config: Path, kind: str, output: Path) -> dict:
         errors = output.with_suffix(".stderr")
         with errors.open("w") as stderr, task_stream(cluster) as tasks:
             started = time.perf_counter()
-            process = subprocess.Popen(command, cwd=SCRATCH, env=ENV, stdout=subprocess.DEVNULL, stderr=stderr)
-            _, status, usage = os.wait4(process.pid, 0)
+            usage = MeasuredChild(command, cwd=SCRATCH, env=ENV, stdout=subprocess.DEVNULL, stderr=stderr).wait()
             record["wall_s"] = round(time.perf_counter() - started, 2)
         record["run_process_cpu_s"] = round(usage.ru_utime + usage.ru_stime, 2)
         record["run_process_peak_rss_mib"] = round(usage.ru_maxrss / 1024, 1)
-        if status != 0:
-            raise RuntimeError(f"{kind} run failed (status {status}): {errors.read_text()[-2000:]}")
+        if usage.returncode != 0:
+            raise RuntimeError(f"{kind} run failed (exit code {usage.returncode}): {errors.read_text()[-2000:]}")
     finally:
         if cluster is not None:
             cluster.__exit__()

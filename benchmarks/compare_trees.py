@@ -16,7 +16,7 @@ Kernel: one process per tree and round loads the kernel (numba's cache, compiled
 first), runs it once on the cells, then times ``--repeats`` runs on one thread and reports their median
 (cell-steps/s; one cell-step = one cell, one month, both pathways). End to end: ``suitability run`` on
 the synthetic region (12 months x 3 scenarios, all layers, COG), wall time, CPU time and the peak
-resident memory of that process (os.wait4 ru_maxrss).
+resident memory of that process (ru_maxrss, through benchmarks/child_usage.py).
 """
 
 from __future__ import annotations
@@ -39,6 +39,7 @@ REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
     sys.path.insert(0, str(REPO))
 
+from benchmarks.child_usage import MeasuredChild  # noqa: E402
 from benchmarks.synthetic import cell_inputs  # noqa: E402
 
 _KERNEL_CHILD = r"""
@@ -157,10 +158,9 @@ def _measure(tree: Path, config: Path) -> dict:
     command = [sys.executable, "-c", "from suitability.cli import app; app()", "run", str(config), "--no-progress"]
     start = time.perf_counter()
     with tempfile.TemporaryFile() as log:
-        process = subprocess.Popen(command, env=_environment(tree), cwd=tree, stdout=log, stderr=subprocess.STDOUT)
-        _, status, usage = os.wait4(process.pid, 0)
+        usage = MeasuredChild(command, env=_environment(tree), cwd=tree, stdout=log, stderr=subprocess.STDOUT).wait()
         wall = time.perf_counter() - start
-        if os.waitstatus_to_exitcode(status) != 0:
+        if usage.returncode != 0:
             log.seek(0)
             raise RuntimeError(f"{tree}: {log.read().decode(errors='replace')[-3000:]}")
     return {"wall_s": round(wall, 2), "cpu_s": round(usage.ru_utime + usage.ru_stime, 2),

@@ -12,7 +12,7 @@ Each kind runs ``--repeat`` times, interleaved with the others; the fastest run 
 (every wall time is kept in the JSON).
 
 Each run is its own process (``suitability.run``); reported: wall time, peak resident memory of that process
-(os.wait4 ru_maxrss) and the manifest's timings (opening the inputs, all scenarios in one pass). Nothing here asserts
+(ru_maxrss, through benchmarks/child_usage.py) and the manifest's timings (opening the inputs, all scenarios in one pass). Nothing here asserts
 a timing; numbers are measurements of this machine at this moment (other work on it shows up in them).
 
 Usage: python benchmarks/ensemble.py [--size 256] [--members 3]
@@ -41,6 +41,10 @@ from pathlib import Path
 import numpy as np
 
 REPO = Path(__file__).resolve().parents[1]
+if str(REPO) not in sys.path:
+    sys.path.insert(0, str(REPO))
+from benchmarks.child_usage import MeasuredChild  # noqa: E402
+
 RESULTS = REPO / "benchmarks" / "results"
 SCRATCH = RESULTS / "tmp" / "ensemble"
 RESOLUTION = 0.01  # degrees
@@ -112,13 +116,13 @@ def run_apart(config: Path) -> dict:
     """``suitability.run(config)`` in its own process: wall time, peak RSS and the manifest's timings."""
     code = "import sys, suitability; print(suitability.run(sys.argv[1]).manifest_path)"
     started = time.perf_counter()
-    process = subprocess.Popen([sys.executable, "-c", code, str(config)], cwd=REPO, stdout=subprocess.PIPE,
-                               stderr=subprocess.DEVNULL, env={**os.environ, "PYTHONPATH": str(REPO)})
-    _, status, usage = os.wait4(process.pid, 0)
+    child = MeasuredChild([sys.executable, "-c", code, str(config)], cwd=REPO, stdout=subprocess.PIPE,
+                          stderr=subprocess.DEVNULL, env={**os.environ, "PYTHONPATH": str(REPO)})
+    usage = child.wait()
     wall = time.perf_counter() - started
-    out = process.stdout.read().decode().strip().splitlines()
-    if status != 0 or not out:
-        raise RuntimeError(f"run of {config} failed (status {status})")
+    out = child.process.stdout.read().decode().strip().splitlines()
+    if usage.returncode != 0 or not out:
+        raise RuntimeError(f"run of {config} failed (exit code {usage.returncode})")
     manifest = json.loads(Path(out[-1]).read_text())
     return {"wall_s": round(wall, 2), "peak_rss_mib": round(usage.ru_maxrss / 1024, 1), "timings": manifest["timings"]}
 

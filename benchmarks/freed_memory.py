@@ -3,7 +3,7 @@
 ``suitability run`` of the INVENTED synthetic region (benchmarks/synthetic.py) at ``--size`` cells per side,
 12 months x 3 scenarios, every layer, COG. The run without the setting exports ``MALLOC_TRIM_THRESHOLD_`` at
 glibc's default (131072 bytes), which makes ``reuse_freed_memory`` leave glibc as it is. Reports wall, user
-and system CPU seconds and the peak resident memory of each run (os.wait4), and the medians.
+and system CPU seconds and the peak resident memory of each run (ru_maxrss, through benchmarks/child_usage.py), and the medians.
 Run: ``python benchmarks/freed_memory.py [--size 1000] [--rounds 3] [--crossover]``. No test asserts timings.
 """
 
@@ -24,15 +24,15 @@ import yaml
 
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
+from benchmarks.child_usage import MeasuredChild  # noqa: E402
 from benchmarks.synthetic import write_region  # noqa: E402
 
 
 def measure(config: Path, env: dict) -> dict:
     command = [sys.executable, "-c", "from suitability.cli import app; app()", "run", str(config), "--no-progress"]
     start = time.perf_counter()
-    process = subprocess.Popen(command, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
-    _, status, usage = os.wait4(process.pid, 0)
-    if os.waitstatus_to_exitcode(status) != 0:
+    usage = MeasuredChild(command, env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL).wait()
+    if usage.returncode != 0:
         raise RuntimeError(f"run failed: {command}")
     return {"wall_s": round(time.perf_counter() - start, 2), "user_s": round(usage.ru_utime, 2),
             "sys_s": round(usage.ru_stime, 2), "peak_rss_mib": round(usage.ru_maxrss / 1024, 1)}

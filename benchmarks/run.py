@@ -8,7 +8,7 @@
    against the 96-step reference (0.5 % target). The SIMD width the compiler had is reported.
 2. End to end: `suitability run` on the invented synthetic region for each size (size² cells x 12 months
    x 3 scenarios, every layer, COG outputs), each in its own process; wall time, cell-steps/s and the
-   peak resident memory the operating system reports for that process (os.wait4 ru_maxrss).
+   peak resident memory the operating system reports for that process (ru_maxrss, through benchmarks/child_usage.py).
 3. Parameter draws (config ``uncertainty``): the model on one in-memory block without draws and with N
    draws, and the kernel alone on the same cells; the cost of one more draw is (with - without) / N, given
    as a ratio to the kernel alone (1.0 = a draw costs exactly one kernel call), also with paired draws.
@@ -45,6 +45,7 @@ REPO = Path(__file__).resolve().parents[1]
 if str(REPO) not in sys.path:
     sys.path.insert(0, str(REPO))
 
+from benchmarks.child_usage import MeasuredChild  # noqa: E402
 from benchmarks.synthetic import cell_inputs, write_region  # noqa: E402
 from tests.oracle_canopy import monthly_canopy  # noqa: E402
 
@@ -370,13 +371,11 @@ def end_to_end(size: int, engine: str = "compiled", scenarios: int = SCENARIOS, 
     # editable install of another checkout would otherwise be measured, and compile its kernel there).
     environment = dict(os.environ, PYTHONPATH=os.pathsep.join(filter(None, [str(REPO), os.environ.get("PYTHONPATH")])))
     start = time.perf_counter()
-    process = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=environment)
-    _, status, usage = os.wait4(process.pid, 0)
+    child = MeasuredChild(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, env=environment)
+    stdout, stderr = child.process.communicate()
+    usage = child.wait()
     wall = time.perf_counter() - start
-    stdout, stderr = process.stdout.read(), process.stderr.read()
-    process.stdout.close()
-    process.stderr.close()
-    code = os.waitstatus_to_exitcode(status)
+    code = usage.returncode
     row = {"size": size, "cells": size * size, "engine": engine, "scenarios": scenarios, "crossover": crossover,
            "exit_code": code,
            "wall_s": round(wall, 2), "cpu_s": round(usage.ru_utime + usage.ru_stime, 2),
