@@ -28,6 +28,7 @@ from .config import ComputeConfig, RunConfig, load_config, validate_section
 from .errors import ConfigError, InputDataError, OutputError
 from .grid import TargetGrid
 from .inputs import load_climate, load_mask
+from .inputs.cf import one_handle_per_file
 from .inputs.readers import member_labels
 from .model import ModelRun, evaluate_runs
 from .outputs import (LayerWrite, check_output_folder, dictionary_path, remove_leftovers, with_sidecars, write_csv,
@@ -122,7 +123,7 @@ def run(
     folder = Path(cfg.output.folder)
     scenarios = cfg.scenarios_baseline_first()
     input_warnings: list[str] = []
-    with compute_context(cfg.compute, progress=progress) as runtime:
+    with one_handle_per_file(), compute_context(cfg.compute, progress=progress) as runtime:
         with clock("open_inputs_s"), _recording_input_warnings(input_warnings):
             ensembles = {s.name: members for s in scenarios if (members := scenario_members(cfg, s))}
             layers_of = selected_layers(cfg, set(ensembles))

@@ -13,6 +13,7 @@ import warnings
 import numpy as np
 import pytest
 import xarray as xr
+from xarray.backends import BackendArray
 
 from suitability.config import LayerSpec
 from suitability.errors import InputDataError
@@ -210,3 +211,107 @@ def test_monthly_means_skip_missing_values_as_xarray_groupby_does():
     reference = xr.DataArray(values, dims=("time", "y", "x"), coords={"time": times}).groupby("time.month").mean().values
     np.testing.assert_allclose(ours, reference, rtol=1e-6, equal_nan=True)
     assert np.isnan(ours[2, 0, 0]) and np.isfinite(ours[5, 1, 2])
+
+
+class _RecordingSeries(BackendArray):
+    """A (time, y, x) array that records the cells of every read (an xarray backend array, outer indexing)."""
+
+    def __init__(self, values):
+        self.values, self.shape, self.dtype, self.cells_read = values, values.shape, values.dtype, []
+
+    def __getitem__(self, key):
+        from xarray.core import indexing
+
+        def read(raw):
+            out = self.values[np.ix_(*[np.arange(n)[k] if isinstance(k, slice) else np.atleast_1d(k)
+                                       for k, n in zip(raw, self.shape)])]
+            self.cells_read.append(out.shape[1] * out.shape[2])
+            return out
+
+        return indexing.explicit_indexing_adapter(key, self.shape, indexing.IndexingSupport.OUTER, read)
+
+
+def _lazy_series(values, times):
+    from suitability.inputs.native import lazy_array
+
+    backend = _RecordingSeries(values)
+    coords = {"time": times, "y": np.arange(values.shape[1]) * -1.0, "x": np.arange(values.shape[2]) * 1.0}
+    return lazy_array(backend, ("time", "y", "x"), coords, "tas"), backend
+
+
+def test_a_window_of_the_monthly_means_reads_only_that_window_of_the_series(monkeypatch):
+    # Reference: xarray's groupby("time.month").mean() of the whole series, at the window. A window read
+    # must not read the rest of the series (the checks before a run read 64 small windows of 30 years).
+    from suitability.inputs import periods
+
+    times = xr.date_range("2001-01-01", periods=120, freq="MS", calendar="noleap", use_cftime=True)
+    values = np.random.default_rng(3).normal(285.0, 5.0, (120, 40, 50)).astype("float32")
+    values[7, 12, 21] = np.nan
+    lazy, backend = _lazy_series(values, times)
+    months = np.array([t.month for t in times])
+    means = periods._monthly_means(lazy, months)
+    assert backend.cells_read == []  # lazy: nothing read yet
+    monkeypatch.setattr(periods, "_PIECE_VALUES", 20 * 6 * 4)  # 20 steps per piece: several pieces
+    window = means.isel(y=slice(10, 16), x=slice(20, 24)).values
+    reference = xr.DataArray(values, dims=("time", "y", "x"), coords={"time": times}).groupby("time.month").mean()
+    np.testing.assert_allclose(window, reference.values[:, 10:16, 20:24], rtol=1e-6)
+    assert set(backend.cells_read) == {6 * 4} and len(backend.cells_read) == 6  # 120 steps in pieces of 20
+
+
+def test_sample_of_a_series_reads_a_small_part_of_the_file_and_equals_the_whole_means(tmp_path):
+    # The checks' sample of a 30-year series: windows of sample_width(360) = 6 cells, one read per row of
+    # windows; equal to the same cells of the monthly means computed over the whole field.
+    from suitability.inputs.checks import read_sample, sample_width
+
+    assert (sample_width(None), sample_width(12), sample_width(360), sample_width(30 * 365)) == (32, 32, 6, 4)
+    times = xr.date_range("2041-01-01", periods=360, freq="MS", calendar="noleap", use_cftime=True)
+    values = np.random.default_rng(5).normal(290.0, 3.0, (360, 300, 300)).astype("float32")
+    lazy, backend = _lazy_series(values, times)
+    from suitability.inputs.periods import _monthly_means
+
+    means = _monthly_means(lazy, np.array([t.month for t in times]))
+    sample = read_sample(means, "t.nc: layer 'tmin'", sample_width(360))
+    assert sample.shape == (12, 48, 48)
+    assert len(backend.cells_read) == 8 and max(backend.cells_read) <= 6 * 300  # 8 rows of windows
+    rows = np.concatenate([np.arange(s, s + 6) for s in np.linspace(0, 294, 8).round().astype(int)])
+    whole = xr.DataArray(values, dims=("time", "y", "x"), coords={"time": times}).groupby("time.month").mean().values
+    np.testing.assert_allclose(sample, whole[:, rows][:, :, rows], rtol=1e-6)
+
+
+def test_a_declared_nodata_value_of_a_series_is_skipped_in_its_monthly_means(tmp_path):
+    # -999 stands for missing values in some steps at one cell; the means are those of the other years
+    # (derived here with numpy), as when the file marks them with _FillValue.
+    path, per_step, times = series(tmp_path / "t.nc", _seasonal, years=(2041, 2050))
+    with xr.open_dataset(path) as ds:
+        data = ds.load()
+    data["tas"][[0, 12, 24], 1, 2] = -999.0  # three Januaries at one cell
+    data.to_netcdf(tmp_path / "gaps.nc")
+    layer = open_layer("tmean", spec(tmp_path / "gaps.nc", nodata=-999.0, units="K")).values
+    field = 0.01 * 1 + 0.001 * 2
+    months = np.array([t.month for t in times])
+    january = [i for i in np.flatnonzero(months == 1) if i not in (0, 12, 24)]
+    np.testing.assert_allclose(layer[0, 1, 2], per_step[january].mean() + field - 273.15, atol=1e-4)
+    np.testing.assert_allclose(layer[:, 0, 0], _oracle(per_step, times, 2041, 2050) - 273.15, atol=1e-4)
+
+
+def test_in_a_run_each_file_is_opened_once_and_closed_at_the_end(tmp_path, monkeypatch):
+    # Within one_handle_per_file (a run, check) a NetCDF file is opened once for all its layers, which keeps
+    # libhdf5 from the crash of a file open several times (HDF5 issue 3649); the layers stay apart (the
+    # reader clears a layer's attributes); at the end the file is closed, so it can be written again and is
+    # then read anew.
+    from suitability.inputs import cf
+
+    opened = []
+    uncached = cf._open_uncached
+    monkeypatch.setattr(cf, "_open_uncached", lambda *args: opened.append(args[0]) or uncached(*args))
+    path, per_step, times = series(tmp_path / "t.nc", _seasonal, years=(2041, 2050))
+    with cf.one_handle_per_file():
+        first = open_layer("tmean", spec(path)).values
+        again = open_layer("tmax", spec(path))
+        assert again.attrs["declared_units"] == "K" and again.attrs["source_layer"] == "tmax"
+        np.testing.assert_allclose(again.values, first)
+        assert len(opened) == 1
+    series(path, lambda t: _seasonal(t) + 1.5, years=(2041, 2050))  # refused while the file is open
+    with cf.one_handle_per_file():
+        np.testing.assert_allclose(open_layer("tmean", spec(path)).values, first + 1.5, atol=1e-4)
+    assert len(opened) == 2

@@ -17,6 +17,8 @@ Decisions
 from __future__ import annotations
 
 import re
+from contextlib import contextmanager
+from contextvars import ContextVar
 from pathlib import Path
 from typing import Any, Iterable
 
@@ -25,7 +27,7 @@ import rioxarray  # noqa: F401 - registers the .rio accessor
 import xarray as xr
 
 from ..errors import InputDataError
-from .native import MONTHS, Native, guarded_chunk, keep_spatial
+from .native import MONTHS, Native, guarded_chunk, guarded_lazy, keep_spatial
 from .units import linear_conversion
 
 
@@ -65,7 +67,10 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
     keep = {"x", "y", "month", "time", "member"}
     var = var.drop_vars([c for c in var.coords if c not in keep])
     var = var.transpose(*[d for d in ("member", "time", "month", "y", "x") if d in var.dims])
-    var = guarded_chunk(var, {"month": -1, "time": _time_chunk(var, chunk), "y": chunk, "x": chunk}, where)
+    if "time" in var.dims:  # a series: averaged window by window (periods), so it stays lazy without dask
+        var = guarded_lazy(var, where, nodata)
+    else:
+        var = guarded_chunk(var, {"month": -1, "y": chunk, "x": chunk}, where, nodata)
     transformations = [f"applied the file's scale_factor {var.encoding['scale_factor']:g} and add_offset "
                        f"{var.encoding.get('add_offset', 0):g} (CF)"] if "scale_factor" in var.encoding else []
     before = var["x"].values
@@ -75,29 +80,56 @@ def read_dataset(name: str, path: Path, *, band: int | None = None, variable: st
     if var["y"].size > 1 and var["y"].values[1] > var["y"].values[0]:
         transformations.append("rows flipped to north-up (latitudes stored south to north)")
     _check_regular(var, where)
-    if nodata is not None:
-        var = var.where(var != nodata)
     var = var.rio.write_crs(crs)
     var.attrs = {}
     driver = "Zarr" if engine == "zarr" else "netCDF"
     return Native(keep_spatial(var), driver, file_units, tuple(transformations), variable=described)
 
 
-#: Values per read chunk of a time series (4e6 float32: 16 MB): a small grid's series is read in few, long
-#: chunks rather than thousands of month-long ones; a large block keeps at least a month of days per chunk.
-_SERIES_CHUNK_VALUES = 4_000_000
+#: Within :func:`one_handle_per_file`: (path, engine) -> (size and mtime when opened, the open Dataset).
+_SESSION: ContextVar[dict | None] = ContextVar("open_netcdf_files", default=None)
 
 
-def _time_chunk(var: xr.DataArray, chunk: int) -> int:
-    """Time steps per chunk of a series: as many as fit :data:`_SERIES_CHUNK_VALUES` for one spatial block,
-    at least 31 (a month of days)."""
-    if "time" not in var.dims:
-        return 31
-    cells = min(var.sizes["y"], chunk) * min(var.sizes["x"], chunk)
-    return int(max(31, min(var.sizes["time"], _SERIES_CHUNK_VALUES // max(cells, 1))))
+@contextmanager
+def one_handle_per_file():
+    """Within this context each NetCDF file is opened once, every layer read from it gets a shallow copy,
+    and the files are closed when it ends (a run and ``check`` open their inputs in one).
+
+    libhdf5 can crash when a file holding variable-length strings (e.g. member names) is open several
+    times and one of the handles is closed (HDF5 issue 3649, netcdf4-python issue 1444); a run would open
+    a member file once per layer and member. A file that changed meanwhile is opened again, its old
+    handle closed first. Nested uses share the outer one."""
+    if _SESSION.get() is not None:
+        yield
+        return
+    token = _SESSION.set({})
+    try:
+        yield
+    finally:
+        opened = _SESSION.get()
+        _SESSION.reset(token)
+        for _, dataset in opened.values():
+            dataset.close()
 
 
 def _open_dataset(path: Path, name: str, engine: str | None) -> xr.Dataset:
+    opened = _SESSION.get()
+    if opened is None or engine == "zarr":
+        return _open_uncached(path, name, engine)
+    key = (str(Path(path).resolve()), engine)
+    stat = Path(path).stat()
+    state = (stat.st_size, stat.st_mtime_ns)
+    cached = opened.get(key)
+    if cached is not None and cached[0] == state:
+        return cached[1].copy(deep=False)
+    if cached is not None:
+        cached[1].close()
+    dataset = _open_uncached(path, name, engine)
+    opened[key] = (state, dataset)
+    return dataset.copy(deep=False)
+
+
+def _open_uncached(path: Path, name: str, engine: str | None) -> xr.Dataset:
     kwargs: dict[str, Any] = {"decode_coords": "all", "chunks": None, "engine": engine}
     try:
         return xr.open_dataset(path, **kwargs)

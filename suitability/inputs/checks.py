@@ -28,15 +28,34 @@ _WATER_FLUX_LAYERS = ("precipitation", "pet")
 _MAX_MEDIAN_MM_PER_DAY = 40.0
 
 
-def read_sample(data: xr.DataArray, where: str) -> np.ndarray:
+def sample_width(time_steps: int | None = None) -> int:
+    """Side [cells] of each of the sample's 64 windows: 32, or for a layer averaged from a series of
+    ``time_steps`` steps 32 sqrt(12 / steps), at least 4, so that about as many values are read as for a
+    12-month layer (6 for 30 years of months: each window's whole series is read and averaged)."""
+    if not time_steps or time_steps <= 12:
+        return SAMPLE_SIDE // 8
+    return max(4, round(SAMPLE_SIDE // 8 * (12.0 / time_steps) ** 0.5))
+
+
+def read_sample(data: xr.DataArray, where: str, width: int = SAMPLE_SIDE // 8) -> np.ndarray:
     """A sample of at most 256 x 256 cells per time step, as float64.
 
-    8 x 8 windows of 32 x 32 cells spread evenly over the layer: they touch at most 64 blocks of a tiled
-    file, where a strided read of every n-th cell would decode every block.
+    8 x 8 windows of ``width`` x ``width`` cells (32 unless :func:`sample_width` says otherwise) spread
+    evenly over the layer: they touch at most 64 blocks of a tiled file. A dask-backed layer is read in one
+    dask computation of the 64 slices, so a block under several windows is read once. A layer that is lazy
+    without dask (a series' monthly means, :func:`.periods._monthly_means`) is read one row of windows at a
+    time: only the series of those rows is read and averaged, not the whole file.
     """
-    index = {dim: _sample_index(data.sizes[dim]) for dim in ("y", "x")}
+    import dask.array as da
+
+    data = data.transpose(..., "y", "x")
+    rows, columns = (_sample_windows(data.sizes[dim], width=width) for dim in ("y", "x"))
     try:
-        values = data.isel(index).values
+        if data.chunks is not None:  # dask-backed (reading .data would read a lazy layer whole)
+            values = da.block([[data.data[..., r, c] for c in columns] for r in rows]).compute()
+        else:  # lazy without dask (a series' monthly means): one read per row of windows, not per window
+            across = slice(None) if columns == [slice(None)] else np.concatenate([np.arange(c.start, c.stop) for c in columns])
+            values = np.concatenate([np.asarray(data.isel(y=r, x=across).values) for r in rows], axis=-2)
     except InputDataError:
         raise  # a reader already named the file and the layer
     except Exception as exc:  # noqa: BLE001 - a truncated file fails here, on first read
@@ -89,11 +108,12 @@ def _months_text(items: list[tuple[int | None, float]]) -> str:
     return ", ".join(f"month {m}: {share:.1%}" for m, share in items) + " of the sampled cells"
 
 
-def _sample_index(size: int, windows: int = 8, width: int = SAMPLE_SIDE // 8):
+def _sample_windows(size: int, windows: int = 8, width: int = SAMPLE_SIDE // 8) -> list[slice]:
+    """The slices of ``windows`` windows of ``width`` cells spread evenly over ``size``; all of it if smaller."""
     if size <= windows * width:
-        return slice(None)
+        return [slice(None)]
     starts = np.linspace(0, size - width, windows).round().astype(int)
-    return np.concatenate([np.arange(start, start + width) for start in starts])
+    return [slice(int(start), int(start) + width) for start in starts]
 
 
 #: A monthly mean wind speed above this [m s-1] is taken as a units slip: the windiest stations' annual means

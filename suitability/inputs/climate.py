@@ -10,7 +10,8 @@ from __future__ import annotations
 
 import warnings
 from pathlib import Path
-from typing import Any
+from dataclasses import dataclass
+from typing import Any, NamedTuple
 
 import numpy as np
 import xarray as xr
@@ -44,8 +45,7 @@ def open_layer(name: str, spec: Any, config_dir: str | Path | None = None, *, ch
     Returns a DataArray named after :func:`output_name`, with the CRS written and ``units`` in attrs.
     Raises InputDataError naming the file, the layer and what was expected.
     """
-    converted, _ = open_converted(name, spec, config_dir, chunk, member)
-    return _valid_only(converted)
+    return _valid_only(open_converted(name, spec, config_dir, chunk, member).converted)
 
 
 def _valid_only(converted: xr.DataArray) -> xr.DataArray:
@@ -55,8 +55,49 @@ def _valid_only(converted: xr.DataArray) -> xr.DataArray:
     return out
 
 
-def open_converted(name: str, spec: Any, config_dir, chunk: int, member: str | None = None) -> tuple[xr.DataArray, Native]:
-    """The layer in canonical units before the valid-range mask, and what was read."""
+@dataclass(frozen=True)
+class ToCanonical:
+    """The elementwise change of a layer from its declared units to canonical ones, for lazy layers and for
+    samples alike: ``values * scale + offset``, then ``1 - values`` for a water stress layer, and a wind
+    measured at ``height_m`` brought to 2 m; float32."""
+
+    name: str
+    scale: float
+    offset: float
+    height_m: float | None = None
+
+    def __call__(self, values):
+        if (self.scale, self.offset) != (1.0, 0.0):
+            values = values * np.float32(self.scale) + np.float32(self.offset)
+        if self.name == "water_stress":
+            values = 1.0 - values
+        if self.name == "wind_speed" and self.height_m is not None and self.height_m != 2.0:
+            values = wind_speed_at_2m(values, np.float32(self.height_m))  # the canonical layer is the wind at 2 m
+        return values.astype(np.float32)
+
+
+class OpenedLayer(NamedTuple):
+    """A layer in canonical units before the valid-range mask, what was read, and the change between them."""
+
+    converted: xr.DataArray
+    native: Native
+    to_canonical: ToCanonical
+
+    def canonical_sample(self, grid: TargetGrid, where: str) -> np.ndarray:
+        """:func:`.checks.read_sample` of the part of the layer under the region, in canonical units (float64).
+
+        Read from the layer as read and converted afterwards: a window of the converted layer would make
+        dask compute whole blocks of it (the conversion is a step after the read), a window of the layer as
+        read only that window."""
+        from .checks import region_window
+
+        sample = read_sample(region_window(self.native.data, grid), where, self.native.sample_width)
+        read_type = self.native.data.dtype if self.native.data.dtype.kind == "f" else np.float64
+        return np.asarray(self.to_canonical(sample.astype(read_type)), dtype=np.float64)
+
+
+def open_converted(name: str, spec: Any, config_dir, chunk: int, member: str | None = None) -> OpenedLayer:
+    """The layer in canonical units before the valid-range mask, what was read, and the conversion."""
     if name not in INPUT_VARIABLES:
         raise InputDataError(f"unknown layer {name!r}; expected one of {', '.join(INPUT_VARIABLES)}")
     variable = INPUT_VARIABLES[name]
@@ -74,20 +115,16 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int, member: str | N
         hint = "" if "expected" in str(exc) else f"; expected units convertible to {INPUT_VARIABLES[name].units}"
         raise InputDataError(f"{where}: {exc}{hint}") from None
 
-    sample = read_sample(native.data, where)
+    sample = read_sample(native.data, where, native.sample_width)
     check_plausible(name, declared, scale, offset, sample, where)
-    if not np.isfinite(sample).any() and not bool(np.isfinite(native.data).any().compute()):
+    read = native.data
+    if read.chunks is None:  # a series' monthly means, lazy without dask until here
+        read = read.chunk({dim: -1 if dim == "month" else chunk for dim in read.dims})
+    if not np.isfinite(sample).any() and not bool(np.isfinite(read).any().compute()):
         raise InputDataError(f"{where}: every cell is nodata or not a finite number; expected some valid values")
 
-    data = native.data
-    if (scale, offset) != (1.0, 0.0):
-        data = data * np.float32(scale) + np.float32(offset)
-    if name == "water_stress":
-        data = 1.0 - data
-    height = getattr(spec, "height_m", None)
-    if name == "wind_speed" and height is not None and height != 2.0:
-        data = wind_speed_at_2m(data, np.float32(height))  # the canonical layer is the wind at 2 m
-    data = data.astype(np.float32)
+    to_canonical = ToCanonical(name, scale, offset, getattr(spec, "height_m", None))
+    data = to_canonical(read)
     if data.rio.crs is None and native.data.rio.crs is not None:
         # Arithmetic drops the grid_mapping attribute, which is how a NetCDF names its CRS variable.
         data = data.rio.write_crs(native.data.rio.crs)
@@ -100,7 +137,7 @@ def open_converted(name: str, spec: Any, config_dir, chunk: int, member: str | N
         data.attrs["time_info"] = native.time.as_record()
     if native.variable is not None:
         data.attrs["source_variable"] = native.variable
-    return data, native
+    return OpenedLayer(data, native, to_canonical)
 
 
 #: Examples of units a file of each layer is commonly in, for the hint when a layer declares none.
@@ -142,8 +179,8 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
     time_info: dict[str, dict] = {}
     variables: dict[str, str] = {}
     for name, spec in climate_config.items():
-        converted, _ = open_converted(name, spec, config_dir, chunk, member)
-        layer = _valid_only(converted)
+        opened = open_converted(name, spec, config_dir, chunk, member)
+        layer = _valid_only(opened.converted)
         if "time_info" in layer.attrs:
             time_info[name] = layer.attrs["time_info"]
         if "source_variable" in layer.attrs:
@@ -158,7 +195,7 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
         if share < 1.0 - 1e-6:
             warnings.warn(f"{path}: layer {name!r} covers {share:.1%} of the region; cells outside it are NaN",
                           InputCoverageWarning, stacklevel=2)
-        for message in layer_losses(name, converted, grid, f"{path}: layer {name!r}"):
+        for message in layer_losses(name, opened, grid, f"{path}: layer {name!r}"):
             warnings.warn(message, InputLossWarning, stacklevel=2)
         resampling = getattr(spec, "resampling", None) or INPUT_VARIABLES[name].resampling
         if layer.name in layers:
@@ -171,13 +208,12 @@ def load_climate(climate_config: Any, grid: TargetGrid, config_dir: str | Path |
     return dataset
 
 
-def layer_losses(name: str, converted: xr.DataArray, grid: TargetGrid, where: str) -> list[str]:
-    """:func:`.checks.lost_cells` on a sample of the part of ``converted`` (canonical units, before the
+def layer_losses(name: str, opened: OpenedLayer, grid: TargetGrid, where: str) -> list[str]:
+    """:func:`.checks.lost_cells` on a sample of the part of the layer (canonical units, before the
     valid-range mask) that lies under the region; the same call ``check`` makes."""
-    from .checks import lost_cells, region_window
+    from .checks import lost_cells
 
-    sample = read_sample(region_window(converted, grid), where)
-    return lost_cells(name, converted, sample, where)
+    return lost_cells(name, opened.converted, opened.canonical_sample(grid, where), where)
 
 
 def load_mask(region_config: Any, grid: TargetGrid, config_dir: str | Path | None = None, chunk: int = 512) -> xr.DataArray | None:

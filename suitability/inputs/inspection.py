@@ -12,7 +12,8 @@ import xarray as xr
 from ..errors import InputDataError
 from ..grid import TargetGrid, align_to_grid
 from ..variables import INPUT_VARIABLES, PENMAN_MONTEITH, pet_method
-from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, lost_cells, read_sample, region_window
+from .checks import SAMPLE_SIDE, cells_per_grid_cell, coverage_share, lost_cells
+from .cf import one_handle_per_file
 from .climate import load_mask, open_converted
 from .periods import ShortPeriodWarning
 from .raster import read_raster
@@ -61,8 +62,13 @@ def inspect_inputs(config: Any) -> list[LayerReport]:
 
     Reads only metadata and samples of at most 256 x 256 cells per time step; never computes the model.
     Problems that would stop a run are listed per layer in ``problems`` rather than raised, so one check
-    shows all of them.
+    shows all of them. Each NetCDF file is opened once (:func:`.cf.one_handle_per_file`).
     """
+    with one_handle_per_file():
+        return _inspect_inputs(config)
+
+
+def _inspect_inputs(config: Any) -> list[LayerReport]:
     reports: list[LayerReport] = []
     try:
         grid = TargetGrid.from_region(config.region, config.config_dir)
@@ -171,7 +177,8 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
     try:
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", ShortPeriodWarning)
-            converted, native = open_converted(name, spec, config_dir, SAMPLE_SIDE * 2, member)
+            opened = open_converted(name, spec, config_dir, SAMPLE_SIDE * 2, member)
+            converted, native = opened.converted, opened.native
     except InputDataError as exc:
         report.problems.append(str(exc))
         return report
@@ -220,7 +227,7 @@ def _inspect_layer(name: str, spec: Any, config_dir, grid: TargetGrid | None, sc
         report.warnings.append(f"about {ratio:.0f} layer cells per grid cell: '{resampling}' uses only the cells next to "
                                "each grid cell centre; resampling: average uses them all")
     where = f"{spec.path}: layer {name!r}"
-    sample = read_sample(region_window(converted, grid), where)
+    sample = opened.canonical_sample(grid, where)
     report.warnings += [w.removeprefix(f"{where}: ") for w in lost_cells(name, converted, sample, where)]
     valid = np.isfinite(sample)
     report.nodata_share = float(1.0 - valid.mean()) if sample.size else None
