@@ -24,6 +24,7 @@ from __future__ import annotations
 import functools
 import itertools
 import warnings
+from concurrent.futures import ThreadPoolExecutor
 from dataclasses import dataclass, field
 from typing import Any, Mapping, Sequence
 
@@ -188,11 +189,15 @@ class ModelRun:
 
 
 def evaluate_runs(dataset: xr.Dataset, runs: Sequence[ModelRun], *, physiology: Any = None, season: Any = None,
-                  classes: Any = None, engine: str | None = None, monthly_layers: bool = True) -> list[xr.Dataset]:
+                  classes: Any = None, engine: str | None = None, monthly_layers: bool = True,
+                  threads_per_block: int = 1) -> list[xr.Dataset]:
     """:func:`evaluate` for several runs (scenarios, ensemble members) on the same climate ``dataset``, one
     result per run. On dask data all runs share one task per block of cells, which reads and resamples the
     block of ``dataset`` once and of each run's own layers once, and then evaluates the runs one after the
     other: computed together (one dask pass), the runs cost their model work and little more.
+    threads_per_block: threads each block's task uses (its inputs' layers read at once, each run's model in
+    as many stripes of rows); more than 1 only where a region has fewer blocks than threads, whose other
+    threads would otherwise wait. The model works cell by cell, so stripes give the same values.
     """
     prepared = []
     for run in runs:
@@ -203,7 +208,7 @@ def evaluate_runs(dataset: xr.Dataset, runs: Sequence[ModelRun], *, physiology: 
     spatial_dims = prepared[0][3]["latitude"].dims
     lazy = any(isinstance(a, dask.array.Array) for _, _, arrays, _ in prepared for a in arrays)
     if lazy:
-        stacked = _shared_blocks(dataset, runs, [settings for settings, *_ in prepared], physiology)
+        stacked = _shared_blocks(dataset, runs, [settings for settings, *_ in prepared], physiology, threads_per_block)
     results, first = [], 0
     for run, (settings, names, arrays, climate) in zip(runs, prepared):
         if lazy:
@@ -220,7 +225,8 @@ def evaluate_runs(dataset: xr.Dataset, runs: Sequence[ModelRun], *, physiology: 
     return results
 
 
-def _shared_blocks(dataset: xr.Dataset, runs: Sequence[ModelRun], settings: Sequence[ModelSettings], physiology):
+def _shared_blocks(dataset: xr.Dataset, runs: Sequence[ModelRun], settings: Sequence[ModelSettings], physiology,
+                   threads: int = 1):
     """The stacked results of every run, (sum of the runs' layers, *spatial) float32, one task per block.
 
     Each output block is ONE task that computes its own input blocks (a few small tasks: read, resample)
@@ -254,11 +260,11 @@ def _shared_blocks(dataset: xr.Dataset, runs: Sequence[ModelRun], settings: Sequ
                 for a in source] for source in arrays]
     options = InputOptions.of(physiology)
     plan = tuple(zip(settings, own_index))
-    name = "evaluate-" + dask.base.tokenize(aligned, layouts, plan, options)
+    name = "evaluate-" + dask.base.tokenize(aligned, layouts, plan, options, threads)
     graph = {}
     for index in itertools.product(*(range(len(c)) for c in spatial_chunks)):
         blocks = tuple(tuple(a.blocks[(0,) * (a.ndim - n_spatial) + index] for a in arrays) for arrays in aligned)
-        graph[(name, 0) + index] = (_evaluate_runs_block, _BlockInputs(blocks), tuple(layouts), plan, options)
+        graph[(name, 0) + index] = (_evaluate_runs_block, _BlockInputs(blocks), tuple(layouts), plan, options, threads)
     n_layers = sum(_n_stacked(s) for s in settings)
     return dask.array.Array(graph, name, chunks=((n_layers,),) + spatial_chunks, dtype=np.float32,
                             meta=np.empty((0,) * (n_spatial + 1), np.float32))
@@ -307,10 +313,19 @@ def _evaluate_run(climate: xr.Dataset, settings: ModelSettings, own, base_own, p
     return _evaluate_block(*arrays, names=names, settings=settings)
 
 
-def _evaluate_runs_block(inputs: _BlockInputs, layouts, plan, options: InputOptions) -> np.ndarray:
+def _evaluate_runs_block(inputs: _BlockInputs, layouts, plan, options: InputOptions, threads: int = 1) -> np.ndarray:
     """One block of every run: the climate's block read and resampled once, each own-layers dataset's when
-    the first run needing it comes (and released after the last), then each run's model."""
-    (climate_values,) = dask.compute(inputs.arrays[0], scheduler="sync")
+    the first run needing it comes (and released after the last), then each run's model; on ``threads``
+    threads (:func:`evaluate_runs`)."""
+    if threads > 1:
+        with ThreadPoolExecutor(threads, thread_name_prefix="block") as pool:
+            return _runs_of_block(inputs, layouts, plan, options, threads, pool)
+    return _runs_of_block(inputs, layouts, plan, options, 1, None)
+
+
+def _runs_of_block(inputs: _BlockInputs, layouts, plan, options: InputOptions, threads: int, pool) -> np.ndarray:
+    scheduler = {"scheduler": "threads", "num_workers": threads} if threads > 1 else {"scheduler": "sync"}
+    (climate_values,) = dask.compute(inputs.arrays[0], **scheduler)
     climate = layouts[0].dataset(climate_values)
     last_use = {}
     for i, (_, own) in enumerate(plan):
@@ -322,12 +337,27 @@ def _evaluate_runs_block(inputs: _BlockInputs, layouts, plan, options: InputOpti
     for i, (settings, (own, base_own)) in enumerate(plan):
         for index in (own, base_own):
             if index is not None and index not in owned:
-                (values,) = dask.compute(inputs.arrays[index], scheduler="sync")
+                (values,) = dask.compute(inputs.arrays[index], **scheduler)
                 owned[index] = layouts[index].dataset(values)
-        out.append(_evaluate_run(climate, settings, owned.get(own), owned.get(base_own), options))
+        out.append(_in_stripes(climate, settings, owned.get(own), owned.get(base_own), options, pool, threads))
         for index in [k for k, last in last_use.items() if last == i]:
             owned.pop(index, None)
     return np.concatenate(out, axis=0)
+
+
+def _in_stripes(climate: xr.Dataset, settings: ModelSettings, own, base_own, options, pool, stripes: int) -> np.ndarray:
+    """:func:`_evaluate_run` on ``stripes`` stripes of rows at once (on ``pool``), joined; the whole block
+    at once if ``stripes`` is 1."""
+    if stripes <= 1 or pool is None:
+        return _evaluate_run(climate, settings, own, base_own, options)
+    rows = climate["latitude"].dims[0]
+    edges = np.linspace(0, climate.sizes[rows], stripes + 1).round().astype(int)
+    # Each stripe gets its own copies, cut here: pandas indexes are not safe to first use from several
+    # threads at once (seen: a spurious "uniquely valued Index" error).
+    parts = [[None if data is None else data.isel({rows: slice(int(a), int(b))}).copy(deep=True)
+              for data in (climate, own, base_own)] for a, b in zip(edges[:-1], edges[1:]) if b > a]
+    values = pool.map(lambda part: _evaluate_run(part[0], settings, part[1], part[2], options), parts)
+    return np.concatenate(list(values), axis=1)  # (layers, rows, columns)
 
 
 _WARNED_NUMPY_ENGINE: set = set()

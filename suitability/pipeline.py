@@ -549,7 +549,8 @@ def _compute_scenarios(cfg, grid, runtime, climate, scenarios, own_layers, ensem
                                  draws.get("baseline_layers")))
             owners.append((scenario.name, member))
     results = evaluate_runs(climate, runs, physiology=cfg.physiology, season=cfg.season, classes=cfg.classes,
-                            engine=runtime.engine, monthly_layers=cfg.output.datacube)
+                            engine=runtime.engine, monthly_layers=cfg.output.datacube,
+                            threads_per_block=runtime.threads_per_block(grid.shape))
     writes, kinds = [], []
     computed: dict[str, xr.Dataset] = {}
     for scenario in scenarios:
