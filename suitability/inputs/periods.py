@@ -127,7 +127,7 @@ def to_climatology(data: xr.DataArray, period: tuple[int, int] | None, where: st
                                  "expected a period within them")
     keep = (years >= first) & (years <= last)
     kept = np.flatnonzero(keep)
-    contiguous = kept.size and kept[-1] - kept[0] + 1 == kept.size  # a slice, which dask reads window by window
+    contiguous = kept.size and kept[-1] - kept[0] + 1 == kept.size  # a slice: each window read in one piece
     chosen = data.isel(time=slice(kept[0], kept[-1] + 1) if contiguous else kept)
     present = set(months[keep].tolist())
     if present != set(MONTHS):
