@@ -133,6 +133,22 @@ def test_members_as_a_list_of_files_equal_the_member_dimension(ensemble_run):
         np.testing.assert_array_equal(_read(result.layers["late_list"][layer]), _read(result.layers["late"][layer]))
 
 
+@pytest.mark.slow  # starts a local cluster of two worker processes
+def test_members_read_from_series_on_a_local_cluster_give_the_pixels_of_threads(ensemble_run, tmp_path):
+    # The members' series are read lazily (xarray backend arrays, shipped to the worker processes); the
+    # run on two worker processes must write the pixels the threaded run of the fixture wrote.
+    folder, result = ensemble_run
+    for path in folder.glob("*.nc"):
+        shutil.copy(path, tmp_path / path.name)
+    settings = yaml.safe_load(config(tmp_path).read_text())
+    settings["scenarios"] = settings["scenarios"][:2]  # baseline and the ensemble of member files
+    settings["compute"] = {"scheduler": "local-cluster", "workers": 2}
+    (tmp_path / "cluster.yaml").write_text(yaml.safe_dump(settings, sort_keys=False))
+    on_cluster = suitability.run(tmp_path / "cluster.yaml")
+    for layer in ("ensemble_median_advantage", "c4_favoured_share", "pathway_advantage", "c3_assimilation"):
+        np.testing.assert_array_equal(_read(on_cluster.layers["mid"][layer]), _read(result.layers["mid"][layer]))
+
+
 def test_member_outputs_are_in_the_manifest_and_resume_keeps_or_redoes_them(ensemble_run):
     folder, result = ensemble_run
     manifest = result.manifest  # as written by the fixture's run (a later resumed run replaces the file)
