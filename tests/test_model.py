@@ -114,6 +114,34 @@ def test_dask_input_stays_lazy_and_gives_identical_numbers():
         np.testing.assert_array_equal(eager[name].values, lazy[name].values)
 
 
+def test_a_block_evaluated_in_stripes_of_rows_on_several_threads_gives_identical_numbers():
+    # The model works cell by cell, so a block cut into stripes of rows (model.evaluate_runs,
+    # threads_per_block) must give the same numbers as the whole block, in every layer and every run.
+    from suitability.model import ModelRun, evaluate_runs
+
+    temperatures = [8.0, 14.0, 20.0, 26.0, 32.0]
+    climate = synthetic_climate(temperatures)
+    climate = xr.concat([climate.assign_coords(y=climate.y + 2 * k) for k in range(4)], dim="y")  # 8 rows
+    climate = climate.chunk({"month": -1, "y": -1, "x": -1})  # one block
+    runs = [ModelRun({"co2_ppm": 420}, None), ModelRun({"co2_ppm": 560, "temperature_offset_c": 2.0}, None)]
+    whole = evaluate_runs(climate, runs)
+    striped = evaluate_runs(climate, runs, threads_per_block=3)  # stripes of 3, 2 and 3 rows
+    for one, other in zip(whole, striped):
+        assert set(one.data_vars) == set(other.data_vars)
+        for name in one.data_vars:
+            np.testing.assert_array_equal(one[name].values, other[name].values)
+
+
+def test_threads_are_shared_out_within_blocks_only_where_blocks_are_fewer_than_threads():
+    from suitability.runtime import Runtime
+
+    threads = Runtime("threads", None, 2, 512)
+    assert threads.threads_per_block((500, 500)) == 2  # one block, two threads
+    assert threads.threads_per_block((1000, 600)) == 1  # four blocks
+    assert Runtime("threads", None, 8, 512).threads_per_block((1000, 600)) == 2
+    assert Runtime("local-cluster", None, 2, 512).threads_per_block((500, 500)) == 1  # worker processes
+
+
 def test_nodata_cells_stay_nodata():
     climate = synthetic_climate([12.0, 28.0])
     climate["tmin"][:, 0, 0] = np.nan
