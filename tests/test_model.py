@@ -122,6 +122,9 @@ def test_a_block_evaluated_in_stripes_of_rows_on_several_threads_gives_identical
     temperatures = [8.0, 14.0, 20.0, 26.0, 32.0]
     climate = synthetic_climate(temperatures)
     climate = xr.concat([climate.assign_coords(y=climate.y + 2 * k) for k in range(4)], dim="y")  # 8 rows
+    warmer = xr.DataArray(np.arange(8, dtype=np.float32) * 1.5, dims="y")  # every row its own climate
+    climate = climate.assign(tmin=climate.tmin + warmer, tmax=climate.tmax + warmer,
+                             latitude=climate.latitude - 3.0 * warmer)
     climate = climate.chunk({"month": -1, "y": -1, "x": -1})  # one block
     runs = [ModelRun({"co2_ppm": 420}, None), ModelRun({"co2_ppm": 560, "temperature_offset_c": 2.0}, None)]
     whole = evaluate_runs(climate, runs)
