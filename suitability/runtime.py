@@ -361,6 +361,30 @@ def reuse_freed_memory() -> bool:
                                                                                 TRIM_THRESHOLD_BYTES))
 
 
+def give_back_freed_memory() -> bool:
+    """Return the freed memory glibc's malloc keeps for reuse to the system (malloc_trim(3) with no pad:
+    every arena, and whole free pages inside the heap too); True if called.
+
+    Called between the phases of a run that allocate differently, after a dask pass and before the COG
+    conversions: what the pass's blocks freed stays resident under :func:`reuse_freed_memory`, and GDAL's
+    allocations do not fit the holes the blocks left. Synthetic region at 4000² cells, 3 scenarios: 1361 MiB
+    resident after the pass, and the conversions peaked at 1785 MiB, above the pass's own 1386; given
+    back, 470 MiB after the pass and 972 MiB in the conversions. Does nothing where the C library is not glibc.
+    """
+    import platform
+
+    if platform.system() != "Linux" or platform.libc_ver()[0] != "glibc":
+        return False
+    import ctypes
+
+    try:
+        malloc_trim = ctypes.CDLL("libc.so.6").malloc_trim
+    except (OSError, AttributeError):
+        return False
+    malloc_trim(0)
+    return True
+
+
 def _limit_gdal_cache(megabytes: int) -> int | None:
     """Set GDAL's block cache limit in this process unless GDAL_CACHEMAX is exported; return the old limit [bytes]."""
     if "GDAL_CACHEMAX" in os.environ:

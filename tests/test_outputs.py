@@ -28,6 +28,7 @@ import hashlib
 import json
 import os
 import subprocess
+import sys
 import threading
 from pathlib import Path
 
@@ -609,6 +610,57 @@ def test_datacube_is_cf_netcdf_with_the_grid(tmp_path):
         assert src.count == 12
     with xr.open_dataset(path) as back:
         np.testing.assert_array_equal(back["c4_monthly_assimilation"].values, (monthly * 2).compute())
+
+
+def test_datacube_blocks_not_on_whole_chunks_are_written_exactly(tmp_path):
+    # The small chunk cache (DATACUBE_CHUNK_CACHE_BYTES) cannot hold a chunk until all its parts arrive.
+    import netCDF4
+
+    template = on_grid(np.zeros((HEIGHT, WIDTH), np.float32))
+    monthly = da.random.default_rng(7).random((12, HEIGHT, WIDTH), chunks=(12, 300, 700)).astype(np.float32)
+    cube = xr.Dataset({"c3_monthly_assimilation": (("month", "y", "x"), monthly)},
+                      coords={"month": np.arange(1, 13), "y": template.y, "x": template.x},
+                      ).rio.write_crs(CRS).rio.write_transform(TRANSFORM)
+    path = write_datacube(cube, tmp_path / "cube.nc")
+    with netCDF4.Dataset(path) as nc:
+        variable = nc["c3_monthly_assimilation"]
+        assert variable.chunking() == [1, 512, 512]
+        np.testing.assert_array_equal(variable[:], monthly.compute())
+
+
+DATACUBE_MEMORY_SCRIPT = """
+import sys
+import dask, dask.array as da, numpy as np, rioxarray, xarray as xr
+from suitability.outputs import write_datacube
+dask.config.set(scheduler="threads", num_workers=1)  # blocks cannot pile up behind a slow disk
+size = 1536
+cube = xr.Dataset({name: (("month", "y", "x"), da.zeros((12, size, size), np.float32, chunks=(12, 512, 512)) + k)
+                   for k, name in enumerate(["c3_monthly_assimilation", "c4_monthly_assimilation",
+                                             "monthly_crossover_temperature", "derived_water_availability"])},
+                  coords={"month": np.arange(1, 13), "y": 7460000.0 - 1000.0 * (np.arange(size) + 0.5),
+                          "x": 300000.0 + 1000.0 * (np.arange(size) + 0.5)}).rio.write_crs("EPSG:32740")
+import netCDF4
+def status(field):  # [KiB]; VmHWM is this process's own peak (ru_maxrss would start from the parent's)
+    return int([line for line in open("/proc/self/status") if line.startswith(field)][0].split()[1])
+before_rss = status("VmRSS")
+default_cache = netCDF4.get_chunk_cache()
+write_datacube(cube, sys.argv[1])
+assert netCDF4.get_chunk_cache() == default_cache, "the default chunk cache was not restored"
+print(status("VmHWM") - before_rss)
+"""
+
+
+@pytest.mark.skipif(not Path("/proc/self/status").exists(), reason="reads the peak from Linux's /proc")
+def test_datacube_write_does_not_hold_written_chunks(tmp_path):
+    # HDF5 keeps written chunks, uncompressed, in each variable's chunk cache until it is full or the file
+    # closes (HDF5 reference manual, H5Pset_chunk_cache); netCDF-C's default cache is 64 MiB per variable
+    # (netCDF4.get_chunk_cache() of the installed library). Four 12 x 1536 x 1536 float32 variables (108 MiB
+    # each) would hold 4 x 64 = 256 MiB with it. Measured on one thread: 61 MiB with the 4 MiB caches,
+    # 301 MiB with 64 MiB ones.
+    result = subprocess.run([sys.executable, "-c", DATACUBE_MEMORY_SCRIPT, str(tmp_path / "cube.nc")],
+                            capture_output=True, text=True, check=True)
+    growth_mib = int(result.stdout.split()[-1]) / 1024
+    assert growth_mib < 128, f"the datacube write grew the process by {growth_mib:.0f} MiB"
 
 
 def test_datacube_without_crs_is_refused(tmp_path):

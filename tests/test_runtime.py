@@ -248,3 +248,38 @@ def test_freed_block_arrays_are_reused_without_faulting_their_pages_in_again():
     # 24 MiB on the benchmark machine), so compare the two cases in the same kernel.
     default, reused = faults("default"), faults("reuse")
     assert default >= 50 and reused <= default / 10
+
+
+_RESIDENT_AFTER_FREEING = r"""
+import sys
+import numpy as np
+from suitability import runtime
+assert runtime.reuse_freed_memory()
+def resident_mib():
+    return int([line for line in open("/proc/self/status") if line.startswith("VmRSS")][0].split()[1]) // 1024
+kept = [np.ones(2**17) for _ in range(200)]  # 200 arrays of 1 MiB from the heap, every page touched
+tail = np.ones(2**10)  # allocated after them, so the freed ones are not at the heap's top
+before = resident_mib()
+del kept
+freed = resident_mib()
+if sys.argv[1] == "give_back":
+    assert runtime.give_back_freed_memory()
+print(before, freed, resident_mib())
+"""
+
+
+@pytest.mark.skipif(sys.platform != "linux" or platform.libc_ver()[0] != "glibc", reason="glibc's malloc only")
+def test_freed_memory_kept_for_reuse_is_given_back_between_phases():
+    # malloc_trim(3): releases free memory of every arena, also whole free pages inside the heap (glibc
+    # 2.8 and later). 200 MiB freed below a live allocation stay resident under reuse_freed_memory (they
+    # are under its 256 MiB trim threshold and not at the heap's top) until given back.
+    def resident(mode):
+        env = {k: v for k, v in os.environ.items() if not k.startswith("MALLOC_")}
+        done = subprocess.run([sys.executable, "-c", _RESIDENT_AFTER_FREEING, mode], capture_output=True,
+                              text=True, check=True, env=env)
+        return [int(value) for value in done.stdout.split()[-3:]]
+
+    before, freed, kept = resident("keep")
+    assert freed > before - 20 and kept > before - 20  # freed, but still resident
+    before, freed, given_back = resident("give_back")
+    assert given_back < before - 180
