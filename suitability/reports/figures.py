@@ -472,6 +472,8 @@ def zoom_bounds(zones: gpd.GeoDataFrame, district: str, raster_path, margin: flo
         crs = pyproj.CRS.from_user_input(dataset.crs.to_wkt())
         cell = abs(dataset.transform.a)
     on_map = zones_on_grid(zones[zones["district"] == district], crs)
+    if on_map.empty or on_map.geometry.is_empty.all():
+        raise ValueError(f"no district {district!r} with a geometry among the {len(zones)} districts to map")
     xmin, ymin, xmax, ymax = on_map.total_bounds
     half = max(xmax - xmin, ymax - ymin, 8 * cell) * (0.5 + margin)
     cx, cy = (xmin + xmax) / 2, (ymin + ymax) / 2

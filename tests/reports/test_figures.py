@@ -111,6 +111,19 @@ def test_class_map_projected_scale_bar_colours_and_labels(tmp_path):
     assert centres[0] < centres[1] < centres[2]
 
 
+def test_zoom_bounds_centre_the_district_and_refuse_an_unknown_one(tmp_path):
+    path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    zones = gpd.GeoDataFrame({"district": ["Orvanne", "Telmira"]},
+                             geometry=[box(302000, 7362000, 330000, 7398000), box(330000, 7362000, 358000, 7398000)],
+                             crs="EPSG:32740")
+    # Orvanne: 28 x 36 km centred on (316000, 7380000); half of 36 km x (0.5 + 0.15) each side.
+    assert figures.zoom_bounds(zones, "Orvanne", path) == pytest.approx(
+        (316000 - 23400, 7380000 - 23400, 316000 + 23400, 7380000 + 23400))
+    with pytest.raises(ValueError, match="no district 'Nowhere'"):
+        figures.zoom_bounds(zones, "Nowhere", path)
+
+
 def test_class_map_geographic_scale_bar_from_latitude(tmp_path):
     # 1 degree wide, centred on 24.5 S. pyproj.Geod gives the length of a degree along that parallel; a
     # quarter of the width is about 25 km -> a 20 km bar, whose width in degrees is 20 km / that length.
