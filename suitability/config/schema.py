@@ -696,6 +696,8 @@ class BriefConfig(_Section):
     zones: ConfigPath
     name_field: Annotated[str, Field(min_length=1)]
     per_district: bool = False
+    #: Also save the district briefs' figures as SVG (the region briefs' figures always are; PNG always).
+    district_svg: bool = False
 
 
 class RunConfig(_Section):

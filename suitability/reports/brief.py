@@ -142,7 +142,8 @@ class BriefContext:
     zones_path, name_field: the district polygons and their name field.
     warm_season_temperature_c: the region's warm-season mean air temperature today [deg C] (NaN: unknown).
     contested_margin: |advantage| below this is "no clear advantage" [-].
-    per_district: also write one brief per district. caution: the caution text every brief carries.
+    per_district: also write one brief per district. district_svg: save the district briefs' figures as
+    SVG besides PNG (the region briefs' figures always are). caution: the caution text every brief carries.
     notes: extra lines shown under the caution (e.g. that a demo's region is invented).
     district_climate: mean monthly air temperature of each district today (index district, columns
         months 1..12) [deg C], from the baseline climate; None leaves the crossover chart out.
@@ -163,6 +164,7 @@ class BriefContext:
     warm_season_temperature_c: float = math.nan
     contested_margin: float = 0.05
     per_district: bool = False
+    district_svg: bool = False
     caution: str = CAUTION
     notes: tuple[str, ...] = ()
     district_climate: pd.DataFrame | None = field(default=None, compare=False)
@@ -295,8 +297,8 @@ HALF_PAGE_MAP_IN = (7.0, 4.35)
 
 
 class _Figures:
-    """Figures drawn once and shared by all briefs: each saved as PNG and SVG in ``figures/`` and embedded
-    in the HTML as a PNG data URI."""
+    """Figures drawn once and shared by all briefs: each saved as PNG in ``figures/`` (and as SVG, but a
+    district brief's only with ``district_svg``) and embedded in the HTML as a PNG data URI."""
 
     def __init__(self, context: BriefContext, table: pd.DataFrame, zones, folder: Path, region_stem: str):
         self._context, self._table, self._zones = context, table, zones
@@ -310,14 +312,18 @@ class _Figures:
         self.labels_left_out: set[str] = set()
         self._frames = figures.MapFrames()  # each map is saved as soon as drawn, as MapFrames requires
 
-    def _get(self, key: tuple, name: str, draw: Callable[[], object]) -> str:
+    def _get(self, key: tuple, name: str, draw: Callable[[], object], district: str | None) -> str:
         if key not in self._cache:
             figure = draw()
             self.labels_left_out |= {d for d, ok in getattr(figure, "labels_drawn", {}).items() if not ok}
             self._folder.mkdir(exist_ok=True)
             stem = slug(f"{self._region}_{name}", 100)
             png = figures.figure_bytes(figure, "png", dpi=150)
-            for fmt, data in (("png", png), ("svg", figures.figure_bytes(figure, "svg"))):
+            saved = [("png", png)]
+            # A district's SVG figures were a sixth of its brief's time and half the figures' bytes at 100 districts.
+            if district is None or self._context.district_svg:
+                saved.append(("svg", figures.figure_bytes(figure, "svg")))
+            for fmt, data in saved:
                 path = atomic_write(self._folder / f"{stem}.{fmt}", lambda p, d=data: p.write_bytes(d),
                                     what="the figure")
                 self.written[f"figures/{path.name}"] = path
@@ -355,7 +361,7 @@ class _Figures:
         return self._get((kind, scenario.name, district), f"{district or ''}_{scenario.name}_{kind}_map",
                          lambda: draw(Path(scenario.output_folder) / layer_file, self._zones, title=title,
                                       highlight=district, numbers=self.numbers, zoom=district is not None,
-                                      size_in=HALF_PAGE_MAP_IN, frames=self._frames))
+                                      size_in=HALF_PAGE_MAP_IN, frames=self._frames), district)
 
     def crossover_points(self, scenarios: Sequence[ScenarioInfo]) -> pd.DataFrame | None:
         """Per district and scenario: warm-month temperature and the crossover quantiles of its cells."""
@@ -390,7 +396,7 @@ class _Figures:
             return None
         names = "_".join(s.name for s in scenarios)
         return self._get(("crossover", names, district), f"{district or ''}_{names}_crossover",
-                         lambda: figures.district_crossover_figure(points, highlight=district))
+                         lambda: figures.district_crossover_figure(points, highlight=district), district)
 
 
 def _title_words(scenario: ScenarioInfo, context: BriefContext) -> str:
@@ -795,6 +801,7 @@ def brief_context_from_config(cfg, scenario_folders: Mapping[str, Path], *, warm
         warm_season_temperature_c=warm_season_temperature_c,
         contested_margin=cfg.classes.contested_margin,
         per_district=cfg.brief.per_district,
+        district_svg=cfg.brief.district_svg,
         caution=caution,
         notes=notes,
         district_climate=district_climate,

@@ -7,6 +7,7 @@ most expectations are hand derivations from the synthetic layout.
 
 from __future__ import annotations
 
+import dataclasses
 import math
 import re
 from datetime import date
@@ -85,7 +86,7 @@ def run(tmp_path_factory):
         scenarios=(ScenarioInfo("present", 420, base, "present CO2 and climate", is_baseline=True),
                    ScenarioInfo(SCENARIO_ID, 650, warm, WORDS, temperature_offset_c=2.5)),
         baseline="present", c3_parameter_set="C3 temperate grass", c4_parameter_set="C4 tropical grass",
-        zones_path=zones, name_field="name", contested_margin=0.05, per_district=True,
+        zones_path=zones, name_field="name", contested_margin=0.05, per_district=True, district_svg=True,
         notes=("All data in this brief are synthetic, made up for a test.",), district_climate=climate,
         models=("C3 crops: the C3 leaf model of Farquhar, von Caemmerer & Berry (1980).",),
         references=("Farquhar, G.D., von Caemmerer, S. & Berry, J.A. (1980) Planta 149, 78-90.",),
@@ -288,6 +289,23 @@ def test_per_district_brief_covers_every_scenario_and_zooms(run):
     assert 'id="locator"' in svg and 'id="north_arrow"' in svg and 'id="scale_bar"' in svg
 
 
+def test_district_figures_are_saved_as_svg_only_when_asked(run, tmp_path):
+    # Project decision (issue 15): by default a district brief's figures are saved as PNG only; the region
+    # briefs' figures as PNG and SVG. The PNG files are the same either way (the fixture asked for SVG).
+    paths = build_brief(dataclasses.replace(run["context"], district_svg=False), tmp_path / "out", workers=0)
+    district_stems = {f"figures/vellmark_uplands_{d.lower().replace(' ', '_')}_" for d in DISTRICTS}
+    figures = [name for name in paths if name.startswith("figures/")]
+    of_districts = [name for name in figures if name.startswith(tuple(district_stems))]
+    of_region = [name for name in figures if name not in of_districts]
+    assert of_districts and all(name.endswith(".png") for name in of_districts)
+    assert {n.rsplit(".", 1)[0] for n in of_region if n.endswith(".svg")} == {n.rsplit(".", 1)[0] for n in of_region}
+    assert not list((tmp_path / "out" / "brief" / "figures").glob("vellmark_uplands_orvanne_*.svg"))
+    for name in of_districts + of_region:
+        if name.endswith(".png"):
+            assert paths[name].read_bytes() == run["paths"][name].read_bytes(), name
+    assert set(figures) < set(run["paths"])  # with district_svg the district SVG files come on top
+
+
 def test_context_from_a_run_config(tmp_path):
     from suitability.config import RunConfig
 
@@ -319,6 +337,9 @@ def test_context_from_a_run_config(tmp_path):
     assert any(r.startswith("Collatz, G.J., Ribas-Carbo") for r in context.references)
     assert any("Invented region" in note for note in context.notes)
     assert context.climate_data[0] == "Today's climate: tmin, tmax, shortwave, water_availability from t.tif (12-month climatology as given)."
+    assert context.per_district is False and context.district_svg is False  # the defaults of the brief section
+    with_svg = cfg.model_copy(update={"brief": cfg.brief.model_copy(update={"per_district": True, "district_svg": True})})
+    assert brief_context_from_config(with_svg, {"now": tmp_path / "now", "later": tmp_path / "later"}).district_svg
 
 
 def test_the_district_table_is_rounded_and_has_a_data_dictionary(run):
