@@ -18,7 +18,7 @@ from pathlib import Path
 import numpy as np
 
 import suitability
-from suitability import model, tie_solver
+from suitability import tie_solver
 from suitability.config import load_config
 from suitability.grid import TargetGrid
 from suitability.inputs.climate import load_climate

@@ -21,7 +21,7 @@ import pandas as pd
 from ._version import __version__
 from .assumptions import run_assumptions
 from .caution import CAUTION, invented_note
-from .config import MEMBER_FIELD, RunConfig
+from .config import RunConfig
 from .inputs import layer_files
 from .inputs.inspection import derived_methods
 from .outputs import file_checksum

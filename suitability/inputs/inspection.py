@@ -7,7 +7,6 @@ from dataclasses import dataclass, field
 from typing import Any
 
 import numpy as np
-import xarray as xr
 
 from ..errors import InputDataError
 from ..grid import TargetGrid, align_to_grid

@@ -44,7 +44,6 @@ from suitability.variables import (
     CLASS_CONTESTED,
     CLASS_NO_SEASON,
     CLASS_NODATA,
-    OUTPUT_LAYERS,
     layer_names,
 )
 

@@ -33,7 +33,6 @@ from suitability.reports import figures
 from suitability.reports.brief import largest_districts
 
 from .conftest import (
-    DEMO_DATA,
     EXIT_CONFIG,
     EXIT_OUTPUT,
     assert_clean_error,

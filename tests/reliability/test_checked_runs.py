@@ -19,7 +19,6 @@ from pathlib import Path
 import numpy as np
 import pytest
 import rasterio
-import xarray as xr
 
 from suitability import pipeline
 from suitability.errors import InputDataError

@@ -16,7 +16,7 @@ import pytest
 import rioxarray  # noqa: F401
 import xarray as xr
 
-from suitability.errors import ConfigError, InputDataError
+from suitability.errors import InputDataError
 from suitability.grid import TargetGrid, align_to_grid
 from suitability.reports import figures
 

@@ -12,7 +12,6 @@ import shutil
 
 import geopandas as gpd
 import pandas as pd
-import pytest
 import shapely
 
 from .conftest import (
