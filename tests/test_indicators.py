@@ -26,6 +26,19 @@ def test_advantage_counts_negative_totals_as_zero_and_handles_both_zero():
     assert np.isnan(indicators.advantage_index(np.nan, 1.0))
 
 
+def test_advantage_of_arrays_keeps_dtype_and_handles_zero_nan_and_lazy_inputs():
+    # derived here, element by element: both zero (or losses) 0; NaN in either NaN; the rest as above
+    c3 = np.array([0.0, -2.0, np.nan, 30.0, 5.0, 0.0], np.float32)
+    c4 = np.array([0.0, 0.0, 4.0, np.nan, 0.0, 7.0], np.float32)
+    expected = [0.0, 0.0, np.nan, np.nan, -1.0, 1.0]
+    got = indicators.advantage_index(c3, c4)
+    assert got.dtype == np.float32
+    np.testing.assert_array_equal(got, np.array(expected, np.float32))
+    lazy = indicators.advantage_index(xr.DataArray(da.from_array(c3, chunks=3)), xr.DataArray(c4))
+    assert isinstance(lazy.data, da.Array)  # stays lazy
+    np.testing.assert_array_equal(lazy.values, np.array(expected, np.float32))
+
+
 def test_classes_with_margin():
     advantage = np.array([-0.5, -0.051, -0.05, 0.0, 0.05, 0.0501, 0.9, np.nan])
     classes = indicators.pathway_class(advantage, 0.05)
