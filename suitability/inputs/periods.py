@@ -33,6 +33,7 @@ from __future__ import annotations
 import warnings
 from dataclasses import dataclass
 
+import numba
 import numpy as np
 import xarray as xr
 from xarray.backends import BackendArray
@@ -182,19 +183,30 @@ class _MonthlyMeansOfSeries(BackendArray):
         sums = np.zeros((12,) + window.shape[1:])
         counts = np.zeros((12,) + window.shape[1:], dtype=np.int32)
         steps = max(1, _PIECE_VALUES // max(1, int(np.prod(window.shape[1:]))))
+        flat_sums, flat_counts = sums.reshape(12, -1), counts.reshape(12, -1)  # views: the loop fills them
         for start in range(0, window.shape[0], steps):
             piece = window[start:start + steps]
             # (piece.data would read a lazy piece to tell it from a dask one; chunks does not)
             block = piece.data.compute(scheduler="sync") if piece.chunks is not None else piece.values
-            step_months = self.months[start:start + steps]
-            for month in np.unique(step_months):
-                chosen = block[step_months == month]
-                valid = np.isfinite(chosen)
-                sums[month - 1] += np.where(valid, chosen, 0).sum(axis=0, dtype=np.float64)
-                counts[month - 1] += valid.sum(axis=0, dtype=np.int32)
+            step_months = np.ascontiguousarray(self.months[start:start + steps], dtype=np.int64) - 1
+            values = np.ascontiguousarray(block).reshape(block.shape[0], -1)
+            _add_by_month(values, step_months, flat_sums, flat_counts)
         with np.errstate(invalid="ignore", divide="ignore"):
             means = np.where(counts > 0, sums / counts, np.nan).astype(np.float32)
         return means[month_key]
+
+
+@numba.njit(nogil=True, cache=True)
+def _add_by_month(values, month_index, sums, counts):  # pragma: no cover - compiled; tested through _means
+    # Each step's finite values added to its month's float64 sums and counts, in one pass over the piece:
+    # numpy needed a copy, a mask and a cast per month and piece (0.28 s for 360 steps of 512 x 512 cells).
+    for step in range(values.shape[0]):
+        month = month_index[step]
+        for cell in range(values.shape[1]):
+            value = values[step, cell]
+            if np.isfinite(value):
+                sums[month, cell] += value
+                counts[month, cell] += 1
 
 
 def _check_twelve_months(months: np.ndarray, steps: int, where: str) -> None:
