@@ -193,14 +193,15 @@ def best_time(function, repeats: int) -> float:
     return best
 
 
-def _run_kernel(part: dict, **options):
-    """The compiled kernel on in-memory cells (benchmarks/synthetic.py cell_inputs), both pathways."""
+def _run_kernel(part: dict, months: slice = slice(None), **options):
+    """The compiled kernel on in-memory cells (benchmarks/synthetic.py cell_inputs), both pathways, on
+    ``months`` of the 12 (all by default)."""
     from suitability import kernel, model
 
     return kernel.monthly_canopy_assimilation(
-        tmin_c=part["tmin"], tmax_c=part["tmax"], shortwave_mj=part["shortwave"],
-        water_availability=part["water_availability"], latitude_deg=part["latitude"],
-        elevation_m=part["elevation"], day_of_year=model.REPRESENTATIVE_DAY, co2_ppm=420.0, **options)
+        tmin_c=part["tmin"][:, months], tmax_c=part["tmax"][:, months], shortwave_mj=part["shortwave"][:, months],
+        water_availability=part["water_availability"][:, months], latitude_deg=part["latitude"],
+        elevation_m=part["elevation"], day_of_year=model.REPRESENTATIVE_DAY[months], co2_ppm=420.0, **options)
 
 
 def _package_numpy(part: dict) -> None:
