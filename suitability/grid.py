@@ -296,6 +296,11 @@ class TargetGrid:
 # ---------------------------------------------------------------------------------------- alignment
 
 
+#: Side [cells] of the blocks a layer is warped onto the grid in, whatever the run's chunk size
+#: (:func:`align_to_grid`): the default ``compute.chunk_size``, so that by default no re-blocking follows.
+ALIGNMENT_BLOCK = 512
+
+
 def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: int = 512) -> xr.DataArray:
     """``da`` lazily on ``grid``: same dims order, spatial dims (y, x) with exactly the grid's coordinates.
 
@@ -310,6 +315,12 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
     the kernel when the source is finer than the grid, but a widened kernel is cut at block edges, so the
     result would depend on the chunk size.) For a source much finer than the grid use "average", which
     weights every source cell of the footprint.
+
+    The warp is always done in blocks of :data:`ALIGNMENT_BLOCK` cells, anchored at the grid's corner,
+    and only then cut into blocks of ``chunk``: GDAL's warper approximates the coordinate transform along
+    each row of a block to within 1/8 of a source cell (its default error threshold, which
+    ``rasterio.warp.reproject`` does not let a caller change), so a cell's value depends on the block it
+    was warped in; with warp blocks fixed, it no longer depends on ``chunk`` (``compute.chunk_size``).
     """
     from odc.geo.xr import xr_reproject
 
@@ -335,7 +346,8 @@ def align_to_grid(da: xr.DataArray, grid: TargetGrid, resampling: str, chunk: in
             )
         try:
             out = xr_reproject(
-                da, grid.geobox, resampling=resampling, dst_nodata=np.nan, src_nodata=np.nan, chunks=(chunk, chunk),
+                da, grid.geobox, resampling=resampling, dst_nodata=np.nan, src_nodata=np.nan,
+                chunks=(ALIGNMENT_BLOCK, ALIGNMENT_BLOCK),
                 always_yx=True,
             )
         except Exception as exc:  # noqa: BLE001 - the alignment library's failures, said in our words
