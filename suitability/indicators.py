@@ -110,10 +110,13 @@ def warmest_month_value(monthly_values, monthly_mean_c, in_season):
 
 
 def photorespiration_share(c3_gross_total, c3_photorespiration_total):
-    """Share of C3 gross carboxylation released again by photorespiration, in [0, 1].
+    """Share of C3 gross carboxylation released again by photorespiration, >= 0 [-].
 
     Gross carboxylation vc = A_gross + 0.5 vo (von Caemmerer 2000, eq. 2.1 rearranged), so the share is
-    R_photo / (A_gross + R_photo). Inputs [g C m-2] over the same period; NaN where the sum is zero.
+    R_photo / (A_gross + R_photo), for a leaf 0.5 vo / vc = Γ*/C. It exceeds 1 where leaf CO2 is below
+    the compensation point Γ* (C3 gross assimilation negative: more CO2 released than fixed), e.g. at
+    very low CO2 in hot months; it is not clipped, as a share of 1 would hide that loss. Inputs
+    [g C m-2] over the same period; NaN where the sum is zero.
     """
     carboxylation = c3_gross_total + c3_photorespiration_total
     with np.errstate(invalid="ignore", divide="ignore"):

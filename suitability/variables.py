@@ -212,8 +212,9 @@ OUTPUT_LAYERS: dict[str, OutputLayer] = {
                     (0.0, 12.0), "average", SEASONAL, "c4_favoured_months", integer=True),
         OutputLayer("growing_season_months", "1", "number of months in the growing season (0: no growing season)",
                     (0.0, 12.0), "average", SEASONAL, "growing_season_months", integer=True),
-        OutputLayer("photorespiration_share", "1", "share of C3 gross carboxylation released by photorespiration",
-                    (0.0, 1.0), "average", SEASONAL, "photorespiration_share"),
+        OutputLayer("photorespiration_share", "1", "share of C3 gross carboxylation released by photorespiration "
+                    "(above 1 where leaf CO2 falls below the C3 compensation point: more released than fixed)",
+                    (0.0, np.inf), "average", SEASONAL, "photorespiration_share"),
         OutputLayer("crossover_temperature", "degC", "canopy crossover of the warmest season month: the monthly mean "
                     "temperature above which C4 is favoured in that month (-inf: C4 favoured down to 0 degC, +inf: "
                     "not C4-favoured up to 45 degC)", (-np.inf, np.inf), "average", SEASONAL, "canopy_crossover"),
