@@ -1,4 +1,5 @@
-"""The assumptions a run makes where the config leaves something out, stated in words.
+"""The assumptions a run makes where the config leaves something out, or sets a parameter beyond the
+range its set declares, stated in words.
 
 ``suitability check`` lists them, ``suitability run`` prints them and the manifest records them
 (``manifest["assumptions"]``), so that a default the tool filled in is never silent. Each entry names the
@@ -17,7 +18,8 @@ def run_assumptions(cfg: Any) -> list[str]:
 
     Covered: the daily range assumed around ``tmean``, sea-level air pressure without ``elevation``, VPD
     from Tmin as dew point without ``vpd``/``humidity``, the uniform LAI without a ``lai`` layer, and
-    the default parameter set of a pathway whose ``parameter_set`` is not given.
+    the default parameter set of a pathway whose ``parameter_set`` is not given; and every override
+    outside the spread its set declares (:func:`override_assumptions`).
     """
     return layer_assumptions(
         set(cfg.climate.keys()),
@@ -25,7 +27,22 @@ def run_assumptions(cfg: Any) -> list[str]:
         lai=cfg.physiology.lai,
         c3_set=cfg.physiology.c3.parameter_set,
         c4_set=cfg.physiology.c4.parameter_set,
-    )
+    ) + override_assumptions(cfg.physiology.c3.as_params(), cfg.physiology.c4.as_params())
+
+
+def override_assumptions(c3_params, c4_params) -> list[str]:
+    """One sentence per physiology override that lies outside the range its parameter set declares for it
+    (:data:`suitability.physiology.uncertainty.PARAMETER_UNCERTAINTY`): a value the user sets is used as
+    given, but never silently beyond the published (or tagged) spread of that plant type."""
+    from .physiology.params import resolve_params
+    from .physiology.uncertainty import outside_spread_text, overrides_outside_spreads
+
+    notes = []
+    for pathway, params in (("C3", c3_params), ("C4", c4_params)):
+        set_name = resolve_params(pathway, params)["parameter_set"]
+        notes += [outside_spread_text(pathway, set_name, spread, value)
+                  for spread, value in overrides_outside_spreads(pathway, params)]
+    return notes
 
 
 def layer_assumptions(names: set[str], *, diurnal_range_c: float = 10.0, lai: float = 3.0,
@@ -53,4 +70,4 @@ def layer_assumptions(names: set[str], *, diurnal_range_c: float = 10.0, lai: fl
     return notes
 
 
-__all__ = ["run_assumptions", "layer_assumptions", "SEA_LEVEL_PRESSURE_KPA"]
+__all__ = ["run_assumptions", "layer_assumptions", "override_assumptions", "SEA_LEVEL_PRESSURE_KPA"]

@@ -429,3 +429,42 @@ def test_draws_are_bitwise_equal_with_worker_processes():
         computed = chunked.compute()
     for name in model.UNCERTAINTY_LAYERS[:6]:
         np.testing.assert_array_equal(computed[name].values, reference[name].values, err_msg=name)
+
+
+# --------------------------------------------------------------------------- overrides beyond the declared spreads
+
+
+def test_overrides_outside_the_declared_spread_are_found():
+    # c3_temperate_grass declares Vcmax25 78.2 +- 2 x 31.1 (Kattge et al. 2009, Table 3, C3 herbaceous):
+    # 16.0..140.4. c4_tropical_grass declares alpha 0.04 (Collatz et al. 1992) .. 0.065 (Ehleringer &
+    # Pearcy 1983).
+    from suitability.physiology.uncertainty import overrides_outside_spreads
+
+    outside = overrides_outside_spreads("C3", {"parameter_set": "c3_temperate_grass", "vcmax25": 150.0, "g1": 5.0})
+    assert [(spread.key, spread.low, spread.high, value) for spread, value in outside] == [
+        ("vcmax25", pytest.approx(16.0), pytest.approx(140.4), 150.0)]
+    assert overrides_outside_spreads("C3", {"parameter_set": "c3_temperate_grass", "vcmax25": 140.0}) == ()
+    assert [s.key for s, _ in overrides_outside_spreads("C4", {"alpha": 0.03})] == ["alpha"]  # default C4 set
+    assert overrides_outside_spreads("C4", {"alpha": 0.05}) == ()
+    assert overrides_outside_spreads("C3", "c3_temperate_grass") == ()  # no overrides
+    # A key without a declared spread has nothing to be compared with.
+    assert "rd25" not in {s.key for s in PARAMETER_UNCERTAINTY["c3_temperate_grass"]}
+    assert overrides_outside_spreads("C3", {"parameter_set": "c3_temperate_grass", "rd25": 50.0}) == ()
+
+
+def test_an_override_beyond_its_spread_is_said_where_assumptions_are(demo_config):
+    # check, run output, manifest and briefs all show run_assumptions (tests/test_first_hour.py).
+    import yaml
+
+    from suitability.assumptions import run_assumptions
+    from suitability.config import load_config
+
+    path = demo_config()
+    config = yaml.safe_load(path.read_text())
+    assert not any("overrides" in note for note in run_assumptions(load_config(path)))
+    config["physiology"]["c4"]["overrides"] = {"alpha": 0.03, "q10": 2.0}
+    path.write_text(yaml.safe_dump(config))
+    notes = [note for note in run_assumptions(load_config(path)) if "overrides" in note]
+    assert len(notes) == 1  # q10 2.0 lies inside its 1.8..2.2
+    assert notes[0].startswith("physiology.c4.overrides.alpha = 0.03 lies outside the range 0.04..0.065 declared "
+                               "for the parameter set 'c4_tropical_grass' (")

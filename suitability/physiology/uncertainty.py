@@ -270,8 +270,37 @@ def spread_text(row: Mapping[str, Any]) -> str:
     return f"{row['pathway']} {row['key']}: {row['shape']} {what}{held}; {row['source']}"
 
 
+def overrides_outside_spreads(pathway: str, params: Any) -> tuple[tuple[Spread, float], ...]:
+    """(spread, value) of every override in ``params`` that lies outside its key's declared spread in the
+    set ``params`` names: the value itself, or for a relative spread its factor on the set's own value.
+    Empty for a set without declared spreads and for keys without one (nothing to compare with)."""
+    pathway = normalise_pathway(pathway)
+    name, overrides = _base(pathway, params)
+    if not overrides or name not in PARAMETER_UNCERTAINTY:
+        return ()
+    own = resolve_params(pathway, name)
+    outside = []
+    for spread in PARAMETER_UNCERTAINTY[name]:
+        if spread.key not in overrides:
+            continue
+        value = float(overrides[spread.key])
+        compared = value / own[spread.key] if spread.relative and own[spread.key] else value
+        if not spread.low <= compared <= spread.high:
+            outside.append((spread, value))
+    return tuple(outside)
+
+
+def outside_spread_text(pathway: str, set_name: str, spread: Spread, value: float) -> str:
+    """One sentence for an entry of :func:`overrides_outside_spreads`, naming the config key."""
+    what = (f"x {spread.low:g}..{spread.high:g} of the set's value" if spread.relative
+            else f"{spread.low:g}..{spread.high:g}")
+    return (f"physiology.{pathway.lower()}.overrides.{spread.key} = {value:g} lies outside the range {what} "
+            f"declared for the parameter set {set_name!r} ({spread.source}); the maps rest on a value beyond it")
+
+
 for _name, _spreads in PARAMETER_UNCERTAINTY.items():  # every declaration fits its set (checked at import)
     _check_spreads(_name, _spreads)
 
 __all__ = ["Spread", "PARAMETER_UNCERTAINTY", "register_uncertainty", "spreads_of", "unit_sample",
-           "draw_parameters", "varied_parameters", "spread_text", "METHODS", "SHAPES"]
+           "draw_parameters", "varied_parameters", "spread_text", "overrides_outside_spreads", "outside_spread_text",
+           "METHODS", "SHAPES"]
