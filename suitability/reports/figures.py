@@ -248,14 +248,16 @@ def _finish_frame(axes, raster: _MapRaster) -> None:
 
 def _nice_degree_step(span: float) -> float:
     """A step of a graticule giving about 3 to 6 lines over ``span`` degrees (common practice, no source)."""
-    for step in (0.01, 0.02, 0.05, 0.1, 0.2, 0.25, 0.5, 1, 2, 5, 10, 15, 30):
+    # No 0.25: its labels need two decimals, and at that spacing they ran into each other.
+    for step in (0.01, 0.02, 0.05, 0.1, 0.2, 0.5, 1, 2, 5, 10, 15, 30):
         if span / step <= 6:
             return step
     return 45.0
 
 
 def _degree_text(value: float, positive: str, negative: str, step: float) -> str:
-    digits = 0 if step >= 1 else (1 if step >= 0.1 else 2)
+    # As many decimals as the step has (0.25: two), so that every line's label is its exact value.
+    digits = next(d for d in range(4) if abs(round(step, d) - step) < 1e-9)
     hemisphere = positive if value > 1e-12 else (negative if value < -1e-12 else "")
     return f"{abs(value):.{digits}f}\u00b0{(' ' + hemisphere) if hemisphere else ''}"
 
@@ -305,7 +307,24 @@ def _draw_graticule(axes, raster: _MapRaster) -> list[float]:
     axes.set_xticks(x_ticks, x_labels, fontsize=7.5, color=_INK)
     axes.set_yticks(y_ticks, y_labels, fontsize=7.5, color=_INK, rotation=90, va="center")
     axes.tick_params(length=3, color="#888888", pad=2)
+    # A label centred on a line near a corner reaches past the frame: into the title above it, or into
+    # the other edge's labels. Near an end of its edge it is aligned to end at its line instead, inward.
+    for label, tick in zip(axes.get_yticklabels(), y_ticks):
+        if tick > top - _END_LABEL_ZONE * (top - bottom):
+            label.set_verticalalignment("top")
+        elif tick < bottom + _END_LABEL_ZONE * (top - bottom):
+            label.set_verticalalignment("bottom")
+    for label, tick in zip(axes.get_xticklabels(), x_ticks):
+        if tick < left + _END_LABEL_ZONE * (right - left):
+            label.set_horizontalalignment("left")
+        elif tick > right - _END_LABEL_ZONE * (right - left):
+            label.set_horizontalalignment("right")
     return list(lon_values)
+
+
+#: Share of a frame edge at each end within which a graticule label is aligned to end at its line
+#: (:func:`_draw_graticule`): half a 7-character label at 7.5 pt is about 0.2 in, 6-12 % of a map's edge.
+_END_LABEL_ZONE = 0.12
 
 
 def _label_positions(on_map: gpd.GeoDataFrame, raster: _MapRaster) -> list[tuple[str, float, float, float]]:
@@ -609,7 +628,8 @@ def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, tit
     def draw(axes, raster):
         finite = raster.values[np.isfinite(raster.values)]
         largest = float(np.max(np.abs(finite))) if finite.size else 0.0
-        limit = max(0.05, math.ceil(largest * 20) / 20)  # round up to 0.05, never a zero-width scale
+        # Round up to 0.05, never a zero-width scale; rounded first so that a float32 0.3 stays 0.3.
+        limit = max(0.05, math.ceil(round(largest * 20, 6)) / 20)
         image = axes.imshow(raster.values, extent=raster.extent, interpolation="nearest", origin="upper",
                             cmap=CHANGE_COLORMAP, norm=mcolors.TwoSlopeNorm(0.0, -limit, limit))
 
@@ -621,6 +641,9 @@ def change_map_figure(change_path, zones: gpd.GeoDataFrame | None = None, *, tit
             # Above the bar: below it, the two lines fell off the bottom of a half-page map.
             bar.ax.xaxis.set_label_position("top")
             bar.ax.tick_params(labelsize=7)
+            # Five ticks: matplotlib's own choice put nine labels on the bar, run together at 7 pt.
+            ticks = [-limit, -limit / 2, 0.0, limit / 2, limit]
+            bar.set_ticks(ticks, labels=[f"{t:+g}".replace("-", "\u2212") if t else "0" for t in ticks])
         return legend
 
     return _map_figure(change_path, zones, title, highlight, numbers, zoom, size_in, draw, frames)

@@ -166,6 +166,41 @@ def test_graticule_labels_are_degrees_at_the_frame(tmp_path):
     assert all(label.endswith("\u00b0 S") for label in (t.get_text() for t in axes.get_yticklabels()))
 
 
+@pytest.mark.parametrize("extent", [
+    (300000, 7460000, 200, 160),  # the demo's frame: the 23 deg S line 4 km below the top edge
+    (330000, 7420000, 140, 140),  # about 1.3 deg across: 0.25 deg lines before (labels 23.8 for 23.75)
+])
+def test_graticule_labels_stay_off_the_title_and_each_other_and_say_their_exact_value(tmp_path, extent):
+    west, north, width, height = extent
+    classes = np.full((height, width), CLASS_C3, dtype=np.uint8)
+    path = write_raster(tmp_path / "pathway_class.tif", classes, "EPSG:32740", from_origin(west, north, 1000, 1000))
+    figure = figures.class_map_figure(path, None, title="A title as long as a scenario's, to the right edge "
+                                      "of the map", size_in=(6.3, 4.2))
+    renderer = FigureCanvasAgg(figure).get_renderer()
+    figure.draw(renderer)
+    axes = figure.axes[0]
+    title = next(t for t in figure.texts if t.get_gid() == "title").get_window_extent(renderer)
+    frame = axes.get_window_extent(renderer)
+    x_labels = [t for t in axes.get_xticklabels() if t.get_text()]
+    y_labels = [t for t in axes.get_yticklabels() if t.get_text()]
+    assert len(x_labels) >= 2 and len(y_labels) >= 2
+    boxes = [t.get_window_extent(renderer) for t in x_labels + y_labels]
+    for i, first in enumerate(boxes):
+        assert not first.overlaps(title)
+        for second in boxes[i + 1:]:
+            assert not first.overlaps(second)
+    for label in y_labels:  # a latitude label stays within the frame's height
+        extent_ = label.get_window_extent(renderer)
+        assert frame.y0 - 0.5 <= extent_.y0 and extent_.y1 <= frame.y1 + 0.5
+    # Each label is the exact degree of its line where pyproj puts it (independent transform).
+    to_geo = pyproj.Transformer.from_crs("EPSG:32740", "EPSG:4326", always_xy=True)
+    (left, right), (bottom, _) = axes.get_xlim(), axes.get_ylim()
+    for x, label in zip(axes.get_xticks(), x_labels):
+        assert to_geo.transform(x, bottom)[0] == pytest.approx(float(label.get_text().split("\u00b0")[0]), abs=1e-6)
+    for y, label in zip(axes.get_yticks(), y_labels):
+        assert -to_geo.transform(left, y)[1] == pytest.approx(float(label.get_text().split("\u00b0")[0]), abs=1e-6)
+
+
 def test_numbered_labels_never_overlap(tmp_path):
     path = write_raster(tmp_path / "pathway_class.tif", _three_band_classes(), "EPSG:32740",
                         from_origin(300000, 7400000, 1000, 1000))
@@ -383,3 +418,21 @@ def test_change_map_scale_label_is_inside_the_figure(tmp_path, size_in):
     scale_bar = _scale_bar(figure)
     for part in [*scale_bar.patches, *scale_bar.texts]:
         assert not box.overlaps(part.get_window_extent(renderer))
+
+
+@pytest.mark.parametrize("size_in", [(7.0, 4.35), figures.MAP_SIZE_IN])
+def test_change_map_scale_ticks_are_readable_and_symmetric(tmp_path, size_in):
+    # Derived here: the scale runs from -limit to +limit (limit: the largest change rounded up to 0.05,
+    # here 0.3); matplotlib's own ticks put nine labels on it, run together at 7 pt.
+    path = write_raster(tmp_path / "advantage_change.tif",
+                        np.linspace(-0.3, 0.2, 40 * 60, dtype="float32").reshape(40, 60), "EPSG:32740",
+                        from_origin(300000, 7400000, 1000, 1000))
+    figure = figures.change_map_figure(path, None, title="warmer", size_in=size_in)
+    canvas = FigureCanvasAgg(figure)
+    canvas.draw()
+    renderer = canvas.get_renderer()
+    labels = [t for t in figure.axes[-1].get_xticklabels() if t.get_text()]
+    assert [t.get_text() for t in labels] == ["\u22120.3", "\u22120.15", "0", "+0.15", "+0.3"]
+    boxes = [t.get_window_extent(renderer) for t in labels]
+    for first, second in zip(boxes, boxes[1:]):
+        assert first.x1 < second.x0
