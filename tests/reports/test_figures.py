@@ -194,7 +194,7 @@ def test_graticule_labels_stay_off_the_title_and_each_other_and_say_their_exact_
         assert frame.y0 - 0.5 <= extent_.y0 and extent_.y1 <= frame.y1 + 0.5
     # Each label is the exact degree of its line where pyproj puts it (independent transform).
     to_geo = pyproj.Transformer.from_crs("EPSG:32740", "EPSG:4326", always_xy=True)
-    (left, right), (bottom, _) = axes.get_xlim(), axes.get_ylim()
+    (left, _), (bottom, _) = axes.get_xlim(), axes.get_ylim()
     for x, label in zip(axes.get_xticks(), x_labels):
         assert to_geo.transform(x, bottom)[0] == pytest.approx(float(label.get_text().split("\u00b0")[0]), abs=1e-6)
     for y, label in zip(axes.get_yticks(), y_labels):
