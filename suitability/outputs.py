@@ -49,7 +49,6 @@ Every file goes through :func:`suitability.atomic.atomic_write` (temporary name,
 
 from __future__ import annotations
 
-import functools
 import hashlib
 import json
 import math
@@ -665,47 +664,13 @@ def _lock_for(name: str, lock, path: Path):
     return lock
 
 
-def staging_creation_options(dtype) -> dict[str, Any]:
-    """GDAL GTiff creation options of a pass's staged GeoTIFF (read once by the COG conversion, then
-    removed): ZSTD at level 1 with the predictor, which GDAL writes about 4x and reads about 2x faster
-    than DEFLATE at its default level (2000² float32, 0.06 against 0.25 CPU-s to write; files of about
-    the same size); uncompressed where GDAL lacks ZSTD. The COG's own compression is ``output.cog``'s."""
-    options = dict(GDAL_TIFF_OPTIONS, predictor=3 if np.dtype(dtype).kind == "f" else 2)
-    if _gdal_has_zstd():
-        return dict(options, compress="ZSTD", zstd_level=1)
-    return dict(options, compress="NONE")
-
-
-@functools.cache
-def _gdal_has_zstd() -> bool:
-    """Whether this GDAL writes ZSTD GeoTIFFs (an unknown COMPRESS value is only warned about, and the
-    file written uncompressed): a 16 x 16 file in memory, read back."""
-    import warnings
-
-    import rasterio
-    from rasterio.io import MemoryFile
-    from rasterio.transform import from_origin
-
-    profile = dict(driver="GTiff", width=16, height=16, count=1, dtype="uint8", compress="ZSTD",
-                   transform=from_origin(0, 16, 1, 1))
-    try:
-        with warnings.catch_warnings(), rasterio.Env(CPL_LOG="/dev/null"), MemoryFile() as memory:
-            warnings.simplefilter("ignore")
-            with memory.open(**profile) as dst:
-                dst.write(np.zeros((1, 16, 16), np.uint8))
-            with memory.open() as src:
-                return src.compression is not None and src.compression.name == "zstd"
-    except rasterio.errors.RasterioError:
-        return False
-
-
 def _create_tiled_geotiff(path: Path, name: str, dtype, grid: _Grid, tags: Mapping[str, Any], options: CogOptions):
     import rasterio
     from rasterio.enums import ColorInterp
 
     variable = OUTPUT_LAYERS[name]
     categorical = variable.categorical
-    profile = dict(staging_creation_options(dtype), width=grid.width, height=grid.height, count=1,
+    profile = dict(options.creation_options(dtype), width=grid.width, height=grid.height, count=1,
                    dtype=np.dtype(dtype).name, crs=grid.crs, transform=grid.transform,
                    nodata=CLASS_NODATA if categorical or variable.integer else np.nan, SPARSE_OK=True)
     with rasterio.open(path, "w", **profile) as dst:

@@ -728,22 +728,3 @@ def test_month_counts_are_whole_numbers_in_uint8(tmp_path):
         assert src.dtypes[0] == "uint8" and src.nodata == 255
         values = src.read(1)
     assert values.tolist() == [[0, 3, 12], [255, 7, 1], [0, 3, 12], [255, 7, 1]]
-
-
-def test_staged_files_are_fast_to_write_and_the_cog_keeps_the_configured_compression(tmp_path):
-    # The pass's staged GeoTIFF is internal (read once by the COG conversion): ZSTD level 1 where GDAL
-    # has it, which rasterio's wheels do. The final COG is what output.cog asks for (TIFF 6.0 tag 259:
-    # 8 = Adobe Deflate), checked by tifffile, an independent TIFF reader.
-    import tifffile
-
-    from suitability.outputs import _gdal_has_zstd, staging_creation_options
-
-    assert _gdal_has_zstd()
-    assert staging_creation_options("float32")["compress"] == "ZSTD"
-    assert staging_creation_options("float32")["predictor"] == 3 and staging_creation_options("uint8")["predictor"] == 2
-    layers = example_layers()
-    paths = write_layers(layers, tmp_path, tags=TAGS, cog_options={"compression": "deflate"})
-    for name in layers:
-        with tifffile.TiffFile(paths[name]) as tif:
-            assert int(tif.pages[0].compression) == 8, name
-        np.testing.assert_array_equal(read_band(paths[name]), layers[name].values)
