@@ -7,15 +7,17 @@ Layers (:func:`write_layers`)
     so the physiology they share runs once. Each block goes to a pre-created tiled GeoTIFF through a
     small picklable writer that opens the file in "r+" mode for its window, under a lock per output
     (a ``distributed.Lock`` with a distributed client, else a ``dask.utils.SerializableLock``: see
-    :func:`suitability.runtime.write_lock`). Then each file is converted to a COG with
-    ``rio_cogeo.cog_translate``, validated with ``rio_cogeo.cogeo.cog_validate(strict=True)`` and only
+    :func:`suitability.runtime.write_lock`). Then each file is converted to a COG by GDAL's COG driver
+    (``rasterio.shutil.copy(driver="COG")``; half the CPU time of ``rio_cogeo.cog_translate``, which
+    this replaced: 0.6 against 1.15 CPU-s for 2000² float32), validated with rio-cogeo's
+    ``cog_validate(strict=True)`` and only
     then moved to ``<name>.tif`` with ``os.replace``. The conversions of all files of one call run at once
     in a thread pool (``conversion_threads``, the pipeline gives the run's worker count: GDAL releases the
     GIL while it reads, compresses and writes), and the renames start only when every one of them has
     succeeded. Until that last step everything lives in a hidden
     staging folder ``.suitability-staging-<host>-<pid>-<random>`` inside the output folder (made with
     ``tempfile.mkdtemp``: exclusive, mode 0700, unpredictable; same filesystem, so the rename is atomic;
-    rio-cogeo's own scratch files land there too); any failure
+    the COG driver's scratch file of overviews lands there too); any failure
     removes it and raises :class:`~suitability.errors.OutputError`, so a finished-looking ``<name>.tif``
     is always whole. A run that is killed leaves only its hidden staging folder, which the next write
     into that folder removes (same host, process gone).
@@ -26,9 +28,7 @@ Layers (:func:`write_layers`)
     near 4 GiB are silently truncated), DEFLATE (default) or ZSTD with a level. Overviews use the
     glossary's resampling (average for continuous, mode for classes). Band description = long name, band
     unit = canonical units, band tags ``long_name``/``units`` (plus the class legend), dataset tags = the
-    caller's ``tags``. rio-cogeo (7.0) drops band units, so when they are missing after the conversion
-    they are set on the staged COG and the file is copied once more with its overviews to restore the
-    COG layout (the same final ``copy_src_overviews`` step rio-cogeo itself ends with).
+    caller's ``tags`` and ``OVERVIEW_RESAMPLING``; the COG driver carries them all over from the staged file.
 
     Class layers also get GDAL category names and a raster attribute table (class names and colours from
     the registry) in a PAM sidecar ``<name>.tif.aux.xml`` (:func:`category_pam_xml`; GeoTIFF has no tag
@@ -116,6 +116,21 @@ class CogOptions:
         given = options if isinstance(options, Mapping) else vars(options) if hasattr(options, "__dict__") else {}
         level = checked.level if isinstance(options, CogConfig) or given.get("level") is not None else None
         return cls(checked.compression, level, checked.overviews)
+
+    def cog_driver_options(self, dtype: str, overview_count: int, resampling: str) -> dict[str, Any]:
+        """Creation options of GDAL's COG driver (GDAL >= 3.6 for OVERVIEW_COUNT): the same tiles,
+        compression, level and predictor as :meth:`creation_options`, and ``overview_count`` overviews
+        (0: none) made with ``resampling``."""
+        options = {"BLOCKSIZE": TILE_SIZE, "COMPRESS": self.compression.upper(), "BIGTIFF": "IF_SAFER",
+                   "PREDICTOR": "FLOATING_POINT" if np.dtype(dtype).kind == "f" else "STANDARD",
+                   "OVERVIEW_RESAMPLING": resampling.upper()}
+        if self.level is not None:
+            options["LEVEL"] = self.level
+        if overview_count:
+            options["OVERVIEW_COUNT"] = overview_count
+        else:
+            options["OVERVIEWS"] = "NONE"
+        return options
 
     def creation_options(self, dtype: str) -> dict[str, Any]:
         """GDAL GTiff creation options for a band of ``dtype`` (predictor 3 floats, 2 integers)."""
@@ -674,7 +689,9 @@ def _create_tiled_geotiff(path: Path, name: str, dtype, grid: _Grid, tags: Mappi
                    dtype=np.dtype(dtype).name, crs=grid.crs, transform=grid.transform,
                    nodata=CLASS_NODATA if categorical or variable.integer else np.nan, SPARSE_OK=True)
     with rasterio.open(path, "w", **profile) as dst:
-        dst.update_tags(**{str(key): _tag_text(value) for key, value in tags.items()})
+        # The overview resampling as a dataset tag, as GDAL's COG driver does not record it.
+        dst.update_tags(**{str(key): _tag_text(value) for key, value in tags.items()},
+                        OVERVIEW_RESAMPLING=variable.resampling.upper())
         dst.set_band_description(1, variable.long_name)
         dst.set_band_unit(1, variable.readable_units)
         band_tags = {"long_name": variable.long_name, "units": variable.readable_units}
@@ -697,34 +714,15 @@ def overview_levels(width: int, height: int) -> int:
 
 def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
     import rasterio
-    from rasterio.shutil import copy
-    from rio_cogeo.cogeo import cog_translate, cog_validate
+    from rio_cogeo.cogeo import cog_validate
 
     variable = OUTPUT_LAYERS[name]
-    categorical = variable.categorical
     cog = tiled.with_name(tiled.name.replace(".tmp-", ".cog-"))
     with rasterio.open(tiled) as src:
         dtype, width, height = src.dtypes[0], src.width, src.height
-    profile = options.creation_options(dtype)
+    levels = overview_levels(width, height) if options.overviews else 0
     try:
-        cog_translate(
-            tiled, cog, profile,
-            nodata=CLASS_NODATA if categorical or variable.integer else np.nan,
-            overview_level=overview_levels(width, height) if options.overviews else 0,
-            overview_resampling=variable.resampling,
-            forward_band_tags=True,
-            colormap=variable.colours if categorical else None,
-            quiet=True,
-            in_memory=False,  # a disk temporary keeps peak memory flat on large regions
-        )
-        with rasterio.open(cog) as check:
-            units_kept = check.units[0] == variable.readable_units
-        if not units_kept:
-            with rasterio.open(cog, "r+", IGNORE_COG_LAYOUT_BREAK="YES") as dst:
-                dst.set_band_unit(1, variable.readable_units)
-            relaid = cog.with_name(cog.name.replace(".cog-", ".final-"))
-            copy(cog, relaid, copy_src_overviews=True, **profile)
-            cog = relaid
+        _cog_copy(tiled, cog, options.cog_driver_options(dtype, levels, variable.resampling))
     except Exception as error:
         raise OutputError(
             f"{tiled.parent.parent / (name + '.tif')}: COG conversion failed: {error}{disk_full_hint(error, tiled.parent.parent)}"
@@ -734,6 +732,14 @@ def _to_validated_cog(tiled: Path, name: str, options: CogOptions) -> Path:
     if not valid:
         raise OutputError(f"{tiled.parent.parent / (name + '.tif')}: not a valid COG: {errors + warnings}")
     return cog
+
+
+def _cog_copy(source: Path, destination: Path, creation_options: Mapping[str, Any]) -> None:
+    """GDAL's COG driver: ``source`` (the staged tiled GeoTIFF, whose tags, band description, units, nodata
+    and colour table it carries over) copied to ``destination`` as a COG, overviews computed on the way."""
+    from rasterio.shutil import copy
+
+    copy(source, destination, driver="COG", **creation_options)
 
 
 def _tag_text(value: Any) -> str:

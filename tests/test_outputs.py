@@ -401,14 +401,14 @@ def folder_writes(root: Path, layers) -> list[LayerWrite]:
 @pytest.mark.parametrize("threads, failing", [(1, ("warmer", "pathway_class")), (6, ("baseline", "pathway_advantage"))])
 def test_a_conversion_failure_in_one_folder_leaves_no_file_of_the_call_and_no_temporaries(tmp_path, monkeypatch,
                                                                                          threads, failing):
-    import rio_cogeo.cogeo
+    import suitability.outputs
 
     # an earlier, finished output in the first folder must survive the failed call untouched
     earlier = write_layers({"pathway_advantage": example_layers()["pathway_advantage"]}, tmp_path / "baseline",
                            tags=TAGS, cog_options=None)["pathway_advantage"]
     earlier_sum = file_checksum(earlier)
     layers = {name: example_layers()[name] for name in ("pathway_advantage", "pathway_class")}
-    real_translate = rio_cogeo.cogeo.cog_translate
+    real_copy = suitability.outputs._cog_copy
     failed, count_lock = threading.Event(), threading.Lock()
     running, outlived_their_folder = [], []
 
@@ -423,14 +423,14 @@ def test_a_conversion_failure_in_one_folder_leaves_no_file_of_the_call_and_no_te
         try:
             if threads > 1:  # every conversion runs at once: the others are still writing when one fails
                 failed.wait(60)  # (a guard against a hang, not a timing check)
-            return real_translate(source, destination, *args, **kwargs)
+            return real_copy(source, destination, *args, **kwargs)
         finally:
             with count_lock:
                 running.remove(source)
                 if not Path(source).parent.is_dir():  # the staging folder was removed under a running conversion
                     outlived_their_folder.append(source)
 
-    monkeypatch.setattr(rio_cogeo.cogeo, "cog_translate", full_disk_for_one_layer)
+    monkeypatch.setattr(suitability.outputs, "_cog_copy", full_disk_for_one_layer)
     with pytest.raises(OutputError, match=rf"{failing[0]}.{failing[1]}\.tif: COG conversion failed.*the disk is full"):
         write_together(folder_writes(tmp_path, layers), conversion_threads=threads)
     assert running == [] and outlived_their_folder == []  # every conversion ended before the clean-up
