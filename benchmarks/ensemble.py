@@ -24,7 +24,9 @@ the canopy crossover layer, each kind ``--repeat`` times interleaved; one more m
 wall of 2) / 2 of the fastest runs, compared with N² x 12 cell-steps at the kernel's rate measured in this
 process before the runs (on 2 threads, and twice the 1-thread rate; ``run.kernel_benchmark``). A member's
 own work includes reading and averaging its 30-year series, which the kernel time does not.
-Results: benchmarks/results/ensemble_marginal.json and ensemble_marginal.md.
+Results: benchmarks/results/ensemble_marginal.json and ensemble_marginal.md; with ``--member-resolutions``
+(several, e.g. ``0.01 0.25``: members on the grid itself and at a climate model's resolution, interleaved in
+one run) ``ensemble_marginal_by_member_resolution.{json,md}``.
 """
 
 from __future__ import annotations
@@ -50,7 +52,9 @@ SCRATCH = RESULTS / "tmp" / "ensemble"
 RESOLUTION = 0.01  # degrees
 
 
-def write_inputs(folder: Path, size: int, members: list[str]) -> None:
+def write_inputs(folder: Path, size: int, members: list[str], member_resolution: float = RESOLUTION) -> None:
+    """The baseline on the grid itself; each member's series at ``member_resolution`` degrees (the grid's,
+    or coarser, as climate-model output comes), one cell beyond the region on every side when coarser."""
     import xarray as xr
 
     lat = -20.0 - RESOLUTION * (np.arange(size) + 0.5)  # descending, as many model grids are
@@ -71,6 +75,12 @@ def write_inputs(folder: Path, size: int, members: list[str]) -> None:
     series = xr.date_range("2041-01-01", periods=12 * 30, freq="MS", calendar="noleap", use_cftime=True)
     step_month = np.array([t.month for t in series])
     step_year = np.array([t.year for t in series])
+    if member_resolution != RESOLUTION:
+        cells = int(np.ceil(size * RESOLUTION / member_resolution)) + 2
+        lat = -20.0 + member_resolution - member_resolution * (np.arange(cells) + 0.5)
+        lon = 55.0 - member_resolution + member_resolution * (np.arange(cells) + 0.5)
+        coords = {"lat": ("lat", lat, coords["lat"][2]), "lon": ("lon", lon, coords["lon"][2])}
+        field = (-6.0 + 12.0 * (lon - 55.0) / (size * RESOLUTION))[None, None, :] + np.zeros((1, cells, 1))
     for i, member in enumerate(members):
         warming = 1.0 + 1.5 * i
         trend = (warming * (step_year - 2041) / 29.0)[:, None, None]
@@ -134,9 +144,12 @@ def main() -> None:
     parser.add_argument("--repeat", type=int, default=2, help="runs of each kind, interleaved; the fastest is kept")
     parser.add_argument("--marginal-size", type=int, default=0,
                         help="measure one more member at this size instead (module docstring)")
+    parser.add_argument("--member-resolutions", type=float, nargs="+", default=[RESOLUTION],
+                        help=f"degrees of the members' series in --marginal-size, each measured in the same run "
+                             f"(default {RESOLUTION}: the grid's; climate-model output comes at 0.1-1)")
     args = parser.parse_args()
     if args.marginal_size:
-        marginal_member(args.marginal_size, args.repeat)
+        marginal_member(args.marginal_size, args.repeat, args.member_resolutions)
         return
     members = [f"m{i + 1}" for i in range(args.members)]
     shutil.rmtree(SCRATCH, ignore_errors=True)
@@ -170,20 +183,25 @@ def main() -> None:
     shutil.rmtree(SCRATCH, ignore_errors=True)
 
 
-def marginal_member(size: int, repeat: int) -> None:
-    """One more member's cost against the kernel time of its own work (module docstring)."""
+def marginal_member(size: int, repeat: int, member_resolutions: list[float] | None = None) -> None:
+    """One more member's cost against the kernel time of its own work (module docstring), for members at each
+    of ``member_resolutions`` degrees (default: the grid's), every kind interleaved in one run."""
     sys.path.insert(0, str(Path(__file__).resolve().parent))
     from run import kernel_benchmark
 
+    resolutions = member_resolutions or [RESOLUTION]
     members = [f"m{i + 1}" for i in range(4)]
     shutil.rmtree(SCRATCH, ignore_errors=True)
-    SCRATCH.mkdir(parents=True)
     print("kernel ...", flush=True)
     kernel = kernel_benchmark(131072, 16384, 4096, repeats=3)
-    write_inputs(SCRATCH, size, members)
-    kinds = {(count, crossover): write_config(SCRATCH, f"members{count}_{'with' if crossover else 'without'}", size,
-                                              members[:count], "ensemble", crossover)
-             for crossover in (True, False) for count in (2, 4)}
+    kinds = {}
+    for resolution in resolutions:
+        folder = SCRATCH / f"members_{resolution:g}deg"
+        folder.mkdir(parents=True)
+        write_inputs(folder, size, members, resolution)
+        kinds.update({(resolution, count, crossover): write_config(
+            folder, f"members{count}_{'with' if crossover else 'without'}", size, members[:count], "ensemble", crossover)
+            for crossover in (True, False) for count in (2, 4)})
     fastest, every = {}, {}
     for _ in range(repeat):  # interleaved, so that other load on the machine falls on every kind alike
         for key, config in kinds.items():
@@ -194,31 +212,44 @@ def marginal_member(size: int, repeat: int) -> None:
             print(key, json.dumps(result), flush=True)
     kernel_s = {"2 threads": size * size * 12 / kernel["kernel_2_threads_cell_steps_per_s"],
                 "twice 1 thread": size * size * 12 / (2 * kernel["kernel_1_thread_cell_steps_per_s"])}
-    rows = {}
-    for crossover in (True, False):
-        per_member = (fastest[(4, crossover)]["wall_s"] - fastest[(2, crossover)]["wall_s"]) / 2
-        rows["with crossover" if crossover else "without crossover"] = {
-            "wall_2_members_s": fastest[(2, crossover)]["wall_s"], "wall_4_members_s": fastest[(4, crossover)]["wall_s"],
-            "per_member_s": per_member, **{f"ratio_to_kernel_{k.replace(' ', '_')}": per_member / v
-                                            for k, v in kernel_s.items()}}
-    report = {"size": size, "cells": size * size, "repeat": repeat, "kernel": kernel, "kernel_s_per_member": kernel_s,
-              "one_more_member": rows, "fastest": {str(k): v for k, v in fastest.items()}, "every_run": every,
+    rows = []
+    for resolution in resolutions:
+        for crossover in (True, False):
+            two, four = fastest[(resolution, 2, crossover)]["wall_s"], fastest[(resolution, 4, crossover)]["wall_s"]
+            per_member = (four - two) / 2
+            rows.append({"member_resolution_deg": resolution, "layers": "with crossover" if crossover else "without crossover",
+                         "wall_2_members_s": two, "wall_4_members_s": four, "per_member_s": per_member,
+                         **{f"ratio_to_kernel_{k.replace(' ', '_')}": per_member / v for k, v in kernel_s.items()}})
+    stem = "ensemble_marginal" if resolutions == [RESOLUTION] else "ensemble_marginal_by_member_resolution"
+    report = {"size": size, "cells": size * size, "repeat": repeat, "grid_resolution_deg": RESOLUTION,
+              "kernel": kernel, "kernel_s_per_member": kernel_s, "one_more_member": rows,
+              "fastest": {str(k): v for k, v in fastest.items()}, "every_run": every,
               "load_average_at_end": os.getloadavg()}
     RESULTS.mkdir(exist_ok=True)
-    (RESULTS / "ensemble_marginal.json").write_text(json.dumps(report, indent=2) + "\n")
-    lines = [f"# One more ensemble member ({size} x {size} cells, 12 months, fastest of {repeat})", "",
-             "Invented square region (see benchmarks/ensemble.py; not a real place). One more member = (wall with 4 "
-             "members - wall with 2) / 2, against the kernel time of its own model work "
-             f"({size}² x 12 cell-steps): {kernel_s['2 threads']:.2f} s at the 2-thread kernel rate, "
-             f"{kernel_s['twice 1 thread']:.2f} s at twice the 1-thread rate.", "",
-             "| layers | wall, 2 members [s] | wall, 4 members [s] | one more member [s] | / kernel (2 threads) "
-             "| / kernel (twice 1 thread) |", "|---|---|---|---|---|---|"]
-    for name, row in rows.items():
-        lines.append(f"| {name} | {row['wall_2_members_s']} | {row['wall_4_members_s']} | {row['per_member_s']:.2f} | "
-                     f"{row['ratio_to_kernel_2_threads']:.2f}x | {row['ratio_to_kernel_twice_1_thread']:.2f}x |")
-    (RESULTS / "ensemble_marginal.md").write_text("\n".join(lines) + "\n")
-    print("\n".join(lines))
+    (RESULTS / f"{stem}.json").write_text(json.dumps(report, indent=2) + "\n")
+    text = marginal_markdown(report)
+    (RESULTS / f"{stem}.md").write_text(text)
+    print(text)
     shutil.rmtree(SCRATCH, ignore_errors=True)
+
+
+def marginal_markdown(report: dict) -> str:
+    """The table of :func:`marginal_member`'s report."""
+    size, kernel_s = report["size"], report["kernel_s_per_member"]
+    lines = [f"# One more ensemble member ({size} x {size} cells, 12 months, fastest of {report['repeat']})", "",
+             "Invented square region (see benchmarks/ensemble.py; not a real place). Each member is a 30-year "
+             f"monthly series of Tmin and Tmax, at the grid's own {RESOLUTION:g}° or coarser (as climate-model output "
+             "comes; then resampled bilinearly onto the grid). One more member = (wall with 4 members - wall with "
+             f"2) / 2, against the kernel time of its own model work ({size}² x 12 cell-steps): "
+             f"{kernel_s['2 threads']:.2f} s at the 2-thread kernel rate, {kernel_s['twice 1 thread']:.2f} s at "
+             "twice the 1-thread rate, measured in this run before the runs. Every kind ran interleaved.", "",
+             "| members' series | layers | wall, 2 members [s] | wall, 4 members [s] | one more member [s] "
+             "| / kernel (2 threads) | / kernel (twice 1 thread) |", "|---|---|---|---|---|---|---|"]
+    for row in report["one_more_member"]:
+        lines.append(f"| {row['member_resolution_deg']:g}° | {row['layers']} | {row['wall_2_members_s']} | "
+                     f"{row['wall_4_members_s']} | {row['per_member_s']:.2f} | {row['ratio_to_kernel_2_threads']:.2f}x | "
+                     f"{row['ratio_to_kernel_twice_1_thread']:.2f}x |")
+    return "\n".join(lines) + "\n"
 
 
 if __name__ == "__main__":
