@@ -398,17 +398,22 @@ def test_png_is_rgb_and_the_same_pixels_as_matplotlib_draws(tmp_path):
     assert np.array_equal(np.asarray(ours), reference[..., :3])
 
 
-@pytest.mark.parametrize("size_in", [(7.0, 4.35), figures.MAP_SIZE_IN])
-def test_change_map_scale_label_is_inside_the_figure(tmp_path, size_in):
-    # Derived here: the words saying which way is towards C3 and towards C4 must be on the figure (they were
-    # drawn below the colour bar, off the bottom of the half-page map), clear of the map frame and the scale bar.
+def _drawn_change_map(tmp_path, size_in):
+    """A change map of changes from -0.3 to 0.2, drawn (text placed); (figure, renderer)."""
     path = write_raster(tmp_path / "advantage_change.tif",
                         np.linspace(-0.3, 0.2, 40 * 60, dtype="float32").reshape(40, 60), "EPSG:32740",
                         from_origin(300000, 7400000, 1000, 1000))
     figure = figures.change_map_figure(path, None, title="warmer", size_in=size_in)
     canvas = FigureCanvasAgg(figure)
-    canvas.draw()  # places the axis label
-    renderer = canvas.get_renderer()
+    canvas.draw()  # places the axis label and the tick labels
+    return figure, canvas.get_renderer()
+
+
+@pytest.mark.parametrize("size_in", [(7.0, 4.35), figures.MAP_SIZE_IN])
+def test_change_map_scale_label_is_inside_the_figure(tmp_path, size_in):
+    # Derived here: the words saying which way is towards C3 and towards C4 must be on the figure (they were
+    # drawn below the colour bar, off the bottom of the half-page map), clear of the map frame and the scale bar.
+    figure, renderer = _drawn_change_map(tmp_path, size_in)
     bar_axes = figure.axes[-1]
     label = bar_axes.xaxis.label
     assert "towards C4" in label.get_text()
@@ -424,13 +429,7 @@ def test_change_map_scale_label_is_inside_the_figure(tmp_path, size_in):
 def test_change_map_scale_ticks_are_readable_and_symmetric(tmp_path, size_in):
     # Derived here: the scale runs from -limit to +limit (limit: the largest change rounded up to 0.05,
     # here 0.3); matplotlib's own ticks put nine labels on it, run together at 7 pt.
-    path = write_raster(tmp_path / "advantage_change.tif",
-                        np.linspace(-0.3, 0.2, 40 * 60, dtype="float32").reshape(40, 60), "EPSG:32740",
-                        from_origin(300000, 7400000, 1000, 1000))
-    figure = figures.change_map_figure(path, None, title="warmer", size_in=size_in)
-    canvas = FigureCanvasAgg(figure)
-    canvas.draw()
-    renderer = canvas.get_renderer()
+    figure, renderer = _drawn_change_map(tmp_path, size_in)
     labels = [t for t in figure.axes[-1].get_xticklabels() if t.get_text()]
     assert [t.get_text() for t in labels] == ["\u22120.3", "\u22120.15", "0", "+0.15", "+0.3"]
     boxes = [t.get_window_extent(renderer) for t in labels]
