@@ -10,8 +10,8 @@ Layers (:func:`write_layers`)
     :func:`suitability.runtime.write_lock`). Then each file is converted to a COG by GDAL's COG driver
     (``rasterio.shutil.copy(driver="COG")``; half the CPU time of ``rio_cogeo.cog_translate``, which
     this replaced: 0.6 against 1.15 CPU-s for 2000² float32), validated with rio-cogeo's
-    ``cog_validate(strict=True)`` and only
-    then moved to ``<name>.tif`` with ``os.replace``. The conversions of all files of one call run at once
+    ``cog_validate(strict=True)`` and only then moved to ``<name>.tif`` with ``os.replace``. The
+    conversions of all files of one call run at once
     in a thread pool (``conversion_threads``, the pipeline gives the run's worker count: GDAL releases the
     GIL while it reads, compresses and writes), and the renames start only when every one of them has
     succeeded. Until that last step everything lives in a hidden
