@@ -126,17 +126,27 @@ def _refine(excess, a, g_a, b, g_b, active, counter, c=None, g_c=None):
     """Illinois regula falsi on the brackets [a, b] (g(a) and g(b) on opposite sides of 0) of ``active``,
     b the point evaluated last, sped up by inverse quadratic interpolation through a, b and a third
     point (c, g_c; the last one dropped from the bracket) where that falls inside the bracket, and by
-    aiming just past the estimate, away from b, when b is already within the tolerance of it."""
-    a, g_a, b, g_b = a.copy(), g_a.copy(), b.copy(), g_b.copy()
+    aiming just past the estimate, away from b, when b is already within the tolerance of it.
+
+    Works on the open brackets only: a bracket's final estimate is taken when it closes and the
+    bracket leaves the arrays, so each pass costs in proportion to the brackets still open.
+    Returns the estimate for ``active`` elements, NaN elsewhere."""
+    result = np.full(a.shape, np.nan)
+    which = np.flatnonzero(active)
+    a, g_a, b, g_b = a[which], g_a[which], b[which], g_b[which]
     true_g_a = g_a.copy()  # the Illinois step halves g_a; the interpolation needs the values themselves
-    c = np.full(a.shape, np.nan) if c is None else c.copy()
-    g_c = np.full(a.shape, np.nan) if g_c is None else g_c.copy()
-    active = active.copy()
+    c = np.full(a.shape, np.nan) if c is None else c[which]
+    g_c = np.full(a.shape, np.nan) if g_c is None else g_c[which]
     step = 0.5 * TOLERANCE_C  # Dekker's minimum step
     for _ in range(MAX_REFINEMENTS):
-        active &= np.abs(b - a) > TOLERANCE_C
-        if not active.any():
-            break
+        open_ = np.abs(b - a) > TOLERANCE_C
+        if not open_.all():
+            closed = ~open_
+            result[which[closed]] = _final_estimate(a[closed], g_a[closed], b[closed], g_b[closed])
+            which, a, g_a, b, g_b, true_g_a, c, g_c = (
+                values[open_] for values in (which, a, g_a, b, g_b, true_g_a, c, g_c))
+        if not which.size:
+            return result
         low, high = np.minimum(a, b), np.maximum(a, b)
         with np.errstate(invalid="ignore", divide="ignore"):
             secant = b - g_b * (b - a) / (g_b - g_a)
@@ -149,22 +159,21 @@ def _refine(excess, a, g_a, b, g_b, active, counter, c=None, g_c=None):
         estimate = np.where(np.abs(past - b) <= TOLERANCE_C, past, estimate)
         # At least half the tolerance from either end (Dekker's minimum step), so that a root next to an
         # end closes the bracket in one more pass instead of creeping toward it.
-        x = np.where(active, np.clip(estimate, low + step, high - step), 0.0)
-        g = _call(excess, x, active, counter)
+        x = np.clip(estimate, low + step, high - step)
+        g = _call_on(excess, x, which, result.shape, counter)
         g = np.where(np.isfinite(g), g, np.where(g_b > 0, g_b, g_a))  # a NaN inside a bracket: move toward it
         same_as_b = (g > 0) == (g_b > 0)
         # Illinois: when the new point falls on b's side twice, halve the stale end's value.
-        new_a = np.where(same_as_b, a, b)
-        new_g_a = np.where(same_as_b, 0.5 * g_a, g_b)
-        new_true_g_a = np.where(same_as_b, true_g_a, g_b)
-        dropped, g_dropped = np.where(same_as_b, b, a), np.where(same_as_b, g_b, true_g_a)
-        c = np.where(active, dropped, c)
-        g_c = np.where(active, g_dropped, g_c)
-        a = np.where(active, new_a, a)
-        g_a = np.where(active, new_g_a, g_a)
-        true_g_a = np.where(active, new_true_g_a, true_g_a)
-        b = np.where(active, x, b)
-        g_b = np.where(active, g, g_b)
+        c, g_c = np.where(same_as_b, b, a), np.where(same_as_b, g_b, true_g_a)  # the point dropped
+        a, g_a, true_g_a = (np.where(same_as_b, a, b), np.where(same_as_b, 0.5 * g_a, g_b),
+                            np.where(same_as_b, true_g_a, g_b))
+        b, g_b = x, g
+    result[which] = _final_estimate(a, g_a, b, g_b)
+    return result
+
+
+def _final_estimate(a, g_a, b, g_b):
+    """The tie in a closed bracket: its secant point, or its middle where that falls outside."""
     with np.errstate(invalid="ignore", divide="ignore"):
         secant = b - g_b * (b - a) / (g_b - g_a)
     low, high = np.minimum(a, b), np.maximum(a, b)
@@ -176,6 +185,15 @@ def _inverse_quadratic(a, g_a, b, g_b, c, g_c):
     without Derivatives, ch. 4); NaN where two values coincide or c is missing."""
     return (a * g_b * g_c / ((g_a - g_b) * (g_a - g_c)) + b * g_a * g_c / ((g_b - g_a) * (g_b - g_c))
             + c * g_a * g_b / ((g_c - g_a) * (g_c - g_b)))
+
+
+def _call_on(excess, x, which, shape, counter):
+    """g at ``x`` for the elements ``which`` of arrays of ``shape`` (the others not computed)."""
+    offsets = np.zeros(shape)
+    offsets[which] = x
+    active = np.zeros(shape, bool)
+    active[which] = True
+    return _call(excess, offsets, active, counter)[which]
 
 
 def _call(excess, offsets, active, counter):
