@@ -445,7 +445,7 @@ def _evaluate_block(*arrays: np.ndarray, names: Sequence[str], settings: ModelSe
     month_mean = month_mean_temperature(data)
     if settings.crossover:
         monthly_crossover = canopy_crossover(block, settings, _crossover_months(block, settings, month_mean),
-                                             monthly_advantage)
+                                             monthly_advantage, month_mean)
     else:
         monthly_crossover = np.full(in_season.shape, np.nan)
     crossover = indicators.warmest_month_value(monthly_crossover, month_mean, in_season)
@@ -591,7 +591,7 @@ def growth_temperature(data, settings: ModelSettings):
     return (0.5 * (data["tmin"] + data["tmax"])).astype(np.float32)
 
 
-def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly_advantage) -> np.ndarray:
+def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly_advantage, month_mean) -> np.ndarray:
     """The canopy crossover [°C] of every cell and month of ``months`` (bool (..., 12)); NaN elsewhere.
 
     The monthly mean temperature at which the month's advantage index of the two daily canopies
@@ -605,7 +605,8 @@ def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly_adv
     mean temperature is above its crossover. −inf: C4 favoured at every mean temperature down to the
     lower end of :data:`CROSSOVER_SEARCH_C` (or the month's own, if colder); +inf: not C4-favoured at any
     up to the upper end (or where the shifted day leaves the leaf models' temperature range).
-    ``monthly_advantage``: the model pass's advantage index of every month (..., 12).
+    ``monthly_advantage``: the model pass's advantage index of every month (..., 12); ``month_mean``: the
+    block's :func:`month_mean_temperature`.
     """
     data = block.data
     shape = months.shape
@@ -615,7 +616,7 @@ def canopy_crossover(block: _Block, settings: ModelSettings, months, monthly_adv
     start = np.where(months, monthly_advantage - settings.contested_margin, np.nan).reshape(n, 12)
     # The solver works on the searched (cell, month) pairs only: one month per cell without a datacube.
     cells, pair_months = np.nonzero(np.isfinite(start))
-    mean = month_mean_temperature(data).reshape(n, 12)
+    mean = month_mean.reshape(n, 12)
     result = np.full((n, 12), np.nan, np.float32)
     for first in range(0, cells.size, CROSSOVER_BATCH_PAIRS):
         pairs = slice(first, first + CROSSOVER_BATCH_PAIRS)
