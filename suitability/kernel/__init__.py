@@ -15,8 +15,9 @@ models (:data:`suitability.physiology.models.LEAF_MODELS`) the parameter sets na
 - :mod:`.compiled`: the loops (batches of cells, Gauss moments), calling the physiology's equations;
 - this module: the public functions, input normalisation, one compiled entry point per pair of models.
 
-Compilation: on first use the entry point of a pair of leaf models takes about half a minute to compile
-on a 2-core machine; numba keeps it in its on-disk cache (``__pycache__`` beside :mod:`.compiled`, or
+Compilation: on first use the entry point of a pair of leaf models takes about 100 s and 2.4 GB to compile
+on a 2-core machine, in a child process (:mod:`.ahead`, so that no run holds the compiler's memory);
+numba keeps it in its on-disk cache (``__pycache__`` beside :mod:`.compiled`, or
 numba's user cache directory when that is read-only), stamped with the content of every source file it
 was built from, so later processes, dask workers included, load it in well under a second and a change
 to any equation recompiles it. Every call is normalised to one type signature (:func:`_kernel_array`).
@@ -39,6 +40,7 @@ from ..physiology import canopy as _canopy
 from ..physiology.elementwise import specialise
 from ..physiology.models import LeafModel
 from ..physiology.water import MAX_WATER_SUPPLY_MM_PER_DAY
+from . import ahead
 from . import compiled as _compiled
 from .compiled import (
     A_C3_GROSS,
@@ -86,9 +88,11 @@ def _compiled_entry(c3_model: LeafModel, c4_model: LeafModel):
         if not model.compiled:
             raise ValueError(f"leaf model {model.name!r} is not available in the compiled engine; use "
                              "compute.engine: numpy")
-    return specialise(_compiled.monthly_cells, {"C3_RATES": c3_model.rates, "C4_RATES": c4_model.rates,
-                                                "C3_ACCLIMATE": c3_model.acclimate, "C4_ACCLIMATE": c4_model.acclimate},
-                      key=f"{c3_model.name}_{c4_model.name}")
+    entry = specialise(_compiled.monthly_cells, {"C3_RATES": c3_model.rates, "C4_RATES": c4_model.rates,
+                                                 "C3_ACCLIMATE": c3_model.acclimate, "C4_ACCLIMATE": c4_model.acclimate},
+                       key=f"{c3_model.name}_{c4_model.name}")
+    ahead.compile_ahead(entry, c3_model, c4_model)  # else the first call compiles it here
+    return entry
 
 
 @dataclass(frozen=True)
