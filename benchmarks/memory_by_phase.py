@@ -9,7 +9,9 @@ wrapping those functions of `suitability.pipeline` and `suitability.outputs` for
 run itself is unchanged. Linux only (/proc).
 
 Results: ``results/memory_by_phase_<size>.{json,md}``: the largest sample between consecutive marks, and
-VmHWM (the process's own peak) at the end. No test asserts a timing or a memory figure from here.
+VmHWM (the process's own peak) at the end, and the largest child process's peak (the kernel's compiler
+runs in a child when numba's cache lacks the kernel: run with an empty ``NUMBA_CACHE_DIR`` to measure a
+fresh install's first run). No test asserts a timing or a memory figure from here.
 Run: ``python benchmarks/memory_by_phase.py [--size 2000] [--datacube]``.
 """
 
@@ -17,6 +19,7 @@ from __future__ import annotations
 
 import argparse
 import json
+import resource
 import shutil
 import subprocess
 import sys
@@ -91,6 +94,8 @@ def main() -> None:
     parser.add_argument("--size", type=int, default=2000)
     parser.add_argument("--datacube", action="store_true")
     args = parser.parse_args()
+    commit = subprocess.run(["git", "rev-parse", "--short", "HEAD"], cwd=REPO, capture_output=True,
+                            text=True).stdout.strip()  # the code that runs (the checkout may move meanwhile)
     folder = RESULTS / "tmp" / f"memory_by_phase_{args.size}"
     shutil.rmtree(folder, ignore_errors=True)
     config = write_region(folder, args.size, scenarios=3, workers=2, datacube=args.datacube)
@@ -104,10 +109,10 @@ def main() -> None:
     timeline.mark("run starts")
     app(["run", str(config), "--no-progress"], standalone_mode=False)
     timeline.mark("run ends")
-    commit = subprocess.run(["git", "rev-parse", "--short", "HEAD"], cwd=REPO, capture_output=True,
-                            text=True).stdout.strip()
+    children_peak = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss // 1024
     result = {"date": datetime.now(timezone.utc).isoformat(timespec="seconds"), "commit": commit,
               "size": args.size, "datacube": args.datacube, "own_peak_mib": status_mib("VmHWM"),
+              "children_peak_mib": children_peak,
               "phases": timeline.between_marks(), "marks": timeline.marks, "samples": timeline.samples}
     name = f"memory_by_phase_{args.size}{'_datacube' if args.datacube else ''}"
     (RESULTS / f"{name}.json").write_text(json.dumps(result, indent=1) + "\n")
@@ -115,7 +120,9 @@ def main() -> None:
              f"`python benchmarks/memory_by_phase.py --size {args.size}{' --datacube' if args.datacube else ''}`:"
              f" invented synthetic region, {args.size}² cells, 12 months x 3 scenarios, every layer, COG"
              f"{', datacube' if args.datacube else ''}; 2 dask threads; in one process, VmRSS sampled every 0.25 s."
-             f" Peak (VmHWM): **{result['own_peak_mib']} MiB**.", "",
+             f" Peak (VmHWM): **{result['own_peak_mib']} MiB**. Largest child process (the kernel compiled"
+             f" ahead when numba's cache lacked it, suitability/kernel/ahead.py; 0 if none ran):"
+             f" {children_peak} MiB.", "",
              "| from | to | seconds | largest VmRSS MiB |", "|---|---|---|---|"]
     lines += [f"| {r['from']} | {r['to']} | {r['seconds']} | {r['largest_rss_mib']} |" for r in result["phases"]]
     (RESULTS / f"{name}.md").write_text("\n".join(lines) + "\n")
