@@ -166,7 +166,10 @@ def kernel_build(target: dict | None = None, time_cells: int = 0, repeats: int =
     import tempfile
 
     with tempfile.TemporaryDirectory() as cache:
-        environment = dict(os.environ, NUMBA_CACHE_DIR=cache, PYTHONPATH=str(REPO), **(target or {}))
+        # Compiled in that child itself (not in a child of its own, suitability/kernel/ahead.py): the
+        # assembly of a kernel loaded from the cache cannot be read.
+        environment = dict(os.environ, NUMBA_CACHE_DIR=cache, PYTHONPATH=str(REPO), SUITABILITY_COMPILE_IN_PROCESS="1",
+                           **(target or {}))
         code = f"from benchmarks.run import fresh_build_child; fresh_build_child({int(time_cells)}, {int(repeats)})"
         try:
             result = subprocess.run([sys.executable, "-c", code], env=environment, capture_output=True,
