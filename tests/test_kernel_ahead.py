@@ -94,6 +94,9 @@ def test_models_a_new_process_would_not_see_are_compiled_by_the_caller(tmp_path,
     replaced = dataclasses.replace(C4_MODEL)  # same name, not the registry's object
     assert LEAF_MODELS[C4_MODEL.name] is C4_MODEL and replaced is not C4_MODEL
     assert ahead.compile_ahead(twice, C3_MODEL, replaced) is False
+    registered_now = dataclasses.replace(C4_MODEL, name="registered_at_run_time")
+    monkeypatch.setitem(LEAF_MODELS, registered_now.name, registered_now)  # in the registry, but only here
+    assert ahead.compile_ahead(twice, C3_MODEL, registered_now) is False
 
 
 @pytest.mark.slow

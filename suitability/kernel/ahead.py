@@ -25,7 +25,12 @@ import sys
 import warnings
 from pathlib import Path
 
+from ..physiology import c3 as _c3, c4 as _c4  # noqa: F401  (they register the built-in leaf models)
 from ..physiology.models import LEAF_MODELS, LeafModel
+
+#: The leaf models a new process registers by importing the package (those registered later, e.g. by a
+#: test or a plugin at run time, are compiled by the caller: the child would not know them).
+_BUILT_IN = dict(LEAF_MODELS)
 
 #: Environment variable that turns the child process off (compile in the calling process), e.g. where
 #: starting processes is not allowed.
@@ -50,10 +55,10 @@ def compile_ahead(dispatcher, c3_model: LeafModel, c4_model: LeafModel, timeout_
     child process, unless it is cached already; True if the cache then holds it.
 
     ``dispatcher``: this process's (not yet compiled) entry point, to read and check the cache. Models
-    that are not the registry's own objects (registered or replaced at run time, which a new process
-    would not see) are left to the caller, as is everything when :data:`IN_PROCESS_VARIABLE` is set. A
+    other than the built-in ones (registered or replaced at run time, which a new process would not
+    see) are left to the caller, as is everything when :data:`IN_PROCESS_VARIABLE` is set. A
     child that fails is said in a RuntimeWarning, and the caller compiles."""
-    known = all(LEAF_MODELS.get(model.name) is model for model in (c3_model, c4_model))
+    known = all(_BUILT_IN.get(model.name) is model for model in (c3_model, c4_model))
     if not known or os.environ.get(IN_PROCESS_VARIABLE) or is_cached(dispatcher) is not False:
         return bool(is_cached(dispatcher))
     with _compile_lock(Path(dispatcher._cache._cache_path) / f"{dispatcher.py_func.__name__}.compiling"):
