@@ -791,6 +791,13 @@ _SCENARIO_STYLES = (("o", "#0072B2"), ("s", "#D55E00"), ("^", "#CC79A7"), ("D", 
                     ("P", "#E69F00"), ("X", "#000000"))
 
 
+def _spread_below_above(rows) -> np.ndarray:
+    """(2, n) distances [°C] from each row's median crossover down to its 5 % and up to its 95 % quantile, as
+    numpy (pandas Series of one row made matplotlib call float() on a Series, which pandas deprecates)."""
+    median = rows["q50"].to_numpy()
+    return np.vstack([median - rows["q05"].to_numpy(), rows["q95"].to_numpy() - median])
+
+
 def district_crossover_figure(points: pd.DataFrame, highlight: str | None = None,
                               size_in: tuple[float, float] = (7.0, 3.8)) -> Figure:
     """Each district's warm-month temperature against the crossover temperature of its cells.
@@ -820,13 +827,13 @@ def district_crossover_figure(points: pd.DataFrame, highlight: str | None = None
     for i, (label, rows) in enumerate(data.groupby("scenario", sort=False)):
         marker, colour = _SCENARIO_STYLES[i % len(_SCENARIO_STYLES)]
         faded = highlight is not None
-        axes.errorbar(rows["warm_c"], rows["q50"], yerr=[rows["q50"] - rows["q05"], rows["q95"] - rows["q50"]],
+        axes.errorbar(rows["warm_c"].to_numpy(), rows["q50"].to_numpy(), yerr=_spread_below_above(rows),
                       fmt=marker, color=colour, markersize=3 if many else 4.5, elinewidth=0.5 if many else 0.8,
                       alpha=0.35 if faded else (0.6 if many else 0.85), label=str(label), gid=f"scenario:{label}",
                       markeredgewidth=0)
         if highlight is not None:
             own = rows[rows["district"] == highlight]
-            axes.errorbar(own["warm_c"], own["q50"], yerr=[own["q50"] - own["q05"], own["q95"] - own["q50"]],
+            axes.errorbar(own["warm_c"].to_numpy(), own["q50"].to_numpy(), yerr=_spread_below_above(own),
                           fmt=marker, color=colour, markersize=8, elinewidth=1.6, markeredgecolor=_INK,
                           markeredgewidth=0.8, zorder=6)
             for _, r in own.iterrows():

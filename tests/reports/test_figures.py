@@ -9,6 +9,7 @@ from __future__ import annotations
 import io
 import math
 import re
+import warnings
 from types import SimpleNamespace
 
 import colorspacious
@@ -233,6 +234,20 @@ def test_district_crossover_chart_draws_the_points():
     assert set(marks) == {"Today", "Warmer"}
     today = marks["Today"].lines[0]
     assert list(today.get_xdata()) == [20.0, 25.0] and list(today.get_ydata()) == [22.0, 22.5]
+
+
+def test_a_highlighted_district_is_drawn_without_pandas_deprecations():
+    # One district's row is a one-row frame: its Series once reached matplotlib, which called float() on
+    # them; pandas deprecates that (FutureWarning, "will raise a TypeError in the future").
+    points = pd.DataFrame({"district": ["Orvanne", "Telmira"], "scenario": ["Today", "Today"],
+                           "warm_c": [20.0, 25.0], "q05": [21.0, 21.5], "q50": [22.0, 22.5], "q95": [23.0, 24.5]})
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", FutureWarning)
+        figure = figures.district_crossover_figure(points, highlight="Telmira")
+    own = figure.axes[0].containers[-1]
+    assert list(own.lines[0].get_xdata()) == [25.0] and list(own.lines[0].get_ydata()) == [22.5]
+    (bar,) = own.lines[2]
+    assert bar.get_segments()[0][:, 1].tolist() == [21.5, 24.5]  # the 5-95 % bar: 22.5 - 1.0 to 22.5 + 2.0
 
 
 def test_change_map_is_diverging_and_centred(tmp_path):
