@@ -59,8 +59,9 @@ def compile_ahead(dispatcher, c3_model: LeafModel, c4_model: LeafModel, timeout_
     see) are left to the caller, as is everything when :data:`IN_PROCESS_VARIABLE` is set. A
     child that fails is said in a RuntimeWarning, and the caller compiles."""
     known = all(_BUILT_IN.get(model.name) is model for model in (c3_model, c4_model))
-    if not known or os.environ.get(IN_PROCESS_VARIABLE) or is_cached(dispatcher) is not False:
-        return bool(is_cached(dispatcher))
+    cached = is_cached(dispatcher)
+    if not known or os.environ.get(IN_PROCESS_VARIABLE) or cached is not False:
+        return bool(cached)
     with _compile_lock(Path(dispatcher._cache._cache_path) / f"{dispatcher.py_func.__name__}.compiling"):
         if is_cached(dispatcher):  # another process compiled it while this one waited
             return True
@@ -99,12 +100,12 @@ def _compile_lock(path: Path):
 
 
 def _compile(c3_model: str, c4_model: str) -> None:
-    """Compile the entry point of two registered leaf models by running it on one cell."""
+    """Compile the entry point of two built-in leaf models by running it on one cell (with a parameter set
+    of each; the set's values do not change the compiled code)."""
     import numpy as np
 
-    from . import _compiled_entry, _run
+    from . import _run
 
-    _compiled_entry(LEAF_MODELS[c3_model], LEAF_MODELS[c4_model])  # the registry names must exist
     _run(2, np.ones(1), tmin_c=np.full((1, 1), 15.0), tmax_c=np.full((1, 1), 25.0), shortwave_mj=np.full((1, 1), 20.0),
          water_availability=np.ones((1, 1)), latitude_deg=np.zeros(1), day_of_year=[196], co2_ppm=420.0,
          c3_params=_params_of(c3_model, "C3"), c4_params=_params_of(c4_model, "C4"))
